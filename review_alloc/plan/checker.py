@@ -1,0 +1,157 @@
+"""The independent plan checker: every hard rule, the figures, and the optimality certificate.
+
+It trusts nothing the engine returned except the dual potentials, and those it verifies: it
+rebuilds the arc flows from the plan's assignments alone and checks the reduced-cost conditions.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from review_alloc.flow import FlowCheckError, check_cost_certificate
+from review_alloc.model import Plan, Session
+from review_alloc.plan.conflicts import conflict_pairs
+from review_alloc.plan.errors import PlanCheckError
+from review_alloc.plan.figures import (
+    active_demands,
+    assignment_indices,
+    loads_and_counts,
+    plan_figures,
+)
+from review_alloc.plan.network import PlanNetwork, build_network
+
+_MAX_LISTED = 20
+
+
+def check_plan(
+    session: Session,
+    plan: Plan,
+    potentials: np.ndarray | None,
+    *,
+    network: PlanNetwork | None = None,
+) -> None:
+    """Raise PlanCheckError unless the plan keeps every hard rule and (with potentials) is optimal."""
+    problems = _hard_rule_problems(session, plan)
+    if not problems and potentials is not None:
+        problems = _certificate_problems(session, plan, potentials, network)
+    if problems:
+        raise PlanCheckError(problems[:_MAX_LISTED])
+
+
+def _hard_rule_problems(session: Session, plan: Plan) -> list[str]:
+    paper_at = session.paper_index()
+    reviewer_at = session.reviewer_index()
+    problems: list[str] = []
+    for k, a in enumerate(plan.assignments):
+        if a.paper not in paper_at:
+            problems.append(f"assignment {k}: unknown paper {a.paper!r}")
+        if a.reviewer not in reviewer_at:
+            problems.append(f"assignment {k}: unknown reviewer {a.reviewer!r}")
+    if problems:
+        return problems
+
+    reviewer, paper, score = assignment_indices(session, plan.assignments)
+    n_p = max(len(session.papers), 1)
+    keys = reviewer * n_p + paper
+    unique, seen = np.unique(keys, return_counts=True)
+    for key in unique[seen > 1]:
+        problems.append(f"pair ({_rid(session, key, n_p)}, {_pid(session, key, n_p)}) is assigned twice")
+
+    conflicts = conflict_pairs(session)
+    reasons = conflicts.reason_of()
+    for j, i in zip(reviewer.tolist(), paper.tolist(), strict=True):
+        if (j, i) in reasons:
+            problems.append(
+                f"conflicted pair ({session.reviewers[j].id}, {session.papers[i].id}) is "
+                f"assigned: {reasons[(j, i)]}"
+            )
+        if session.reviewers[j].withdrawn:
+            problems.append(f"withdrawn reviewer {session.reviewers[j].id} is assigned")
+        if session.papers[i].withdrawn:
+            problems.append(f"withdrawn paper {session.papers[i].id} is assigned")
+    blocked = {(b.reviewer, b.paper) for b in session.blocks}
+    assigned = {(a.reviewer, a.paper) for a in plan.assignments}
+    for a in plan.assignments:
+        if (a.reviewer, a.paper) in blocked:
+            problems.append(f"blocked pair ({a.reviewer}, {a.paper}) is assigned")
+    for pin in session.pins:
+        if (pin.reviewer, pin.paper) not in assigned:
+            problems.append(f"pinned pair ({pin.reviewer}, {pin.paper}) is missing")
+
+    table = session.scores
+    s_keys = table.reviewer.astype(np.int64) * n_p + table.paper
+    order = np.argsort(s_keys)
+    s_keys, s_values = s_keys[order], table.value[order]
+    pos = np.clip(np.searchsorted(s_keys, keys), 0, max(len(s_keys) - 1, 0))
+    has_score = (s_keys[pos] == keys) if len(s_keys) else np.zeros(len(keys), dtype=bool)
+    expected = np.where(has_score, s_values[pos] if len(s_keys) else 0.0, 0.0)
+    pinned = {(p.reviewer, p.paper) for p in session.pins}
+    for k in np.flatnonzero(~np.isclose(expected, score, rtol=0, atol=1e-9)):
+        a = plan.assignments[k]
+        problems.append(f"pair ({a.reviewer}, {a.paper}) has score {a.score}, session says {expected[k]}")
+    if session.policy.unscored == "exclude":
+        for k in np.flatnonzero(~has_score):
+            a = plan.assignments[k]
+            if (a.reviewer, a.paper) not in pinned:
+                problems.append(f"unscored pair ({a.reviewer}, {a.paper}) is assigned")
+
+    loads, counts = loads_and_counts(session, reviewer, paper)
+    reviews, _, cap, _ = active_demands(session)
+    for j in np.flatnonzero(loads > cap):
+        problems.append(f"reviewer {session.reviewers[j].id} has load {loads[j]} above cap {cap[j]}")
+    for i in np.flatnonzero(counts > reviews):
+        problems.append(f"paper {session.papers[i].id} has {counts[i]} reviews, above {reviews[i]}")
+
+    figures = plan_figures(session, reviewer, paper, score)
+    if figures != plan.figures:
+        problems.append(f"plan figures {plan.figures} differ from recomputed {figures}")
+    return problems
+
+
+def _certificate_problems(
+    session: Session, plan: Plan, potentials: np.ndarray, network: PlanNetwork | None
+) -> list[str]:
+    net = network if network is not None else build_network(session)
+    reviewer, paper, _ = assignment_indices(session, plan.assignments)
+    n_p = max(net.n_papers, 1)
+    net_keys = net.pair_reviewer * n_p + net.pair_paper
+    order = np.argsort(net_keys)
+    keys = reviewer * n_p + paper
+    pos = np.clip(np.searchsorted(net_keys[order], keys), 0, max(len(net_keys) - 1, 0))
+    if len(keys) and (len(net_keys) == 0 or np.any(net_keys[order][pos] != keys)):
+        return ["the plan uses a pair that is not eligible in the session's network"]
+
+    flow = np.zeros(len(net.tails), dtype=np.int64)
+    pair_flow = np.zeros(len(net_keys), dtype=np.int64)
+    pair_flow[order[pos]] = 1
+    flow[net.pair_arcs] = pair_flow
+    loads, counts = loads_and_counts(session, reviewer, paper)
+    floor_cap = net.capacities[net.floor_arcs]
+    flow[net.floor_arcs] = np.minimum(loads, floor_cap)
+    flow[net.rest_arcs] = loads - flow[net.floor_arcs]
+    required_cap = net.capacities[net.required_arcs]
+    flow[net.required_arcs] = np.minimum(counts, required_cap)
+    flow[net.extra_arcs] = counts - flow[net.required_arcs]
+    flow[net.return_arc] = int(counts.sum())
+    try:
+        check_cost_certificate(
+            net.n_nodes,
+            net.tails,
+            net.heads,
+            net.capacities,
+            net.costs,
+            flow,
+            potentials,
+            lower=net.lower,
+        )
+    except FlowCheckError as error:
+        return [f"optimality certificate rejected: {error}"]
+    return []
+
+
+def _rid(session: Session, key: int, n_p: int) -> str:
+    return session.reviewers[int(key) // n_p].id
+
+
+def _pid(session: Session, key: int, n_p: int) -> str:
+    return session.papers[int(key) % n_p].id

@@ -1,0 +1,59 @@
+"""The objective figures of a plan, recomputed from its assignments alone."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from review_alloc.model import PlanFigures, Session
+
+
+def loads_and_counts(
+    session: Session, reviewer: np.ndarray, paper: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """Per-reviewer loads and per-paper review counts of the given assignment index arrays."""
+    loads = np.bincount(reviewer, minlength=len(session.reviewers)).astype(np.int64)
+    counts = np.bincount(paper, minlength=len(session.papers)).astype(np.int64)
+    return loads, counts
+
+
+def active_demands(session: Session) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """(reviews, min_reviews, cap, floor) arrays with withdrawn papers and reviewers at zero."""
+    reviews = session.paper_reviews_array().astype(np.int64)
+    minimum = session.paper_min_reviews_array().astype(np.int64)
+    cap = session.reviewer_cap_array().astype(np.int64)
+    floor = session.reviewer_floor_array().astype(np.int64)
+    gone_p = np.array([p.withdrawn for p in session.papers], dtype=bool)
+    gone_r = np.array([r.withdrawn for r in session.reviewers], dtype=bool)
+    reviews[gone_p] = 0
+    minimum[gone_p] = 0
+    cap[gone_r] = 0
+    floor[gone_r] = 0
+    return reviews, minimum, cap, floor
+
+
+def plan_figures(
+    session: Session, reviewer: np.ndarray, paper: np.ndarray, score: np.ndarray
+) -> PlanFigures:
+    """Tier figures of DESIGN.md's objective for assignments given as index arrays."""
+    loads, counts = loads_and_counts(session, reviewer, paper)
+    reviews, minimum, _, floor = active_demands(session)
+    return PlanFigures(
+        required_coverage=int(np.minimum(counts, minimum).sum()),
+        required_demand=int(minimum.sum()),
+        coverage=int(np.minimum(counts, reviews).sum()),
+        demand=int(reviews.sum()),
+        floors_met=int(np.minimum(loads, floor).sum()),
+        floors_demand=int(floor.sum()),
+        total_score=round(float(np.sum(score)), 6),
+        assigned=int(len(reviewer)),
+    )
+
+
+def assignment_indices(session: Session, plan_assignments: list) -> tuple[np.ndarray, ...]:
+    """(reviewer, paper, score) index arrays of a plan's assignments; unknown ids raise KeyError."""
+    paper_at = session.paper_index()
+    reviewer_at = session.reviewer_index()
+    reviewer = np.array([reviewer_at[a.reviewer] for a in plan_assignments], dtype=np.int64)
+    paper = np.array([paper_at[a.paper] for a in plan_assignments], dtype=np.int64)
+    score = np.array([a.score for a in plan_assignments], dtype=np.float64)
+    return reviewer, paper, score
