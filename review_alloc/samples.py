@@ -10,6 +10,7 @@ from collections.abc import Callable
 
 import numpy as np
 
+from review_alloc.model import Conflict as DeclaredConflict
 from review_alloc.model import (
     ConflictRules,
     Paper,
@@ -18,16 +19,21 @@ from review_alloc.model import (
     ScoreTable,
     Session,
 )
-from review_alloc.model import Conflict as DeclaredConflict
 
 _GIVEN = (
     "Ada Bela Cyra Dario Eun Farid Greta Hiro Ines Jonas Kaia Lior Mina Noor Oskar Priya Quin "
     "Rafa Sade Tomas Uma Vikram Wen Xavi Yara Zeno Amara Bram Chiara Dmitri Elin Femi Goran "
     "Hana Ivo Jana Kofi Lena Matteo Nika Olu Paz Rhea Soren Taini Ulla Vesna Wiebke Yusuf Zora"
 ).split()
-_FAMILY_A = "Al Bre Cor Dal Ek Fen Gar Hol Ist Jor Kel Lund Mor Nes Or Pell Quar Ros Sten Tav Ur Vor Wyn".split()
-_FAMILY_B = "brand court dahl engel fors gaard holm kvist lind marsh nov rath sey toft vang wick".split()
-_PLACE_A = "Ost Marrow Wren Kel Dune Ash Bram Cal Tor Vell Hal Quen Ril Sel Yr Carn Lis Morv".split()
+_FAMILY_A = (
+    "Al Bre Cor Dal Ek Fen Gar Hol Ist Jor Kel Lund Mor Nes Or Pell Quar Ros Sten Tav Ur Vor Wyn"
+).split()
+_FAMILY_B = (
+    "brand court dahl engel fors gaard holm kvist lind marsh nov rath sey toft vang wick".split()
+)
+_PLACE_A = (
+    "Ost Marrow Wren Kel Dune Ash Bram Cal Tor Vell Hal Quen Ril Sel Yr Carn Lis Morv".split()
+)
 _PLACE_B = "brook mere holt reach stead haven moor crest vale strand gate wold".split()
 _KINDS = ("University of {}", "{} Institute of Technology", "{} Research Centre", "{} College")
 
@@ -152,7 +158,9 @@ def _build(
         else:
             near = np.flatnonzero(overlap > 0)
             near = near[near >= scarce_reviewers]
-            far = rng.choice(np.arange(scarce_reviewers, n_reviewers), size=candidates, replace=False)
+            far = rng.choice(
+                np.arange(scarce_reviewers, n_reviewers), size=candidates, replace=False
+            )
             pool = np.union1d(near, far)
         fit = 0.35 * overlap[pool] + rng.uniform(0.0, 0.6, size=len(pool))
         r_idx.extend(pool.tolist())
@@ -167,7 +175,9 @@ def _build(
             seen.add(pair)
             reason = ("recent co-author", "advisor or advisee", "close personal tie")[len(seen) % 3]
             conflicts.append(
-                DeclaredConflict(reviewer=reviewers[pair[0]].id, paper=papers[pair[1]].id, reason=reason)
+                DeclaredConflict(
+                    reviewer=reviewers[pair[0]].id, paper=papers[pair[1]].id, reason=reason
+                )
             )
 
     return Session(
@@ -192,14 +202,29 @@ _WORDS = (
 def workshop() -> Session:
     """A 40-paper workshop with 24 reviewers, every pair scored."""
     topics = [
-        "acoustic sensing", "buoy networks", "sediment models", "tide forecasting",
-        "underwater robotics", "satellite altimetry", "data assimilation", "sensor calibration",
+        "acoustic sensing",
+        "buoy networks",
+        "sediment models",
+        "tide forecasting",
+        "underwater robotics",
+        "satellite altimetry",
+        "data assimilation",
+        "sensor calibration",
     ]
     return _build(
         name="Harbourlight Workshop on Coastal Sensing 2027",
-        kind="conference", seed=20270, topics=topics, n_papers=40, n_reviewers=24,
-        n_institutions=14, policy=Policy(reviews=3, min_reviews=2, cap=6, floor=2),
-        caps=(5, 7), senior_share=0.4, candidates=None, declared=6, title_words=tuple(_WORDS),
+        kind="conference",
+        seed=20270,
+        topics=topics,
+        n_papers=40,
+        n_reviewers=24,
+        n_institutions=14,
+        policy=Policy(reviews=3, min_reviews=2, cap=6, floor=2),
+        caps=(5, 7),
+        senior_share=0.4,
+        candidates=None,
+        declared=6,
+        title_words=tuple(_WORDS),
         id_prefix="W",
     )
 
@@ -207,19 +232,46 @@ def workshop() -> Session:
 def conference() -> Session:
     """A ~1,500-paper conference with ~700 reviewers; 'hardware verification' is under-supplied."""
     topics = [
-        "graph algorithms", "compilers", "databases", "distributed systems", "computer vision",
-        "speech", "robotics", "security", "cryptography", "networking", "operating systems",
-        "program analysis", "machine learning theory", "optimisation", "information retrieval",
-        "human-computer interaction", "computational biology", "scientific computing",
-        "energy systems", "formal methods", "quantum computing", "education", "visualisation",
+        "graph algorithms",
+        "compilers",
+        "databases",
+        "distributed systems",
+        "computer vision",
+        "speech",
+        "robotics",
+        "security",
+        "cryptography",
+        "networking",
+        "operating systems",
+        "program analysis",
+        "machine learning theory",
+        "optimisation",
+        "information retrieval",
+        "human-computer interaction",
+        "computational biology",
+        "scientific computing",
+        "energy systems",
+        "formal methods",
+        "quantum computing",
+        "education",
+        "visualisation",
         "hardware verification",
     ]
     return _build(
         name="Northmere Conference on Applied Computation 2027",
-        kind="conference", seed=20271, topics=topics, n_papers=1500, n_reviewers=700,
-        n_institutions=160, policy=Policy(reviews=3, min_reviews=2, cap=7, unscored="exclude"),
-        caps=(6, 8), senior_share=0.4, candidates=20,
-        scarce=("hardware verification", 24, 5), declared=300, title_words=tuple(_WORDS),
+        kind="conference",
+        seed=20271,
+        topics=topics,
+        n_papers=1500,
+        n_reviewers=700,
+        n_institutions=160,
+        policy=Policy(reviews=3, min_reviews=2, cap=7, unscored="exclude"),
+        caps=(6, 8),
+        senior_share=0.4,
+        candidates=20,
+        scarce=("hardware verification", 24, 5),
+        declared=300,
+        title_words=tuple(_WORDS),
     )
 
 
@@ -228,13 +280,24 @@ def panel() -> Session:
     topics = ["soil ecology", "marine chemistry", "climate adaptation", "urban water", "glaciology"]
     return _build(
         name="Vellmar Foundation Early-Career Fellowships 2027",
-        kind="panel", seed=20272, topics=topics, n_papers=60, n_reviewers=18, n_institutions=9,
+        kind="panel",
+        seed=20272,
+        topics=topics,
+        n_papers=60,
+        n_reviewers=18,
+        n_institutions=9,
         policy=Policy(
-            reviews=3, min_reviews=3, cap=12,
+            reviews=3,
+            min_reviews=3,
+            cap=12,
             conflict_rules=ConflictRules(author_email=True, institution=True, email_domain=True),
         ),
-        caps=(10, 12), senior_share=0.6, candidates=None, declared=20,
-        title_words=tuple(_WORDS), id_prefix="G",
+        caps=(10, 12),
+        senior_share=0.6,
+        candidates=None,
+        declared=20,
+        title_words=tuple(_WORDS),
+        id_prefix="G",
     )
 
 

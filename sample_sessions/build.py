@@ -1,4 +1,7 @@
-"""Rebuild the demo sessions in this folder from their fixed seeds: `python sample_sessions/build.py`."""
+"""Rebuild the demo sessions in this folder from their fixed seeds.
+
+Run `python sample_sessions/build.py`.
+"""
 
 from __future__ import annotations
 
@@ -14,8 +17,10 @@ def main() -> None:
     for stem, make in SAMPLES.items():
         session = make()
         save_session(session, here / f"{stem}.json")
-        print(f"{stem}.json: {len(session.papers)} papers, {len(session.reviewers)} reviewers, "
-              f"{len(session.scores)} scores")
+        print(
+            f"{stem}.json: {len(session.papers)} papers, {len(session.reviewers)} reviewers, "
+            f"{len(session.scores)} scores"
+        )
 
 
 if __name__ == "__main__":

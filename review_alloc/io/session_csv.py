@@ -27,16 +27,31 @@ def write_session_csv(session: Session, folder: Path) -> list[Path]:
     papers = _table(
         ["paper_id", "title", "topics", "reviews", "min_reviews", "authors", "institutions"],
         [
-            [p.id, p.title, ";".join(p.topics), _number(p.reviews), _number(p.min_reviews),
-             ";".join(p.authors), ";".join(p.institutions)]
+            [
+                p.id,
+                p.title,
+                ";".join(p.topics),
+                _number(p.reviews),
+                _number(p.min_reviews),
+                ";".join(p.authors),
+                ";".join(p.institutions),
+            ]
             for p in session.papers
         ],
     )
     reviewers = _table(
         ["reviewer_id", "name", "email", "institution", "topics", "cap", "floor", "senior"],
         [
-            [r.id, r.name, r.email, r.institution, ";".join(r.topics), _number(r.cap),
-             _number(r.floor), "yes" if r.senior else "no"]
+            [
+                r.id,
+                r.name,
+                r.email,
+                r.institution,
+                ";".join(r.topics),
+                _number(r.cap),
+                _number(r.floor),
+                "yes" if r.senior else "no",
+            ]
             for r in session.reviewers
         ],
     )
@@ -49,13 +64,18 @@ def write_session_csv(session: Session, folder: Path) -> list[Path]:
         ["reviewer_id", "paper_id", "score"],
         [
             [session.reviewers[j].id, session.papers[i].id, repr(float(v))]
-            for j, i, v in zip(table.reviewer.tolist(), table.paper.tolist(),
-                               table.value.tolist(), strict=True)
+            for j, i, v in zip(
+                table.reviewer.tolist(), table.paper.tolist(), table.value.tolist(), strict=True
+            )
         ],
     )
     written = []
-    for stem, text in (("papers", papers), ("reviewers", reviewers),
-                       ("conflicts", conflicts), ("scores", scores)):
+    for stem, text in (
+        ("papers", papers),
+        ("reviewers", reviewers),
+        ("conflicts", conflicts),
+        ("scores", scores),
+    ):
         path = folder / f"{stem}.csv"
         atomic_write_text(path, text)
         written.append(path)

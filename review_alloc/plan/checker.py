@@ -30,7 +30,7 @@ def check_plan(
     *,
     network: PlanNetwork | None = None,
 ) -> None:
-    """Raise PlanCheckError unless the plan keeps every hard rule and (with potentials) is optimal."""
+    """Raise PlanCheckError unless the plan keeps every rule and, given potentials, is optimal."""
     problems = _hard_rule_problems(session, plan)
     if not problems and potentials is not None:
         problems = _certificate_problems(session, plan, potentials, network)
@@ -55,7 +55,9 @@ def _hard_rule_problems(session: Session, plan: Plan) -> list[str]:
     keys = reviewer * n_p + paper
     unique, seen = np.unique(keys, return_counts=True)
     for key in unique[seen > 1]:
-        problems.append(f"pair ({_rid(session, key, n_p)}, {_pid(session, key, n_p)}) is assigned twice")
+        problems.append(
+            f"pair ({_rid(session, key, n_p)}, {_pid(session, key, n_p)}) is assigned twice"
+        )
 
     conflicts = conflict_pairs(session)
     reasons = conflicts.reason_of()
@@ -88,7 +90,9 @@ def _hard_rule_problems(session: Session, plan: Plan) -> list[str]:
     pinned = {(p.reviewer, p.paper) for p in session.pins}
     for k in np.flatnonzero(~np.isclose(expected, score, rtol=0, atol=1e-9)):
         a = plan.assignments[k]
-        problems.append(f"pair ({a.reviewer}, {a.paper}) has score {a.score}, session says {expected[k]}")
+        problems.append(
+            f"pair ({a.reviewer}, {a.paper}) has score {a.score}, session says {expected[k]}"
+        )
     if session.policy.unscored == "exclude":
         for k in np.flatnonzero(~has_score):
             a = plan.assignments[k]
@@ -98,7 +102,9 @@ def _hard_rule_problems(session: Session, plan: Plan) -> list[str]:
     loads, counts = loads_and_counts(session, reviewer, paper)
     reviews, _, cap, _ = active_demands(session)
     for j in np.flatnonzero(loads > cap):
-        problems.append(f"reviewer {session.reviewers[j].id} has load {loads[j]} above cap {cap[j]}")
+        problems.append(
+            f"reviewer {session.reviewers[j].id} has load {loads[j]} above cap {cap[j]}"
+        )
     for i in np.flatnonzero(counts > reviews):
         problems.append(f"paper {session.papers[i].id} has {counts[i]} reviews, above {reviews[i]}")
 

@@ -21,7 +21,7 @@ _COST_LIMIT = 2**62
 
 
 def tier_weights(max_pair_arcs_in_cycle: int, max_score: int) -> tuple[int, int, int]:
-    """Weights (required coverage, total coverage, floors) that make one min-cost flow lexicographic.
+    """Weights (required, coverage, floors) that make one min-cost flow lexicographic.
 
     An optimal flow has no negative residual cycle, and every flow difference splits into simple
     residual cycles. A simple cycle passes the sink and the source at most once each, so it changes
@@ -119,8 +119,10 @@ def candidate_pairs(session: Session) -> tuple[np.ndarray, np.ndarray, np.ndarra
 
     pos = np.searchsorted(s_keys, keys)
     pos_clip = np.minimum(pos, max(len(s_keys) - 1, 0))
-    found = (pos < len(s_keys)) & (s_keys[pos_clip] == keys) if len(s_keys) else np.zeros(
-        len(keys), dtype=bool
+    found = (
+        (pos < len(s_keys)) & (s_keys[pos_clip] == keys)
+        if len(s_keys)
+        else np.zeros(len(keys), dtype=bool)
     )
     scores = np.where(found, s_values[pos_clip] if len(s_keys) else 0.0, 0.0)
     n = max(n_p, 1)

@@ -79,7 +79,11 @@ def load_spread(session: Session, plan: Plan) -> dict[str, float]:
     if not active.any():
         return {"min": 0, "max": 0, "mean": 0.0}
     chosen = loads[active]
-    return {"min": int(chosen.min()), "max": int(chosen.max()), "mean": round(float(chosen.mean()), 3)}
+    return {
+        "min": int(chosen.min()),
+        "max": int(chosen.max()),
+        "mean": round(float(chosen.mean()), 3),
+    }
 
 
 def plan_summary(session: Session, plan: Plan) -> dict[str, Any]:

@@ -38,9 +38,7 @@ def make_plan(session: Session, *, now: datetime | None = None) -> PlanOutcome:
     order = np.lexsort((reviewer, paper))
     reviewer, paper, score = reviewer[order], paper[order], score[order]
     assignments = [
-        Assignment(
-            paper=session.papers[i].id, reviewer=session.reviewers[j].id, score=float(s)
-        )
+        Assignment(paper=session.papers[i].id, reviewer=session.reviewers[j].id, score=float(s))
         for j, i, s in zip(reviewer.tolist(), paper.tolist(), score.tolist(), strict=True)
     ]
     plan = Plan(

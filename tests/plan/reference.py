@@ -72,9 +72,7 @@ def lexicographic_optimum(inst: Instance) -> tuple[int, int, int, float]:
         r += 1
     a_ub = csr_matrix((vals, (rows, cols)), shape=(r, n_var))
     b_ub = np.array(b)
-    lower_x = (
-        inst.pinned.astype(float) if inst.pinned is not None else np.zeros(n_e)
-    )
+    lower_x = inst.pinned.astype(float) if inst.pinned is not None else np.zeros(n_e)
     bounds = (
         [(lower_x[e], 1.0) for e in range(n_e)]
         + [(0.0, float(m)) for m in inst.min_reviews]

@@ -9,8 +9,8 @@ from ortools.graph.python import max_flow as ortools_max_flow
 from review_alloc.model import (
     Conflict,
     ConflictRules,
-    Paper,
     PairRule,
+    Paper,
     Policy,
     Reviewer,
     ScoreTable,
@@ -34,8 +34,9 @@ def random_session(seed: int, *, unscored: str = "zero", pins: bool = False) -> 
         )
         for j in range(n_r)
     ]
-    policy = Policy(reviews=3, min_reviews=2, cap=3, floor=0, unscored=unscored,
-                    conflict_rules=NO_INFERENCE)
+    policy = Policy(
+        reviews=3, min_reviews=2, cap=3, floor=0, unscored=unscored, conflict_rules=NO_INFERENCE
+    )
     for r in reviewers:  # keep floor <= cap valid
         cap = r.cap if r.cap is not None else policy.cap
         if r.floor is not None and r.floor > cap:
@@ -91,8 +92,9 @@ def reference_instance(session: Session) -> Instance:
     banned |= {(rid[b.reviewer], pid[b.paper]) for b in session.blocks}
     score = {
         (int(j), int(i)): float(v)
-        for j, i, v in zip(session.scores.reviewer, session.scores.paper, session.scores.value,
-                           strict=True)
+        for j, i, v in zip(
+            session.scores.reviewer, session.scores.paper, session.scores.value, strict=True
+        )
     }
     pinned = {(rid[p.reviewer], pid[p.paper]) for p in session.pins}
     pairs = []
@@ -104,7 +106,9 @@ def reference_instance(session: Session) -> Instance:
     pol = session.policy
     cap = np.array([r.cap if r.cap is not None else pol.cap for r in session.reviewers])
     floor = np.array([r.floor if r.floor is not None else pol.floor for r in session.reviewers])
-    reviews = np.array([p.reviews if p.reviews is not None else pol.reviews for p in session.papers])
+    reviews = np.array(
+        [p.reviews if p.reviews is not None else pol.reviews for p in session.papers]
+    )
     minimum = np.array(
         [
             p.min_reviews if p.min_reviews is not None else min(pol.min_reviews, reviews[i])
@@ -178,7 +182,9 @@ def test_checker_rejects_a_conflicted_pair_and_a_forged_certificate() -> None:
         update={
             "assignments": [
                 *plan.assignments,
-                type(plan.assignments[0])(paper=bad_pair.paper, reviewer=bad_pair.reviewer, score=0.0),
+                type(plan.assignments[0])(
+                    paper=bad_pair.paper, reviewer=bad_pair.reviewer, score=0.0
+                ),
             ]
         }
     )
@@ -224,8 +230,6 @@ def test_pin_over_cap_is_refused() -> None:
     free = [p.id for p in session.papers if (r.id, p.id) not in banned][: r_cap + 1]
     if len(free) <= r_cap:
         pytest.skip("not enough unconflicted papers for this reviewer in the seeded case")
-    pinned = session.model_copy(
-        update={"pins": [PairRule(reviewer=r.id, paper=p) for p in free]}
-    )
+    pinned = session.model_copy(update={"pins": [PairRule(reviewer=r.id, paper=p) for p in free]})
     with pytest.raises(PlanInputError, match="cap"):
         make_plan(pinned)

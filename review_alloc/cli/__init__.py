@@ -1,0 +1,49 @@
+"""The `review-alloc` command line.
+
+Exit codes: 0 success, 1 bad input (the message names file, line and field), 2 bad usage,
+3 the independent checker rejected a plan (which is then withheld). Each module of this package
+registers its own sub-commands; `main` only dispatches.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from collections.abc import Sequence
+
+from review_alloc.cli import basic
+from review_alloc.cli.common import EXIT_CHECK, EXIT_INPUT
+from review_alloc.model import InputError
+
+_MODULES = (basic,)
+_DEFAULT_COMMAND = "demo"
+
+
+def build_parser() -> tuple[argparse.ArgumentParser, dict]:
+    """The parser of every sub-command and the handlers by command name."""
+    parser = argparse.ArgumentParser(
+        prog="review-alloc",
+        description="Plan reviewer assignments exactly: coverage first, then fit.",
+    )
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    handlers: dict = {}
+    for module in _MODULES:
+        handlers.update(module.register(sub))
+    return parser, handlers
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run one command; return its exit code."""
+    from review_alloc.plan import PlanCheckError
+
+    parser, handlers = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return handlers[args.command or _DEFAULT_COMMAND](args)
+    except InputError as error:
+        for line in error.lines:
+            print(f"error: {line}", file=sys.stderr)
+        return EXIT_INPUT
+    except PlanCheckError as error:
+        print(f"internal error, plan withheld: {error}", file=sys.stderr)
+        return EXIT_CHECK

@@ -1,0 +1,100 @@
+"""What every command shares: exit codes, the caution, argument types, JSON and plan output."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from typing import Any
+
+from review_alloc.model import Session
+
+CAUTION = (
+    "A plan is advice to the chair: check it against the venue's conflict-of-interest policy "
+    "before any assignment goes out."
+)
+
+EXIT_OK, EXIT_INPUT, EXIT_USAGE, EXIT_CHECK = 0, 1, 2, 3
+
+
+def positive(text: str) -> int:
+    """argparse type: a whole number >= 1."""
+    value = whole(text)
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number >= 1")
+    return value
+
+
+def whole(text: str) -> int:
+    """argparse type: a whole number >= 0."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"{text!r} is negative; it must be >= 0")
+    return value
+
+
+def emit_json(payload: dict[str, Any]) -> None:
+    """Print one JSON object on standard output (and nothing else goes there)."""
+    sys.stdout.write(json.dumps(payload, indent=2, ensure_ascii=False) + "\n")
+
+
+def noun(session: Session) -> str:
+    """'proposal' for a grant panel, 'paper' otherwise."""
+    return "proposal" if session.kind == "panel" else "paper"
+
+
+def solve(session: Session) -> Session:
+    """Plan the session and return it with the new, checked plan in place."""
+    from review_alloc.flow import kernels_ready
+    from review_alloc.plan import make_plan
+
+    if not kernels_ready():
+        print("Preparing the solver (first run on this machine)...", file=sys.stderr)
+    outcome = make_plan(session)
+    return session.model_copy(update={"plan": outcome.plan})
+
+
+def summary_lines(session: Session, summary: dict[str, Any], source: str) -> list[str]:
+    """The short plain-text report of a plan summary."""
+    word = noun(session)
+    pct = 100.0 * summary["required_coverage"] / max(summary["required_demand"], 1)
+    lines = [
+        f"{session.name}: plan {'checked, optimal' if summary['checked'] else 'NOT checked'}",
+        f"  {word}s {summary['papers']}, reviewers {summary['reviewers']}, "
+        f"assignments {len(summary['assignments'])}",
+        f"  required reviews {summary['required_coverage']} / {summary['required_demand']} "
+        f"({pct:.1f}%)",
+        f"  all reviews      {summary['coverage']} / {summary['demand']}",
+        f"  reviewer floors  {summary['floors_met']} / {summary['floors_demand']}",
+        f"  total score      {summary['total_score']:.2f} (mean {summary['mean_score']:.3f})",
+        f"  load             min {summary['load']['min']}, max {summary['load']['max']}, "
+        f"mean {summary['load']['mean']:.2f}",
+    ]
+    gaps = summary["gaps"]
+    if gaps:
+        missing = sum(g["missing"] for g in gaps)
+        lines.append(
+            f"  gaps: {len(gaps)} {word}s short of reviews ({missing} reviews missing); "
+            f"see `review-alloc explain {source}`"
+        )
+    else:
+        lines.append(f"  gaps: none, every {word} has all its reviews")
+    if summary["overloads"]:
+        lines.append(f"  overloads: {len(summary['overloads'])} reviewers above cap")
+    if summary["underloads"]:
+        lines.append(f"  below floor: {len(summary['underloads'])} reviewers")
+    lines.append(CAUTION)
+    return lines
+
+
+def validation_message(error: ValueError) -> str:
+    """One line from a pydantic ValidationError (or any ValueError)."""
+    errors = getattr(error, "errors", None)
+    if callable(errors):
+        return "; ".join(
+            f"{'.'.join(str(x) for x in e['loc']) or 'policy'}: {e['msg']}" for e in errors()
+        )
+    return str(error)
