@@ -1,0 +1,17 @@
+"""CSV import with row-level errors, and exports of a plan. Nothing here plans anything."""
+
+from review_alloc.io.export import export_plan_csv
+from review_alloc.io.importer import import_csv
+from review_alloc.io.reading import FileSpec
+from review_alloc.io.score_rows import SCORES
+from review_alloc.io.tables import CONFLICTS, PAPERS, REVIEWERS
+
+__all__ = [
+    "CONFLICTS",
+    "PAPERS",
+    "REVIEWERS",
+    "SCORES",
+    "FileSpec",
+    "export_plan_csv",
+    "import_csv",
+]

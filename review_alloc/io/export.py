@@ -1,0 +1,51 @@
+"""Exports of a session's plan as CSV, one row per assignment."""
+
+from __future__ import annotations
+
+import csv
+import io
+import os
+from typing import Literal
+
+from review_alloc.model import InputError, Session, atomic_write_text
+
+_PAPER_COLUMNS = ("paper_id", "title", "reviewer_id", "reviewer_name", "reviewer_email", "score")
+_REVIEWER_COLUMNS = ("reviewer_id", "reviewer_name", "reviewer_email", "paper_id", "title", "score")
+
+
+def export_plan_csv(
+    session: Session,
+    path: str | os.PathLike[str],
+    by: Literal["paper", "reviewer"] = "paper",
+) -> int:
+    """Write the session's plan to `path` (atomically), sorted by paper or by reviewer id.
+
+    Returns the number of rows written, not counting the header. Raises `InputError` when the
+    session has no plan or the file cannot be written.
+    """
+    if by not in ("paper", "reviewer"):
+        raise ValueError(f"by must be 'paper' or 'reviewer', not {by!r}")
+    if session.plan is None:
+        raise InputError([f"{session.name}: plan: the session has no plan to export; plan first"])
+    papers = {p.id: p for p in session.papers}
+    reviewers = {r.id: r for r in session.reviewers}
+    rows = []
+    for a in session.plan.assignments:
+        paper, reviewer = papers[a.paper], reviewers[a.reviewer]
+        p_cells = (paper.id, paper.title)
+        r_cells = (reviewer.id, reviewer.name, reviewer.email)
+        score = repr(float(a.score))
+        if by == "paper":
+            rows.append(((paper.id, reviewer.id), (*p_cells, *r_cells, score)))
+        else:
+            rows.append(((reviewer.id, paper.id), (*r_cells, *p_cells, score)))
+    rows.sort(key=lambda item: item[0])
+    out = io.StringIO()
+    writer = csv.writer(out, lineterminator="\n")
+    writer.writerow(_PAPER_COLUMNS if by == "paper" else _REVIEWER_COLUMNS)
+    writer.writerows(cells for _, cells in rows)
+    try:
+        atomic_write_text(path, out.getvalue())
+    except OSError as error:
+        raise InputError([f"{path}: cannot write ({error.strerror or error})"]) from None
+    return len(rows)

@@ -1,0 +1,115 @@
+"""`import_csv`: papers, reviewers, conflicts and scores files into one validated session."""
+
+from __future__ import annotations
+
+import os
+import re
+from pathlib import Path
+
+from pydantic import ValidationError
+
+from review_alloc.io.reading import FileProblems
+from review_alloc.io.score_rows import read_scores
+from review_alloc.io.tables import read_conflicts, read_papers, read_reviewers
+from review_alloc.model import InputError, Policy, ScoreTable, Session
+
+_KINDS = ("conference", "panel")
+_PATH = re.compile(r"(papers|reviewers|conflicts)\.(\d+)(?:\.(\w+))?: (.*)")
+
+
+def import_csv(
+    papers: str | os.PathLike[str],
+    reviewers: str | os.PathLike[str],
+    conflicts: str | os.PathLike[str] | None = None,
+    scores: str | os.PathLike[str] | None = None,
+    *,
+    policy: Policy | None = None,
+    ignore_extra: bool = False,
+    name: str | None = None,
+    kind: str = "conference",
+) -> Session:
+    """Read the CSV files into a session; raises `InputError` listing every problem found.
+
+    Problems are collected across all files (up to 20 per file), each naming the file, line and
+    column. Ids in the conflicts and scores files must name papers and reviewers of the other
+    two files. Nothing is written.
+    """
+    if kind not in _KINDS:
+        raise InputError([f"kind: {kind!r} is not one of {', '.join(_KINDS)}"])
+    policy = policy if policy is not None else Policy()
+    paper_problems = FileProblems(str(papers))
+    reviewer_problems = FileProblems(str(reviewers))
+    conflict_problems = FileProblems(str(conflicts)) if conflicts is not None else None
+    score_problems = FileProblems(str(scores)) if scores is not None else None
+
+    paper_rows = read_papers(papers, policy, ignore_extra, paper_problems)
+    reviewer_rows = read_reviewers(reviewers, policy, ignore_extra, reviewer_problems)
+    paper_at = paper_rows.index if paper_rows is not None else None
+    reviewer_at = reviewer_rows.index if reviewer_rows is not None else None
+    conflict_rows = (
+        read_conflicts(conflicts, ignore_extra, reviewer_at, paper_at, conflict_problems)
+        if conflicts is not None and conflict_problems is not None
+        else None
+    )
+    table = (
+        read_scores(scores, ignore_extra, reviewer_at, paper_at, score_problems)
+        if scores is not None and score_problems is not None
+        else ScoreTable.empty()
+    )
+
+    every = [paper_problems, reviewer_problems, conflict_problems, score_problems]
+    lines = [line for found in every if found is not None for line in found.lines()]
+    if lines:
+        raise InputError(lines)
+    assert paper_rows is not None and reviewer_rows is not None and table is not None
+
+    sources = {
+        "papers": (str(papers), paper_rows.lines),
+        "reviewers": (str(reviewers), reviewer_rows.lines),
+        "conflicts": (str(conflicts), conflict_rows.lines if conflict_rows else []),
+    }
+    try:
+        return Session(
+            name=name or _default_name(papers),
+            kind=kind,
+            policy=policy,
+            papers=paper_rows.items,
+            reviewers=reviewer_rows.items,
+            conflicts=conflict_rows.items if conflict_rows else [],
+            scores=table,
+        )
+    except ValidationError as error:
+        raise InputError(_session_lines(error, sources)) from None
+
+
+def _default_name(papers: str | os.PathLike[str]) -> str:
+    return Path(papers).resolve().parent.name or "session"
+
+
+def _session_lines(error: ValidationError, sources: dict[str, tuple[str, list[int]]]) -> list[str]:
+    # The file checks above mirror the session's rules; this maps anything the session still
+    # refuses back to a file and line where it can.
+    lines: list[str] = []
+    for item in error.errors(include_url=False):
+        message = str(item["msg"]).removeprefix("Value error, ")
+        where = ".".join(str(part) for part in item["loc"])
+        for part in message.split("\n"):
+            text = f"{where}: {part}" if where else part
+            lines.append(_place(text, sources))
+    return lines[:20]
+
+
+def _place(text: str, sources: dict[str, tuple[str, list[int]]]) -> str:
+    found = _PATH.fullmatch(text)
+    if found is None:
+        return f"import: {text}"
+    field, position, attribute, message = found.groups()
+    source, file_lines = sources[field]
+    k = int(position)
+    if k >= len(file_lines):
+        return f"import: {text}"
+    column = {"id": f"{field[:-1]}_id", "reviewer": "reviewer_id", "paper": "paper_id"}.get(
+        attribute or "", attribute
+    )
+    where = f"line {file_lines[k]}: " + (f"column {column!r}: " if column else "")
+    return f"{source}: {where}{message}"

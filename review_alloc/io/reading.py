@@ -1,0 +1,285 @@
+"""Reading CSV files for import: decoding, the header, records with their line numbers, cells.
+
+Every problem is reported as `"<file>: line N: column 'c': <what is wrong>"` (the header is
+line 1); a file keeps at most `MAX_LINES_PER_FILE` messages and counts the rest.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+import os
+import re
+from collections.abc import Iterator
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from review_alloc.model import MAX_LINES_PER_FILE
+from review_alloc.model.base import check_email
+
+_WHOLE = re.compile(r"\+?[0-9]+")
+_TRUE = frozenset({"yes", "y", "true", "1"})
+_FALSE = frozenset({"no", "n", "false", "0"})
+
+
+class CellError(ValueError):
+    """A cell that cannot be read; the message says why, without file or line."""
+
+
+@dataclass
+class FileProblems:
+    """The problems found in one file: the first few messages and a count of all of them."""
+
+    source: str
+    limit: int = MAX_LINES_PER_FILE
+    kept: list[str] = field(default_factory=list)
+    count: int = 0
+
+    def add(self, message: str, line: int | None = None, column: str | None = None) -> None:
+        """Record a problem at a line (and column) of this file."""
+        self.count += 1
+        if len(self.kept) < self.limit:
+            place = "".join(
+                [
+                    f"line {line}: " if line is not None else "",
+                    f"column {column!r}: " if column is not None else "",
+                ]
+            )
+            self.kept.append(f"{self.source}: {place}{message}")
+
+    def lines(self) -> list[str]:
+        """The kept messages, then `... and N more errors in <file>` when some were left out."""
+        rest = self.count - len(self.kept)
+        if rest <= 0:
+            return list(self.kept)
+        noun = "error" if rest == 1 else "errors"
+        return [*self.kept, f"... and {rest} more {noun} in {self.source}"]
+
+    def __bool__(self) -> bool:
+        return self.count > 0
+
+
+@dataclass(frozen=True)
+class FileSpec:
+    """The columns of one kind of input file."""
+
+    kind: str
+    required: tuple[str, ...]
+    optional: tuple[str, ...]
+
+    @property
+    def columns(self) -> tuple[str, ...]:
+        """Every known column, required first."""
+        return self.required + self.optional
+
+
+@dataclass(frozen=True)
+class Header:
+    """Where each known column sits in a row, and how many cells a row must have."""
+
+    position: dict[str, int]
+    width: int
+
+    def cell(self, row: list[str], column: str) -> str:
+        """The stripped cell of `column`, or "" when the file has no such column."""
+        at = self.position.get(column)
+        return "" if at is None else row[at].strip()
+
+
+def read_text(path: str | os.PathLike[str], problems: FileProblems) -> str | None:
+    """The file as text (UTF-8, a byte-order mark allowed), or None after recording why not."""
+    try:
+        data = Path(path).read_bytes()
+    except FileNotFoundError:
+        problems.add("no such file")
+        return None
+    except IsADirectoryError:
+        problems.add("is a folder, not a CSV file")
+        return None
+    except OSError as error:
+        problems.add(f"cannot read ({error.strerror or error})")
+        return None
+    if data.startswith(b"\xef\xbb\xbf"):
+        data = data[3:]
+    try:
+        return data.decode("utf-8")
+    except UnicodeDecodeError as error:
+        line = data.count(b"\n", 0, error.start) + 1
+        problems.add(
+            f"not UTF-8 text (byte 0x{data[error.start]:02x} at byte offset {error.start}); "
+            "save the file as UTF-8",
+            line=line,
+        )
+        return None
+
+
+def records(text: str, problems: FileProblems) -> Iterator[tuple[int, list[str]]]:
+    """(line where the record starts, cells) for every record, blank ones included.
+
+    Malformed quoting ends the file with one message, since later line breaks cannot be trusted.
+    """
+    reader = csv.reader(io.StringIO(text), strict=True)
+    end = 0
+    while True:
+        start = end + 1
+        try:
+            row = next(reader)
+        except StopIteration:
+            return
+        except csv.Error as error:
+            problems.add(_csv_message(str(error)), line=start)
+            return
+        end = reader.line_num
+        yield start, row
+
+
+def _csv_message(text: str) -> str:
+    if text.startswith("unexpected end of data"):
+        return 'a quoted cell is not closed before the end of the file (check the " marks)'
+    if "expected after" in text:
+        return f"malformed quoting ({text}); a quote inside a quoted cell must be doubled"
+    return f"malformed CSV ({text})"
+
+
+def is_blank(row: list[str]) -> bool:
+    """True for an empty record or one whose cells are all blank (spreadsheets write these)."""
+    return all(not cell.strip() for cell in row)
+
+
+def read_header(
+    row: list[str], spec: FileSpec, ignore_extra: bool, problems: FileProblems, line: int = 1
+) -> Header | None:
+    """Match the header row against the spec; None (with messages) when it cannot be used."""
+    names = [cell.strip().lower() for cell in row]
+    known = set(spec.columns)
+    if not any(name in known for name in names):
+        found = ", ".join(repr(cell) for cell in row[:4]) + (", ..." if len(row) > 4 else "")
+        problems.add(
+            f"no header row: the first row must name the columns ({', '.join(spec.columns)}); "
+            f"found {found}",
+            line=line,
+        )
+        return None
+    position: dict[str, int] = {}
+    usable = True
+    for at, name in enumerate(names):
+        if name in position:
+            problems.add(
+                f"column {name!r} appears twice (cells {position[name] + 1} and {at + 1})",
+                line=line,
+            )
+            usable = False
+        elif name in known:
+            position[name] = at
+        elif not ignore_extra:
+            if name:
+                problems.add(
+                    f"unknown column {name!r}; known columns are {', '.join(spec.columns)} "
+                    "(--ignore-extra skips unknown columns)",
+                    line=line,
+                )
+            else:
+                problems.add(
+                    f"cell {at + 1} of the header is empty; every column needs a name "
+                    "(--ignore-extra skips unnamed columns)",
+                    line=line,
+                )
+            usable = False
+    missing = [name for name in spec.required if name not in position]
+    if missing:
+        plural = "s" if len(missing) > 1 else ""
+        problems.add(
+            f"missing required column{plural} {', '.join(repr(m) for m in missing)}", line=line
+        )
+        usable = False
+    return Header(position, len(row)) if usable else None
+
+
+def whole_number(text: str, minimum: int) -> int | None:
+    """An optional whole number >= minimum; "" gives None."""
+    if not text:
+        return None
+    if not _WHOLE.fullmatch(text) or int(text) < minimum:
+        raise CellError(f"{text!r} is not a whole number >= {minimum}")
+    return int(text)
+
+
+def yes_no(text: str) -> bool | None:
+    """An optional yes/no flag (also true/false, y/n, 1/0, any case); "" gives None."""
+    if not text:
+        return None
+    folded = text.lower()
+    if folded in _TRUE:
+        return True
+    if folded in _FALSE:
+        return False
+    raise CellError(f"{text!r} is not yes or no (true/false, y/n and 1/0 work too)")
+
+
+def listing(text: str) -> list[str]:
+    """A `;`-separated list; blank entries are dropped."""
+    return [part.strip() for part in text.split(";") if part.strip()]
+
+
+def emails(text: str) -> list[str]:
+    """A `;`-separated list of e-mail addresses, lower-cased."""
+    return [email(part) for part in listing(text)]
+
+
+def email(text: str) -> str:
+    """One e-mail address, lower-cased; "" stays ""."""
+    if not text:
+        return ""
+    try:
+        return check_email(text)
+    except ValueError as error:
+        raise CellError(str(error)) from None
+
+
+def score(text: str) -> float:
+    """A score: a finite number >= 0."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise CellError(
+            f"{text!r} is not a number >= 0" if text else "empty; every row needs a score"
+        ) from None
+    if not math.isfinite(value):
+        raise CellError(f"{text!r} is not a finite number")
+    if value < 0:
+        raise CellError(f"{text!r} is not a number >= 0")
+    return value
+
+
+def open_table(
+    path: str | os.PathLike[str], spec: FileSpec, ignore_extra: bool, problems: FileProblems
+) -> tuple[Header, Iterator[tuple[int, list[str]]], str] | None:
+    """Read a file up to its header: (header, the remaining records, the text), or None."""
+    text = read_text(path, problems)
+    if text is None:
+        return None
+    rows = records(text, problems)
+    for line, row in rows:
+        if is_blank(row):
+            continue
+        header = read_header(row, spec, ignore_extra, problems, line)
+        return (header, rows, text) if header is not None else None
+    if not problems:
+        problems.add(
+            f"the file is empty; the first row must name the columns ({', '.join(spec.columns)})"
+        )
+    return None
+
+
+def data_rows(
+    rows: Iterator[tuple[int, list[str]]], header: Header, problems: FileProblems
+) -> Iterator[tuple[int, list[str]]]:
+    """The non-blank records after the header that have as many cells as the header."""
+    for line, row in rows:
+        if is_blank(row):
+            continue
+        if len(row) != header.width:
+            problems.add(f"{len(row)} cells, but the header has {header.width}", line=line)
+            continue
+        yield line, row

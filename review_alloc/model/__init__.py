@@ -1,0 +1,52 @@
+"""The session document: pydantic models, the score table, the file format and atomic saves.
+
+Nothing here plans, prints, or imports the UI.
+"""
+
+from review_alloc.model.entities import Conflict, PairRule, Paper, Reviewer
+from review_alloc.model.errors import (
+    MAX_LINES_PER_FILE,
+    InputError,
+    capped_lines,
+    validation_error_lines,
+)
+from review_alloc.model.plans import Assignment, Plan, PlanFigures
+from review_alloc.model.policy import DEFAULT_PUBLIC_MAIL_DOMAINS, ConflictRules, Policy
+from review_alloc.model.scores import ENCODING as SCORE_ENCODING
+from review_alloc.model.scores import ScoreTable
+from review_alloc.model.session import FORMAT_VERSION, Session
+from review_alloc.model.storage import (
+    atomic_write_bytes,
+    atomic_write_text,
+    load_session,
+    save_session,
+    session_bytes,
+    session_json_schema,
+)
+
+__all__ = [
+    "DEFAULT_PUBLIC_MAIL_DOMAINS",
+    "FORMAT_VERSION",
+    "MAX_LINES_PER_FILE",
+    "SCORE_ENCODING",
+    "Assignment",
+    "Conflict",
+    "ConflictRules",
+    "InputError",
+    "PairRule",
+    "Paper",
+    "Plan",
+    "PlanFigures",
+    "Policy",
+    "Reviewer",
+    "ScoreTable",
+    "Session",
+    "atomic_write_bytes",
+    "atomic_write_text",
+    "capped_lines",
+    "load_session",
+    "save_session",
+    "session_bytes",
+    "session_json_schema",
+    "validation_error_lines",
+]

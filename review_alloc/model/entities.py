@@ -1,0 +1,59 @@
+"""Papers, reviewers, declared conflicts, and the pair rules used for pins and blocks.
+
+Lists of papers and reviewers are append-only in practice: the score table refers to them by
+position, so an entity that leaves the process is flagged `withdrawn`, never deleted.
+"""
+
+from __future__ import annotations
+
+from pydantic import Field
+
+from review_alloc.model.base import DocumentModel, Email, EmailList, Identifier, Text, TextList
+
+
+class Paper(DocumentModel):
+    """A submission (a "proposal" in a panel) with its own review targets and author details."""
+
+    id: Identifier
+    title: Text = ""
+    topics: TextList = Field(default_factory=list)
+    reviews: int | None = Field(default=None, ge=1)
+    """Reviews wanted; `None` means the policy's."""
+    min_reviews: int | None = Field(default=None, ge=0)
+    """Reviews required; `None` means the policy's, clamped to this paper's `reviews`."""
+    authors: EmailList = Field(default_factory=list)
+    """Authors' e-mail addresses, lower-cased; used to infer conflicts."""
+    institutions: TextList = Field(default_factory=list)
+    withdrawn: bool = False
+
+
+class Reviewer(DocumentModel):
+    """A person who reviews, with an optional load cap and floor of their own."""
+
+    id: Identifier
+    name: Text = ""
+    email: Email = ""
+    institution: Text = ""
+    topics: TextList = Field(default_factory=list)
+    cap: int | None = Field(default=None, ge=0)
+    """Most papers; `None` means the policy's."""
+    floor: int | None = Field(default=None, ge=0)
+    """Fewest papers; `None` means the policy's, clamped to this reviewer's cap."""
+    senior: bool = False
+    withdrawn: bool = False
+
+
+class Conflict(DocumentModel):
+    """A declared conflict of interest; inferred ones are computed from the policy's rules."""
+
+    reviewer: Identifier
+    paper: Identifier
+    reason: Text = "declared"
+
+
+class PairRule(DocumentModel):
+    """A (reviewer, paper) pair a chair fixed: a pin (must be assigned) or a block (must not)."""
+
+    reviewer: Identifier
+    paper: Identifier
+    reason: Text = ""

@@ -1,0 +1,102 @@
+"""A plan: the chosen (paper, reviewer) pairs, the figures of the objective, and how it was made."""
+
+from __future__ import annotations
+
+import math
+from datetime import UTC, datetime
+from typing import Self
+
+from pydantic import Field, field_validator, model_validator
+
+from review_alloc.model.base import DocumentModel, Identifier
+
+
+class Assignment(DocumentModel):
+    """One reviewer assigned to one paper, with the score of the pair (0 when unscored)."""
+
+    paper: Identifier
+    reviewer: Identifier
+    score: float = Field(ge=0, allow_inf_nan=False)
+
+
+class PlanFigures(DocumentModel):
+    """The objective tiers of a plan as counts, each beside the most it could be."""
+
+    required_coverage: int = Field(ge=0)
+    """Sum over papers of min(assigned, min_reviews)."""
+    required_demand: int = Field(ge=0)
+    """Sum over papers of min_reviews."""
+    coverage: int = Field(ge=0)
+    """Sum over papers of min(assigned, reviews)."""
+    demand: int = Field(ge=0)
+    """Sum over papers of reviews."""
+    floors_met: int = Field(ge=0)
+    """Sum over reviewers of min(load, floor)."""
+    floors_demand: int = Field(ge=0)
+    """Sum over reviewers of floor."""
+    total_score: float = Field(allow_inf_nan=False)
+    assigned: int = Field(ge=0)
+    """Number of assigned pairs."""
+
+    @model_validator(mode="after")
+    def _within_demand(self) -> Self:
+        problems = [
+            f"{got}: {getattr(self, got)} exceeds {most} {getattr(self, most)}"
+            for got, most in (
+                ("required_coverage", "required_demand"),
+                ("coverage", "demand"),
+                ("floors_met", "floors_demand"),
+                ("coverage", "assigned"),
+            )
+            if getattr(self, got) > getattr(self, most)
+        ]
+        if problems:
+            raise ValueError("\n".join(problems))
+        return self
+
+
+def _utc_now() -> datetime:
+    return datetime.now(UTC)
+
+
+class Plan(DocumentModel):
+    """A plan as stored in the session; `checked` says the independent checker passed it."""
+
+    assignments: list[Assignment]
+    figures: PlanFigures
+    created_at: datetime = Field(default_factory=_utc_now)
+    """When the plan was made, timezone-aware, stored in UTC."""
+    checked: bool
+    method: str
+
+    @field_validator("created_at")
+    @classmethod
+    def _aware_utc(cls, value: datetime) -> datetime:
+        if value.tzinfo is None or value.utcoffset() is None:
+            raise ValueError("must include a time zone (e.g. 2027-03-01T09:30:00Z)")
+        return value.astimezone(UTC)
+
+    @model_validator(mode="after")
+    def _consistent(self) -> Self:
+        problems: list[str] = []
+        seen: dict[tuple[str, str], int] = {}
+        for k, a in enumerate(self.assignments):
+            first = seen.setdefault((a.reviewer, a.paper), k)
+            if first != k:
+                problems.append(
+                    f"assignments.{k}: pair ({a.reviewer}, {a.paper}) repeats assignments.{first}"
+                )
+        if self.figures.assigned != len(self.assignments):
+            problems.append(
+                f"figures.assigned: {self.figures.assigned} but there are "
+                f"{len(self.assignments)} assignments"
+            )
+        total = math.fsum(a.score for a in self.assignments)
+        if not math.isclose(total, self.figures.total_score, rel_tol=1e-9, abs_tol=1e-4):
+            problems.append(
+                f"figures.total_score: {self.figures.total_score} but the assignments "
+                f"sum to {total}"
+            )
+        if problems:
+            raise ValueError("\n".join(problems[:20]))
+        return self

@@ -1,0 +1,85 @@
+"""The planning policy: per-paper reviews, per-reviewer load limits and the conflict rules."""
+
+from __future__ import annotations
+
+from typing import Annotated, Literal, Self
+
+from pydantic import AfterValidator, Field, model_validator
+
+from review_alloc.model.base import DocumentModel
+
+DEFAULT_PUBLIC_MAIL_DOMAINS: tuple[str, ...] = (
+    "gmail.com",
+    "googlemail.com",
+    "outlook.com",
+    "hotmail.com",
+    "live.com",
+    "yahoo.com",
+    "icloud.com",
+    "me.com",
+    "aol.com",
+    "proton.me",
+    "protonmail.com",
+    "gmx.de",
+    "gmx.net",
+    "web.de",
+    "mail.ru",
+    "yandex.ru",
+    "qq.com",
+    "163.com",
+    "126.com",
+)
+"""Mail providers shared by strangers: a shared domain there says nothing (common practice)."""
+
+
+def _domains(values: list[str]) -> list[str]:
+    seen: dict[str, None] = {}
+    for value in values:
+        text = value.strip().lower().lstrip("@")
+        if not text:
+            continue
+        if "@" in text or any(c.isspace() for c in text):
+            raise ValueError(f"{value!r} is not a mail domain (expected e.g. mail.example)")
+        seen.setdefault(text, None)
+    return list(seen)
+
+
+class ConflictRules(DocumentModel):
+    """Which conflicts of interest are inferred on top of the declared ones."""
+
+    author_email: bool = True
+    """The reviewer's e-mail address is among the paper's authors."""
+    institution: bool = True
+    """The reviewer's institution is among the paper's (case and whitespace folded)."""
+    email_domain: bool = True
+    """The reviewer's e-mail domain equals an author's, unless it is a public mail domain."""
+    public_mail_domains: Annotated[list[str], AfterValidator(_domains)] = Field(
+        default_factory=lambda: list(DEFAULT_PUBLIC_MAIL_DOMAINS)
+    )
+
+
+class Policy(DocumentModel):
+    """Session-wide defaults; papers and reviewers may override reviews, min_reviews, cap, floor."""
+
+    reviews: int = Field(default=3, ge=1)
+    """Reviews wanted per paper (three is the usual target, common practice)."""
+    min_reviews: int = Field(default=2, ge=0)
+    """Reviews a paper must have (two is the usual floor, common practice)."""
+    cap: int = Field(default=6, ge=0)
+    """Most papers per reviewer."""
+    floor: int = Field(default=0, ge=0)
+    """Fewest papers per reviewer, met as far as the papers allow."""
+    unscored: Literal["zero", "exclude"] = "zero"
+    """A pair without a score row is eligible with score 0 (`zero`) or not eligible (`exclude`)."""
+    conflict_rules: ConflictRules = Field(default_factory=ConflictRules)
+
+    @model_validator(mode="after")
+    def _limits_agree(self) -> Self:
+        problems = []
+        if self.min_reviews > self.reviews:
+            problems.append(f"min_reviews: {self.min_reviews} exceeds reviews {self.reviews}")
+        if self.floor > self.cap:
+            problems.append(f"floor: {self.floor} exceeds cap {self.cap}")
+        if problems:
+            raise ValueError("\n".join(problems))
+        return self
