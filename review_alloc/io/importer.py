@@ -44,8 +44,11 @@ def import_csv(
 
     paper_rows = read_papers(papers, policy, ignore_extra, paper_problems)
     reviewer_rows = read_reviewers(reviewers, policy, ignore_extra, reviewer_problems)
-    paper_at = paper_rows.index if paper_rows is not None else None
-    reviewer_at = reviewer_rows.index if reviewer_rows is not None else None
+    # Ids are checked across files only against a file that was read to its end.
+    paper_at = None if paper_rows is None or paper_problems.stopped else paper_rows.index
+    reviewer_at = (
+        None if reviewer_rows is None or reviewer_problems.stopped else reviewer_rows.index
+    )
     conflict_rows = (
         read_conflicts(conflicts, ignore_extra, reviewer_at, paper_at, conflict_problems)
         if conflicts is not None and conflict_problems is not None

@@ -35,6 +35,8 @@ class FileProblems:
     limit: int = MAX_LINES_PER_FILE
     kept: list[str] = field(default_factory=list)
     count: int = 0
+    stopped: bool = False
+    """True when reading stopped part-way, so the ids read so far are not the whole file."""
 
     def add(self, message: str, line: int | None = None, column: str | None = None) -> None:
         """Record a problem at a line (and column) of this file."""
@@ -129,6 +131,7 @@ def records(text: str, problems: FileProblems) -> Iterator[tuple[int, list[str]]
             return
         except csv.Error as error:
             problems.add(_csv_message(str(error)), line=start)
+            problems.stopped = True
             return
         end = reader.line_num
         yield start, row

@@ -91,6 +91,8 @@ def _fast(
         return None
     # The key order is the score table's own row order, so the table need not sort again.
     keys = r.astype(np.int64) * max(len(papers), 1) + p
+    if bool(np.all(keys[1:] > keys[:-1])):
+        return r, p, v
     order = np.argsort(keys, kind="stable")
     keys = keys[order]
     if bool(np.any(keys[1:] == keys[:-1])):

@@ -60,7 +60,7 @@ def _value_column(data: Any) -> np.ndarray:
     if bad.any():
         row = int(np.argmax(bad))
         raise ValueError(
-            f"value: row {row} is {array[row]!r}; a score must be a finite number >= 0"
+            f"value: row {row} is {float(array[row])!r}; a score must be a finite number >= 0"
         )
     return array
 
