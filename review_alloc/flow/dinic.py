@@ -1,0 +1,174 @@
+"""Dinic's maximum-flow algorithm: BFS level graphs and blocking flows, as numba kernels.
+
+The kernels work in place on a `ResidualNetwork`'s arrays. They also serve the min-cost solver,
+which passes `cost` and `pot` to restrict every walk to arcs of zero reduced cost
+(`cost[a] + pot[tail] - pot[head] == 0`); the max-flow path passes `None` for both, and numba
+compiles that specialisation without the test.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+from review_alloc.flow.network import ResidualNetwork
+
+_INF = np.iinfo(np.int64).max
+
+
+@njit(cache=True)
+def _usable(
+    a: int, u: int, v: int, cap: np.ndarray, cost: np.ndarray | None, pot: np.ndarray | None
+) -> bool:
+    if cap[a] <= 0:
+        return False
+    if cost is None:
+        return True
+    return cost[a] + pot[u] - pot[v] == 0
+
+
+@njit(cache=True)
+def bfs_levels(
+    start: np.ndarray,
+    head: np.ndarray,
+    cap: np.ndarray,
+    source: int,
+    sink: int,
+    level: np.ndarray,
+    queue: np.ndarray,
+    cost: np.ndarray | None,
+    pot: np.ndarray | None,
+) -> bool:
+    """Label every node with its BFS distance from source over usable arcs (-1: unreached).
+
+    Stops as soon as the sink is labelled (pass sink = -1 to label everything reachable).
+    Returns whether the sink was reached.
+    """
+    level[:] = -1
+    level[source] = 0
+    queue[0] = source
+    q_head, q_tail = 0, 1
+    while q_head < q_tail:
+        u = queue[q_head]
+        q_head += 1
+        for a in range(start[u], start[u + 1]):
+            v = head[a]
+            if level[v] < 0 and _usable(a, u, v, cap, cost, pot):
+                level[v] = level[u] + 1
+                if v == sink:
+                    return True
+                queue[q_tail] = v
+                q_tail += 1
+    return False
+
+
+@njit(cache=True)
+def blocking_flow(
+    start: np.ndarray,
+    head: np.ndarray,
+    cap: np.ndarray,
+    rev: np.ndarray,
+    source: int,
+    sink: int,
+    level: np.ndarray,
+    it: np.ndarray,
+    stack: np.ndarray,
+    cost: np.ndarray | None,
+    pot: np.ndarray | None,
+) -> int:
+    """Push a blocking flow along the level graph with an iterative DFS; return its value.
+
+    `it[v]` is v's current-arc pointer: arcs before it are known to be useless this phase.
+    A node whose arcs are exhausted is a dead end and gets level -1, so no later path tries it.
+    """
+    total = 0
+    depth = 0
+    u = source
+    while True:
+        if u == sink:
+            push = _INF
+            for i in range(depth):
+                if cap[stack[i]] < push:
+                    push = cap[stack[i]]
+            first_full = -1
+            for i in range(depth):
+                a = stack[i]
+                cap[a] -= push
+                cap[rev[a]] += push
+                if first_full < 0 and cap[a] == 0:
+                    first_full = i
+            total += push
+            # Retreat to the tail of the first saturated arc: the path up to it is still open.
+            depth = first_full
+            u = head[rev[stack[depth]]]
+            continue
+        advanced = False
+        while it[u] < start[u + 1]:
+            a = it[u]
+            v = head[a]
+            if level[v] == level[u] + 1 and _usable(a, u, v, cap, cost, pot):
+                stack[depth] = a
+                depth += 1
+                u = v
+                advanced = True
+                break
+            it[u] += 1
+        if not advanced:
+            level[u] = -1
+            if depth == 0:
+                return total
+            depth -= 1
+            a = stack[depth]
+            u = head[rev[a]]
+            it[u] += 1
+
+
+@njit(cache=True)
+def dinic_kernel(
+    start: np.ndarray,
+    head: np.ndarray,
+    cap: np.ndarray,
+    rev: np.ndarray,
+    source: int,
+    sink: int,
+    cost: np.ndarray | None,
+    pot: np.ndarray | None,
+) -> tuple[int, int]:
+    """Run Dinic's phases until the sink is unreachable; return (flow value, phases)."""
+    n = start.size - 1
+    level = np.empty(n, dtype=np.int64)
+    queue = np.empty(n, dtype=np.int64)
+    it = np.empty(n, dtype=np.int64)
+    stack = np.empty(n, dtype=np.int64)
+    value = 0
+    phases = 0
+    while bfs_levels(start, head, cap, source, sink, level, queue, cost, pot):
+        it[:] = start[:n]
+        value += blocking_flow(start, head, cap, rev, source, sink, level, it, stack, cost, pot)
+        phases += 1
+    return value, phases
+
+
+@njit(cache=True)
+def reachable_kernel(
+    start: np.ndarray, head: np.ndarray, cap: np.ndarray, source: int
+) -> np.ndarray:
+    """Nodes reachable from source along arcs with residual capacity."""
+    n = start.size - 1
+    level = np.empty(n, dtype=np.int64)
+    queue = np.empty(n, dtype=np.int64)
+    bfs_levels(start, head, cap, source, -1, level, queue, None, None)
+    return level >= 0
+
+
+def dinic(net: ResidualNetwork, source: int, sink: int) -> tuple[int, int]:
+    """Augment `net` in place to a maximum source-sink flow; return (added value, phases)."""
+    value, phases = dinic_kernel(
+        net.start, net.head, net.cap, net.rev, np.int64(source), np.int64(sink), None, None
+    )
+    return int(value), int(phases)
+
+
+def reachable(net: ResidualNetwork, source: int) -> np.ndarray:
+    """Boolean mask of the nodes reachable from source in the residual network."""
+    return reachable_kernel(net.start, net.head, net.cap, np.int64(source))

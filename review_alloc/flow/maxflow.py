@@ -1,0 +1,77 @@
+"""The maximum-flow front door: validation, lower bounds, the chosen algorithm, one result shape."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from review_alloc.flow.circulation import route_lower_bounds
+from review_alloc.flow.dinic import dinic, reachable
+from review_alloc.flow.network import build_residual
+from review_alloc.flow.results import FlowInputError, FlowResult
+from review_alloc.flow.validate import EdgeArrays, check_edges, check_n, check_node
+
+METHODS = ("dinic",)
+"""Algorithms `max_flow(method=...)` accepts."""
+
+
+def max_flow(
+    n: int,
+    tails: Any,
+    heads: Any,
+    capacities: Any,
+    source: int,
+    sink: int,
+    *,
+    lower: Any = None,
+    method: str = "dinic",
+) -> FlowResult:
+    """A maximum source-sink flow on integer capacities, with a minimum cut.
+
+    Edges are `tails[e] -> heads[e]` with `lower[e] <= flow[e] <= capacities[e]` (lower bounds
+    default to 0). Parallel edges, edges into the source and self-loops are allowed; a self-loop
+    carries its lower bound. With lower bounds, raises `InfeasibleError` when no flow meets them
+    (its cut holds the source and the sink together or neither); the value of a maximum flow is
+    negative when the lower bounds force more flow from the sink back to the source.
+    """
+    if method not in METHODS:
+        choices = ", ".join(repr(m) for m in METHODS)
+        raise FlowInputError(f"method {method!r} is not available; choose one of {choices}")
+    n = check_n(n, 2)
+    source = check_node("source", source, n)
+    sink = check_node("sink", sink, n)
+    if source == sink:
+        raise FlowInputError(f"source and sink must differ (both {source})")
+    edges = check_edges(n, tails, heads, capacities, lower=lower)
+
+    phases = 0
+    if edges.lower.any():
+        # Return edges sink -> source and source -> sink turn any s-t flow, whatever the sign of
+        # its value, into a circulation; above the total capacity, they never limit it.
+        unlimited = int(edges.upper.sum()) + 1
+        with_return = EdgeArrays(
+            n=n,
+            tails=np.append(edges.tails, [sink, source]),
+            heads=np.append(edges.heads, [source, sink]),
+            upper=np.append(edges.upper, [unlimited, unlimited]),
+            lower=np.append(edges.lower, [0, 0]),
+            costs=None,
+        )
+        net, phases = route_lower_bounds(with_return)
+        for edge in (len(edges.tails), len(edges.tails) + 1):
+            arc = net.arc_of_edge[edge]
+            net.cap[arc] = 0
+            net.cap[net.rev[arc]] = 0
+    else:
+        net = build_residual(n, edges.tails, edges.heads, edges.upper, edges.lower, edges.lower)
+    _, more_phases = dinic(net, source, sink)
+
+    flow = net.edge_flow(edges.lower)
+    value = int(flow[edges.tails == source].sum() - flow[edges.heads == source].sum())
+    return FlowResult(
+        value=value,
+        flow=flow,
+        source_side=reachable(net, source)[:n].copy(),
+        phases=phases + more_phases,
+    )

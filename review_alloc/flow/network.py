@@ -1,0 +1,139 @@
+"""The CSR residual network every kernel works on.
+
+Each input edge e becomes a forward arc (residual `upper - flow`) and a reverse arc (residual
+`flow - lower`). Arcs are grouped by tail: the arcs leaving node v are `start[v]:start[v + 1]`,
+`rev[a]` is the arc paired with a, and `arc_of_edge[e]` is the forward arc of edge e.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numba import njit
+
+
+@dataclass(eq=False)
+class ResidualNetwork:
+    """Flat arrays of a residual network; `cap` (and nothing else) changes as flow is pushed."""
+
+    n: int
+    start: np.ndarray
+    head: np.ndarray
+    cap: np.ndarray
+    rev: np.ndarray
+    arc_of_edge: np.ndarray
+    cost: np.ndarray
+
+    def edge_flow(self, lower: np.ndarray) -> np.ndarray:
+        """Flow on the first len(lower) edges, read from the residuals of their reverse arcs."""
+        return lower + self.cap[self.rev[self.arc_of_edge[: len(lower)]]]
+
+
+@njit(cache=True)
+def _csr_kernel(
+    n: int,
+    tails: np.ndarray,
+    heads: np.ndarray,
+    forward: np.ndarray,
+    backward: np.ndarray,
+    costs: np.ndarray | None,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Counting sort of the 2m arcs by tail: forward arcs in edge order, then reverse arcs."""
+    m = tails.size
+    start = np.zeros(n + 1, dtype=np.int64)
+    for e in range(m):
+        start[tails[e] + 1] += 1
+        start[heads[e] + 1] += 1
+    for v in range(n):
+        start[v + 1] += start[v]
+    fill = start[:n].copy()
+    head = np.empty(2 * m, dtype=np.int32)
+    cap = np.empty(2 * m, dtype=np.int64)
+    rev = np.empty(2 * m, dtype=np.int32)
+    cost = np.zeros(0 if costs is None else 2 * m, dtype=np.int64)
+    arc_of_edge = np.empty(m, dtype=np.int64)
+    # Forward arcs are placed before any reverse arc at the same tail, as a stable sort would.
+    for e in range(m):
+        a = fill[tails[e]]
+        fill[tails[e]] += 1
+        arc_of_edge[e] = a
+        head[a] = heads[e]
+        cap[a] = forward[e]
+        if costs is not None:
+            cost[a] = costs[e]
+    for e in range(m):
+        a = fill[heads[e]]
+        fill[heads[e]] += 1
+        f = arc_of_edge[e]
+        head[a] = tails[e]
+        cap[a] = backward[e]
+        rev[a] = f
+        rev[f] = a
+        if costs is not None:
+            cost[a] = -costs[e]
+    return start, head, cap, rev, arc_of_edge, cost
+
+
+def build_residual(
+    n: int,
+    tails: np.ndarray,
+    heads: np.ndarray,
+    upper: np.ndarray,
+    lower: np.ndarray,
+    flow: np.ndarray,
+    costs: np.ndarray | None = None,
+) -> ResidualNetwork:
+    """Build the residual network of `flow` (lower <= flow <= upper) on the given edges."""
+    start, head, cap, rev, arc_of_edge, cost = _csr_kernel(
+        np.int64(n),
+        np.ascontiguousarray(tails, dtype=np.int64),
+        np.ascontiguousarray(heads, dtype=np.int64),
+        np.ascontiguousarray(upper - flow, dtype=np.int64),
+        np.ascontiguousarray(flow - lower, dtype=np.int64),
+        None if costs is None else np.ascontiguousarray(costs, dtype=np.int64),
+    )
+    return ResidualNetwork(
+        n=n, start=start, head=head, cap=cap, rev=rev, arc_of_edge=arc_of_edge, cost=cost
+    )
+
+
+def net_outflow(n: int, tails: np.ndarray, heads: np.ndarray, flow: np.ndarray) -> np.ndarray:
+    """Out-flow minus in-flow at every node, exact in int64 (bincount would go through floats)."""
+    balance = np.zeros(n, dtype=np.int64)
+    np.add.at(balance, tails, flow)
+    np.subtract.at(balance, heads, flow)
+    return balance
+
+
+def build_with_terminals(
+    n: int,
+    tails: np.ndarray,
+    heads: np.ndarray,
+    upper: np.ndarray,
+    lower: np.ndarray,
+    flow: np.ndarray,
+    excess: np.ndarray,
+    costs: np.ndarray | None = None,
+) -> tuple[ResidualNetwork, int]:
+    """Residual network of `flow` plus a super source n and a super sink n + 1.
+
+    The super source feeds every node with `excess > 0` (flow it still has to send out) and every
+    node with `excess < 0` drains into the super sink; terminal arcs cost 0. Edge e < len(tails)
+    keeps its index. Returns the network and the total excess to route.
+    """
+    senders = np.flatnonzero(excess > 0)
+    receivers = np.flatnonzero(excess < 0)
+    n_extra = len(senders) + len(receivers)
+    zeros = np.zeros(n_extra, dtype=np.int64)
+    extra_upper = np.concatenate([excess[senders], -excess[receivers]])
+    net = build_residual(
+        n + 2,
+        np.concatenate([tails, np.full(len(senders), n), receivers]),
+        np.concatenate([heads, senders, np.full(len(receivers), n + 1)]),
+        np.concatenate([upper, extra_upper]),
+        np.concatenate([lower, zeros]),
+        np.concatenate([flow, zeros]),
+        None if costs is None else np.concatenate([costs, zeros]),
+    )
+    return net, int(excess[senders].sum())
