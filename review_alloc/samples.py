@@ -132,8 +132,9 @@ def _build(
             else:
                 authors.append(_email(author_pool[int(rng.integers(len(author_pool)))], domain))
                 insts.append(inst)
-        words = rng.choice(title_words, size=3, replace=False) if title_words else ()
-        title = f"{' '.join(words).capitalize()} for {own[0]}" if len(words) else own[0]
+        words = rng.choice(title_words, size=2, replace=False) if title_words else ()
+        subject = _SUBJECTS[int(rng.integers(len(_SUBJECTS)))]
+        title = f"{' '.join(words).capitalize()} {subject} for {own[0]}" if len(words) else own[0]
         papers.append(
             Paper(
                 id=f"{id_prefix}{i + 1:04d}",
@@ -193,6 +194,18 @@ def _build(
     )
 
 
+_SUBJECTS = (
+    "estimators",
+    "pipelines",
+    "scheduling",
+    "models",
+    "protocols",
+    "benchmarks",
+    "indexes",
+    "controllers",
+    "representations",
+    "solvers",
+)
 _WORDS = (
     "adaptive sparse robust online streaming distributed calibrated low-power federated "
     "probabilistic incremental scalable certified lightweight"

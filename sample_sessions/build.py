@@ -7,6 +7,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from review_alloc.io.session_csv import write_session_csv
 from review_alloc.model import save_session
 from review_alloc.samples import SAMPLES
 
@@ -21,6 +22,8 @@ def main() -> None:
             f"{stem}.json: {len(session.papers)} papers, {len(session.reviewers)} reviewers, "
             f"{len(session.scores)} scores"
         )
+        if stem == "workshop":
+            write_session_csv(session, here / "workshop-csv")
 
 
 if __name__ == "__main__":
