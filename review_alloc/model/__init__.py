@@ -10,6 +10,7 @@ from review_alloc.model.errors import (
     capped_lines,
     validation_error_lines,
 )
+from review_alloc.model.events import Action, Event
 from review_alloc.model.plans import Assignment, Plan, PlanFigures
 from review_alloc.model.policy import DEFAULT_PUBLIC_MAIL_DOMAINS, ConflictRules, Policy
 from review_alloc.model.scores import ENCODING as SCORE_ENCODING
@@ -29,9 +30,11 @@ __all__ = [
     "FORMAT_VERSION",
     "MAX_LINES_PER_FILE",
     "SCORE_ENCODING",
+    "Action",
     "Assignment",
     "Conflict",
     "ConflictRules",
+    "Event",
     "InputError",
     "PairRule",
     "Paper",

@@ -17,6 +17,7 @@ from pydantic import Field, PrivateAttr, model_validator
 
 from review_alloc.model.base import DocumentModel, Identifier
 from review_alloc.model.entities import Conflict, PairRule, Paper, Reviewer
+from review_alloc.model.events import Event
 from review_alloc.model.plans import Plan
 from review_alloc.model.policy import Policy
 from review_alloc.model.scores import ScoreTable
@@ -72,6 +73,8 @@ class Session(DocumentModel):
     pins: list[PairRule] = Field(default_factory=list)
     blocks: list[PairRule] = Field(default_factory=list)
     plan: Plan | None = None
+    events: list[Event] = Field(default_factory=list)
+    """Every change made after import, oldest first."""
 
     _indexes: _IndexCache = PrivateAttr(default_factory=_IndexCache)
 
@@ -84,6 +87,10 @@ class Session(DocumentModel):
                 problems = [*problems[:_MAX_PROBLEMS], f"... and {extra} more problems"]
             raise ValueError("\n".join(problems))
         return self
+
+    def validation_problems(self) -> list[str]:
+        """The cross-field problems the validator would raise, as `path: message` lines."""
+        return self._problems()
 
     def _problems(self) -> list[str]:
         problems: list[str] = []
