@@ -70,6 +70,13 @@ class Plan(DocumentModel):
     """When the plan was made, timezone-aware, stored in UTC."""
     checked: bool
     method: str
+    bottleneck: float | None = None
+    """Lowest score allowed for unpinned pairs, when the bottleneck option made the plan."""
+    loads_before_balance: list[int] | None = None
+    """Per-reviewer loads (session order) of the same session planned with balance off."""
+    bound: dict[str, float] | None = None
+    """Tier values of a relaxation above this plan (it is optimal within them); `None` when the
+    plan is proven optimal."""
 
     @field_validator("created_at")
     @classmethod

@@ -1,19 +1,38 @@
-"""Make an optimal plan: build the network, solve it, decode it, and have it checked."""
+"""Make an optimal plan: build the network, solve it, decode it, and have it checked.
+
+The objective, lexicographic, highest first: required coverage; seniors (sum over papers of
+min(seniors, senior_min), unless the policy makes seniors hard); coverage; with `bottleneck`,
+the lowest score of an assigned unpinned pair; reviewer floors; total score minus the balance
+penalty `balance * sum over reviewers of load * (load - 1) / 2`.
+
+The institution rule and the senior rule together are not a network flow where a (paper,
+institution) group mixes seniors and juniors (the two families of reviewer sets cross). There
+each part of the group is first capped at m, a relaxation. If the optimum keeps the real rule,
+it is optimal. Otherwise the violated groups get a fixed split of their cap (seniors first, as
+far as the relaxed optimum used them) and the network is solved again until no group breaks the
+rule; the first, relaxed optimum is then an upper bound, and the plan reports any difference.
+"""
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from datetime import UTC, datetime
 
 import numpy as np
 
-from review_alloc.flow import min_cost_flow
+from review_alloc.flow import CostFlowResult, InfeasibleError, min_cost_flow
 from review_alloc.model import Assignment, Plan, Session
 from review_alloc.plan.checker import check_plan
+from review_alloc.plan.errors import PlanInputError
+from review_alloc.plan.fairness import coverage_flows, highest_threshold, score_thresholds
 from review_alloc.plan.figures import plan_figures
-from review_alloc.plan.network import PlanNetwork, build_network
+from review_alloc.plan.leads import LeadChoice, pick_leads, with_leads
+from review_alloc.plan.network import SCORE_RESOLUTION, PlanNetwork, build_network
 
 METHOD = "lexicographic min-cost flow (primal-dual with Dinic blocking flows)"
+
+TIERS = ("required", "seniors", "coverage", "floors", "score")
+"""Names of the values `tier_values` returns, highest tier first."""
 
 
 @dataclass(frozen=True)
@@ -23,14 +42,173 @@ class PlanOutcome:
     plan: Plan
     network: PlanNetwork
     potentials: np.ndarray
+    leads: LeadChoice | None = None
+    bottleneck: float | None = None
+    """The bottleneck threshold (lowest allowed unpinned score) when the option is on."""
+    relaxed_bound: dict[str, float] = field(default_factory=dict)
+    """Tier values of the relaxed network when the institution rule needed a split, else {}."""
+    loads_before_balance: np.ndarray | None = None
+    """Per-reviewer loads of the same session planned with balance off (only when balancing)."""
+    tiers: dict[str, float] = field(default_factory=dict)
+    """The plan's tier values (see `tier_values`)."""
+
+    @property
+    def proven_optimal(self) -> bool:
+        """True unless the relaxation bound is above the plan on some tier."""
+        return not self.relaxed_bound or self.relaxed_bound == self.tiers
 
 
-def make_plan(session: Session, *, now: datetime | None = None) -> PlanOutcome:
-    """Solve the session's lexicographic objective exactly and return the checked plan."""
-    net = build_network(session)
-    result = min_cost_flow(
-        net.n_nodes, net.tails, net.heads, net.capacities, net.costs, lower=net.lower
+def tier_values(net: PlanNetwork, used: np.ndarray) -> dict[str, float]:
+    """The objective's tier values of the pairs `used` (boolean per pair arc) in `net`."""
+    loads = np.bincount(net.pair_reviewer[used], minlength=net.n_reviewers)
+    counts = np.bincount(net.pair_paper[used], minlength=net.n_papers)
+    minimum = net.capacities[net.required_arcs]
+    reviews = minimum + net.capacities[net.extra_arcs]
+    floor = np.bincount(
+        net.floor_arc_reviewer, weights=net.capacities[net.floor_arcs], minlength=net.n_reviewers
     )
+    in_senior = used & (net.pair_senior >= 0)
+    seniors = np.bincount(net.pair_senior[in_senior], minlength=len(net.senior_paper))
+    penalty = net.balance_step * float(np.sum(loads * (loads - 1) // 2)) / SCORE_RESOLUTION
+    return {
+        "required": float(np.minimum(counts, minimum).sum()),
+        "seniors": float(np.minimum(seniors, net.senior_need).sum()),
+        "coverage": float(np.minimum(counts, reviews).sum()),
+        "floors": float(np.minimum(loads, floor).sum()),
+        "score": round(float(net.pair_score[used].sum()) - penalty, 6),
+    }
+
+
+def _run(session: Session, net: PlanNetwork) -> CostFlowResult:
+    """Solve one network; a hard rule that cannot be met becomes a PlanInputError."""
+    try:
+        return min_cost_flow(
+            net.n_nodes, net.tails, net.heads, net.capacities, net.costs, lower=net.lower
+        )
+    except InfeasibleError as error:
+        side = np.asarray(error.source_side, dtype=bool)
+        papers = [
+            session.papers[int(i)].id
+            for i in net.senior_paper
+            if side[net.sink + 1 + int(np.searchsorted(net.senior_paper, i))]
+        ][:10]
+        where = f" (papers on the failing cut: {', '.join(papers)})" if papers else ""
+        raise PlanInputError(
+            [
+                "policy.senior_hard: the hard senior rule cannot be met with the eligible "
+                f"seniors, their caps and the pins{where}; lower senior_min or make the rule a "
+                "tier (senior_hard: false)"
+            ]
+        ) from None
+
+
+def _violated_splits(
+    session: Session, net: PlanNetwork, used: np.ndarray
+) -> dict[tuple[int, str], int]:
+    """For relaxed mixed groups whose two parts together exceed the cap: the senior share.
+
+    The part kept is the seniors, unless the paper keeps its senior need without them and the
+    juniors' pairs score higher on average; pins are always kept.
+    """
+    m = session.policy.max_per_institution
+    if m is None or not net.relaxed_groups:
+        return {}
+    n_g = len(net.group_paper)
+    inside = used & (net.pair_group >= 0)
+    flow = np.bincount(net.pair_group[inside], minlength=n_g)
+    gain = np.bincount(net.pair_group[inside], weights=net.pair_score[inside], minlength=n_g)
+    pinned_in = np.bincount(net.pair_group[net.pair_pinned & (net.pair_group >= 0)], minlength=n_g)
+    in_senior = used & (net.pair_senior >= 0)
+    seniors = np.bincount(net.pair_senior[in_senior], minlength=len(net.senior_paper))
+    senior_of_paper = {int(i): k for k, i in enumerate(net.senior_paper.tolist())}
+    parts: dict[tuple[int, str], dict[int, int]] = {}
+    for g in net.relaxed_groups:
+        key = (int(net.group_paper[g]), net.group_institution[g])
+        parts.setdefault(key, {})[int(net.group_senior[g])] = g
+    chosen: dict[tuple[int, str], int] = {}
+    for key, by_part in parts.items():
+        s, j = by_part.get(1), by_part.get(0)
+        used_s = int(flow[s]) if s is not None else 0
+        used_j = int(flow[j]) if j is not None else 0
+        if used_s + used_j <= m:
+            continue
+        pinned_s = int(pinned_in[s]) if s is not None else 0
+        pinned_j = int(pinned_in[j]) if j is not None else 0
+        k = min(used_s, m - pinned_j)
+        node = senior_of_paper.get(key[0])
+        others = int(seniors[node]) - used_s if node is not None else 0
+        if (
+            node is not None
+            and others >= int(net.senior_need[node])
+            and used_j
+            and used_s
+            and gain[j] / used_j > gain[s] / used_s
+        ):
+            k = max(pinned_s, m - min(used_j, m))
+        chosen[key] = k
+    return chosen
+
+
+def _solve_rules(
+    session: Session, threshold: float | None, split: dict[tuple[int, str], int]
+) -> tuple[PlanNetwork, CostFlowResult, dict[tuple[int, str], int], dict[str, float]]:
+    """Solve, splitting violated mixed institution groups until none is violated.
+
+    Returns the final network, its result, the split, and the first solve's tier values.
+    """
+    split = dict(split)
+    first: dict[str, float] = {}
+    while True:
+        net = build_network(session, institution_split=split, threshold=threshold)
+        result = _run(session, net)
+        used = result.flow[net.pair_arcs] > 0
+        if not first:
+            first = tier_values(net, used)
+        more = _violated_splits(session, net, used)
+        if not more:
+            return net, result, split, first
+        split.update(more)
+
+
+def _bottleneck(
+    session: Session,
+    net: PlanNetwork,
+    base: dict[str, float],
+    split: dict[tuple[int, str], int],
+) -> tuple[float | None, PlanNetwork, CostFlowResult, dict[tuple[int, str], int], dict]:
+    """The highest score threshold keeping required coverage, seniors and coverage optimal."""
+    thresholds = score_thresholds(net)
+    if len(thresholds) == 0:
+        result = _run(session, net)
+        return None, net, result, split, {}
+    # The max-flow pruning runs on the relaxed network, so it never rejects a reachable threshold.
+    relaxed = build_network(session) if split else net
+    target = coverage_flows(relaxed, None)
+    top = highest_threshold(thresholds, lambda t: coverage_flows(relaxed, t) == target)
+
+    def solved(t: float) -> tuple:
+        return _solve_rules(session, t, {})
+
+    def keeps(values: dict[str, float]) -> bool:
+        return all(values[k] >= base[k] for k in ("required", "seniors", "coverage"))
+
+    attempt = solved(float(thresholds[top]))
+    if not keeps(tier_values(attempt[0], attempt[1].flow[attempt[0].pair_arcs] > 0)):
+        cache: dict[int, tuple] = {}
+
+        def reaches(t: float) -> bool:
+            k = int(np.searchsorted(thresholds, t))
+            cache[k] = solved(t)
+            net_k, res_k = cache[k][0], cache[k][1]
+            return keeps(tier_values(net_k, res_k.flow[net_k.pair_arcs] > 0))
+
+        top = highest_threshold(thresholds[:top], reaches)
+        attempt = cache.get(top) or solved(float(thresholds[top]))
+    net_t, result_t, split_t, first_t = attempt
+    return float(thresholds[top]), net_t, result_t, split_t, first_t
+
+
+def _decode(session: Session, net: PlanNetwork, result: CostFlowResult, now: datetime) -> Plan:
     chosen = np.flatnonzero(result.flow[net.pair_arcs] > 0)
     reviewer = net.pair_reviewer[chosen]
     paper = net.pair_paper[chosen]
@@ -41,14 +219,54 @@ def make_plan(session: Session, *, now: datetime | None = None) -> PlanOutcome:
         Assignment(paper=session.papers[i].id, reviewer=session.reviewers[j].id, score=float(s))
         for j, i, s in zip(reviewer.tolist(), paper.tolist(), score.tolist(), strict=True)
     ]
-    plan = Plan(
+    return Plan(
         assignments=assignments,
         figures=plan_figures(session, reviewer, paper, score),
-        created_at=now or datetime.now(UTC),
+        created_at=now,
         checked=False,
         method=METHOD,
     )
+
+
+def make_plan(session: Session, *, now: datetime | None = None) -> PlanOutcome:
+    """Solve the session's lexicographic objective exactly and return the checked plan."""
+    net, result, split, first = _solve_rules(session, None, {})
+    bottleneck = None
+    if session.policy.bottleneck:
+        base = tier_values(net, result.flow[net.pair_arcs] > 0)
+        bottleneck, net, result, split, first_t = _bottleneck(session, net, base, split)
+        first = first_t or first
+    used = result.flow[net.pair_arcs] > 0
+    final = tier_values(net, used)
+    relaxed = first if (split and first != final) else {}
+    plan = _decode(session, net, result, now or datetime.now(UTC))
+    leads = pick_leads(session, plan) if session.policy.max_leads > 0 else None
+    if leads is not None:
+        plan = with_leads(plan, leads)
     check_plan(session, plan, result.potentials, network=net)
+    before = None
+    if session.policy.balance > 0:
+        plain = session.model_copy(
+            update={"policy": session.policy.model_copy(update={"balance": 0.0, "max_leads": 0})}
+        )
+        other = make_plan(plain, now=now)
+        before = np.bincount(
+            [session.reviewer_index()[a.reviewer] for a in other.plan.assignments],
+            minlength=len(session.reviewers),
+        )
+    extra = {
+        "checked": True,
+        "bottleneck": bottleneck,
+        "loads_before_balance": None if before is None else [int(x) for x in before],
+        "bound": relaxed or None,
+    }
     return PlanOutcome(
-        plan=plan.model_copy(update={"checked": True}), network=net, potentials=result.potentials
+        plan=plan.model_copy(update=extra),
+        network=net,
+        potentials=result.potentials,
+        leads=leads,
+        bottleneck=bottleneck,
+        relaxed_bound=relaxed,
+        loads_before_balance=before,
+        tiers=final,
     )
