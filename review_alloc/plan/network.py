@@ -122,7 +122,12 @@ class PlanNetwork:
     pair_group: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
     """Per pair: the group node index its flow passes, else -1."""
     relaxed_groups: tuple[int, ...] = ()
-    """Groups split by seniority with each part capped separately: a relaxation (see solve)."""
+    """Parts (indices into the part arrays) of mixed groups capped at m each: a relaxation."""
+    pair_part: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
+    """Per pair: its part of a crowded (paper, institution) group, else -1."""
+    part_paper: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
+    part_senior: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
+    part_institution: tuple[str, ...] = ()
     balance_step: int = 0
 
     def paper_node(self, i: np.ndarray | int) -> np.ndarray | int:
@@ -311,6 +316,24 @@ def _senior_nodes(
     return senior_papers, need[senior_papers], pair_senior.astype(np.int64)
 
 
+@dataclass(frozen=True)
+class GroupParts:
+    """Parts of crowded (paper, institution) groups: a whole group, or its senior or junior part.
+
+    Only parts with more candidates than their cap get a node in the network.
+    """
+
+    pair_part: np.ndarray
+    """Per pair: its part, or -1 outside crowded groups."""
+    paper: np.ndarray
+    senior: np.ndarray
+    """1 senior part, 0 junior part, -1 whole group."""
+    institution: tuple[str, ...]
+    cap: np.ndarray
+    relaxed: tuple[int, ...]
+    """Parts of mixed groups capped at m each (no split fixed): a relaxation."""
+
+
 def _institution_groups(
     session: Session,
     reviewer: np.ndarray,
@@ -318,11 +341,10 @@ def _institution_groups(
     pair_senior: np.ndarray,
     has_senior_node: np.ndarray,
     split: Mapping[tuple[int, str], int] | None,
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, tuple[str, ...], np.ndarray, tuple[int, ...]]:
-    """Group nodes for (paper, institution) with more candidates than the cap allows.
+) -> GroupParts:
+    """The (paper, institution) groups with more candidates than the cap allows, as parts.
 
-    Returns (pair → group or -1, group paper, group senior part (1, 0, or -1 for the whole
-    group), group institution names, group caps, relaxed groups). Where a paper has a senior node
+    Where a paper has a senior node
     and a group mixes seniors and juniors, the group is split into a senior part (routed through
     the senior node) and a junior part; `split[(paper, institution)] = k` caps the seniors at k
     and the juniors at m - k (a restriction); without it each part is capped at m (a relaxation).
@@ -331,7 +353,7 @@ def _institution_groups(
     empty = np.zeros(0, np.int64)
     none = np.full(len(paper), -1, dtype=np.int64)
     if m is None or len(paper) == 0:
-        return none, empty, empty, (), empty, ()
+        return GroupParts(none, empty, empty, (), empty, ())
     inst, names = reviewer_institutions(session)
     n_inst = max(len(names), 1)
     g_inst = inst[reviewer]
@@ -364,7 +386,14 @@ def _institution_groups(
             relaxed.append(k)
         else:
             caps[k] = chosen if g_part[k] == 1 else m - chosen
-    return pair_group, g_paper, g_part.astype(np.int64), g_name, caps, tuple(relaxed)
+    return GroupParts(
+        pair_part=pair_group,
+        paper=g_paper,
+        senior=g_part.astype(np.int64),
+        institution=g_name,
+        cap=caps,
+        relaxed=tuple(relaxed),
+    )
 
 
 def build_network(
@@ -372,16 +401,18 @@ def build_network(
     *,
     institution_split: Mapping[tuple[int, str], int] | None = None,
     threshold: float | None = None,
+    conflicts: ConflictSet | None = None,
 ) -> PlanNetwork:
     """Build the network: source → reviewer [floor, cap] → (institution group) → (senior node)
     → paper → sink [min, reviews].
 
     `threshold` leaves out unpinned pairs scoring below it (the bottleneck search);
     `institution_split` fixes how mixed institution groups share their cap (see
-    `_institution_groups`).
+    `_institution_groups`); `conflicts` reuses the session's conflict set when already known.
     """
     n_r, n_p = len(session.reviewers), len(session.papers)
-    conflicts = conflict_pairs(session)
+    if conflicts is None:
+        conflicts = conflict_pairs(session)
     reviewer, paper, score, keys, pinned = _eligible_pairs(session, conflicts, threshold)
     reviews, minimum, cap, floor = active_demands(session)
     if session.pins:
@@ -391,9 +422,17 @@ def build_network(
     senior_papers, senior_need, pair_senior = _senior_nodes(session, reviewer, paper)
     has_senior_node = np.zeros(n_p, dtype=bool)
     has_senior_node[senior_papers] = True
-    pair_group, g_paper, g_part, g_name, g_cap, relaxed = _institution_groups(
+    parts = _institution_groups(
         session, reviewer, paper, pair_senior, has_senior_node, institution_split
     )
+    part_size = np.bincount(parts.pair_part[parts.pair_part >= 0], minlength=len(parts.paper))
+    with_node = np.flatnonzero(part_size > parts.cap)
+    node_of_part = np.full(len(parts.paper) + 1, -1, dtype=np.int64)
+    node_of_part[with_node] = np.arange(len(with_node))
+    # Index -1 (outside any group) reads the extra last entry, which stays -1.
+    pair_group = node_of_part[parts.pair_part]
+    g_paper, g_part, g_cap = parts.paper[with_node], parts.senior[with_node], parts.cap[with_node]
+    g_name = tuple(parts.institution[k] for k in with_node.tolist())
     n_sen, n_grp = len(senior_papers), len(g_paper)
     first_sen, first_grp = sink + 1, sink + 1 + n_sen
 
@@ -497,7 +536,11 @@ def build_network(
         group_senior=g_part,
         group_arcs=group_arcs,
         pair_group=pair_group,
-        relaxed_groups=relaxed,
+        relaxed_groups=parts.relaxed,
+        pair_part=parts.pair_part,
+        part_paper=parts.paper,
+        part_senior=parts.senior,
+        part_institution=parts.institution,
         balance_step=step,
     )
 

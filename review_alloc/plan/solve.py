@@ -23,6 +23,7 @@ import numpy as np
 from review_alloc.flow import CostFlowResult, InfeasibleError, min_cost_flow
 from review_alloc.model import Assignment, Plan, Session
 from review_alloc.plan.checker import check_plan
+from review_alloc.plan.conflicts import ConflictSet, conflict_pairs
 from review_alloc.plan.errors import PlanInputError
 from review_alloc.plan.fairness import coverage_flows, highest_threshold, score_thresholds
 from review_alloc.plan.figures import plan_figures
@@ -46,7 +47,8 @@ class PlanOutcome:
     bottleneck: float | None = None
     """The bottleneck threshold (lowest allowed unpinned score) when the option is on."""
     relaxed_bound: dict[str, float] = field(default_factory=dict)
-    """Tier values of the relaxed network when the institution rule needed a split, else {}."""
+    """Tier values of the best open relaxation when the split search ran out of budget before
+    proving the plan optimal, else {}."""
     loads_before_balance: np.ndarray | None = None
     """Per-reviewer loads of the same session planned with balance off (only when balancing)."""
     tiers: dict[str, float] = field(default_factory=dict)
@@ -104,28 +106,29 @@ def _run(session: Session, net: PlanNetwork) -> CostFlowResult:
 
 def _violated_splits(
     session: Session, net: PlanNetwork, used: np.ndarray
-) -> dict[tuple[int, str], int]:
-    """For relaxed mixed groups whose two parts together exceed the cap: the senior share.
+) -> dict[tuple[int, str], tuple[int, int, int]]:
+    """For relaxed mixed groups whose two parts together exceed the cap: (suggested senior
+    share, least and most senior share the group's pins allow).
 
-    The part kept is the seniors, unless the paper keeps its senior need without them and the
-    juniors' pairs score higher on average; pins are always kept.
+    The suggestion keeps the seniors, unless the paper keeps its senior need without them and
+    the juniors' pairs score higher on average.
     """
     m = session.policy.max_per_institution
     if m is None or not net.relaxed_groups:
         return {}
-    n_g = len(net.group_paper)
-    inside = used & (net.pair_group >= 0)
-    flow = np.bincount(net.pair_group[inside], minlength=n_g)
-    gain = np.bincount(net.pair_group[inside], weights=net.pair_score[inside], minlength=n_g)
-    pinned_in = np.bincount(net.pair_group[net.pair_pinned & (net.pair_group >= 0)], minlength=n_g)
+    n_g = len(net.part_paper)
+    inside = used & (net.pair_part >= 0)
+    flow = np.bincount(net.pair_part[inside], minlength=n_g)
+    gain = np.bincount(net.pair_part[inside], weights=net.pair_score[inside], minlength=n_g)
+    pinned_in = np.bincount(net.pair_part[net.pair_pinned & (net.pair_part >= 0)], minlength=n_g)
     in_senior = used & (net.pair_senior >= 0)
     seniors = np.bincount(net.pair_senior[in_senior], minlength=len(net.senior_paper))
     senior_of_paper = {int(i): k for k, i in enumerate(net.senior_paper.tolist())}
     parts: dict[tuple[int, str], dict[int, int]] = {}
     for g in net.relaxed_groups:
-        key = (int(net.group_paper[g]), net.group_institution[g])
-        parts.setdefault(key, {})[int(net.group_senior[g])] = g
-    chosen: dict[tuple[int, str], int] = {}
+        key = (int(net.part_paper[g]), net.part_institution[g])
+        parts.setdefault(key, {})[int(net.part_senior[g])] = g
+    chosen: dict[tuple[int, str], tuple[int, int, int]] = {}
     for key, by_part in parts.items():
         s, j = by_part.get(1), by_part.get(0)
         used_s = int(flow[s]) if s is not None else 0
@@ -145,29 +148,90 @@ def _violated_splits(
             and gain[j] / used_j > gain[s] / used_s
         ):
             k = max(pinned_s, m - min(used_j, m))
-        chosen[key] = k
+        chosen[key] = (k, pinned_s, m - pinned_j)
     return chosen
 
 
-def _solve_rules(
-    session: Session, threshold: float | None, split: dict[tuple[int, str], int]
-) -> tuple[PlanNetwork, CostFlowResult, dict[tuple[int, str], int], dict[str, float]]:
-    """Solve, splitting violated mixed institution groups until none is violated.
+SEARCH_BUDGET = 150_000
+"""Arcs times solves the institution split search may spend beyond its first, greedy plan
+(a network larger than this gets the greedy plan and the bound, without a search)."""
 
-    Returns the final network, its result, the split, and the first solve's tier values.
+
+@dataclass
+class _Node:
+    """A solved network of the split search."""
+
+    net: PlanNetwork
+    result: CostFlowResult
+    split: dict[tuple[int, str], int]
+    violated: dict[tuple[int, str], tuple[int, int, int]]
+
+
+def _solve_split(
+    session: Session,
+    threshold: float | None,
+    split: dict[tuple[int, str], int],
+    conflicts: ConflictSet,
+) -> _Node:
+    net = build_network(session, institution_split=split, threshold=threshold, conflicts=conflicts)
+    result = _run(session, net)
+    used = result.flow[net.pair_arcs] > 0
+    return _Node(net, result, split, _violated_splits(session, net, used))
+
+
+def _solve_rules(
+    session: Session,
+    threshold: float | None,
+    split: dict[tuple[int, str], int],
+    conflicts: ConflictSet,
+) -> tuple[PlanNetwork, CostFlowResult, dict[tuple[int, str], int], dict[str, float]]:
+    """Solve, with mixed institution groups split exactly by branch and bound where needed.
+
+    A relaxed network (mixed groups' parts capped at m each) is solved first; if its optimum
+    keeps the institution rule it is optimal. Otherwise a greedy dive (splitting every violated
+    group at once) gives a plan, and a depth-first branch and bound over one group's senior
+    share k = 0..m at a time, pruned by the min cost (the whole lexicographic objective in one
+    integer; every split network has the same weights), proves it optimal or improves it within
+    `SEARCH_BUDGET`. Returns the network, its result, its split, and the tier values of the best
+    remaining bound ({} when the plan is proven optimal).
     """
-    split = dict(split)
-    first: dict[str, float] = {}
-    while True:
-        net = build_network(session, institution_split=split, threshold=threshold)
-        result = _run(session, net)
-        used = result.flow[net.pair_arcs] > 0
-        if not first:
-            first = tier_values(net, used)
-        more = _violated_splits(session, net, used)
-        if not more:
-            return net, result, split, first
-        split.update(more)
+    root = _solve_split(session, threshold, dict(split), conflicts)
+    if not root.violated:
+        return root.net, root.result, root.split, {}
+    best = root
+    while best.violated:
+        merged = {**best.split, **{key: k for key, (k, _, _) in best.violated.items()}}
+        best = _solve_split(session, threshold, merged, conflicts)
+    work = 0
+    stack: list[tuple[int, dict[str, float], dict[tuple[int, str], int], _Node | None]] = []
+
+    def push_children(node: _Node) -> None:
+        key, (guess, low, high) = next(iter(node.violated.items()))
+        bound = tier_values(node.net, node.result.flow[node.net.pair_arcs] > 0)
+        order = [k for k in range(high, low - 1, -1) if k != guess] + [guess]
+        for k in order:
+            stack.append((node.result.cost, bound, {**node.split, key: k}, None))
+
+    push_children(root)
+    while stack:
+        parent_cost, _, child_split, _ = stack[-1]
+        if parent_cost >= best.result.cost:
+            stack.pop()
+            continue
+        if work + len(root.net.tails) > SEARCH_BUDGET:
+            break
+        stack.pop()
+        node = _solve_split(session, threshold, child_split, conflicts)
+        work += len(node.net.tails)
+        if node.result.cost >= best.result.cost:
+            continue
+        if not node.violated:
+            best = node
+        else:
+            push_children(node)
+    open_nodes = [(cost, tiers) for cost, tiers, _, _ in stack if cost < best.result.cost]
+    bound = min(open_nodes, key=lambda x: x[0])[1] if open_nodes else {}
+    return best.net, best.result, best.split, bound
 
 
 def _bottleneck(
@@ -182,12 +246,12 @@ def _bottleneck(
         result = _run(session, net)
         return None, net, result, split, {}
     # The max-flow pruning runs on the relaxed network, so it never rejects a reachable threshold.
-    relaxed = build_network(session) if split else net
+    relaxed = build_network(session, conflicts=net.conflicts) if split else net
     target = coverage_flows(relaxed, None)
     top = highest_threshold(thresholds, lambda t: coverage_flows(relaxed, t) == target)
 
     def solved(t: float) -> tuple:
-        return _solve_rules(session, t, {})
+        return _solve_rules(session, t, {}, net.conflicts)
 
     def keeps(values: dict[str, float]) -> bool:
         return all(values[k] >= base[k] for k in ("required", "seniors", "coverage"))
@@ -204,8 +268,8 @@ def _bottleneck(
 
         top = highest_threshold(thresholds[:top], reaches)
         attempt = cache.get(top) or solved(float(thresholds[top]))
-    net_t, result_t, split_t, first_t = attempt
-    return float(thresholds[top]), net_t, result_t, split_t, first_t
+    net_t, result_t, split_t, bound_t = attempt
+    return float(thresholds[top]), net_t, result_t, split_t, bound_t
 
 
 def _decode(session: Session, net: PlanNetwork, result: CostFlowResult, now: datetime) -> Plan:
@@ -230,15 +294,14 @@ def _decode(session: Session, net: PlanNetwork, result: CostFlowResult, now: dat
 
 def make_plan(session: Session, *, now: datetime | None = None) -> PlanOutcome:
     """Solve the session's lexicographic objective exactly and return the checked plan."""
-    net, result, split, first = _solve_rules(session, None, {})
+    net, result, split, bound = _solve_rules(session, None, {}, conflict_pairs(session))
     bottleneck = None
     if session.policy.bottleneck:
         base = tier_values(net, result.flow[net.pair_arcs] > 0)
-        bottleneck, net, result, split, first_t = _bottleneck(session, net, base, split)
-        first = first_t or first
+        bottleneck, net, result, split, bound = _bottleneck(session, net, base, split)
     used = result.flow[net.pair_arcs] > 0
     final = tier_values(net, used)
-    relaxed = first if (split and first != final) else {}
+    relaxed = bound if bound != final else {}
     plan = _decode(session, net, result, now or datetime.now(UTC))
     leads = pick_leads(session, plan) if session.policy.max_leads > 0 else None
     if leads is not None:
