@@ -446,7 +446,10 @@ def build_network(
     total = int(reviews.sum())
     if (tiers.required + tiers.coverage + max_score) * max(total, 1) * 4 >= _COST_LIMIT:
         raise PlanInputError(
-            ["scores: the score range is too wide to plan exactly; rescale scores to 0..1000"]
+            [
+                "scores: the objective's weights are too large to plan exactly (a wide score "
+                "range, or very many papers with a senior rule); rescale scores to 0..1000"
+            ]
         )
 
     blocks = _ArcBlocks()

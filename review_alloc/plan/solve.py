@@ -88,13 +88,29 @@ def _run(session: Session, net: PlanNetwork) -> CostFlowResult:
             net.n_nodes, net.tails, net.heads, net.capacities, net.costs, lower=net.lower
         )
     except InfeasibleError as error:
+        if not net.senior_hard:
+            raise PlanInputError(
+                ["pins: the pinned pairs cannot all be kept together with the caps and limits"]
+            ) from None
         side = np.asarray(error.source_side, dtype=bool)
-        papers = [
+        on_cut = [
             session.papers[int(i)].id
-            for i in net.senior_paper
-            if side[net.sink + 1 + int(np.searchsorted(net.senior_paper, i))]
+            for k, i in enumerate(net.senior_paper.tolist())
+            if side[net.sink + 1 + k]
         ][:10]
-        where = f" (papers on the failing cut: {', '.join(papers)})" if papers else ""
+        offered = np.bincount(
+            net.pair_senior[net.pair_senior >= 0], minlength=len(net.senior_paper)
+        )
+        too_few = [
+            f"{session.papers[int(i)].id} has {offered[k]} eligible seniors, needs "
+            f"{net.senior_need[k]}"
+            for k, i in enumerate(net.senior_paper.tolist())
+            if offered[k] < net.senior_need[k]
+        ][:10]
+        if too_few:
+            where = f" ({'; '.join(too_few)})"
+        else:
+            where = f" (papers on the failing cut: {', '.join(on_cut)})" if on_cut else ""
         raise PlanInputError(
             [
                 "policy.senior_hard: the hard senior rule cannot be met with the eligible "
