@@ -7,10 +7,14 @@ penalty `balance * sum over reviewers of load * (load - 1) / 2`.
 
 The institution rule and the senior rule together are not a network flow where a (paper,
 institution) group mixes seniors and juniors (the two families of reviewer sets cross). There
-each part of the group is first capped at m, a relaxation. If the optimum keeps the real rule,
-it is optimal. Otherwise the violated groups get a fixed split of their cap (seniors first, as
-far as the relaxed optimum used them) and the network is solved again until no group breaks the
-rule; the first, relaxed optimum is then an upper bound, and the plan reports any difference.
+each part of the group is first capped at m, a relaxation: if its optimum keeps the real rule,
+it is optimal. Otherwise a greedy dive fixes how violated groups share their cap, and a branch
+and bound over those shares (see `_solve_rules`) proves the result optimal or, when its budget
+runs out on a large network, leaves the best open relaxation as a reported upper bound
+(`Plan.bound`).
+
+Seniors are a tier just below required coverage by default, not a hard rule: a venue with too
+few seniors still gets its best plan, and the papers short of seniors are listed with a reason.
 """
 
 from __future__ import annotations
