@@ -110,7 +110,8 @@ def _build(
                 institution=inst,
                 topics=own,
                 cap=int(rng.integers(caps[0], caps[1] + 1)),
-                senior=bool(rng.random() < senior_share),
+                # Reviewers of the scarce topic are its few experts, so they are all senior.
+                senior=bool(rng.random() < senior_share) or j < scarce_reviewers,
             )
         )
 
@@ -243,7 +244,11 @@ def workshop() -> Session:
 
 
 def conference() -> Session:
-    """A ~1,500-paper conference with ~700 reviewers; 'hardware verification' is under-supplied."""
+    """A ~1,500-paper conference with ~700 reviewers; 'hardware verification' is under-supplied.
+
+    Its policy asks for a senior reviewer on every paper, at most one reviewer per institution
+    on a paper, and up to five leads per reviewer.
+    """
     topics = [
         "graph algorithms",
         "compilers",
@@ -278,7 +283,15 @@ def conference() -> Session:
         n_papers=1500,
         n_reviewers=700,
         n_institutions=160,
-        policy=Policy(reviews=3, min_reviews=2, cap=7, unscored="exclude"),
+        policy=Policy(
+            reviews=3,
+            min_reviews=2,
+            cap=7,
+            unscored="exclude",
+            senior_min=1,
+            max_per_institution=1,
+            max_leads=5,
+        ),
         caps=(6, 8),
         senior_share=0.4,
         candidates=20,

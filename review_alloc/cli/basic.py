@@ -17,7 +17,7 @@ from review_alloc.cli.common import (
     validation_message,
     whole,
 )
-from review_alloc.model import InputError, Policy, load_session, save_session
+from review_alloc.model import InputError, Policy, Session, load_session, save_session
 
 Handler = Callable[[argparse.Namespace], int]
 
@@ -38,6 +38,7 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
         choices=("zero", "exclude"),
         help="a pair without a score row: eligible with score 0, or not eligible",
     )
+    add_rule_flags(p)
     p.add_argument("--ignore-extra", action="store_true", help="ignore unknown CSV columns")
     p.add_argument("--name", help="session name (default: the output file's stem)")
     p.add_argument("--panel", action="store_true", help="a grant panel: say 'proposal'")
@@ -47,6 +48,7 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
     p = sub.add_parser("plan", help="make the optimal plan and save it in the session")
     p.add_argument("session", type=Path)
     p.add_argument("--json", action="store_true", help="print one JSON object")
+    add_rule_flags(p)
 
     p = sub.add_parser("explain", help="list the papers short of reviews")
     p.add_argument("session", type=Path)
@@ -70,6 +72,127 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
     }
 
 
+def _count_or_off(text: str) -> int:
+    """argparse type: a whole number >= 0, where 0 (or 'off') turns the rule off."""
+    return 0 if text.strip().lower() == "off" else whole(text)
+
+
+def _score_or_off(text: str) -> float:
+    """argparse type: a score >= 0, or 'off' (returned as -1) to turn the rule off."""
+    if text.strip().lower() == "off":
+        return -1.0
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not value >= 0 or value == float("inf"):
+        raise argparse.ArgumentTypeError(f"{text!r} must be a finite number >= 0")
+    return value
+
+
+def add_rule_flags(p: argparse.ArgumentParser) -> None:
+    """The policy's chair rules as options; given ones are saved into the session's policy."""
+    g = p.add_argument_group("chair rules (saved into the session's policy)")
+    g.add_argument("--senior-min", type=whole, help="senior reviewers wanted per paper (0: off)")
+    g.add_argument(
+        "--senior-hard",
+        action=argparse.BooleanOptionalAction,
+        default=None,
+        help="make the senior rule hard (fail if unmet) instead of a tier",
+    )
+    g.add_argument(
+        "--max-per-institution",
+        type=_count_or_off,
+        help="most reviewers of one institution per paper (0 or 'off': no limit)",
+    )
+    g.add_argument(
+        "--require-shared-topic",
+        action=argparse.BooleanOptionalAction,
+        default=None,
+        help="only pairs that share a topic are eligible",
+    )
+    g.add_argument(
+        "--min-score", type=_score_or_off, help="pairs scoring below this are not eligible ('off')"
+    )
+    g.add_argument(
+        "--balance", type=_score_or_off, help="load-balance strength, score units (0: off)"
+    )
+    g.add_argument(
+        "--bottleneck",
+        action=argparse.BooleanOptionalAction,
+        default=None,
+        help="maximise the lowest assigned score before floors and total score",
+    )
+    g.add_argument("--max-leads", type=whole, help="most papers one reviewer leads (0: no leads)")
+
+
+def rule_overrides(args: argparse.Namespace) -> dict[str, object]:
+    """Policy fields set by the chair-rule options that were given."""
+    out: dict[str, object] = {}
+    for key in ("senior_min", "senior_hard", "require_shared_topic", "bottleneck", "max_leads"):
+        if getattr(args, key, None) is not None:
+            out[key] = getattr(args, key)
+    if getattr(args, "max_per_institution", None) is not None:
+        out["max_per_institution"] = args.max_per_institution or None
+    if getattr(args, "min_score", None) is not None:
+        out["min_score"] = None if args.min_score < 0 else args.min_score
+    if getattr(args, "balance", None) is not None:
+        out["balance"] = max(args.balance, 0.0)
+    return out
+
+
+def _with_rules(session: Session, args: argparse.Namespace) -> Session:
+    """The session with the options' rules written into its policy (validated)."""
+    changes = rule_overrides(args)
+    if not changes:
+        return session
+    try:
+        policy = Policy.model_validate({**session.policy.model_dump(), **changes})
+    except ValueError as error:
+        raise InputError([f"options: {validation_message(error)}"]) from None
+    return session.model_copy(update={"policy": policy})
+
+
+def rule_lines(summary: dict[str, object]) -> list[str]:
+    """Plain-text lines on the chair rules of a plan summary."""
+    lines: list[str] = []
+    seniors = summary["seniors"]
+    rules = summary["rules"]
+    load = summary["load"]
+    if rules["senior_min"] or seniors["wanted"]:
+        lines.append(
+            f"  seniors          {seniors['met']} / {seniors['wanted']}"
+            + (f", {len(seniors['short'])} papers short" if seniors["short"] else "")
+        )
+    if rules["max_per_institution"] is not None:
+        inst = summary["institutions"]
+        lines.append(
+            f"  institutions     at most {inst['most_on_one_paper']} per paper "
+            f"(limit {rules['max_per_institution']})"
+        )
+    leads = summary["leads"]
+    if rules["max_leads"]:
+        lines.append(
+            f"  leads            {leads['picked']} picked, {leads['senior_leads']} senior, "
+            f"{len(leads['no_senior_lead'])} papers without a senior lead"
+        )
+    if "before" in load:
+        b = load["before"]
+        lines.append(
+            f"  load spread      {load['spread']} (min {load['min']}, max {load['max']}); "
+            f"without balance {b['spread']} (min {b['min']}, max {b['max']})"
+        )
+    if summary["bottleneck"] is not None:
+        lines.append(f"  bottleneck       lowest assigned score {summary['lowest_score']}")
+    if not summary["optimality"]["proven"]:
+        bound = summary["optimality"]["bound"]
+        lines.append(
+            "  optimality       within a relaxation bound (institution and senior rules "
+            f"cross): objective score at most {bound['score']}"
+        )
+    return lines
+
+
 def _cmd_import(args: argparse.Namespace) -> int:
     from review_alloc.io import import_csv
 
@@ -80,6 +203,7 @@ def _cmd_import(args: argparse.Namespace) -> int:
         for key in ("reviews", "min_reviews", "cap", "floor", "unscored")
         if getattr(args, key) is not None
     }
+    overrides.update(rule_overrides(args))
     try:
         policy = Policy(**overrides)
     except ValueError as error:
@@ -105,13 +229,14 @@ def _cmd_import(args: argparse.Namespace) -> int:
 def _cmd_plan(args: argparse.Namespace) -> int:
     from review_alloc.plan import plan_summary
 
-    session = solve(load_session(args.session))
+    session = solve(_with_rules(load_session(args.session), args))
     save_session(session, args.session)
     summary = plan_summary(session, session.plan)
     if args.json:
         emit_json(summary)
     else:
-        print("\n".join(summary_lines(session, summary, str(args.session))))
+        lines = summary_lines(session, summary, str(args.session))
+        print("\n".join([*lines[:-1], *rule_lines(summary), lines[-1]]))
     return EXIT_OK
 
 

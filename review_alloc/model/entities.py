@@ -24,6 +24,8 @@ class Paper(DocumentModel):
     authors: EmailList = Field(default_factory=list)
     """Authors' e-mail addresses, lower-cased; used to infer conflicts."""
     institutions: TextList = Field(default_factory=list)
+    senior_min: int | None = Field(default=None, ge=0)
+    """Senior reviewers wanted; `None` means the policy's, clamped to this paper's reviews."""
     withdrawn: bool = False
 
 

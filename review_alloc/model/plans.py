@@ -17,6 +17,8 @@ class Assignment(DocumentModel):
     paper: Identifier
     reviewer: Identifier
     score: float = Field(ge=0, allow_inf_nan=False)
+    lead: bool = False
+    """This reviewer leads the paper's discussion (at most one lead per paper)."""
 
 
 class PlanFigures(DocumentModel):
@@ -68,6 +70,13 @@ class Plan(DocumentModel):
     """When the plan was made, timezone-aware, stored in UTC."""
     checked: bool
     method: str
+    bottleneck: float | None = None
+    """Lowest score allowed for unpinned pairs, when the bottleneck option made the plan."""
+    loads_before_balance: list[int] | None = None
+    """Per-reviewer loads (session order) of the same session planned with balance off."""
+    bound: dict[str, float] | None = None
+    """Tier values of a relaxation above this plan (it is optimal within them); `None` when the
+    plan is proven optimal."""
 
     @field_validator("created_at")
     @classmethod
@@ -86,6 +95,15 @@ class Plan(DocumentModel):
                 problems.append(
                     f"assignments.{k}: pair ({a.reviewer}, {a.paper}) repeats assignments.{first}"
                 )
+        leads: dict[str, int] = {}
+        for k, a in enumerate(self.assignments):
+            if a.lead:
+                first = leads.setdefault(a.paper, k)
+                if first != k:
+                    problems.append(
+                        f"assignments.{k}: paper {a.paper} has a second lead "
+                        f"(first at assignments.{first})"
+                    )
         if self.figures.assigned != len(self.assignments):
             problems.append(
                 f"figures.assigned: {self.figures.assigned} but there are "

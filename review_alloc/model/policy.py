@@ -72,6 +72,23 @@ class Policy(DocumentModel):
     unscored: Literal["zero", "exclude"] = "zero"
     """A pair without a score row is eligible with score 0 (`zero`) or not eligible (`exclude`)."""
     conflict_rules: ConflictRules = Field(default_factory=ConflictRules)
+    senior_min: int = Field(default=0, ge=0)
+    """Senior reviewers wanted per paper (papers may override); 0 turns the rule off."""
+    senior_hard: bool = False
+    """Seniors are a hard rule (the plan fails if unmet) instead of the tier after required
+    coverage (met as far as the seniors allow, shortfalls reported)."""
+    max_per_institution: int | None = Field(default=None, ge=1)
+    """Most reviewers of one institution on one paper; `None` turns the rule off."""
+    require_shared_topic: bool = False
+    """A pair is eligible only when reviewer and paper share a topic."""
+    min_score: float | None = Field(default=None, ge=0, allow_inf_nan=False)
+    """A pair scoring below this is not eligible; `None` turns the rule off."""
+    balance: float = Field(default=0.0, ge=0, le=1000, allow_inf_nan=False)
+    """Load-balance strength: each reviewer's k-th paper costs `balance * (k - 1)` score units."""
+    bottleneck: bool = False
+    """Maximise the lowest score among assigned pairs before floors and total score."""
+    max_leads: int = Field(default=3, ge=0)
+    """Most papers one reviewer leads."""
 
     @model_validator(mode="after")
     def _limits_agree(self) -> Self:

@@ -10,7 +10,8 @@ import numpy as np
 
 from review_alloc.flow import FlowCheckError, check_cost_certificate
 from review_alloc.model import Plan, Session
-from review_alloc.plan.conflicts import conflict_pairs
+from review_alloc.plan.conflicts import conflict_pairs, normalise_institution
+from review_alloc.plan.eligibility import rule_failures
 from review_alloc.plan.errors import PlanCheckError
 from review_alloc.plan.figures import (
     active_demands,
@@ -18,7 +19,7 @@ from review_alloc.plan.figures import (
     loads_and_counts,
     plan_figures,
 )
-from review_alloc.plan.network import PlanNetwork, build_network
+from review_alloc.plan.network import PlanNetwork, build_network, paper_senior_need
 
 _MAX_LISTED = 20
 
@@ -108,9 +109,63 @@ def _hard_rule_problems(session: Session, plan: Plan) -> list[str]:
     for i in np.flatnonzero(counts > reviews):
         problems.append(f"paper {session.papers[i].id} has {counts[i]} reviews, above {reviews[i]}")
 
+    problems += _constraint_problems(session, plan, reviewer, paper, score)
     figures = plan_figures(session, reviewer, paper, score)
     if figures != plan.figures:
         problems.append(f"plan figures {plan.figures} differ from recomputed {figures}")
+    return problems
+
+
+def _constraint_problems(
+    session: Session, plan: Plan, reviewer: np.ndarray, paper: np.ndarray, score: np.ndarray
+) -> list[str]:
+    """The policy's optional rules, read from the session's rows, not from the network."""
+    policy = session.policy
+    problems: list[str] = []
+    pinned = {(p.reviewer, p.paper) for p in session.pins}
+    unpinned = np.array([(a.reviewer, a.paper) not in pinned for a in plan.assignments], dtype=bool)
+    low, no_topic = rule_failures(session, reviewer, paper, score)
+    for k in np.flatnonzero(low & unpinned):
+        a = plan.assignments[k]
+        problems.append(
+            f"pair ({a.reviewer}, {a.paper}) scores {a.score:g}, below min_score "
+            f"{policy.min_score:g}"
+        )
+    for k in np.flatnonzero(no_topic & unpinned):
+        a = plan.assignments[k]
+        problems.append(f"pair ({a.reviewer}, {a.paper}) shares no topic")
+    if policy.max_per_institution is not None:
+        names = [normalise_institution(r.institution) for r in session.reviewers]
+        per: dict[tuple[int, str], int] = {}
+        for j, i in zip(reviewer.tolist(), paper.tolist(), strict=True):
+            if names[j]:
+                per[(i, names[j])] = per.get((i, names[j]), 0) + 1
+        for (i, name), c in sorted(per.items()):
+            if c > policy.max_per_institution:
+                problems.append(
+                    f"paper {session.papers[i].id} has {c} reviewers from {name!r}, above "
+                    f"max_per_institution {policy.max_per_institution}"
+                )
+    if policy.senior_hard:
+        need = paper_senior_need(session)
+        senior = np.array([r.senior for r in session.reviewers], dtype=bool)
+        have = np.bincount(paper[senior[reviewer]], minlength=len(session.papers))
+        for i in np.flatnonzero(have < need):
+            problems.append(
+                f"paper {session.papers[i].id} has {have[i]} senior reviewers, the hard rule "
+                f"needs {need[i]}"
+            )
+    leads = np.array([a.lead for a in plan.assignments], dtype=bool)
+    if leads.any():
+        per_lead = np.bincount(reviewer[leads], minlength=len(session.reviewers))
+        for j in np.flatnonzero(per_lead > policy.max_leads):
+            problems.append(
+                f"reviewer {session.reviewers[j].id} leads {per_lead[j]} papers, above "
+                f"max_leads {policy.max_leads}"
+            )
+        per_paper = np.bincount(paper[leads], minlength=len(session.papers))
+        for i in np.flatnonzero(per_paper > 1):
+            problems.append(f"paper {session.papers[i].id} has {per_paper[i]} leads")
     return problems
 
 
@@ -127,18 +182,9 @@ def _certificate_problems(
     if len(keys) and (len(net_keys) == 0 or np.any(net_keys[order][pos] != keys)):
         return ["the plan uses a pair that is not eligible in the session's network"]
 
-    flow = np.zeros(len(net.tails), dtype=np.int64)
     pair_flow = np.zeros(len(net_keys), dtype=np.int64)
     pair_flow[order[pos]] = 1
-    flow[net.pair_arcs] = pair_flow
-    loads, counts = loads_and_counts(session, reviewer, paper)
-    floor_cap = net.capacities[net.floor_arcs]
-    flow[net.floor_arcs] = np.minimum(loads, floor_cap)
-    flow[net.rest_arcs] = loads - flow[net.floor_arcs]
-    required_cap = net.capacities[net.required_arcs]
-    flow[net.required_arcs] = np.minimum(counts, required_cap)
-    flow[net.extra_arcs] = counts - flow[net.required_arcs]
-    flow[net.return_arc] = int(counts.sum())
+    flow = arc_flows(net, pair_flow)
     try:
         check_cost_certificate(
             net.n_nodes,
@@ -153,6 +199,49 @@ def _certificate_problems(
     except FlowCheckError as error:
         return [f"optimality certificate rejected: {error}"]
     return []
+
+
+def _fill_units(
+    owner: np.ndarray, caps: np.ndarray, remaining: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """Fill a block of source arcs in order, per reviewer, up to what each still has to carry."""
+    if len(owner) == 0:
+        return np.zeros(0, np.int64), remaining
+    cum = np.cumsum(caps)
+    owner_start = np.zeros(len(remaining) + 1, np.int64)
+    np.add.at(owner_start, owner + 1, caps)
+    before = cum - caps - np.cumsum(owner_start)[owner]
+    flow = np.clip(remaining[owner] - before, 0, caps)
+    left = remaining - np.bincount(owner, weights=flow, minlength=len(remaining)).astype(np.int64)
+    return flow.astype(np.int64), left
+
+
+def arc_flows(net: PlanNetwork, pair_flow: np.ndarray) -> np.ndarray:
+    """Every arc's flow implied by the pair arcs' flows alone (each tiered block filled in its
+    cost order), so the certificate is checked on a flow the engine did not produce."""
+    flow = np.zeros(len(net.tails), dtype=np.int64)
+    flow[net.pair_arcs] = pair_flow
+    used = pair_flow > 0
+    loads = np.bincount(net.pair_reviewer[used], minlength=net.n_reviewers).astype(np.int64)
+    counts = np.bincount(net.pair_paper[used], minlength=net.n_papers).astype(np.int64)
+    floor_flow, left = _fill_units(net.floor_arc_reviewer, net.capacities[net.floor_arcs], loads)
+    flow[net.floor_arcs] = floor_flow
+    flow[net.rest_arcs], _ = _fill_units(net.rest_arc_reviewer, net.capacities[net.rest_arcs], left)
+    required_cap = net.capacities[net.required_arcs]
+    flow[net.required_arcs] = np.minimum(counts, required_cap)
+    flow[net.extra_arcs] = counts - flow[net.required_arcs]
+    flow[net.return_arc] = int(counts.sum())
+    in_senior = used & (net.pair_senior >= 0)
+    seniors = np.bincount(net.pair_senior[in_senior], minlength=len(net.senior_paper)).astype(
+        np.int64
+    )
+    flow[net.senior_required_arcs] = np.minimum(seniors, net.senior_need)
+    flow[net.senior_rest_arcs] = seniors - flow[net.senior_required_arcs]
+    in_group = used & (net.pair_group >= 0)
+    flow[net.group_arcs] = np.bincount(
+        net.pair_group[in_group], minlength=len(net.group_paper)
+    ).astype(np.int64)
+    return flow
 
 
 def _rid(session: Session, key: int, n_p: int) -> str:

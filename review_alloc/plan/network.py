@@ -2,13 +2,16 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from collections.abc import Mapping
+from dataclasses import dataclass, field
 
 import numpy as np
 
 from review_alloc.model import Session
-from review_alloc.plan.conflicts import ConflictSet, conflict_pairs
+from review_alloc.plan.conflicts import ConflictSet, conflict_pairs, normalise_institution
+from review_alloc.plan.eligibility import rule_failures
 from review_alloc.plan.errors import PlanInputError
+from review_alloc.plan.figures import active_demands
 
 SCORE_RESOLUTION = 10_000
 """Integer cost steps per score unit: a score of 0.8532 becomes 8532 (ties closer than 1e-4 are
@@ -36,8 +39,43 @@ def tier_weights(max_pair_arcs_in_cycle: int, max_score: int) -> tuple[int, int,
 
 
 @dataclass(frozen=True)
+class TierWeights:
+    """Cost weights of the tiers above the score, highest first (see `constraint_weights`)."""
+
+    required: int
+    seniors: int
+    coverage: int
+    floors: int
+
+
+def constraint_weights(
+    max_pair_arcs_in_cycle: int, max_score: int, senior_nodes: int, balance_spread: int
+) -> TierWeights:
+    """Weights for required > seniors > coverage > floors > (score - balance penalty).
+
+    The argument of `tier_weights` extended: a simple residual cycle passes the source and the
+    sink once, so it moves required coverage, coverage and floors by at most one each, and it
+    changes the balance penalty by at most `balance_spread` (two source arcs). It may pass many
+    papers' senior nodes, but each one once, moving that paper's senior count by at most one, so
+    the senior tier moves by at most `senior_nodes`; the required weight outweighs all of that.
+    """
+    floors = max_pair_arcs_in_cycle * max_score + balance_spread + 1
+    coverage = 2 * floors
+    seniors = 2 * coverage
+    required = (senior_nodes + 1) * seniors
+    return TierWeights(required=required, seniors=seniors, coverage=coverage, floors=floors)
+
+
+@dataclass(frozen=True)
 class PlanNetwork:
-    """The planner's flow network; arc blocks are contiguous and named by the slices below."""
+    """The planner's flow network; arc blocks are contiguous and named by the slices below.
+
+    Nodes: source 0, reviewer j at 1 + j, paper i at 1 + R + i, the sink at 1 + R + P, then one
+    senior node per paper with a senior rule, then one node per (paper, institution) group.
+    Arc blocks in order: floor, rest (source → reviewer; unit arcs when balancing), pair, required,
+    extra (paper → sink), the return arc, senior required, senior rest (senior node → paper),
+    group (group node → senior node or paper).
+    """
 
     n_nodes: int
     source: int
@@ -62,6 +100,35 @@ class PlanNetwork:
 
     n_reviewers: int
     n_papers: int
+
+    floor_arc_reviewer: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
+    """Reviewer of each floor arc (one per reviewer, or unit arcs in load order when balancing)."""
+    rest_arc_reviewer: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
+    pair_pinned: np.ndarray = field(default_factory=lambda: np.zeros(0, bool))
+    senior_weight: int = 0
+    senior_paper: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
+    """Paper of each senior node; node id `sink + 1 + k`."""
+    senior_need: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
+    senior_hard: bool = False
+    senior_required_arcs: slice = field(default_factory=lambda: slice(0, 0))
+    senior_rest_arcs: slice = field(default_factory=lambda: slice(0, 0))
+    pair_senior: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
+    """Per pair: its paper's senior node index when the pair's flow passes it, else -1."""
+    group_paper: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
+    group_institution: tuple[str, ...] = ()
+    group_senior: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
+    """Per group node: 1 for the senior part of a group, 0 for juniors, -1 for a whole group."""
+    group_arcs: slice = field(default_factory=lambda: slice(0, 0))
+    pair_group: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
+    """Per pair: the group node index its flow passes, else -1."""
+    relaxed_groups: tuple[int, ...] = ()
+    """Parts (indices into the part arrays) of mixed groups capped at m each: a relaxation."""
+    pair_part: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
+    """Per pair: its part of a crowded (paper, institution) group, else -1."""
+    part_paper: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
+    part_senior: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
+    part_institution: tuple[str, ...] = ()
+    balance_step: int = 0
 
     def paper_node(self, i: np.ndarray | int) -> np.ndarray | int:
         """Node id of paper index i (reviewer j is node 1 + j)."""
@@ -129,79 +196,314 @@ def candidate_pairs(session: Session) -> tuple[np.ndarray, np.ndarray, np.ndarra
     return keys // n, keys % n, scores
 
 
-def build_network(session: Session) -> PlanNetwork:
-    """Build the network: source → reviewer [floor, cap] → paper [0, 1] → sink [min, reviews]."""
-    n_r, n_p = len(session.reviewers), len(session.papers)
-    conflicts = conflict_pairs(session)
+class _ArcBlocks:
+    """Collects named arc blocks in order, so each constraint adds its own contiguous slice."""
+
+    def __init__(self) -> None:
+        self.parts: list[tuple[np.ndarray, ...]] = []
+        self.size = 0
+
+    def add(
+        self,
+        tails: np.ndarray,
+        heads: np.ndarray,
+        capacities: np.ndarray,
+        costs: np.ndarray,
+        lower: np.ndarray | None = None,
+    ) -> slice:
+        """Append one block of arcs and return its slice."""
+        n = len(tails)
+        low = np.zeros(n, np.int64) if lower is None else lower
+        arrays = (tails, heads, capacities, low, costs)
+        self.parts.append(tuple(np.asarray(x, dtype=np.int64).reshape(n) for x in arrays))
+        start = self.size
+        self.size += n
+        return slice(start, self.size)
+
+    def arrays(self) -> tuple[np.ndarray, ...]:
+        """(tails, heads, capacities, lower, costs) of every block, concatenated."""
+        return tuple(np.concatenate([p[k] for p in self.parts]) for k in range(5))
+
+
+def paper_senior_need(session: Session) -> np.ndarray:
+    """Seniors wanted per paper: its own `senior_min`, else the policy's; clamped to its reviews,
+    0 for withdrawn papers."""
+    own = np.fromiter(
+        (-1 if p.senior_min is None else p.senior_min for p in session.papers),
+        dtype=np.int64,
+        count=len(session.papers),
+    )
+    need = np.where(own < 0, session.policy.senior_min, own)
+    need = np.minimum(need, session.paper_reviews_array())
+    need[np.array([p.withdrawn for p in session.papers], dtype=bool)] = 0
+    return need.astype(np.int64)
+
+
+def reviewer_institutions(session: Session) -> tuple[np.ndarray, list[str]]:
+    """(institution id per reviewer, -1 when none given; the normalised institution names)."""
+    names: dict[str, int] = {}
+    ids = np.full(len(session.reviewers), -1, dtype=np.int64)
+    for j, r in enumerate(session.reviewers):
+        key = normalise_institution(r.institution)
+        if key:
+            ids[j] = names.setdefault(key, len(names))
+    return ids, list(names)
+
+
+def _eligible_pairs(
+    session: Session, conflicts: ConflictSet, threshold: float | None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """(reviewer, paper, score, keys, pinned) of the pairs the plan may use."""
+    n_p = len(session.papers)
     reviewer, paper, score = candidate_pairs(session)
     keys = _pair_keys(reviewer, paper, n_p)
-
     banned = conflicts.keys(n_p)
     if session.blocks:
         br, bp = _rule_pairs(session, session.blocks)
         banned = np.union1d(banned, _pair_keys(br, bp, n_p))
     keep = ~np.isin(keys, banned)
     reviewer, paper, score, keys = reviewer[keep], paper[keep], score[keep], keys[keep]
+    pinned = np.zeros(len(keys), dtype=bool)
+    if session.pins:
+        pr, pp = _rule_pairs(session, session.pins)
+        pinned = np.isin(keys, _pair_keys(pr, pp, n_p))
+    low, no_topic = rule_failures(session, reviewer, paper, score)
+    keep = ~(low | no_topic) | pinned
+    if threshold is not None:
+        keep &= (score >= threshold - 0.5 / SCORE_RESOLUTION) | pinned
+    return reviewer[keep], paper[keep], score[keep], keys[keep], pinned[keep]
 
-    cap = session.reviewer_cap_array().astype(np.int64)
-    floor = session.reviewer_floor_array().astype(np.int64)
-    reviews = session.paper_reviews_array().astype(np.int64)
-    minimum = session.paper_min_reviews_array().astype(np.int64)
-    withdrawn_r = np.array([r.withdrawn for r in session.reviewers], dtype=bool)
-    withdrawn_p = np.array([p.withdrawn for p in session.papers], dtype=bool)
-    cap[withdrawn_r] = 0
-    floor[withdrawn_r] = 0
-    reviews[withdrawn_p] = 0
-    minimum[withdrawn_p] = 0
 
-    pinned = np.zeros(len(keys), dtype=np.int64)
+def _source_arcs(
+    blocks: _ArcBlocks, cap: np.ndarray, floor: np.ndarray, w_floor: int, step: int
+) -> tuple[slice, slice, np.ndarray, np.ndarray]:
+    """Source → reviewer: [0, floor] at -w_floor and [0, cap - floor] at 0.
+
+    With a balance step, one unit arc per load unit k instead, costing step * (k - 1): the costs
+    rise with k (convex), so an optimal flow fills each reviewer's units in order.
+    """
+    n_r = len(cap)
+    r_nodes = 1 + np.arange(n_r, dtype=np.int64)
+    if step == 0:
+        floors = blocks.add(np.zeros(n_r), r_nodes, floor, np.full(n_r, -w_floor))
+        rest = blocks.add(np.zeros(n_r), r_nodes, cap - floor, np.zeros(n_r))
+        every = np.arange(n_r, dtype=np.int64)
+        return floors, rest, every, every
+    owner = np.repeat(np.arange(n_r, dtype=np.int64), cap)
+    rank = np.arange(len(owner)) - np.repeat(np.cumsum(cap) - cap, cap)
+    in_floor = rank < floor[owner]
+    unit_cost = step * rank
+    f_owner, r_owner = owner[in_floor], owner[~in_floor]
+    floors = blocks.add(
+        np.zeros(len(f_owner)), 1 + f_owner, np.ones(len(f_owner)), unit_cost[in_floor] - w_floor
+    )
+    rest = blocks.add(
+        np.zeros(len(r_owner)), 1 + r_owner, np.ones(len(r_owner)), unit_cost[~in_floor]
+    )
+    return floors, rest, f_owner, r_owner
+
+
+def _senior_nodes(
+    session: Session, reviewer: np.ndarray, paper: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(senior papers, their need, per pair the senior node index or -1)."""
+    need = paper_senior_need(session)
+    senior_papers = np.flatnonzero(need > 0).astype(np.int64)
+    index_of = np.full(len(session.papers), -1, dtype=np.int64)
+    index_of[senior_papers] = np.arange(len(senior_papers))
+    is_senior = np.array([r.senior for r in session.reviewers], dtype=bool)
+    pair_senior = np.where(is_senior[reviewer], index_of[paper], -1) if len(paper) else paper
+    return senior_papers, need[senior_papers], pair_senior.astype(np.int64)
+
+
+@dataclass(frozen=True)
+class GroupParts:
+    """Parts of crowded (paper, institution) groups: a whole group, or its senior or junior part.
+
+    Only parts with more candidates than their cap get a node in the network.
+    """
+
+    pair_part: np.ndarray
+    """Per pair: its part, or -1 outside crowded groups."""
+    paper: np.ndarray
+    senior: np.ndarray
+    """1 senior part, 0 junior part, -1 whole group."""
+    institution: tuple[str, ...]
+    cap: np.ndarray
+    relaxed: tuple[int, ...]
+    """Parts of mixed groups capped at m each (no split fixed): a relaxation."""
+
+
+def _institution_groups(
+    session: Session,
+    reviewer: np.ndarray,
+    paper: np.ndarray,
+    pair_senior: np.ndarray,
+    has_senior_node: np.ndarray,
+    split: Mapping[tuple[int, str], int] | None,
+) -> GroupParts:
+    """The (paper, institution) groups with more candidates than the cap allows, as parts.
+
+    Where a paper has a senior node
+    and a group mixes seniors and juniors, the group is split into a senior part (routed through
+    the senior node) and a junior part; `split[(paper, institution)] = k` caps the seniors at k
+    and the juniors at m - k (a restriction); without it each part is capped at m (a relaxation).
+    """
+    m = session.policy.max_per_institution
+    empty = np.zeros(0, np.int64)
+    none = np.full(len(paper), -1, dtype=np.int64)
+    if m is None or len(paper) == 0:
+        return GroupParts(none, empty, empty, (), empty, ())
+    inst, names = reviewer_institutions(session)
+    n_inst = max(len(names), 1)
+    g_inst = inst[reviewer]
+    member = g_inst >= 0
+    gkey = np.where(member, paper * n_inst + g_inst, -1)
+    uniq, inverse, counts = np.unique(gkey, return_inverse=True, return_counts=True)
+    big = (uniq >= 0) & (counts > m)
+    in_big = big[inverse]
+    senior = pair_senior >= 0
+    # Mixed: the group's paper has a senior node and the group holds both seniors and juniors.
+    any_senior = np.bincount(inverse, weights=senior, minlength=len(uniq)) > 0
+    any_junior = np.bincount(inverse, weights=~senior, minlength=len(uniq)) > 0
+    mixed = big & any_senior & any_junior & has_senior_node[np.maximum(uniq, 0) // n_inst]
+    part = np.where(mixed[inverse], senior.astype(np.int64), -1)
+    sub_key = np.where(in_big, inverse * 3 + (part + 1), -1)
+    sub_uniq, sub_inverse = np.unique(sub_key, return_inverse=True)
+    valid = sub_uniq >= 0
+    node_of_sub = np.cumsum(valid) - 1
+    pair_group = np.where(in_big, node_of_sub[sub_inverse], -1).astype(np.int64)
+    groups = sub_uniq[valid]
+    g_part = groups % 3 - 1
+    g_parent = uniq[groups // 3]
+    g_paper = (g_parent // n_inst).astype(np.int64)
+    g_name = tuple(names[int(x)] for x in g_parent % n_inst)
+    caps = np.full(len(groups), m, dtype=np.int64)
+    relaxed: list[int] = []
+    for k in np.flatnonzero(g_part >= 0).tolist():
+        chosen = None if split is None else split.get((int(g_paper[k]), g_name[k]))
+        if chosen is None:
+            relaxed.append(k)
+        else:
+            caps[k] = chosen if g_part[k] == 1 else m - chosen
+    return GroupParts(
+        pair_part=pair_group,
+        paper=g_paper,
+        senior=g_part.astype(np.int64),
+        institution=g_name,
+        cap=caps,
+        relaxed=tuple(relaxed),
+    )
+
+
+def build_network(
+    session: Session,
+    *,
+    institution_split: Mapping[tuple[int, str], int] | None = None,
+    threshold: float | None = None,
+    conflicts: ConflictSet | None = None,
+) -> PlanNetwork:
+    """Build the network: source → reviewer [floor, cap] → (institution group) → (senior node)
+    → paper → sink [min, reviews].
+
+    `threshold` leaves out unpinned pairs scoring below it (the bottleneck search);
+    `institution_split` fixes how mixed institution groups share their cap (see
+    `_institution_groups`); `conflicts` reuses the session's conflict set when already known.
+    """
+    n_r, n_p = len(session.reviewers), len(session.papers)
+    if conflicts is None:
+        conflicts = conflict_pairs(session)
+    reviewer, paper, score, keys, pinned = _eligible_pairs(session, conflicts, threshold)
+    reviews, minimum, cap, floor = active_demands(session)
     if session.pins:
         _check_pins(session, conflicts, keys, cap, reviews)
-        pr, pp = _rule_pairs(session, session.pins)
-        pinned[np.isin(keys, _pair_keys(pr, pp, n_p))] = 1
+
+    sink = 1 + n_r + n_p
+    senior_papers, senior_need, pair_senior = _senior_nodes(session, reviewer, paper)
+    has_senior_node = np.zeros(n_p, dtype=bool)
+    has_senior_node[senior_papers] = True
+    parts = _institution_groups(
+        session, reviewer, paper, pair_senior, has_senior_node, institution_split
+    )
+    part_size = np.bincount(parts.pair_part[parts.pair_part >= 0], minlength=len(parts.paper))
+    with_node = np.flatnonzero(part_size > parts.cap)
+    node_of_part = np.full(len(parts.paper) + 1, -1, dtype=np.int64)
+    node_of_part[with_node] = np.arange(len(with_node))
+    # Index -1 (outside any group) reads the extra last entry, which stays -1.
+    pair_group = node_of_part[parts.pair_part]
+    g_paper, g_part, g_cap = parts.paper[with_node], parts.senior[with_node], parts.cap[with_node]
+    g_name = tuple(parts.institution[k] for k in with_node.tolist())
+    n_sen, n_grp = len(senior_papers), len(g_paper)
+    first_sen, first_grp = sink + 1, sink + 1 + n_sen
 
     score_int = np.rint(score * SCORE_RESOLUTION).astype(np.int64)
     max_score = int(score_int.max()) if len(score_int) else 0
-    weights = tier_weights(2 * max(min(n_r, n_p), 1), max_score)
-    w_required, w_coverage, w_floor = weights
-
-    source, sink = 0, 1 + n_r + n_p
-    r_nodes = 1 + np.arange(n_r, dtype=np.int64)
-    p_nodes = 1 + n_r + np.arange(n_p, dtype=np.int64)
-    n_pairs = len(keys)
+    step = int(round(session.policy.balance * SCORE_RESOLUTION))
+    max_cap = int(cap.max()) if len(cap) else 0
+    tiers = constraint_weights(
+        2 * max(min(n_r, n_p + n_sen + n_grp), 1), max_score, n_sen, 2 * step * max(max_cap - 1, 0)
+    )
     total = int(reviews.sum())
-
-    tails = np.concatenate(
-        [np.zeros(2 * n_r, np.int64), 1 + reviewer, p_nodes, p_nodes, [sink]]
-    ).astype(np.int64)
-    heads = np.concatenate(
-        [r_nodes, r_nodes, 1 + n_r + paper, np.full(2 * n_p, sink, np.int64), [source]]
-    ).astype(np.int64)
-    capacities = np.concatenate(
-        [floor, cap - floor, np.ones(n_pairs, np.int64), minimum, reviews - minimum, [total]]
-    ).astype(np.int64)
-    lower = np.zeros(len(capacities), dtype=np.int64)
-    lower[2 * n_r : 2 * n_r + n_pairs] = pinned
-    costs = np.concatenate(
-        [
-            np.full(n_r, -w_floor, np.int64),
-            np.zeros(n_r, np.int64),
-            max_score - score_int,
-            np.full(n_p, -(w_required + w_coverage + max_score), np.int64),
-            np.full(n_p, -(w_coverage + max_score), np.int64),
-            [0],
-        ]
-    ).astype(np.int64)
-    if (w_required + w_coverage + max_score) * max(total, 1) * 4 >= _COST_LIMIT:
+    if (tiers.required + tiers.coverage + max_score) * max(total, 1) * 4 >= _COST_LIMIT:
         raise PlanInputError(
-            ["scores: the score range is too wide to plan exactly; rescale scores to 0..1000"]
+            [
+                "scores: the objective's weights are too large to plan exactly (a wide score "
+                "range, or very many papers with a senior rule); rescale scores to 0..1000"
+            ]
         )
 
-    a = 2 * n_r
-    b = a + n_pairs
+    blocks = _ArcBlocks()
+    floor_arcs, rest_arcs, floor_owner, rest_owner = _source_arcs(
+        blocks, cap, floor, tiers.floors, step
+    )
+
+    senior_node_of_paper = np.full(n_p, -1, dtype=np.int64)
+    senior_node_of_paper[senior_papers] = first_sen + np.arange(n_sen)
+    p_node = 1 + n_r + paper
+    head = np.where(pair_senior >= 0, first_sen + pair_senior, p_node)
+    head = np.where(pair_group >= 0, first_grp + pair_group, head)
+    pair_arcs = blocks.add(
+        1 + reviewer, head, np.ones(len(keys)), max_score - score_int, pinned.astype(np.int64)
+    )
+
+    p_nodes = 1 + n_r + np.arange(n_p, dtype=np.int64)
+    required_arcs = blocks.add(
+        p_nodes,
+        np.full(n_p, sink),
+        minimum,
+        np.full(n_p, -(tiers.required + tiers.coverage + max_score)),
+    )
+    extra_arcs = blocks.add(
+        p_nodes, np.full(n_p, sink), reviews - minimum, np.full(n_p, -(tiers.coverage + max_score))
+    )
+    return_arc = blocks.add(np.array([sink]), np.array([0]), np.array([total]), np.zeros(1)).start
+
+    senior_required_arcs, senior_rest_arcs = _senior_arcs(
+        blocks,
+        senior_papers,
+        senior_need,
+        reviews,
+        first_sen,
+        1 + n_r,
+        tiers.seniors,
+        session.policy.senior_hard,
+    )
+    group_head = np.where(
+        (g_part == 1)
+        | (
+            (g_part == -1)
+            & (senior_node_of_paper[g_paper] >= 0)
+            & _all_senior(pair_group, pair_senior, n_grp)
+        ),
+        senior_node_of_paper[g_paper],
+        1 + n_r + g_paper,
+    )
+    group_arcs = blocks.add(first_grp + np.arange(n_grp), group_head, g_cap, np.zeros(n_grp))
+
+    tails, heads, capacities, lower, costs = blocks.arrays()
     return PlanNetwork(
-        n_nodes=n_r + n_p + 2,
-        source=source,
+        n_nodes=first_grp + n_grp,
+        source=0,
         sink=sink,
         tails=tails,
         heads=heads,
@@ -211,18 +513,67 @@ def build_network(session: Session) -> PlanNetwork:
         pair_reviewer=reviewer.astype(np.int64),
         pair_paper=paper.astype(np.int64),
         pair_score=score,
-        floor_arcs=slice(0, n_r),
-        rest_arcs=slice(n_r, a),
-        pair_arcs=slice(a, b),
-        required_arcs=slice(b, b + n_p),
-        extra_arcs=slice(b + n_p, b + 2 * n_p),
-        return_arc=b + 2 * n_p,
-        weights=weights,
+        floor_arcs=floor_arcs,
+        rest_arcs=rest_arcs,
+        pair_arcs=pair_arcs,
+        required_arcs=required_arcs,
+        extra_arcs=extra_arcs,
+        return_arc=return_arc,
+        weights=(tiers.required, tiers.coverage, tiers.floors),
         max_score=max_score,
         conflicts=conflicts,
         n_reviewers=n_r,
         n_papers=n_p,
+        floor_arc_reviewer=floor_owner,
+        rest_arc_reviewer=rest_owner,
+        pair_pinned=pinned,
+        senior_weight=tiers.seniors,
+        senior_paper=senior_papers,
+        senior_need=senior_need,
+        senior_hard=session.policy.senior_hard,
+        senior_required_arcs=senior_required_arcs,
+        senior_rest_arcs=senior_rest_arcs,
+        pair_senior=pair_senior,
+        group_paper=g_paper,
+        group_institution=g_name,
+        group_senior=g_part,
+        group_arcs=group_arcs,
+        pair_group=pair_group,
+        relaxed_groups=parts.relaxed,
+        pair_part=parts.pair_part,
+        part_paper=parts.paper,
+        part_senior=parts.senior,
+        part_institution=parts.institution,
+        balance_step=step,
     )
+
+
+def _all_senior(pair_group: np.ndarray, pair_senior: np.ndarray, n_groups: int) -> np.ndarray:
+    """Per group node: are all its member pairs routed through a senior node?"""
+    inside = pair_group >= 0
+    members = np.bincount(pair_group[inside], minlength=n_groups)
+    seniors = np.bincount(pair_group[inside & (pair_senior >= 0)], minlength=n_groups)
+    return (members > 0) & (members == seniors)
+
+
+def _senior_arcs(
+    blocks: _ArcBlocks,
+    senior_papers: np.ndarray,
+    need: np.ndarray,
+    reviews: np.ndarray,
+    first_node: int,
+    first_paper_node: int,
+    w_seniors: int,
+    hard: bool,
+) -> tuple[slice, slice]:
+    """Senior node → paper: [0, need] at -w_seniors (lower bound `need` when the rule is hard),
+    and [0, reviews] at 0 for seniors beyond the need."""
+    n = len(senior_papers)
+    nodes = first_node + np.arange(n, dtype=np.int64)
+    targets = first_paper_node + senior_papers
+    required = blocks.add(nodes, targets, need, np.full(n, -w_seniors), need if hard else None)
+    rest = blocks.add(nodes, targets, reviews[senior_papers], np.zeros(n))
+    return required, rest
 
 
 def _check_pins(
@@ -240,6 +591,9 @@ def _check_pins(
     problems: list[str] = []
     per_reviewer: dict[int, int] = {}
     per_paper: dict[int, int] = {}
+    pin_r, pin_p = _rule_pairs(session, session.pins)
+    pin_score = _pin_scores(session, pin_r, pin_p)
+    low, no_topic = rule_failures(session, pin_r, pin_p, pin_score)
     for k, pin in enumerate(session.pins):
         j, i = reviewer_at[pin.reviewer], paper_at[pin.paper]
         where = f"pins.{k}: pin ({pin.reviewer}, {pin.paper})"
@@ -251,6 +605,15 @@ def _check_pins(
             problems.append(f"{where}: paper {pin.paper} has been withdrawn")
         elif not np.isin(j * n_p + i, eligible_keys):
             problems.append(f"{where} is blocked")
+        elif low[k]:
+            problems.append(
+                f"{where} scores {pin_score[k]:g}, below the policy's min_score "
+                f"{session.policy.min_score:g}; refused"
+            )
+        elif no_topic[k]:
+            problems.append(
+                f"{where}: reviewer and paper share no topic and the policy requires one; refused"
+            )
         per_reviewer[j] = per_reviewer.get(j, 0) + 1
         per_paper[i] = per_paper.get(i, 0) + 1
     for j, count in per_reviewer.items():
@@ -264,5 +627,62 @@ def _check_pins(
                 f"pins: paper {session.papers[i].id} has {count} pins but needs only "
                 f"{reviews[i]} reviews"
             )
+    problems += _pin_institution_problems(session, pin_r, pin_p)
+    problems += _pin_senior_problems(session, pin_r, pin_p, reviews)
     if problems:
         raise PlanInputError(problems)
+
+
+def _pin_scores(session: Session, reviewer: np.ndarray, paper: np.ndarray) -> np.ndarray:
+    n_p = max(len(session.papers), 1)
+    t = session.scores
+    lookup = dict(
+        zip(
+            (t.reviewer.astype(np.int64) * n_p + t.paper).tolist(),
+            t.value.tolist(),
+            strict=True,
+        )
+    )
+    return np.array(
+        [lookup.get(int(j) * n_p + int(i), 0.0) for j, i in zip(reviewer, paper, strict=True)],
+        dtype=np.float64,
+    )
+
+
+def _pin_institution_problems(
+    session: Session, reviewer: np.ndarray, paper: np.ndarray
+) -> list[str]:
+    """Pins that put more reviewers of one institution on a paper than the policy allows."""
+    m = session.policy.max_per_institution
+    if m is None:
+        return []
+    inst, names = reviewer_institutions(session)
+    counts: dict[tuple[int, int], int] = {}
+    for j, i in zip(reviewer.tolist(), paper.tolist(), strict=True):
+        if inst[j] >= 0:
+            counts[(i, int(inst[j]))] = counts.get((i, int(inst[j])), 0) + 1
+    return [
+        f"pins: paper {session.papers[i].id} has {c} pinned reviewers from {names[g]!r}, more "
+        f"than max_per_institution {m}; refused"
+        for (i, g), c in sorted(counts.items())
+        if c > m
+    ]
+
+
+def _pin_senior_problems(
+    session: Session, reviewer: np.ndarray, paper: np.ndarray, reviews: np.ndarray
+) -> list[str]:
+    """Under a hard senior rule: pins of non-seniors that leave too few seats for seniors."""
+    if not session.policy.senior_hard:
+        return []
+    need = paper_senior_need(session)
+    juniors: dict[int, int] = {}
+    for j, i in zip(reviewer.tolist(), paper.tolist(), strict=True):
+        if not session.reviewers[j].senior:
+            juniors[i] = juniors.get(i, 0) + 1
+    return [
+        f"pins: paper {session.papers[i].id} has {c} pinned non-senior reviewers, leaving "
+        f"{reviews[i] - c} of {reviews[i]} seats for the {need[i]} seniors it must have; refused"
+        for i, c in sorted(juniors.items())
+        if reviews[i] - c < need[i]
+    ]

@@ -88,8 +88,19 @@ def load_spread(session: Session, plan: Plan) -> dict[str, float]:
 
 def plan_summary(session: Session, plan: Plan) -> dict[str, Any]:
     """The JSON object of `review-alloc plan --json` (keys are a contract, see DESIGN.md)."""
+    from review_alloc.plan.rules_report import load_distribution, paper_details, rule_report
+
     f = plan.figures
     over, under = load_issues(session, plan)
+    reviewer, paper, _ = assignment_indices(session, plan.assignments)
+    loads, _ = loads_and_counts(session, reviewer, paper)
+    load = {**load_spread(session, plan), **load_distribution(session, loads)}
+    before = plan.loads_before_balance
+    if before is not None and len(before) == len(session.reviewers):
+        load["before"] = load_distribution(session, np.array(before, dtype=np.int64))
+    rules = rule_report(session, plan)
+    gap_reasons = rules.pop("gap_reasons")
+    policy = session.policy
     return {
         "session": session.name,
         "created_at": plan.created_at.isoformat(),
@@ -108,8 +119,24 @@ def plan_summary(session: Session, plan: Plan) -> dict[str, Any]:
         "floors_demand": f.floors_demand,
         "total_score": f.total_score,
         "mean_score": round(f.total_score / f.assigned, 6) if f.assigned else 0.0,
-        "load": load_spread(session, plan),
-        "gaps": [asdict(g) for g in find_gaps(session, plan)],
+        "load": load,
+        "gaps": [
+            {**asdict(g), "reason": gap_reasons.get(g.paper, "")} for g in find_gaps(session, plan)
+        ],
         "overloads": [asdict(x) for x in over],
         "underloads": [asdict(x) for x in under],
+        "rules": {
+            "senior_min": policy.senior_min,
+            "senior_hard": policy.senior_hard,
+            "max_per_institution": policy.max_per_institution,
+            "require_shared_topic": policy.require_shared_topic,
+            "min_score": policy.min_score,
+            "balance": policy.balance,
+            "bottleneck": policy.bottleneck,
+            "max_leads": policy.max_leads,
+        },
+        "bottleneck": plan.bottleneck,
+        "optimality": {"proven": plan.bound is None, "bound": plan.bound},
+        "per_paper": paper_details(session, plan),
+        **rules,
     }

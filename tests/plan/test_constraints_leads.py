@@ -1,0 +1,171 @@
+"""Lead picks against brute force and against scipy's linear_sum_assignment."""
+
+from __future__ import annotations
+
+import itertools
+from datetime import UTC, datetime
+
+import numpy as np
+import pytest
+from scipy.optimize import linear_sum_assignment
+
+from review_alloc.model import Assignment, Paper, Plan, Policy, Reviewer, ScoreTable, Session
+from review_alloc.plan import PlanCheckError, check_plan
+from review_alloc.plan.figures import assignment_indices, plan_figures
+from review_alloc.plan.leads import pick_leads, with_leads
+
+
+def with_scores(session: Session, pairs: list[tuple[str, str, float]]) -> Session:
+    """The session with a score row for every given (reviewer, paper, score)."""
+    r_at, p_at = session.reviewer_index(), session.paper_index()
+    table = ScoreTable.from_arrays(
+        np.array([r_at[r] for r, _, _ in pairs], dtype=np.int32),
+        np.array([p_at[p] for _, p, _ in pairs], dtype=np.int32),
+        np.array([v for _, _, v in pairs], dtype=np.float64),
+    )
+    return session.model_copy(update={"scores": table})
+
+
+def plan_of(session: Session, pairs: list[tuple[str, str, float]]) -> Plan:
+    """A plan with the given (reviewer, paper, score) assignments and its figures."""
+    rows = [Assignment(reviewer=r, paper=p, score=s) for r, p, s in pairs]
+    reviewer, paper, score = assignment_indices(session, rows)
+    return Plan(
+        assignments=rows,
+        figures=plan_figures(session, reviewer, paper, score),
+        created_at=datetime(2027, 1, 1, tzinfo=UTC),
+        checked=False,
+        method="test",
+    )
+
+
+def lead_case(seed: int) -> tuple[Session, Plan]:
+    """A small random session and plan: every paper gets 1-3 of the reviewers."""
+    rng = np.random.default_rng(seed)
+    n_r, n_p = int(rng.integers(2, 5)), int(rng.integers(2, 6))
+    reviewers = [Reviewer(id=f"r{j}", senior=bool(rng.random() < 0.4)) for j in range(n_r)]
+    papers = [Paper(id=f"p{i}") for i in range(n_p)]
+    session = Session(
+        name=f"leads {seed}",
+        policy=Policy(max_leads=int(rng.integers(1, 3)), cap=10),
+        papers=papers,
+        reviewers=reviewers,
+    )
+    pairs = []
+    for i in range(n_p):
+        chosen = rng.choice(n_r, size=int(rng.integers(1, min(3, n_r) + 1)), replace=False)
+        for j in chosen:
+            pairs.append((f"r{j}", f"p{i}", float(np.round(rng.uniform(0, 1), 2))))
+    session = with_scores(session, pairs)
+    return session, plan_of(session, pairs)
+
+
+def value(session: Session, plan: Plan, lead_of: dict[str, str]) -> tuple[int, int, float]:
+    """(papers led, senior leads, total lead score) of a lead choice."""
+    senior = {r.id: r.senior for r in session.reviewers}
+    score = {(a.reviewer, a.paper): a.score for a in plan.assignments}
+    return (
+        len(lead_of),
+        sum(senior[r] for r in lead_of.values()),
+        round(sum(score[(r, p)] for p, r in lead_of.items()), 6),
+    )
+
+
+def brute_force(session: Session, plan: Plan) -> tuple[int, int, float]:
+    """The best (papers led, senior leads, lead score) over every choice within the lead cap."""
+    by_paper: dict[str, list[str | None]] = {}
+    for a in plan.assignments:
+        by_paper.setdefault(a.paper, [None]).append(a.reviewer)
+    papers = sorted(by_paper)
+    best = (-1, -1, -1.0)
+    for choice in itertools.product(*(by_paper[p] for p in papers)):
+        counts: dict[str, int] = {}
+        for r in choice:
+            if r is not None:
+                counts[r] = counts.get(r, 0) + 1
+        if any(c > session.policy.max_leads for c in counts.values()):
+            continue
+        lead_of = {p: r for p, r in zip(papers, choice, strict=True) if r is not None}
+        best = max(best, value(session, plan, lead_of))
+    return best
+
+
+@pytest.mark.parametrize("seed", range(40))
+def test_leads_match_brute_force(seed: int) -> None:
+    session, plan = lead_case(seed)
+    choice = pick_leads(session, plan)
+    # Reference: exhaustive search over every lead choice (lexicographic order of the three).
+    got = value(session, plan, choice.lead_of)
+    want = brute_force(session, plan)
+    assert got[:2] == want[:2]
+    assert got[2] == pytest.approx(want[2], abs=1e-9)
+    led = with_leads(plan, choice)
+    check_plan(session, led, None)
+
+
+def test_linear_sum_assignment_docs_example_smoke() -> None:
+    # Source: scipy.optimize.linear_sum_assignment documentation example, cost
+    # [[4, 1, 3], [2, 0, 5], [3, 2, 2]] has minimum total 5.
+    cost = np.array([[4, 1, 3], [2, 0, 5], [3, 2, 2]])
+    rows, cols = linear_sum_assignment(cost)
+    assert cost[rows, cols].sum() == 5
+    # The same case as leads: every reviewer on every paper, one lead each, score = 5 - cost,
+    # so the best leads score 3 * 5 - 5 = 10.
+    reviewers = [Reviewer(id=f"r{j}") for j in range(3)]
+    papers = [Paper(id=f"p{i}") for i in range(3)]
+    session = Session(
+        name="docs example", policy=Policy(max_leads=1), papers=papers, reviewers=reviewers
+    )
+    pairs = [(f"r{j}", f"p{i}", float(5 - cost[i, j])) for i in range(3) for j in range(3)]
+    plan = plan_of(session, pairs)
+    choice = pick_leads(session, plan)
+    assert len(choice.lead_of) == 3
+    total = sum(5 - cost[int(p[1:]), int(r[1:])] for p, r in choice.lead_of.items())
+    assert 15 - total == 5
+
+
+@pytest.mark.parametrize("seed", range(15))
+def test_one_lead_each_matches_unexpanded_linear_sum_assignment(seed: int) -> None:
+    rng = np.random.default_rng(900 + seed)
+    n = int(rng.integers(2, 7))
+    score = np.round(rng.uniform(0, 1, size=(n, n)), 2)
+    reviewers = [Reviewer(id=f"r{j}") for j in range(n)]
+    papers = [Paper(id=f"p{i}") for i in range(n)]
+    session = Session(name="square", policy=Policy(max_leads=1), papers=papers, reviewers=reviewers)
+    plan = plan_of(
+        session, [(f"r{j}", f"p{i}", float(score[i, j])) for i in range(n) for j in range(n)]
+    )
+    choice = pick_leads(session, plan)
+    # Reference: scipy's linear_sum_assignment on the plain paper x reviewer score matrix.
+    rows, cols = linear_sum_assignment(score, maximize=True)
+    got = sum(score[int(p[1:]), int(r[1:])] for p, r in choice.lead_of.items())
+    assert got == pytest.approx(score[rows, cols].sum(), abs=1e-9)
+
+
+def test_papers_without_a_senior_lead_are_reported() -> None:
+    reviewers = [Reviewer(id="s", senior=True), Reviewer(id="j")]
+    papers = [Paper(id=f"p{i}") for i in range(3)]
+    session = Session(
+        name="few seniors", policy=Policy(max_leads=2), papers=papers, reviewers=reviewers
+    )
+    plan = plan_of(session, [(r, f"p{i}", 0.5) for i in range(3) for r in ("s", "j")])
+    choice = pick_leads(session, plan)
+    assert len(choice.lead_of) == 3
+    assert len(choice.no_senior_lead) == 1
+    assert sum(r == "s" for r in choice.lead_of.values()) == 2
+
+
+def test_checker_rejects_too_many_leads() -> None:
+    reviewers = [Reviewer(id="a"), Reviewer(id="b")]
+    papers = [Paper(id=f"p{i}") for i in range(3)]
+    session = Session(
+        name="lead cap", policy=Policy(max_leads=1), papers=papers, reviewers=reviewers
+    )
+    pairs = [("a", f"p{i}", 0.5) for i in range(3)]
+    session = with_scores(session, pairs)
+    plan = plan_of(session, pairs)
+    forged = plan.model_copy(
+        update={"assignments": [a.model_copy(update={"lead": True}) for a in plan.assignments]}
+    )
+    with pytest.raises(PlanCheckError, match="max_leads"):
+        check_plan(session, forged, None)
