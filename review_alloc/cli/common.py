@@ -57,12 +57,20 @@ def solve(session: Session) -> Session:
     return session.model_copy(update={"plan": outcome.plan})
 
 
+def _verdict(summary: dict[str, Any]) -> str:
+    if not summary["checked"]:
+        return "NOT checked"
+    if not summary.get("optimality", {}).get("proven", True):
+        return "checked; optimal within the bound shown below"
+    return "checked, optimal"
+
+
 def summary_lines(session: Session, summary: dict[str, Any], source: str) -> list[str]:
     """The short plain-text report of a plan summary."""
     word = noun(session)
     pct = 100.0 * summary["required_coverage"] / max(summary["required_demand"], 1)
     lines = [
-        f"{session.name}: plan {'checked, optimal' if summary['checked'] else 'NOT checked'}",
+        f"{session.name}: plan {_verdict(summary)}",
         f"  {word}s {summary['papers']}, reviewers {summary['reviewers']}, "
         f"assignments {len(summary['assignments'])}",
         f"  required reviews {summary['required_coverage']} / {summary['required_demand']} "
