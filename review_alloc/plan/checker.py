@@ -19,6 +19,7 @@ from review_alloc.plan.figures import (
     plan_figures,
 )
 from review_alloc.plan.network import PlanNetwork, build_network
+from review_alloc.plan.overload import overload_allowances
 
 _MAX_LISTED = 20
 
@@ -101,9 +102,11 @@ def _hard_rule_problems(session: Session, plan: Plan) -> list[str]:
 
     loads, counts = loads_and_counts(session, reviewer, paper)
     reviews, _, cap, _ = active_demands(session)
-    for j in np.flatnonzero(loads > cap):
+    allowed = cap + overload_allowances(session)
+    for j in np.flatnonzero(loads > allowed):
         problems.append(
             f"reviewer {session.reviewers[j].id} has load {loads[j]} above cap {cap[j]}"
+            + (f" and allowed overload {allowed[j] - cap[j]}" if allowed[j] > cap[j] else "")
         )
     for i in np.flatnonzero(counts > reviews):
         problems.append(f"paper {session.papers[i].id} has {counts[i]} reviews, above {reviews[i]}")
@@ -134,7 +137,9 @@ def _certificate_problems(
     loads, counts = loads_and_counts(session, reviewer, paper)
     floor_cap = net.capacities[net.floor_arcs]
     flow[net.floor_arcs] = np.minimum(loads, floor_cap)
-    flow[net.rest_arcs] = loads - flow[net.floor_arcs]
+    flow[net.rest_arcs] = np.minimum(loads - flow[net.floor_arcs], net.capacities[net.rest_arcs])
+    over = loads - flow[net.floor_arcs] - flow[net.rest_arcs]
+    flow[net.overload_arcs] = over[net.overload_reviewers]
     required_cap = net.capacities[net.required_arcs]
     flow[net.required_arcs] = np.minimum(counts, required_cap)
     flow[net.extra_arcs] = counts - flow[net.required_arcs]

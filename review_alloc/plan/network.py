@@ -2,13 +2,14 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
 from review_alloc.model import Session
 from review_alloc.plan.conflicts import ConflictSet, conflict_pairs
 from review_alloc.plan.errors import PlanInputError
+from review_alloc.plan.overload import add_overload_arcs
 
 SCORE_RESOLUTION = 10_000
 """Integer cost steps per score unit: a score of 0.8532 becomes 8532 (ties closer than 1e-4 are
@@ -62,6 +63,8 @@ class PlanNetwork:
 
     n_reviewers: int
     n_papers: int
+    overload_arcs: slice = field(default_factory=lambda: slice(0, 0))
+    overload_reviewers: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
 
     def paper_node(self, i: np.ndarray | int) -> np.ndarray | int:
         """Node id of paper index i (reviewer j is node 1 + j)."""
@@ -199,7 +202,7 @@ def build_network(session: Session) -> PlanNetwork:
 
     a = 2 * n_r
     b = a + n_pairs
-    return PlanNetwork(
+    net = PlanNetwork(
         n_nodes=n_r + n_p + 2,
         source=source,
         sink=sink,
@@ -223,6 +226,7 @@ def build_network(session: Session) -> PlanNetwork:
         n_reviewers=n_r,
         n_papers=n_p,
     )
+    return add_overload_arcs(session, net)
 
 
 def _check_pins(
