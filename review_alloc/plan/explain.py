@@ -293,11 +293,19 @@ def _with_cause(cov: CoverageNetwork, group: ShortfallGroup, *, with_gains: bool
         cov.flow[cov.pair_arcs][np.isin(net.pair_reviewer, eligible) & ~inside].sum()
     )
     eligible_capacity = int(cov.capacity[eligible].sum()) if len(eligible) else 0
+    degree = np.bincount(net.pair_paper[inside], minlength=n_p)[g_papers]
+    own_deficit = np.maximum(cov.demand[g_papers] - degree, 0)
+    saturated = np.array(group.saturated_index, dtype=np.int64)
+    full = int((_paper_inflow(cov)[g_papers] >= cov.demand[g_papers]).sum())
     factors = {
         "eligible_reviewers": len(eligible),
         "reviewers_in_topics": in_topic,
         "eligible_capacity": eligible_capacity,
         "capacity_used_elsewhere": used_elsewhere,
+        "saturated_capacity": int(cov.capacity[saturated].sum()) if len(saturated) else 0,
+        "papers_with_too_few_eligible": int((own_deficit > 0).sum()),
+        "missing_for_too_few_eligible": int(own_deficit.sum()),
+        "full_papers_in_group": full,
         "conflicted_pairs": int(conflicted.sum()),
         "conflicted_reviewers": len(np.unique(cand_r[conflicted])),
         "blocked_pairs": int(blocked.sum()),
@@ -311,6 +319,13 @@ def _with_cause(cov: CoverageNetwork, group: ShortfallGroup, *, with_gains: bool
         ):
             factors[name] = _gain(cov, pairs, g_papers) if len(pairs[0]) else 0
     return dataclasses.replace(group, cause=_cause_text(session, group, factors), factors=factors)
+
+
+def _paper_inflow(cov: CoverageNetwork) -> np.ndarray:
+    """Reviews each paper gets in the coverage network's maximum flow."""
+    net = cov.plan_net
+    flow = cov.flow[cov.pair_arcs]
+    return np.bincount(net.pair_paper, weights=flow, minlength=net.n_papers).astype(np.int64)
 
 
 def _gain(cov: CoverageNetwork, pairs: tuple[np.ndarray, np.ndarray], papers: np.ndarray) -> int:
@@ -362,7 +377,14 @@ def _cause_text(session: Session, group: ShortfallGroup, f: dict[str, int]) -> s
         ("the unscored-pairs rule", f.get("gain_if_unscored_allowed", 0)),
     ]
     decisive = [name for name, gain in removers if gain >= group.shortfall]
-    if f["eligible_capacity"] < group.needed:
+    if f["missing_for_too_few_eligible"] >= group.shortfall:
+        k = f["papers_with_too_few_eligible"]
+        main = (
+            f"too few eligible reviewers per {word}: {k} of these {what}{topic} "
+            f"{'has' if k == 1 else 'have'} fewer eligible reviewers than the reviews wanted "
+            f"({f['missing_for_too_few_eligible']} reviews cannot be given by anyone eligible)"
+        )
+    elif f["eligible_capacity"] < group.needed:
         main = (
             f"few eligible reviewers: only {f['eligible_reviewers']} reviewers can review "
             f"these {what}{topic} ({f['reviewers_in_topics']} reviewers share their topics), "
@@ -370,13 +392,21 @@ def _cause_text(session: Session, group: ShortfallGroup, f: dict[str, int]) -> s
         )
     else:
         main = (
-            f"caps exhausted by other {word}s: the {f['eligible_reviewers']} eligible reviewers "
-            f"have capacity {f['eligible_capacity']}, but {f['capacity_used_elsewhere']} of it "
-            f"goes to {word}s outside this group and only {group.available} is free for them"
+            f"caps exhausted: the {len(group.saturated_reviewers)} reviewers who could give "
+            f"more have their caps full (capacity {f['saturated_capacity']}), and the other "
+            f"eligible reviewers, whose remaining capacity ({f['capacity_used_elsewhere']} "
+            f"reviews) goes to {word}s outside this group, can give each {word} at most one "
+            f"review; {group.available} reviews are free for the {group.needed} needed"
         )
     if decisive:
         main = f"{decisive[0]} remove the candidates these {what} need; otherwise {main}"
     parts.append(main)
+    if f["full_papers_in_group"]:
+        k = f["full_papers_in_group"]
+        parts.append(
+            f"{k} of the {what} {'is' if k == 1 else 'are'} fully reviewed but compete for the "
+            "same reviewers"
+        )
     if f["conflicted_pairs"]:
         gain = f.get("gain_if_conflicts_allowed")
         extra = f"; allowing them would add {gain}" if gain is not None else ""
