@@ -1,4 +1,4 @@
-"""The first commands: import, plan, explain (gaps), export, schema, demo."""
+"""The first commands: import, plan, export, schema, demo."""
 
 from __future__ import annotations
 
@@ -7,7 +7,6 @@ from collections.abc import Callable
 from pathlib import Path
 
 from review_alloc.cli.common import (
-    CAUTION,
     EXIT_OK,
     emit_json,
     noun,
@@ -50,10 +49,6 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
     p.add_argument("--json", action="store_true", help="print one JSON object")
     add_rule_flags(p)
 
-    p = sub.add_parser("explain", help="list the papers short of reviews")
-    p.add_argument("session", type=Path)
-    p.add_argument("--json", action="store_true", help="print one JSON object")
-
     p = sub.add_parser("export", help="write the plan as CSV")
     p.add_argument("session", type=Path)
     p.add_argument("--to", required=True, type=Path, dest="target", help="CSV file to write")
@@ -65,7 +60,6 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
     return {
         "import": _cmd_import,
         "plan": _cmd_plan,
-        "explain": _cmd_explain,
         "export": _cmd_export,
         "schema": _cmd_schema,
         "demo": _cmd_demo,
@@ -250,30 +244,6 @@ def _cmd_demo(args: argparse.Namespace) -> int:
         emit_json(summary)
     else:
         print("\n".join(summary_lines(session, summary, "SESSION")))
-    return EXIT_OK
-
-
-def _cmd_explain(args: argparse.Namespace) -> int:
-    from dataclasses import asdict
-
-    from review_alloc.plan import find_gaps
-
-    session = load_session(args.session)
-    if session.plan is None:
-        session = solve(session)
-    gaps = find_gaps(session, session.plan)
-    if args.json:
-        emit_json({"session": session.name, "gaps": [asdict(g) for g in gaps]})
-        return EXIT_OK
-    word = noun(session)
-    if not gaps:
-        print(f"{session.name}: no gaps; every {word} has all its reviews.")
-    else:
-        print(f"{session.name}: {len(gaps)} {word}s short of reviews")
-        for g in gaps:
-            need = f", {g.missing_required} below the minimum" if g.missing_required else ""
-            print(f"  {g.paper}  {g.assigned}/{g.reviews} reviews, missing {g.missing}{need}")
-    print(CAUTION)
     return EXIT_OK
 
 

@@ -41,6 +41,9 @@ class Reviewer(DocumentModel):
     """Most papers; `None` means the policy's."""
     floor: int | None = Field(default=None, ge=0)
     """Fewest papers; `None` means the policy's, clamped to this reviewer's cap."""
+    overload: int | None = Field(default=None, ge=0)
+    """Papers above cap this reviewer accepts when coverage needs them; `None`: the policy's
+    `overload_allowance`."""
     senior: bool = False
     withdrawn: bool = False
 

@@ -69,6 +69,9 @@ class Policy(DocumentModel):
     """Most papers per reviewer."""
     floor: int = Field(default=0, ge=0)
     """Fewest papers per reviewer, met as far as the papers allow."""
+    overload_allowance: int = Field(default=0, ge=0)
+    """Papers a reviewer may take above their cap when that is the only way to cover more
+    reviews (0: never). Used after coverage and before floors; reviewers may override it."""
     unscored: Literal["zero", "exclude"] = "zero"
     """A pair without a score row is eligible with score 0 (`zero`) or not eligible (`exclude`)."""
     conflict_rules: ConflictRules = Field(default_factory=ConflictRules)

@@ -20,6 +20,7 @@ from review_alloc.plan.figures import (
     plan_figures,
 )
 from review_alloc.plan.network import PlanNetwork, build_network, paper_senior_need
+from review_alloc.plan.overload import overload_allowances
 
 _MAX_LISTED = 20
 
@@ -102,9 +103,11 @@ def _hard_rule_problems(session: Session, plan: Plan) -> list[str]:
 
     loads, counts = loads_and_counts(session, reviewer, paper)
     reviews, _, cap, _ = active_demands(session)
-    for j in np.flatnonzero(loads > cap):
+    allowed = cap + overload_allowances(session)
+    for j in np.flatnonzero(loads > allowed):
         problems.append(
             f"reviewer {session.reviewers[j].id} has load {loads[j]} above cap {cap[j]}"
+            + (f" and allowed overload {allowed[j] - cap[j]}" if allowed[j] > cap[j] else "")
         )
     for i in np.flatnonzero(counts > reviews):
         problems.append(f"paper {session.papers[i].id} has {counts[i]} reviews, above {reviews[i]}")
@@ -226,7 +229,10 @@ def arc_flows(net: PlanNetwork, pair_flow: np.ndarray) -> np.ndarray:
     counts = np.bincount(net.pair_paper[used], minlength=net.n_papers).astype(np.int64)
     floor_flow, left = _fill_units(net.floor_arc_reviewer, net.capacities[net.floor_arcs], loads)
     flow[net.floor_arcs] = floor_flow
-    flow[net.rest_arcs], _ = _fill_units(net.rest_arc_reviewer, net.capacities[net.rest_arcs], left)
+    flow[net.rest_arcs], over = _fill_units(
+        net.rest_arc_reviewer, net.capacities[net.rest_arcs], left
+    )
+    flow[net.overload_arcs] = over[net.overload_reviewers]
     required_cap = net.capacities[net.required_arcs]
     flow[net.required_arcs] = np.minimum(counts, required_cap)
     flow[net.extra_arcs] = counts - flow[net.required_arcs]

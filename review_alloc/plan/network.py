@@ -12,6 +12,7 @@ from review_alloc.plan.conflicts import ConflictSet, conflict_pairs, normalise_i
 from review_alloc.plan.eligibility import rule_failures
 from review_alloc.plan.errors import PlanInputError
 from review_alloc.plan.figures import active_demands
+from review_alloc.plan.overload import add_overload_arcs, overload_allowances
 
 SCORE_RESOLUTION = 10_000
 """Integer cost steps per score unit: a score of 0.8532 becomes 8532 (ties closer than 1e-4 are
@@ -45,25 +46,35 @@ class TierWeights:
     required: int
     seniors: int
     coverage: int
+    overload: int
     floors: int
 
 
 def constraint_weights(
-    max_pair_arcs_in_cycle: int, max_score: int, senior_nodes: int, balance_spread: int
+    max_pair_arcs_in_cycle: int,
+    max_score: int,
+    senior_nodes: int,
+    balance_spread: int,
+    *,
+    overload: bool = False,
 ) -> TierWeights:
-    """Weights for required > seniors > coverage > floors > (score - balance penalty).
+    """Weights for required > seniors > coverage > (least overload) > floors > (score - balance).
 
     The argument of `tier_weights` extended: a simple residual cycle passes the source and the
-    sink once, so it moves required coverage, coverage and floors by at most one each, and it
-    changes the balance penalty by at most `balance_spread` (two source arcs). It may pass many
-    papers' senior nodes, but each one once, moving that paper's senior count by at most one, so
-    the senior tier moves by at most `senior_nodes`; the required weight outweighs all of that.
+    sink once, so it moves required coverage, coverage, overload and floors by at most one each,
+    and it changes the balance penalty by at most `balance_spread` (two source arcs). It may pass
+    many papers' senior nodes, but each one once and each beside a reviewer, moving the senior
+    tier by at most min(`senior_nodes`, pair arcs in the cycle); the required weight outweighs
+    all of that. The overload tier exists only when some reviewer may go above cap.
     """
     floors = max_pair_arcs_in_cycle * max_score + balance_spread + 1
-    coverage = 2 * floors
+    over = 2 * floors if overload else 0
+    coverage = 2 * (over or floors)
     seniors = 2 * coverage
-    required = (senior_nodes + 1) * seniors
-    return TierWeights(required=required, seniors=seniors, coverage=coverage, floors=floors)
+    required = (min(senior_nodes, max_pair_arcs_in_cycle) + 1) * seniors
+    return TierWeights(
+        required=required, seniors=seniors, coverage=coverage, overload=over, floors=floors
+    )
 
 
 @dataclass(frozen=True)
@@ -100,6 +111,8 @@ class PlanNetwork:
 
     n_reviewers: int
     n_papers: int
+    overload_arcs: slice = field(default_factory=lambda: slice(0, 0))
+    overload_reviewers: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
 
     floor_arc_reviewer: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
     """Reviewer of each floor arc (one per reviewer, or unit arcs in load order when balancing)."""
@@ -441,7 +454,11 @@ def build_network(
     step = int(round(session.policy.balance * SCORE_RESOLUTION))
     max_cap = int(cap.max()) if len(cap) else 0
     tiers = constraint_weights(
-        2 * max(min(n_r, n_p + n_sen + n_grp), 1), max_score, n_sen, 2 * step * max(max_cap - 1, 0)
+        2 * max(min(n_r, n_p + n_sen + n_grp), 1),
+        max_score,
+        n_sen,
+        2 * step * max(max_cap - 1, 0),
+        overload=bool(overload_allowances(session).any()),
     )
     total = int(reviews.sum())
     if (tiers.required + tiers.coverage + max_score) * max(total, 1) * 4 >= _COST_LIMIT:
@@ -501,7 +518,7 @@ def build_network(
     group_arcs = blocks.add(first_grp + np.arange(n_grp), group_head, g_cap, np.zeros(n_grp))
 
     tails, heads, capacities, lower, costs = blocks.arrays()
-    return PlanNetwork(
+    net = PlanNetwork(
         n_nodes=first_grp + n_grp,
         source=0,
         sink=sink,
@@ -546,6 +563,7 @@ def build_network(
         part_institution=parts.institution,
         balance_step=step,
     )
+    return add_overload_arcs(session, net, tiers.overload)
 
 
 def _all_senior(pair_group: np.ndarray, pair_senior: np.ndarray, n_groups: int) -> np.ndarray:

@@ -1,0 +1,152 @@
+"""What-if: apply changes (raised caps, recruits, an overload allowance) to a copy of a session.
+
+Nothing here writes files: the caller decides whether the changed session is saved. A change
+never lifts a conflict of interest or a block.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Mapping
+from dataclasses import dataclass
+
+import numpy as np
+
+from review_alloc.model import Plan, Reviewer, Session
+from review_alloc.plan.errors import PlanInputError
+from review_alloc.plan.fixes import CapRaiseFix, RecruitFix
+from review_alloc.plan.report import Gap, find_gaps
+from review_alloc.plan.solve import make_plan
+
+RECRUIT_SCORE = 0.0
+"""Score given to a recruit's pairs with their topic's papers: the fit is unknown until they bid."""
+
+
+@dataclass(frozen=True)
+class WhatIf:
+    """A changed copy of a session with its new plan, beside the plan of the session as it is."""
+
+    session: Session
+    changes: tuple[str, ...]
+    before: Plan
+    after: Plan
+    gaps_before: tuple[Gap, ...]
+    gaps_after: tuple[Gap, ...]
+
+
+def raise_caps(session: Session, raises: Mapping[str, int], *, label: str = "raise cap") -> Session:
+    """A copy with each named reviewer's cap raised by the given amount."""
+    reviewer_at = session.reviewer_index()
+    problems = [
+        f"{label} {rid}={amount}: no reviewer has the id {rid!r}"
+        for rid, amount in raises.items()
+        if rid not in reviewer_at
+    ]
+    problems += [
+        f"{label} {rid}={amount}: the raise must be a whole number >= 1"
+        for rid, amount in raises.items()
+        if amount < 1
+    ]
+    problems += [
+        f"{label} {rid}={amount}: reviewer {rid} has withdrawn"
+        for rid, amount in raises.items()
+        if rid in reviewer_at and session.reviewers[reviewer_at[rid]].withdrawn
+    ]
+    if problems:
+        raise PlanInputError(problems)
+    reviewers = list(session.reviewers)
+    for rid, amount in raises.items():
+        j = reviewer_at[rid]
+        reviewers[j] = reviewers[j].model_copy(update={"cap": session.reviewer_cap(j) + amount})
+    return session.model_copy(update={"reviewers": reviewers, "plan": None})
+
+
+def _slug(topic: str) -> str:
+    return re.sub(r"[^a-z0-9]+", "-", topic.casefold()).strip("-") or "topic"
+
+
+def add_recruits(
+    session: Session, counts: Mapping[str, int], *, label: str = "add reviewers"
+) -> Session:
+    """A copy with new reviewers per topic: the policy's cap, no conflicts, eligible for the topic.
+
+    Under `unscored = "exclude"` each recruit gets a score row for every paper of their topic
+    (score `RECRUIT_SCORE`), so that the unscored rule does not leave them out.
+    """
+    known = {t for p in session.papers for t in p.topics} | {
+        t for r in session.reviewers for t in r.topics
+    }
+    problems = [
+        f"{label} {topic}={n}: no paper or reviewer has the topic {topic!r}"
+        for topic, n in counts.items()
+        if topic not in known
+    ]
+    problems += [
+        f"{label} {topic}={n}: the number of reviewers must be a whole number >= 1"
+        for topic, n in counts.items()
+        if n < 1
+    ]
+    if problems:
+        raise PlanInputError(problems)
+    taken = set(session.reviewer_index())
+    reviewers = list(session.reviewers)
+    new_r: list[int] = []
+    new_p: list[int] = []
+    for topic, n in counts.items():
+        papers = [
+            i for i, p in enumerate(session.papers) if topic in p.topics and not p.withdrawn
+        ]
+        k = 0
+        for _ in range(n):
+            k += 1
+            while f"NEW-{_slug(topic)}-{k}" in taken:
+                k += 1
+            rid = f"NEW-{_slug(topic)}-{k}"
+            taken.add(rid)
+            reviewers.append(Reviewer(id=rid, name=f"recruit {k} for {topic}", topics=[topic]))
+            new_r += [len(reviewers) - 1] * len(papers)
+            new_p += papers
+    scores = session.scores
+    if session.policy.unscored == "exclude" and new_r:
+        scores = scores.updated(
+            np.array(new_r, dtype=np.int32),
+            np.array(new_p, dtype=np.int32),
+            np.full(len(new_r), RECRUIT_SCORE),
+        )
+    return session.model_copy(update={"reviewers": reviewers, "scores": scores, "plan": None})
+
+
+def allow_overload(session: Session, allowance: int) -> Session:
+    """A copy whose policy lets every reviewer go up to `allowance` papers above their cap."""
+    if allowance < 0:
+        raise PlanInputError([f"allow overload {allowance}: must be a whole number >= 0"])
+    policy = session.policy.model_copy(update={"overload_allowance": allowance})
+    return session.model_copy(update={"policy": policy, "plan": None})
+
+
+def apply_cap_fix(session: Session, fix: CapRaiseFix) -> Session:
+    """A copy with the cap raises of a computed fix."""
+    return raise_caps(session, {r.reviewer: r.raise_by for r in fix.raises}) if fix.raises else (
+        session.model_copy(update={"plan": None})
+    )
+
+
+def apply_recruit_fix(session: Session, fix: RecruitFix) -> Session:
+    """A copy with the recruits of a computed fix."""
+    counts = {need.topic: need.recruits for need in fix.needs}
+    return add_recruits(session, counts) if counts else session.model_copy(update={"plan": None})
+
+
+def what_if(session: Session, changed: Session, changes: tuple[str, ...]) -> WhatIf:
+    """Plan the session as it is and as changed; the changed copy carries its new plan."""
+    before = make_plan(session).plan
+    after = make_plan(changed).plan
+    planned = changed.model_copy(update={"plan": after})
+    return WhatIf(
+        session=planned,
+        changes=changes,
+        before=before,
+        after=after,
+        gaps_before=tuple(find_gaps(session, before)),
+        gaps_after=tuple(find_gaps(planned, after)),
+    )
