@@ -127,9 +127,9 @@ def coverage_network(
     capacities = np.concatenate(
         [capacity, np.ones(len(reviewer), np.int64), demand, reviews - demand]
     ).astype(np.int64)
-    lower = np.concatenate(
-        [np.zeros(n_r, np.int64), pinned, np.zeros(2 * n_p, np.int64)]
-    ).astype(np.int64)
+    lower = np.concatenate([np.zeros(n_r, np.int64), pinned, np.zeros(2 * n_p, np.int64)]).astype(
+        np.int64
+    )
     n_nodes = n_r + n_p + 2
     result = max_flow(
         n_nodes, tails, heads, capacities, source, sink, lower=lower if lower.any() else None
@@ -284,9 +284,7 @@ def _with_cause(cov: CoverageNetwork, group: ShortfallGroup, *, with_gains: bool
     unscored_r, unscored_p = _unscored_topic_pairs(session, g_papers, conflict_keys)
     group_topics = set(group.topics)
     in_topic = sum(
-        1
-        for r in session.reviewers
-        if not r.withdrawn and group_topics.intersection(r.topics)
+        1 for r in session.reviewers if not r.withdrawn and group_topics.intersection(r.topics)
     )
     inside = in_group[net.pair_paper]
     used_elsewhere = int(
