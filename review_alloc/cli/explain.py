@@ -177,7 +177,7 @@ def _cap_lines(fix: dict[str, Any], source: str) -> list[str]:
 
 
 def _recruit_lines(fix: dict[str, Any], source: str, word: str) -> list[str]:
-    if fix["note"]:
+    if fix["note"] and not fix["needs"]:
         return [f"  b) recruits: not computed; {fix['note']}"]
     if not fix["needs"]:
         return ["  b) recruiting cannot add any review"]
@@ -187,6 +187,8 @@ def _recruit_lines(fix: dict[str, Any], source: str, word: str) -> list[str]:
         f"{fix['recruit_cap']} {word}s:"
     ]
     lines += [f"     {n['profile']}" for n in fix["needs"]]
+    if fix["note"]:
+        lines.append(f"     note: {fix['note']}")
     for u in fix["unclosable"][:_LISTED]:
         lines.append(f"     cannot close {u['paper']} this way: {u['reason']}")
     lines.append(f"     try it: review-alloc whatif {source} --apply-fix recruit")

@@ -127,9 +127,9 @@ def coverage_network(
     capacities = np.concatenate(
         [capacity, np.ones(len(reviewer), np.int64), demand, reviews - demand]
     ).astype(np.int64)
-    lower = np.concatenate(
-        [np.zeros(n_r, np.int64), pinned, np.zeros(2 * n_p, np.int64)]
-    ).astype(np.int64)
+    lower = np.concatenate([np.zeros(n_r, np.int64), pinned, np.zeros(2 * n_p, np.int64)]).astype(
+        np.int64
+    )
     n_nodes = n_r + n_p + 2
     result = max_flow(
         n_nodes, tails, heads, capacities, source, sink, lower=lower if lower.any() else None
@@ -251,13 +251,24 @@ def shortfall_groups(cov: CoverageNetwork, *, with_gains: bool = True) -> list[S
             )
         )
     groups.sort(key=lambda g: (-g.shortfall, g.papers))
+    # Candidates of the short papers only, computed once for every group.
+    cand_r, cand_p, _ = candidate_pairs(session)
+    short = np.zeros(n_p, dtype=bool)
+    short[papers_t] = True
+    candidates = (cand_r[short[cand_p]], cand_p[short[cand_p]])
     return [
-        _with_cause(cov, g, with_gains=with_gains and k < _GAIN_GROUPS)
+        _with_cause(cov, g, candidates, with_gains=with_gains and k < _GAIN_GROUPS)
         for k, g in enumerate(groups)
     ]
 
 
-def _with_cause(cov: CoverageNetwork, group: ShortfallGroup, *, with_gains: bool) -> ShortfallGroup:
+def _with_cause(
+    cov: CoverageNetwork,
+    group: ShortfallGroup,
+    candidates: tuple[np.ndarray, np.ndarray],
+    *,
+    with_gains: bool,
+) -> ShortfallGroup:
     """Count what keeps reviewers away from the group's papers and name the main cause."""
     session, net = cov.session, cov.plan_net
     n_p = net.n_papers
@@ -266,7 +277,7 @@ def _with_cause(cov: CoverageNetwork, group: ShortfallGroup, *, with_gains: bool
     in_group[g_papers] = True
     eligible = np.array(group.reviewer_index, dtype=np.int64)
 
-    cand_r, cand_p, _ = candidate_pairs(session)
+    cand_r, cand_p = candidates
     cand_keys = cand_r * n_p + cand_p
     keep = in_group[cand_p]
     cand_r, cand_p, cand_keys = cand_r[keep], cand_p[keep], cand_keys[keep]
@@ -284,9 +295,7 @@ def _with_cause(cov: CoverageNetwork, group: ShortfallGroup, *, with_gains: bool
     unscored_r, unscored_p = _unscored_topic_pairs(session, g_papers, conflict_keys)
     group_topics = set(group.topics)
     in_topic = sum(
-        1
-        for r in session.reviewers
-        if not r.withdrawn and group_topics.intersection(r.topics)
+        1 for r in session.reviewers if not r.withdrawn and group_topics.intersection(r.topics)
     )
     inside = in_group[net.pair_paper]
     used_elsewhere = int(

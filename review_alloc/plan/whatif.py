@@ -93,9 +93,7 @@ def add_recruits(
     new_r: list[int] = []
     new_p: list[int] = []
     for topic, n in counts.items():
-        papers = [
-            i for i, p in enumerate(session.papers) if topic in p.topics and not p.withdrawn
-        ]
+        papers = [i for i, p in enumerate(session.papers) if topic in p.topics and not p.withdrawn]
         k = 0
         for _ in range(n):
             k += 1
@@ -126,8 +124,10 @@ def allow_overload(session: Session, allowance: int) -> Session:
 
 def apply_cap_fix(session: Session, fix: CapRaiseFix) -> Session:
     """A copy with the cap raises of a computed fix."""
-    return raise_caps(session, {r.reviewer: r.raise_by for r in fix.raises}) if fix.raises else (
-        session.model_copy(update={"plan": None})
+    return (
+        raise_caps(session, {r.reviewer: r.raise_by for r in fix.raises})
+        if fix.raises
+        else (session.model_copy(update={"plan": None}))
     )
 
 
