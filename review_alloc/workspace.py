@@ -39,6 +39,7 @@ from review_alloc.model import (
     Paper,
     Plan,
     Reviewer,
+    ScoreTable,
     Session,
     load_session,
     save_session,
@@ -344,25 +345,53 @@ class Workspace:
             "reinstate-paper", paper_id, "", reason, papers=self._with_paper(i, withdrawn=False)
         )
 
-    def add_reviewer(self, reviewer: Reviewer, reason: str = "") -> None:
-        """Add a new reviewer (ids are never reused)."""
+    def add_reviewer(
+        self, reviewer: Reviewer, reason: str = "", *, scores: dict[str, float] | None = None
+    ) -> None:
+        """Add a new reviewer, with fit scores by paper id (ids in use are refused)."""
         if reviewer.id in self.session.reviewer_index():
             raise ChangeRefused([f"reviewer {reviewer.id} already exists"])
         self._check_limits(reviewer.cap, reviewer.floor, f"reviewer {reviewer.id}")
+        j = len(self.session.reviewers)
+        rows = [(j, self._paper(pid), value) for pid, value in (scores or {}).items()]
         self._apply(
             "add-reviewer",
             reviewer.id,
-            reviewer.name,
+            reviewer.name + (f", {len(rows)} scores" if rows else ""),
             reason,
             reviewers=[*self.session.reviewers, reviewer],
+            scores=self._scores_with(rows),
         )
 
-    def add_paper(self, paper: Paper, reason: str = "") -> None:
-        """Add a new paper (ids are never reused)."""
+    def add_paper(
+        self, paper: Paper, reason: str = "", *, scores: dict[str, float] | None = None
+    ) -> None:
+        """Add a new paper, with fit scores by reviewer id (ids in use are refused)."""
         if paper.id in self.session.paper_index():
             raise ChangeRefused([f"{self.noun} {paper.id} already exists"])
+        i = len(self.session.papers)
+        rows = [(self._reviewer(rid), i, value) for rid, value in (scores or {}).items()]
         self._apply(
-            "add-paper", paper.id, paper.title, reason, papers=[*self.session.papers, paper]
+            "add-paper",
+            paper.id,
+            paper.title + (f", {len(rows)} scores" if rows else ""),
+            reason,
+            papers=[*self.session.papers, paper],
+            scores=self._scores_with(rows),
+        )
+
+    def _scores_with(self, rows: list[tuple[int, int, float]]) -> ScoreTable:
+        """The score table with rows for a new entity added (it has none yet)."""
+        table = self.session.scores
+        if not rows:
+            return table
+        for _, _, value in rows:
+            if not np.isfinite(value) or value < 0:
+                raise ChangeRefused([f"score {value!r}: a score must be a finite number >= 0"])
+        return ScoreTable.from_arrays(
+            np.concatenate([table.reviewer, np.array([r[0] for r in rows], dtype=np.int32)]),
+            np.concatenate([table.paper, np.array([r[1] for r in rows], dtype=np.int32)]),
+            np.concatenate([table.value, np.array([r[2] for r in rows], dtype=np.float64)]),
         )
 
     def set_reviewer(
