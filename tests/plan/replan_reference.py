@@ -73,9 +73,7 @@ def replan_instance(
     else:
         candidates = set(scored) | pins
     pairs = sorted(
-        (j, i)
-        for j, i in candidates
-        if (j, i) not in excluded and not gone_r[j] and not gone_p[i]
+        (j, i) for j, i in candidates if (j, i) not in excluded and not gone_r[j] and not gone_p[i]
     )
     before = set()
     if earlier is not None:

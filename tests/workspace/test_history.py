@@ -81,9 +81,7 @@ def test_diffs_add_up(seed: int) -> None:
                 assert (mine_old | set(c.added)) - set(c.removed) == {p for r, p in new if r == who}
             for what, c in change.by_paper.items():
                 its_old = {r for r, p in old if p == what}
-                assert (its_old | set(c.added)) - set(c.removed) == {
-                    r for r, p in new if p == what
-                }
+                assert (its_old | set(c.added)) - set(c.removed) == {r for r, p in new if p == what}
             untouched = {r for r, _ in old | new} - change.by_reviewer.keys()
             for who in untouched:
                 assert {p for r, p in old if r == who} == {p for r, p in new if r == who}
@@ -147,9 +145,7 @@ def test_list_and_data_deltas_round_trip() -> None:
     assert ListDelta[Paper].between(b, a).apply(b) == a
     assert ListDelta[Paper].between(a, list(a)) is None
     s = workshop()
-    data = SessionData(
-        s.policy, s.papers, s.reviewers, s.conflicts, s.pins, s.blocks, s.scores
-    )
+    data = SessionData(s.policy, s.papers, s.reviewers, s.conflicts, s.pins, s.blocks, s.scores)
     assert DataDelta.between(None, data).apply(None) == data
     assert DataDelta.between(data, data) == DataDelta()
 
