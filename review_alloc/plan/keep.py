@@ -57,14 +57,21 @@ def fitting_resolution(
     """
     k = max(max_pair_arcs_in_cycle, 1)
     demand = max(total_demand, 1)
-    step = resolution
-    while step >= 1:
+
+    def fits(step: int) -> bool:
         max_score = int(np.rint(top_score * step))
         w_keep = keep_weight(k, max_score)
         w_floor = k * (max_score + w_keep) + 1
         w_coverage = 2 * w_floor
         w_required = 2 * w_coverage
-        if (w_required + w_coverage + max_score) * demand * 4 < COST_LIMIT:
-            return step
-        step = step * 2 // 3 if step > 1 else 0
-    return 0
+        return (w_required + w_coverage + max_score) * demand * 4 < COST_LIMIT
+
+    if fits(resolution):
+        return resolution
+    if not fits(1):
+        return 0
+    low, high = 1, resolution  # fits(low), not fits(high); the sum grows with the step
+    while high - low > 1:
+        mid = (low + high) // 2
+        low, high = (mid, high) if fits(mid) else (low, mid)
+    return low
