@@ -198,3 +198,23 @@ def test_an_interrupted_save_leaves_the_previous_file_intact(
     assert path.read_bytes() == before
     assert [p.name for p in tmp_path.iterdir()] == ["s.json"]
     assert load_session(path).revision == 1
+
+
+def test_undo_with_unplanned_changes_drops_them_first() -> None:
+    ws = Workspace(workshop())
+    ws.solve()
+    ws.withdraw_reviewer(ws.session.plan.assignments[0].reviewer)
+    ws.solve()
+    plan_2 = ws.session.plan.model_dump_json()
+    reviewers_2 = ws.session.reviewers
+    ws.withdraw_paper(ws.session.papers[0].id)
+    ws.set_reviewer(ws.session.reviewers[1].id, cap=1, floor=0)
+    assert ws.data_changed_since_plan()
+    assert ws.undo() == 2
+    assert ws.session.plan.model_dump_json() == plan_2
+    assert ws.session.reviewers == reviewers_2 and not ws.session.papers[0].withdrawn
+    assert ws.session.events[-1].detail == "back to revision 2, changes dropped"
+    assert ws.undo() == 1
+    ws.solve()
+    assert ws.history()[-1].changes == ("undo 1 (back to revision 1 from 2)",)
+    assert ws.history()[-1].parent == 1
