@@ -2,8 +2,9 @@
 
 Storage is compact because a large venue has tens of thousands of assignments per revision:
 
-- the assignments are a `ScoreTable` (reviewer and paper positions, score), stored like the
-  session's scores: little-endian arrays, zlib-compressed, base64-encoded;
+- the assignments are a `ScoreTable` of reviewer and paper positions, stored like the
+  session's scores (little-endian arrays, zlib-compressed, base64-encoded); its value column
+  is all zeros, since each pair's score is read back from the revision's own score data;
 - the data the plan was made from (policy, papers, reviewers, conflicts, pins, blocks, scores)
   is a `DataDelta` against the revision's `parent` (the first revision holds it whole): each
   list stores its new length and the positions whose entry changed, which suits lists that
@@ -200,7 +201,7 @@ class Revision(DocumentModel):
     method: str
     checked: bool
     assignments: ScoreTable
-    """Reviewer position, paper position and score of each assigned pair."""
+    """Reviewer and paper position of each assigned pair (scores come from the data)."""
     data: DataDelta
 
     @field_validator("created_at")
@@ -214,7 +215,7 @@ class Revision(DocumentModel):
         """The revision's plan, given its own data (see `restore_data`)."""
         reviewer = self.assignments.reviewer.astype(np.int64)
         paper = self.assignments.paper.astype(np.int64)
-        value = self.assignments.value
+        value = pair_scores(data.scores, reviewer, paper)
         order = np.lexsort((reviewer, paper))
         assignments = [
             Assignment(paper=data.papers[i].id, reviewer=data.reviewers[j].id, score=float(s))
@@ -250,12 +251,28 @@ def restore_data(revisions: list[Revision], number: int) -> SessionData:
     return data
 
 
+def pair_scores(table: ScoreTable, reviewer: np.ndarray, paper: np.ndarray) -> np.ndarray:
+    """The score of each (reviewer, paper) position pair in `table`, 0 where it has no row."""
+    keys = (reviewer.astype(np.int64) << 32) | paper.astype(np.int64)
+    table_keys = _keys(table)
+    if not len(table_keys):
+        return np.zeros(len(keys))
+    pos = np.minimum(np.searchsorted(table_keys, keys), len(table_keys) - 1)
+    return np.where(table_keys[pos] == keys, table.value[pos], 0.0)
+
+
 def assignment_table(plan: Plan, data: SessionData) -> ScoreTable:
-    """A plan's assignments as a compact table of positions in `data`."""
+    """A plan's assignments as a compact table of positions in `data`.
+
+    The value column is left at 0: a pair's score is the one in the revision's own data (the
+    planner takes it from there, 0 for an unscored pin), so it is looked up on restore rather
+    than stored again. Raises ValueError if a score differs from the data's.
+    """
     rid = {r.id: j for j, r in enumerate(data.reviewers)}
     pid = {p.id: i for i, p in enumerate(data.papers)}
-    return ScoreTable.from_arrays(
-        np.array([rid[a.reviewer] for a in plan.assignments], dtype=np.int32),
-        np.array([pid[a.paper] for a in plan.assignments], dtype=np.int32),
-        np.array([a.score for a in plan.assignments], dtype=np.float64),
-    )
+    reviewer = np.array([rid[a.reviewer] for a in plan.assignments], dtype=np.int32)
+    paper = np.array([pid[a.paper] for a in plan.assignments], dtype=np.int32)
+    given = np.array([a.score for a in plan.assignments], dtype=np.float64)
+    if not np.array_equal(given, pair_scores(data.scores, reviewer, paper)):
+        raise ValueError("the plan's scores differ from the session's score table")
+    return ScoreTable.from_arrays(reviewer, paper, np.zeros(len(reviewer)))
