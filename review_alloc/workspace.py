@@ -50,6 +50,7 @@ from review_alloc.model.history import (
     Revision,
     SessionData,
     assignment_table,
+    rebase_root_scores,
     restore_data,
 )
 from review_alloc.model.plans import PlanFigures
@@ -185,7 +186,9 @@ class Workspace:
             method=plan.method,
             checked=plan.checked,
             assignments=assignment_table(plan, data),
-            data=DataDelta.between(self.data_of(parent) if parent is not None else None, data),
+            data=DataDelta.between(
+                self.data_of(parent) if parent is not None else None, data, s.scores
+            ),
         )
         self._data[number] = data
         f = plan.figures
@@ -240,7 +243,7 @@ class Workspace:
         """The data revision `number` was planned from."""
         self._revision(number)
         if number not in self._data:
-            self._data[number] = restore_data(self.session.revisions, number)
+            self._data[number] = restore_data(self.session.revisions, number, self.session.scores)
         return self._data[number]
 
     def plan_of(self, number: int) -> Plan:
@@ -265,7 +268,12 @@ class Workspace:
         else:
             target = current.parent
         data = self.data_of(target)
-        self.session = s.model_copy(update=data.fields())
+        self.session = s.model_copy(
+            update={
+                **data.fields(),
+                "revisions": rebase_root_scores(s.revisions, s.scores, data.scores),
+            }
+        )
         self._record(
             "undo",
             str(target),
@@ -616,6 +624,15 @@ class Workspace:
         problems = candidate.validation_problems()
         if problems:
             raise ChangeRefused(problems)
+        if "scores" in fields:
+            # The first revision's scores are kept relative to the session's: retake them.
+            candidate = candidate.model_copy(
+                update={
+                    "revisions": rebase_root_scores(
+                        candidate.revisions, self.session.scores, candidate.scores
+                    )
+                }
+            )
         self.session = candidate
         self._record(action, subject, detail, reason=reason, plan=self._pruned_plan())
 

@@ -11,12 +11,16 @@ Storage is compact because a large venue has tens of thousands of assignments pe
   grow at the end and change in place, as papers and reviewers do; scores store the rows
   added or changed and the pairs removed.
 
+The first (root) revision's scores are a delta against the session's *current* score table
+rather than held whole, since a large venue has millions of score rows and they rarely change
+after import; whoever changes `Session.scores` rebases the root (`rebase_root_scores`).
+
 A revision's data is rebuilt by applying the deltas along its parent chain, from the root.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from datetime import datetime
 from typing import Generic, TypeVar
 
@@ -141,9 +145,12 @@ class DataDelta(DocumentModel):
     scores: ScoreDelta | None = None
 
     @classmethod
-    def between(cls, old: SessionData | None, new: SessionData) -> DataDelta:
-        """The delta from `old` (None: nothing, so the delta holds `new` whole) to `new`."""
-        base = old or _EMPTY
+    def between(
+        cls, old: SessionData | None, new: SessionData, current_scores: ScoreTable
+    ) -> DataDelta:
+        """The delta from `old` to `new`; with `old` None (a root) it holds `new` whole, but
+        its scores against `current_scores`."""
+        base = old or replace(_EMPTY, scores=current_scores)
         return cls(
             policy=new.policy if old is None or new.policy != old.policy else None,
             papers=ListDelta[Paper].between(base.papers, new.papers),
@@ -154,11 +161,12 @@ class DataDelta(DocumentModel):
             scores=ScoreDelta.between(base.scores, new.scores),
         )
 
-    def apply(self, old: SessionData | None) -> SessionData:
-        """The data this delta describes, given the parent's (None for a root revision)."""
+    def apply(self, old: SessionData | None, current_scores: ScoreTable) -> SessionData:
+        """The data this delta describes, given the parent's (None for a root revision, whose
+        scores are taken against `current_scores`)."""
         if old is None and self.policy is None:
             raise ValueError("the first revision must hold its policy")
-        base = old or _EMPTY
+        base = old or replace(_EMPTY, scores=current_scores)
         return SessionData(
             policy=self.policy if self.policy is not None else base.policy,
             papers=self.papers.apply(base.papers) if self.papers else base.papers,
@@ -232,7 +240,7 @@ class Revision(DocumentModel):
         )
 
 
-def restore_data(revisions: list[Revision], number: int) -> SessionData:
+def restore_data(revisions: list[Revision], number: int, current_scores: ScoreTable) -> SessionData:
     """Rebuild the data of revision `number` from the deltas along its parent chain."""
     by_number = {r.number: r for r in revisions}
     chain: list[Revision] = []
@@ -246,7 +254,7 @@ def restore_data(revisions: list[Revision], number: int) -> SessionData:
         at = by_number[at].parent
     data: SessionData | None = None
     for revision in reversed(chain):
-        data = revision.data.apply(data)
+        data = revision.data.apply(data, current_scores)
     assert data is not None
     return data
 
@@ -276,3 +284,21 @@ def assignment_table(plan: Plan, data: SessionData) -> ScoreTable:
     if not np.array_equal(given, pair_scores(data.scores, reviewer, paper)):
         raise ValueError("the plan's scores differ from the session's score table")
     return ScoreTable.from_arrays(reviewer, paper, np.zeros(len(reviewer)))
+
+
+def rebase_root_scores(
+    revisions: list[Revision], old_scores: ScoreTable, new_scores: ScoreTable
+) -> list[Revision]:
+    """The revisions with each root's score delta retaken against `new_scores` (the session's
+    score table is changing from `old_scores`), so that every revision keeps its own scores."""
+    if old_scores is new_scores or old_scores == new_scores:
+        return revisions
+    out = []
+    for revision in revisions:
+        if revision.parent is None:
+            delta = revision.data.scores
+            own = delta.apply(old_scores) if delta is not None else old_scores
+            data = revision.data.model_copy(update={"scores": ScoreDelta.between(new_scores, own)})
+            revision = revision.model_copy(update={"data": data})
+        out.append(revision)
+    return out
