@@ -243,7 +243,12 @@ class Workspace:
         """The data revision `number` was planned from."""
         self._revision(number)
         if number not in self._data:
-            self._data[number] = restore_data(self.session.revisions, number, self.session.scores)
+            try:
+                self._data[number] = restore_data(
+                    self.session.revisions, number, self.session.scores
+                )
+            except ValueError as error:
+                raise ChangeRefused([f"revision {number}: {error}"]) from None
         return self._data[number]
 
     def plan_of(self, number: int) -> Plan:

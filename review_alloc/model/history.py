@@ -20,6 +20,7 @@ A revision's data is rebuilt by applying the deltas along its parent chain, from
 
 from __future__ import annotations
 
+import zlib
 from dataclasses import dataclass, replace
 from datetime import datetime
 from typing import Generic, TypeVar
@@ -104,6 +105,14 @@ class ScoreDelta(DocumentModel):
         )
 
 
+def score_digest(table: ScoreTable) -> str:
+    """A CRC-32 of a score table's rows, to tell that a root's base is the table it was."""
+    crc = zlib.crc32(table.reviewer.astype("<i4").tobytes())
+    crc = zlib.crc32(table.paper.astype("<i4").tobytes(), crc)
+    crc = zlib.crc32(table.value.astype("<f8").tobytes(), crc)
+    return f"{len(table)}:{crc:08x}"
+
+
 def _keys(table: ScoreTable) -> np.ndarray:
     return (table.reviewer.astype(np.int64) << 32) | table.paper.astype(np.int64)
 
@@ -143,6 +152,8 @@ class DataDelta(DocumentModel):
     pins: ListDelta[PairRule] | None = None
     blocks: ListDelta[PairRule] | None = None
     scores: ScoreDelta | None = None
+    scores_base: str | None = None
+    """For a root: the digest of the score table its scores are taken against."""
 
     @classmethod
     def between(
@@ -159,6 +170,7 @@ class DataDelta(DocumentModel):
             pins=ListDelta[PairRule].between(base.pins, new.pins),
             blocks=ListDelta[PairRule].between(base.blocks, new.blocks),
             scores=ScoreDelta.between(base.scores, new.scores),
+            scores_base=score_digest(current_scores) if old is None else None,
         )
 
     def apply(self, old: SessionData | None, current_scores: ScoreTable) -> SessionData:
@@ -166,6 +178,11 @@ class DataDelta(DocumentModel):
         scores are taken against `current_scores`)."""
         if old is None and self.policy is None:
             raise ValueError("the first revision must hold its policy")
+        if old is None and self.scores_base != score_digest(current_scores):
+            raise ValueError(
+                "the session's scores were changed outside the workspace; the first revision's "
+                "scores cannot be rebuilt"
+            )
         base = old or replace(_EMPTY, scores=current_scores)
         return SessionData(
             policy=self.policy if self.policy is not None else base.policy,
@@ -298,7 +315,12 @@ def rebase_root_scores(
         if revision.parent is None:
             delta = revision.data.scores
             own = delta.apply(old_scores) if delta is not None else old_scores
-            data = revision.data.model_copy(update={"scores": ScoreDelta.between(new_scores, own)})
+            data = revision.data.model_copy(
+                update={
+                    "scores": ScoreDelta.between(new_scores, own),
+                    "scores_base": score_digest(new_scores),
+                }
+            )
             revision = revision.model_copy(update={"data": data})
         out.append(revision)
     return out

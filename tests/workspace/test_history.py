@@ -247,3 +247,13 @@ def test_score_changes_rebase_the_first_revision_and_survive_reopening(tmp_path:
     third = Workspace.open(path)
     assert third.plan_of(2).model_dump_json() == plan_2
     assert len(third.data_of(2).scores) == len(original) + 3
+
+
+def test_scores_changed_behind_the_workspace_are_detected_not_misread() -> None:
+    ws = Workspace(workshop())
+    ws.solve()
+    table = ws.session.scores
+    shifted = type(table).from_arrays(table.reviewer, table.paper, table.value * 0.5)
+    edited = Workspace(ws.session.model_copy(update={"scores": shifted}))
+    with pytest.raises(ChangeRefused, match="changed outside the workspace"):
+        edited.plan_of(1)
