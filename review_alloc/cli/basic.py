@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import sys
 from collections.abc import Callable
 from pathlib import Path
 
@@ -46,6 +47,9 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
 
     p = sub.add_parser("plan", help="make the optimal plan and save it in the session")
     p.add_argument("session", type=Path)
+    p.add_argument(
+        "--fresh", action="store_true", help="ignore the earlier plan (keep none of its pairs)"
+    )
     p.add_argument("--json", action="store_true", help="print one JSON object")
     add_rule_flags(p)
 
@@ -221,15 +225,35 @@ def _cmd_import(args: argparse.Namespace) -> int:
 
 
 def _cmd_plan(args: argparse.Namespace) -> int:
+    from review_alloc.flow import kernels_ready
     from review_alloc.plan import plan_summary
+    from review_alloc.workspace import Workspace
 
-    session = solve(_with_rules(load_session(args.session), args))
-    save_session(session, args.session)
+    # Through the Workspace so that the plan keeps earlier pairs and becomes a revision.
+    ws = Workspace.open(args.session)
+    changes = rule_overrides(args)
+    if changes:
+        ws.set_policy(changes, reason="plan options")
+    if not kernels_ready():
+        print("Preparing the solver (first run on this machine)...", file=sys.stderr)
+    ws.solve(fresh=args.fresh)
+    ws.save()
+    session = ws.session
     summary = plan_summary(session, session.plan)
+    revision = ws.revisions[-1]
+    summary["revision"] = revision.number
+    summary["kept"] = revision.kept
     if args.json:
         emit_json(summary)
     else:
         lines = summary_lines(session, summary, str(args.session))
+        if revision.kept is not None:
+            lines.insert(
+                1,
+                f"  revision {revision.number}: kept {revision.kept} of the "
+                f"{revision.parent_pairs} pairs of revision {revision.parent}"
+                + (" (fresh plan)" if revision.fresh else ""),
+            )
         print("\n".join([*lines[:-1], *rule_lines(summary), lines[-1]]))
     return EXIT_OK
 

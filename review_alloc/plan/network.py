@@ -7,11 +7,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from review_alloc.model import Session
+from review_alloc.model import Plan, Session
 from review_alloc.plan.conflicts import ConflictSet, conflict_pairs, normalise_institution
 from review_alloc.plan.eligibility import rule_failures
 from review_alloc.plan.errors import PlanInputError
 from review_alloc.plan.figures import active_demands
+from review_alloc.plan.keep import earlier_pair_mask
 from review_alloc.plan.overload import add_overload_arcs, overload_allowances
 
 SCORE_RESOLUTION = 10_000
@@ -24,21 +25,6 @@ MAX_CANDIDATE_PAIRS = 60_000_000
 _COST_LIMIT = 2**62
 
 
-def tier_weights(max_pair_arcs_in_cycle: int, max_score: int) -> tuple[int, int, int]:
-    """Weights (required, coverage, floors) that make one min-cost flow lexicographic.
-
-    An optimal flow has no negative residual cycle, and every flow difference splits into simple
-    residual cycles. A simple cycle passes the sink and the source at most once each, so it changes
-    each tier count by at most one, and it holds at most `max_pair_arcs_in_cycle` pair arcs, so it
-    changes the total score by at most that many times `max_score`. With each weight larger than
-    everything below it can move in one cycle, no cycle can trade a higher tier for lower ones.
-    """
-    floors = max_pair_arcs_in_cycle * max_score + 1
-    coverage = 2 * floors
-    required = 2 * coverage
-    return required, coverage, floors
-
-
 @dataclass(frozen=True)
 class TierWeights:
     """Cost weights of the tiers above the score, highest first (see `constraint_weights`)."""
@@ -48,6 +34,7 @@ class TierWeights:
     coverage: int
     overload: int
     floors: int
+    keep: int = 0
 
 
 def constraint_weights(
@@ -57,23 +44,39 @@ def constraint_weights(
     balance_spread: int,
     *,
     overload: bool = False,
+    keep: bool = False,
 ) -> TierWeights:
-    """Weights for required > seniors > coverage > (least overload) > floors > (score - balance).
+    """Weights for required > seniors > coverage > (least overload) > floors > (kept) > score.
 
-    The argument of `tier_weights` extended: a simple residual cycle passes the source and the
-    sink once, so it moves required coverage, coverage, overload and floors by at most one each,
+    Why one min-cost flow is then lexicographic: an optimal flow has no negative residual cycle,
+    and every flow difference splits into simple residual cycles. With each weight larger than
+    everything below it can move in one simple cycle, no cycle can trade a higher tier for lower
+    ones. A simple cycle holds at most `max_pair_arcs_in_cycle` pair arcs, so it changes the score
+    by at most that many times `max_score`; it passes the source and the sink once, so it moves
+    required coverage, coverage, overload and floors by at most one each,
     and it changes the balance penalty by at most `balance_spread` (two source arcs). It may pass
     many papers' senior nodes, but each one once and each beside a reviewer, moving the senior
     tier by at most min(`senior_nodes`, pair arcs in the cycle); the required weight outweighs
     all of that. The overload tier exists only when some reviewer may go above cap.
+
+    A re-plan (`keep`) adds the kept-earlier-pairs tier between floors and score: each kept
+    pair is worth more than a cycle can change score and balance together, and a cycle changes
+    the kept count by at most its pair arcs, so the floors weight covers that many kept pairs.
     """
-    floors = max_pair_arcs_in_cycle * max_score + balance_spread + 1
+    below = max_pair_arcs_in_cycle * max_score + balance_spread + 1
+    kept = below if keep else 0
+    floors = max_pair_arcs_in_cycle * kept + below
     over = 2 * floors if overload else 0
     coverage = 2 * (over or floors)
     seniors = 2 * coverage
     required = (min(senior_nodes, max_pair_arcs_in_cycle) + 1) * seniors
     return TierWeights(
-        required=required, seniors=seniors, coverage=coverage, overload=over, floors=floors
+        required=required,
+        seniors=seniors,
+        coverage=coverage,
+        overload=over,
+        floors=floors,
+        keep=kept,
     )
 
 
@@ -142,6 +145,11 @@ class PlanNetwork:
     part_senior: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
     part_institution: tuple[str, ...] = ()
     balance_step: int = 0
+    kept: np.ndarray | None = None
+    """Per pair arc: True where the earlier plan of a re-plan assigned it (None: fresh plan)."""
+    keep_weight: int = 0
+    resolution: int = SCORE_RESOLUTION
+    """Score steps per unit actually used (coarser only when the tier weights need the room)."""
 
     def paper_node(self, i: np.ndarray | int) -> np.ndarray | int:
         """Node id of paper index i (reviewer j is node 1 + j)."""
@@ -409,12 +417,68 @@ def _institution_groups(
     )
 
 
+def fitting_weights(
+    top_score: float,
+    balance: float,
+    cycle_arcs: int,
+    senior_nodes: int,
+    max_cap: int,
+    total_demand: int,
+    n_nodes: int,
+    *,
+    overload: bool,
+    keep: bool,
+) -> tuple[int, TierWeights]:
+    """The finest score resolution (at most SCORE_RESOLUTION) whose tier weights fit int64.
+
+    Every cost sum and potential the engine forms stays below 2**62 when the heaviest path
+    cost times the total demand does. Large venues with a senior rule or a re-plan's keep tier
+    can pass that at 10,000 steps per unit; the score steps are then made coarser (ties finer
+    than a step count as equal) while every count tier stays exact, and the plan's method says
+    so. A session that does not fit even at one step per unit is refused.
+    """
+
+    def weights(steps: int) -> TierWeights:
+        step = int(round(balance * steps))
+        return constraint_weights(
+            cycle_arcs,
+            int(np.rint(top_score * steps)),
+            senior_nodes,
+            2 * step * max(max_cap - 1, 0),
+            overload=overload,
+            keep=keep,
+        )
+
+    per_arc = _COST_LIMIT // (4 * n_nodes + 8)  # the engine's bound, so potentials cannot overflow
+
+    def fits(steps: int) -> bool:
+        w = weights(steps)
+        heaviest = w.required + w.coverage + int(np.rint(top_score * steps)) + w.keep
+        return heaviest <= per_arc and heaviest * max(total_demand, 1) * 4 < _COST_LIMIT
+
+    if fits(SCORE_RESOLUTION):
+        return SCORE_RESOLUTION, weights(SCORE_RESOLUTION)
+    if not fits(1):
+        raise PlanInputError(
+            [
+                "scores: the objective's weights are too large to plan exactly (a wide score "
+                "range, or very many papers with a senior rule); rescale scores to 0..1"
+            ]
+        )
+    low, high = 1, SCORE_RESOLUTION  # fits(low), not fits(high): the weights grow with steps
+    while high - low > 1:
+        mid = (low + high) // 2
+        low, high = (mid, high) if fits(mid) else (low, mid)
+    return low, weights(low)
+
+
 def build_network(
     session: Session,
     *,
     institution_split: Mapping[tuple[int, str], int] | None = None,
     threshold: float | None = None,
     conflicts: ConflictSet | None = None,
+    earlier: Plan | None = None,
 ) -> PlanNetwork:
     """Build the network: source → reviewer [floor, cap] → (institution group) → (senior node)
     → paper → sink [min, reviews].
@@ -449,25 +513,25 @@ def build_network(
     n_sen, n_grp = len(senior_papers), len(g_paper)
     first_sen, first_grp = sink + 1, sink + 1 + n_sen
 
-    score_int = np.rint(score * SCORE_RESOLUTION).astype(np.int64)
-    max_score = int(score_int.max()) if len(score_int) else 0
-    step = int(round(session.policy.balance * SCORE_RESOLUTION))
-    max_cap = int(cap.max()) if len(cap) else 0
-    tiers = constraint_weights(
-        2 * max(min(n_r, n_p + n_sen + n_grp), 1),
-        max_score,
-        n_sen,
-        2 * step * max(max_cap - 1, 0),
-        overload=bool(overload_allowances(session).any()),
-    )
+    kept = earlier_pair_mask(session, earlier, reviewer, paper) if earlier is not None else None
     total = int(reviews.sum())
-    if (tiers.required + tiers.coverage + max_score) * max(total, 1) * 4 >= _COST_LIMIT:
-        raise PlanInputError(
-            [
-                "scores: the objective's weights are too large to plan exactly (a wide score "
-                "range, or very many papers with a senior rule); rescale scores to 0..1000"
-            ]
-        )
+    max_cap = int(cap.max()) if len(cap) else 0
+    top = float(score.max()) if len(score) else 0.0
+    resolution, tiers = fitting_weights(
+        top,
+        session.policy.balance,
+        2 * max(min(n_r, n_p + n_sen + n_grp), 1),
+        n_sen,
+        max_cap,
+        total,
+        first_grp + n_grp,
+        overload=bool(overload_allowances(session).any()),
+        keep=kept is not None,
+    )
+    score_int = np.rint(score * resolution).astype(np.int64)
+    max_score = int(score_int.max()) if len(score_int) else 0
+    step = int(round(session.policy.balance * resolution))
+    bonus = tiers.keep * kept.astype(np.int64) if kept is not None else 0
 
     blocks = _ArcBlocks()
     floor_arcs, rest_arcs, floor_owner, rest_owner = _source_arcs(
@@ -480,7 +544,11 @@ def build_network(
     head = np.where(pair_senior >= 0, first_sen + pair_senior, p_node)
     head = np.where(pair_group >= 0, first_grp + pair_group, head)
     pair_arcs = blocks.add(
-        1 + reviewer, head, np.ones(len(keys)), max_score - score_int, pinned.astype(np.int64)
+        1 + reviewer,
+        head,
+        np.ones(len(keys)),
+        max_score - score_int - bonus,
+        pinned.astype(np.int64),
     )
 
     p_nodes = 1 + n_r + np.arange(n_p, dtype=np.int64)
@@ -562,6 +630,9 @@ def build_network(
         part_senior=parts.senior,
         part_institution=parts.institution,
         balance_step=step,
+        kept=kept,
+        keep_weight=tiers.keep,
+        resolution=resolution,
     )
     return add_overload_arcs(session, net, tiers.overload)
 

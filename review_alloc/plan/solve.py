@@ -75,7 +75,7 @@ def tier_values(net: PlanNetwork, used: np.ndarray) -> dict[str, float]:
     )
     in_senior = used & (net.pair_senior >= 0)
     seniors = np.bincount(net.pair_senior[in_senior], minlength=len(net.senior_paper))
-    penalty = net.balance_step * float(np.sum(loads * (loads - 1) // 2)) / SCORE_RESOLUTION
+    penalty = net.balance_step * float(np.sum(loads * (loads - 1) // 2)) / net.resolution
     return {
         "required": float(np.minimum(counts, minimum).sum()),
         "seniors": float(np.minimum(seniors, net.senior_need).sum()),
@@ -192,8 +192,15 @@ def _solve_split(
     threshold: float | None,
     split: dict[tuple[int, str], int],
     conflicts: ConflictSet,
+    earlier: Plan | None,
 ) -> _Node:
-    net = build_network(session, institution_split=split, threshold=threshold, conflicts=conflicts)
+    net = build_network(
+        session,
+        institution_split=split,
+        threshold=threshold,
+        conflicts=conflicts,
+        earlier=earlier,
+    )
     result = _run(session, net)
     used = result.flow[net.pair_arcs] > 0
     return _Node(net, result, split, _violated_splits(session, net, used))
@@ -204,6 +211,7 @@ def _solve_rules(
     threshold: float | None,
     split: dict[tuple[int, str], int],
     conflicts: ConflictSet,
+    earlier: Plan | None = None,
 ) -> tuple[PlanNetwork, CostFlowResult, dict[tuple[int, str], int], dict[str, float]]:
     """Solve, with mixed institution groups split exactly by branch and bound where needed.
 
@@ -215,13 +223,13 @@ def _solve_rules(
     `SEARCH_BUDGET`. Returns the network, its result, its split, and the tier values of the best
     remaining bound ({} when the plan is proven optimal).
     """
-    root = _solve_split(session, threshold, dict(split), conflicts)
+    root = _solve_split(session, threshold, dict(split), conflicts, earlier)
     if not root.violated:
         return root.net, root.result, root.split, {}
     best = root
     while best.violated:
         merged = {**best.split, **{key: k for key, (k, _, _) in best.violated.items()}}
-        best = _solve_split(session, threshold, merged, conflicts)
+        best = _solve_split(session, threshold, merged, conflicts, earlier)
     work = 0
     stack: list[tuple[int, dict[str, float], dict[tuple[int, str], int], _Node | None]] = []
 
@@ -241,7 +249,7 @@ def _solve_rules(
         if work + len(root.net.tails) > SEARCH_BUDGET:
             break
         stack.pop()
-        node = _solve_split(session, threshold, child_split, conflicts)
+        node = _solve_split(session, threshold, child_split, conflicts, earlier)
         work += len(node.net.tails)
         if node.result.cost >= best.result.cost:
             continue
@@ -259,6 +267,7 @@ def _bottleneck(
     net: PlanNetwork,
     base: dict[str, float],
     split: dict[tuple[int, str], int],
+    earlier: Plan | None = None,
 ) -> tuple[float | None, PlanNetwork, CostFlowResult, dict[tuple[int, str], int], dict]:
     """The highest score threshold keeping required coverage, seniors and coverage optimal."""
     thresholds = score_thresholds(net)
@@ -271,7 +280,7 @@ def _bottleneck(
     top = highest_threshold(thresholds, lambda t: coverage_flows(relaxed, t) == target)
 
     def solved(t: float) -> tuple:
-        return _solve_rules(session, t, {}, net.conflicts)
+        return _solve_rules(session, t, {}, net.conflicts, earlier)
 
     def keeps(values: dict[str, float]) -> bool:
         return all(values[k] >= base[k] for k in ("required", "seniors", "coverage"))
@@ -312,17 +321,42 @@ def _decode(session: Session, net: PlanNetwork, result: CostFlowResult, now: dat
     )
 
 
-def make_plan(session: Session, *, now: datetime | None = None) -> PlanOutcome:
-    """Solve the session's lexicographic objective exactly and return the checked plan."""
-    net, result, split, bound = _solve_rules(session, None, {}, conflict_pairs(session))
+def make_plan(
+    session: Session,
+    *,
+    fresh: bool = False,
+    earlier: Plan | None = None,
+    now: datetime | None = None,
+) -> PlanOutcome:
+    """Solve the session's lexicographic objective exactly and return the checked plan.
+
+    A re-plan keeps the pairs of `earlier` (default: the session's current plan) as a tier just
+    above score, so it moves as few reviews as coverage and floors allow; `fresh` ignores it.
+    """
+    keep_from = None if fresh else (earlier if earlier is not None else session.plan)
+    net, result, split, bound = _solve_rules(
+        session, None, {}, conflict_pairs(session), keep_from
+    )
     bottleneck = None
     if session.policy.bottleneck:
         base = tier_values(net, result.flow[net.pair_arcs] > 0)
-        bottleneck, net, result, split, bound = _bottleneck(session, net, base, split)
+        bottleneck, net, result, split, bound = _bottleneck(session, net, base, split, keep_from)
     used = result.flow[net.pair_arcs] > 0
     final = tier_values(net, used)
     relaxed = bound if bound != final else {}
     plan = _decode(session, net, result, now or datetime.now(UTC))
+    if net.kept is not None or net.resolution != SCORE_RESOLUTION:
+        plan = plan.model_copy(
+            update={
+                "method": plan.method
+                + (", keeping earlier pairs" if net.kept is not None else "")
+                + (
+                    f", scores in steps of 1/{net.resolution} to fit the tier weights"
+                    if net.resolution != SCORE_RESOLUTION
+                    else ""
+                )
+            }
+        )
     leads = pick_leads(session, plan) if session.policy.max_leads > 0 else None
     if leads is not None:
         plan = with_leads(plan, leads)
@@ -332,7 +366,7 @@ def make_plan(session: Session, *, now: datetime | None = None) -> PlanOutcome:
         plain = session.model_copy(
             update={"policy": session.policy.model_copy(update={"balance": 0.0, "max_leads": 0})}
         )
-        other = make_plan(plain, now=now)
+        other = make_plan(plain, fresh=fresh, earlier=earlier, now=now)
         before = np.bincount(
             [session.reviewer_index()[a.reviewer] for a in other.plan.assignments],
             minlength=len(session.reviewers),

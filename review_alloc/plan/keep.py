@@ -1,0 +1,37 @@
+"""The "keep earlier pairs" tier of a re-plan: which pair arcs were in the earlier plan, and how
+much each is worth so that keeping one outranks any score but never any floor or coverage.
+
+A re-plan ranks required coverage, total coverage and floors first, then the number of pairs of
+the earlier plan it keeps, then total score. The tier is a bonus on the pair arcs of earlier
+pairs, so it only changes costs; `plan.network` adds it with one hook and widens the weights
+above it (see `plan.network.constraint_weights` and `fitting_weights`).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from review_alloc.model import Plan, Session
+
+
+def earlier_pair_mask(
+    session: Session, earlier: Plan | None, reviewer: np.ndarray, paper: np.ndarray
+) -> np.ndarray:
+    """True for each pair arc (reviewer, paper index arrays) that the earlier plan assigned.
+
+    Pairs of the earlier plan whose ids no longer exist are skipped: they cannot be kept.
+    """
+    mask = np.zeros(len(reviewer), dtype=bool)
+    if earlier is None or not earlier.assignments or not len(reviewer):
+        return mask
+    rid, pid = session.reviewer_index(), session.paper_index()
+    n_p = max(len(session.papers), 1)
+    known = [
+        rid[a.reviewer] * n_p + pid[a.paper]
+        for a in earlier.assignments
+        if a.reviewer in rid and a.paper in pid
+    ]
+    if not known:
+        return mask
+    keys = reviewer.astype(np.int64) * n_p + paper.astype(np.int64)
+    return np.isin(keys, np.array(known, dtype=np.int64))
