@@ -30,6 +30,7 @@ from numba import njit
 from review_alloc.flow.circulation import violated_cut
 from review_alloc.flow.costscaling import cost_scaling_kernel, exact_potentials
 from review_alloc.flow.dinic import bfs_levels, blocking_flow, dinic
+from review_alloc.flow.mincost_heap import heap_pop, heap_push
 from review_alloc.flow.network import ResidualNetwork, build_with_terminals, net_outflow
 from review_alloc.flow.results import CostFlowResult, FlowInputError, InfeasibleError
 from review_alloc.flow.validate import (
@@ -41,51 +42,22 @@ from review_alloc.flow.validate import (
 )
 
 COST_METHODS = ("auto", "cost-scaling", "primal-dual")
-"""Algorithms `min_cost_flow(method=...)` accepts; "auto" is cost scaling, or primal-dual when
-warm-started."""
+"""Algorithms `min_cost_flow(method=...)` accepts for a cold solve; "auto" is cost scaling
+(primal-dual where scaled prices could overflow int64). A warm start always tries the
+primal-dual method first."""
 
-SCALING_ALPHA = 16
-"""Cost scaling divides its tolerance by this much per phase (fewer, longer phases than 2)."""
+SCALING_ALPHA = 8
+"""Cost scaling divides its tolerance by this much per phase (chosen by the benchmarks)."""
+
+WARM_WORK_LIMIT = 40
+"""A warm start gives up (and the cold solver takes over) once its shortest-path searches have
+scanned this many times the arcs of the network: by then cost scaling would be done."""
+
+PRICE_UPDATE_EVERY = 0
+"""Global price updates every this many times n relabels (0: off; they did not pay on the
+benchmark instances, where push look-ahead already keeps relabels low)."""
 
 _INF = np.iinfo(np.int64).max
-
-
-@njit(cache=True, nogil=True)
-def _heap_push(keys: np.ndarray, nodes: np.ndarray, size: int, key: int, node: int) -> int:
-    i = size
-    while i > 0:
-        parent = (i - 1) >> 1
-        if keys[parent] <= key:
-            break
-        keys[i] = keys[parent]
-        nodes[i] = nodes[parent]
-        i = parent
-    keys[i] = key
-    nodes[i] = node
-    return size + 1
-
-
-@njit(cache=True, nogil=True)
-def _heap_pop(keys: np.ndarray, nodes: np.ndarray, size: int) -> tuple[int, int, int]:
-    top_key, top_node = keys[0], nodes[0]
-    size -= 1
-    key, node = keys[size], nodes[size]
-    i = 0
-    while True:
-        child = 2 * i + 1
-        if child >= size:
-            break
-        if child + 1 < size and keys[child + 1] < keys[child]:
-            child += 1
-        if keys[child] >= key:
-            break
-        keys[i] = keys[child]
-        nodes[i] = nodes[child]
-        i = child
-    if size > 0:
-        keys[i] = key
-        nodes[i] = node
-    return top_key, top_node, size
 
 
 @njit(cache=True, nogil=True)
@@ -101,23 +73,25 @@ def dijkstra(
     done: np.ndarray,
     heap_keys: np.ndarray,
     heap_nodes: np.ndarray,
+    work: np.ndarray,
 ) -> bool:
     """Reduced-cost distances from source over residual arcs, settled up to the sink.
 
     Returns whether the sink was reached; nodes not settled keep a tentative distance (or INF)
-    that is at least the sink's.
+    that is at least the sink's. Adds the number of arcs scanned to `work[0]`.
     """
     dist[:] = _INF
     done[:] = False
     dist[source] = 0
-    size = _heap_push(heap_keys, heap_nodes, 0, 0, source)
+    size = heap_push(heap_keys, heap_nodes, 0, 0, source)
     while size > 0:
-        d, u, size = _heap_pop(heap_keys, heap_nodes, size)
+        d, u, size = heap_pop(heap_keys, heap_nodes, size)
         if done[u]:
             continue
         done[u] = True
         if u == sink:
             return True
+        work[0] += start[u + 1] - start[u]
         for a in range(start[u], start[u + 1]):
             if cap[a] > 0:
                 v = head[a]
@@ -125,7 +99,7 @@ def dijkstra(
                     candidate = d + cost[a] + pot[u] - pot[v]
                     if candidate < dist[v]:
                         dist[v] = candidate
-                        size = _heap_push(heap_keys, heap_nodes, size, candidate, v)
+                        size = heap_push(heap_keys, heap_nodes, size, candidate, v)
     return False
 
 
@@ -140,8 +114,13 @@ def primal_dual_kernel(
     source: int,
     sink: int,
     demand: int,
-) -> tuple[int, int]:
-    """Route up to `demand` units source -> sink at least cost; return (routed, Dijkstra rounds)."""
+    budget: int,
+) -> tuple[int, int, bool]:
+    """Route up to `demand` units source -> sink at least cost.
+
+    Returns (routed, Dijkstra rounds, whether it gave up): with `budget` > 0 it stops once its
+    Dijkstra searches have scanned more arcs than that.
+    """
     n = start.size - 1
     dist = np.empty(n, dtype=np.int64)
     done = np.empty(n, dtype=np.bool_)
@@ -151,11 +130,14 @@ def primal_dual_kernel(
     queue = np.empty(n, dtype=np.int64)
     it = np.empty(n, dtype=np.int64)
     stack = np.empty(n, dtype=np.int64)
+    work = np.zeros(1, dtype=np.int64)
     routed = 0
     rounds = 0
     while routed < demand:
+        if budget > 0 and work[0] > budget:
+            return routed, rounds, True
         if not dijkstra(
-            start, head, cap, cost, pot, source, sink, dist, done, heap_keys, heap_nodes
+            start, head, cap, cost, pot, source, sink, dist, done, heap_keys, heap_nodes, work
         ):
             break
         rounds += 1
@@ -170,7 +152,7 @@ def primal_dual_kernel(
             routed += blocking_flow(
                 start, head, cap, rev, source, sink, level, it, stack, cost, pot
             )
-    return routed, rounds
+    return routed, rounds, False
 
 
 def _total_cost(flow: np.ndarray, costs: np.ndarray) -> int:
@@ -223,9 +205,12 @@ def _infeasible(net: ResidualNetwork, n: int, demand: int, routed: int) -> Infea
 
 
 def _primal_dual(
-    edges: EdgeArrays, need: np.ndarray, base_flow: np.ndarray, pot: np.ndarray
-) -> tuple[ResidualNetwork, np.ndarray]:
-    """Primal-dual from `base_flow` and potentials `pot`; return the network and potentials."""
+    edges: EdgeArrays, need: np.ndarray, base_flow: np.ndarray, pot: np.ndarray, budget: int = 0
+) -> tuple[ResidualNetwork, np.ndarray] | None:
+    """Primal-dual from `base_flow` and potentials `pot`; return the network and potentials.
+
+    Returns None if the searches scanned more than `budget` arcs (when `budget` > 0).
+    """
     n = edges.n
     costs = cast(np.ndarray, edges.costs)
     reduced = costs + pot[edges.tails] - pot[edges.heads]
@@ -241,13 +226,42 @@ def _primal_dual(
     senders, receivers = excess > 0, excess < 0
     potentials[n] = int(pot[senders].max()) if senders.any() else 0
     potentials[n + 1] = int(pot[receivers].min()) if receivers.any() else 0
-    routed, _ = primal_dual_kernel(
+    routed, _, gave_up = primal_dual_kernel(
         net.start, net.head, net.cap, net.rev, net.cost, potentials,
-        np.int64(n), np.int64(n + 1), np.int64(demand),
+        np.int64(n), np.int64(n + 1), np.int64(demand), np.int64(budget),
     )
+    if gave_up:
+        return None
     if routed < demand:
         raise _infeasible(net, n, demand, routed)
     return net, potentials[:n].copy()
+
+
+def _warm_primal_dual(
+    edges: EdgeArrays, need: np.ndarray, base_flow: np.ndarray, pot: np.ndarray
+) -> tuple[ResidualNetwork, np.ndarray] | None:
+    """Primal-dual from a previous flow, searching from the deficits on the reversed network.
+
+    After a small change the deficits are few and local (the papers that lost a reviewer),
+    while the excess sits at hubs such as the planner's source, from which every search would
+    spread over the whole graph. Reversing every edge swaps the two roles: flows stay, supplies
+    and potentials change sign. Returns None when the supplies cannot be met, so that the cold
+    path can report the cut in the original orientation.
+    """
+    flipped = EdgeArrays(
+        n=edges.n, tails=edges.heads, heads=edges.tails, upper=edges.upper, lower=edges.lower,
+        costs=edges.costs,
+    )
+    # A change that is not small enough to pay off is handed to the cold solver.
+    budget = WARM_WORK_LIMIT * (2 * len(edges.tails) + edges.n)
+    try:
+        solved = _primal_dual(flipped, -need, base_flow, -pot, budget)
+    except InfeasibleError:
+        return None
+    if solved is None:
+        return None
+    net, potentials = solved
+    return net, -potentials
 
 
 def _cost_scaling(edges: EdgeArrays, need: np.ndarray) -> tuple[ResidualNetwork, np.ndarray] | None:
@@ -269,7 +283,8 @@ def _cost_scaling(edges: EdgeArrays, need: np.ndarray) -> tuple[ResidualNetwork,
     prices = np.zeros(n + 2, dtype=np.int64)
     ok, _, _ = cost_scaling_kernel(
         net.start, net.head, net.cap, net.rev, net.cost, prices,
-        np.int64(factor), np.int64(SCALING_ALPHA), np.int64(0),
+        np.int64(factor), np.int64(SCALING_ALPHA), np.int64(0), True,
+        np.int64(PRICE_UPDATE_EVERY),
     )
     if not ok:
         return None
@@ -299,7 +314,8 @@ def min_cost_flow(
     are allowed (a negative one is optimally saturated). The result's potentials certify
     optimality (see `CostFlowResult`). Raises `InfeasibleError` with a cut when the supplies
     cannot be met. `method` picks the algorithm (`COST_METHODS`); `warm` restarts the
-    primal-dual method from a previous flow and potentials, which pays off after small changes.
+    primal-dual method from a previous flow and potentials, which pays off after small changes
+    (after a large one it gives up early and the cold `method` solves instead).
     """
     if method not in COST_METHODS:
         choices = ", ".join(repr(m) for m in COST_METHODS)
@@ -310,13 +326,15 @@ def min_cost_flow(
     costs_in = cast(np.ndarray, edges.costs)  # check_edges returns the costs it was given
 
     solved = None
-    if warm is not None and method != "cost-scaling":
+    if warm is not None:
         flow, pot = _check_warm(warm, len(edges.tails), n)
-        solved = _primal_dual(edges, need, np.clip(flow, edges.lower, edges.upper), pot)
-    elif method != "primal-dual":
+        solved = _warm_primal_dual(edges, need, np.clip(flow, edges.lower, edges.upper), pot)
+    if solved is None and method != "primal-dual":
         solved = _cost_scaling(edges, need)
     if solved is None:
         solved = _primal_dual(edges, need, edges.lower, np.zeros(n, dtype=np.int64))
+    if solved is None:  # only a budget makes the primal-dual method give up, and none was set
+        raise AssertionError("the primal-dual method gave up without a work budget")
     net, potentials = solved
     flow = net.edge_flow(edges.lower)
     return CostFlowResult(flow=flow, cost=_total_cost(flow, costs_in), potentials=potentials)
