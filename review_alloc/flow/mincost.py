@@ -49,7 +49,7 @@ primal-dual method first."""
 SCALING_ALPHA = 8
 """Cost scaling divides its tolerance by this much per phase (chosen by the benchmarks)."""
 
-WARM_WORK_LIMIT = 40
+WARM_WORK_LIMIT = 20
 """A warm start gives up (and the cold solver takes over) once its shortest-path searches have
 scanned this many times the arcs of the network: by then cost scaling would be done."""
 

@@ -93,8 +93,12 @@ def make_plan(
     score = net.pair_score[chosen]
     order = np.lexsort((reviewer, paper))
     reviewer, paper, score = reviewer[order], paper[order], score[order]
+    # The ids come from the validated session and the scores from its validated table, so
+    # re-validating thousands of rows would only slow every re-plan down.
+    paper_ids = [p.id for p in session.papers]
+    reviewer_ids = [r.id for r in session.reviewers]
     assignments = [
-        Assignment(paper=session.papers[i].id, reviewer=session.reviewers[j].id, score=float(s))
+        Assignment.model_construct(paper=paper_ids[i], reviewer=reviewer_ids[j], score=float(s))
         for j, i, s in zip(reviewer.tolist(), paper.tolist(), score.tolist(), strict=True)
     ]
     plan = Plan(
