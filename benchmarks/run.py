@@ -193,7 +193,11 @@ def bench_instance(family: str, size: str, repeats: int) -> list[dict[str, Any]]
     after = make_session(inst, withdrawn=withdrawal(inst))
     cold_t, cold = median_time(lambda: make_plan(after), repeats)
     warm_t, warm = median_time(lambda: make_plan(after, warm=outcome), repeats)
-    assert warm.plan.figures == cold.plan.figures
+    w, c = warm.plan.figures, cold.plan.figures
+    # Equal optima; the score sums may differ in the last bits when ties are broken apart.
+    assert (w.required_coverage, w.coverage, w.floors_met) == (
+        c.required_coverage, c.coverage, c.floors_met)
+    assert abs(w.total_score - c.total_score) <= 1e-6 * max(1.0, abs(c.total_score))
     row("re-plan, 1% withdrawn", warm_t, "cold plan", cold_t)
     return rows
 

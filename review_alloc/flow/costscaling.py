@@ -238,6 +238,8 @@ def cost_scaling_kernel(
                                 current[v] = start[v]
                                 relabels += 1
                                 since_update += 1
+                                if price[v] < -PRICE_LIMIT:
+                                    return False, phases, relabels
                                 continue
                             d = min(r, excess[u])
                             cap[a] -= d
