@@ -106,6 +106,8 @@ class Workspace:
         self.dirty = False
         # Rebuilt revision data by number; revisions never change, so this never goes stale.
         self._data: dict[int, SessionData] = {}
+        self.last_outcome: PlanOutcome | None = None
+        """The latest plan's outcome: its flow and potentials warm-start the next solve."""
 
     @classmethod
     def open(cls, path: Path) -> Workspace:
@@ -145,7 +147,9 @@ class Workspace:
         snapshot = self.session
         if progress:
             progress("building the network and solving")
-        outcome = make_plan(snapshot, fresh=fresh, earlier=self.earlier_plan())
+        outcome = make_plan(
+            snapshot, fresh=fresh, earlier=self.earlier_plan(), warm=self.last_outcome
+        )
         self.install_plan(outcome, snapshot)
         return outcome
 
@@ -159,6 +163,7 @@ class Workspace:
         """Install a plan made from `planned` as a new revision; refused if the session changed."""
         if planned is not self.session:
             raise ChangeRefused(["the session changed while the plan was being made; plan again"])
+        self.last_outcome = outcome
         s = self.session
         plan = outcome.plan
         data = _data_of(s)

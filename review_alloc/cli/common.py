@@ -48,11 +48,13 @@ def noun(session: Session) -> str:
 
 def solve(session: Session) -> Session:
     """Plan the session and return it with the new, checked plan in place."""
-    from review_alloc.flow import kernels_ready
+    from review_alloc.flow import solver_cache_ready, warm_up
     from review_alloc.plan import make_plan
 
-    if not kernels_ready():
+    if not solver_cache_ready():
+        # Only a cold on-disk cache costs seconds of compiling; say so once, then fill it.
         print("Preparing the solver (first run on this machine)...", file=sys.stderr)
+        warm_up()
     outcome = make_plan(session)
     return session.model_copy(update={"plan": outcome.plan})
 

@@ -19,7 +19,7 @@ from review_alloc.flow.checks import (  # noqa: E402
 )
 from review_alloc.flow.circulation import feasible_circulation  # noqa: E402
 from review_alloc.flow.maxflow import METHODS, max_flow  # noqa: E402
-from review_alloc.flow.mincost import min_cost_flow  # noqa: E402
+from review_alloc.flow.mincost import COST_METHODS, WarmStart, min_cost_flow  # noqa: E402
 from review_alloc.flow.results import (  # noqa: E402
     CostFlowResult,
     FlowCheckError,
@@ -28,9 +28,10 @@ from review_alloc.flow.results import (  # noqa: E402
     FlowResult,
     InfeasibleError,
 )
-from review_alloc.flow.warm import kernels_ready, warm_up  # noqa: E402
+from review_alloc.flow.warm import kernels_ready, solver_cache_ready, warm_up  # noqa: E402
 
 __all__ = [
+    "COST_METHODS",
     "METHODS",
     "CostFlowResult",
     "FlowCheckError",
@@ -38,6 +39,7 @@ __all__ = [
     "FlowInputError",
     "FlowResult",
     "InfeasibleError",
+    "WarmStart",
     "check_cost_certificate",
     "check_cut",
     "check_flow",
@@ -46,5 +48,6 @@ __all__ = [
     "kernels_ready",
     "max_flow",
     "min_cost_flow",
+    "solver_cache_ready",
     "warm_up",
 ]

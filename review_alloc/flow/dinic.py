@@ -16,7 +16,7 @@ from review_alloc.flow.network import ResidualNetwork
 _INF = np.iinfo(np.int64).max
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _usable(
     a: int, u: int, v: int, cap: np.ndarray, cost: np.ndarray | None, pot: np.ndarray | None
 ) -> bool:
@@ -27,7 +27,7 @@ def _usable(
     return cost[a] + pot[u] - pot[v] == 0
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def bfs_levels(
     start: np.ndarray,
     head: np.ndarray,
@@ -62,7 +62,7 @@ def bfs_levels(
     return False
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def blocking_flow(
     start: np.ndarray,
     head: np.ndarray,
@@ -123,7 +123,7 @@ def blocking_flow(
             it[u] += 1
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def dinic_kernel(
     start: np.ndarray,
     head: np.ndarray,
@@ -149,7 +149,7 @@ def dinic_kernel(
     return value, phases
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def reachable_kernel(
     start: np.ndarray, head: np.ndarray, cap: np.ndarray, source: int
 ) -> np.ndarray:

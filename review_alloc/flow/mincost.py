@@ -1,4 +1,10 @@
-"""Minimum-cost flow by the primal-dual method, with Dinic blocking flows on the admissible graph.
+"""Minimum-cost flow: the front door, and the primal-dual method used for warm starts.
+
+`min_cost_flow` solves cold by cost scaling (see `costscaling.py`): Dinic routes the supplies to
+a feasible flow, push-relabel phases make it optimal, and a shortest-path pass turns the scaled
+prices into exact integer potentials. The primal-dual method below serves warm starts (a few
+units to re-route from near-optimal potentials) and is the fallback where scaled prices could
+overflow:
 
 1. Lower bounds move into the supplies: every edge starts at its lower bound.
 2. Every negative-cost edge starts saturated instead, so every residual arc costs >= 0 and zero
@@ -15,59 +21,46 @@ optimality on the original edges once the super nodes are dropped.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from typing import Any, cast
 
 import numpy as np
 from numba import njit
 
 from review_alloc.flow.circulation import violated_cut
-from review_alloc.flow.dinic import bfs_levels, blocking_flow
-from review_alloc.flow.network import build_with_terminals, net_outflow
-from review_alloc.flow.results import CostFlowResult, InfeasibleError
-from review_alloc.flow.validate import check_edges, check_n, check_supplies
+from review_alloc.flow.costscaling import cost_scaling_kernel, exact_potentials
+from review_alloc.flow.dinic import bfs_levels, blocking_flow, dinic
+from review_alloc.flow.mincost_heap import heap_pop, heap_push
+from review_alloc.flow.network import ResidualNetwork, build_with_terminals, net_outflow
+from review_alloc.flow.results import CostFlowResult, FlowInputError, InfeasibleError
+from review_alloc.flow.validate import (
+    EdgeArrays,
+    as_int_array,
+    check_edges,
+    check_n,
+    check_supplies,
+)
+
+COST_METHODS = ("auto", "cost-scaling", "primal-dual")
+"""Algorithms `min_cost_flow(method=...)` accepts for a cold solve; "auto" is cost scaling
+(primal-dual where scaled prices could overflow int64). A warm start always tries the
+primal-dual method first."""
+
+SCALING_ALPHA = 8
+"""Cost scaling divides its tolerance by this much per phase (chosen by the benchmarks)."""
+
+WARM_WORK_LIMIT = 20
+"""A warm start gives up (and the cold solver takes over) once its shortest-path searches have
+scanned this many times the arcs of the network: by then cost scaling would be done."""
+
+PRICE_UPDATE_EVERY = 0
+"""Global price updates every this many times n relabels (0: off; they did not pay on the
+benchmark instances, where push look-ahead already keeps relabels low)."""
 
 _INF = np.iinfo(np.int64).max
 
 
-@njit(cache=True)
-def _heap_push(keys: np.ndarray, nodes: np.ndarray, size: int, key: int, node: int) -> int:
-    i = size
-    while i > 0:
-        parent = (i - 1) >> 1
-        if keys[parent] <= key:
-            break
-        keys[i] = keys[parent]
-        nodes[i] = nodes[parent]
-        i = parent
-    keys[i] = key
-    nodes[i] = node
-    return size + 1
-
-
-@njit(cache=True)
-def _heap_pop(keys: np.ndarray, nodes: np.ndarray, size: int) -> tuple[int, int, int]:
-    top_key, top_node = keys[0], nodes[0]
-    size -= 1
-    key, node = keys[size], nodes[size]
-    i = 0
-    while True:
-        child = 2 * i + 1
-        if child >= size:
-            break
-        if child + 1 < size and keys[child + 1] < keys[child]:
-            child += 1
-        if keys[child] >= key:
-            break
-        keys[i] = keys[child]
-        nodes[i] = nodes[child]
-        i = child
-    if size > 0:
-        keys[i] = key
-        nodes[i] = node
-    return top_key, top_node, size
-
-
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def dijkstra(
     start: np.ndarray,
     head: np.ndarray,
@@ -80,23 +73,25 @@ def dijkstra(
     done: np.ndarray,
     heap_keys: np.ndarray,
     heap_nodes: np.ndarray,
+    work: np.ndarray,
 ) -> bool:
     """Reduced-cost distances from source over residual arcs, settled up to the sink.
 
     Returns whether the sink was reached; nodes not settled keep a tentative distance (or INF)
-    that is at least the sink's.
+    that is at least the sink's. Adds the number of arcs scanned to `work[0]`.
     """
     dist[:] = _INF
     done[:] = False
     dist[source] = 0
-    size = _heap_push(heap_keys, heap_nodes, 0, 0, source)
+    size = heap_push(heap_keys, heap_nodes, 0, 0, source)
     while size > 0:
-        d, u, size = _heap_pop(heap_keys, heap_nodes, size)
+        d, u, size = heap_pop(heap_keys, heap_nodes, size)
         if done[u]:
             continue
         done[u] = True
         if u == sink:
             return True
+        work[0] += start[u + 1] - start[u]
         for a in range(start[u], start[u + 1]):
             if cap[a] > 0:
                 v = head[a]
@@ -104,11 +99,11 @@ def dijkstra(
                     candidate = d + cost[a] + pot[u] - pot[v]
                     if candidate < dist[v]:
                         dist[v] = candidate
-                        size = _heap_push(heap_keys, heap_nodes, size, candidate, v)
+                        size = heap_push(heap_keys, heap_nodes, size, candidate, v)
     return False
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def primal_dual_kernel(
     start: np.ndarray,
     head: np.ndarray,
@@ -119,8 +114,13 @@ def primal_dual_kernel(
     source: int,
     sink: int,
     demand: int,
-) -> tuple[int, int]:
-    """Route up to `demand` units source -> sink at least cost; return (routed, Dijkstra rounds)."""
+    budget: int,
+) -> tuple[int, int, bool]:
+    """Route up to `demand` units source -> sink at least cost.
+
+    Returns (routed, Dijkstra rounds, whether it gave up): with `budget` > 0 it stops once its
+    Dijkstra searches have scanned more arcs than that.
+    """
     n = start.size - 1
     dist = np.empty(n, dtype=np.int64)
     done = np.empty(n, dtype=np.bool_)
@@ -130,11 +130,14 @@ def primal_dual_kernel(
     queue = np.empty(n, dtype=np.int64)
     it = np.empty(n, dtype=np.int64)
     stack = np.empty(n, dtype=np.int64)
+    work = np.zeros(1, dtype=np.int64)
     routed = 0
     rounds = 0
     while routed < demand:
+        if budget > 0 and work[0] > budget:
+            return routed, rounds, True
         if not dijkstra(
-            start, head, cap, cost, pot, source, sink, dist, done, heap_keys, heap_nodes
+            start, head, cap, cost, pot, source, sink, dist, done, heap_keys, heap_nodes, work
         ):
             break
         rounds += 1
@@ -149,7 +152,7 @@ def primal_dual_kernel(
             routed += blocking_flow(
                 start, head, cap, rev, source, sink, level, it, stack, cost, pot
             )
-    return routed, rounds
+    return routed, rounds, False
 
 
 def _total_cost(flow: np.ndarray, costs: np.ndarray) -> int:
@@ -163,6 +166,136 @@ def _total_cost(flow: np.ndarray, costs: np.ndarray) -> int:
     )
 
 
+
+
+@dataclass(frozen=True, eq=False)
+class WarmStart:
+    """A previous flow (one value per edge) and potentials (one per node) to restart from.
+
+    They need not fit the new bounds: flows are clipped into them, and arcs whose reduced cost
+    says they are on the wrong side are moved to the right bound before re-routing.
+    """
+
+    flow: np.ndarray
+    potentials: np.ndarray
+
+
+def _check_warm(warm: WarmStart, m: int, n: int) -> tuple[np.ndarray, np.ndarray]:
+    flow = as_int_array("warm.flow", warm.flow)
+    pot = as_int_array("warm.potentials", warm.potentials)
+    if len(flow) != m:
+        raise FlowInputError(f"warm.flow has {len(flow)} entries but there are {m} edges")
+    if len(pot) != n:
+        raise FlowInputError(f"warm.potentials has {len(pot)} entries but n is {n}")
+    # Potentials are differences of path costs; keep them where reduced costs cannot overflow.
+    limit = 2**60
+    if len(pot) and int(np.abs(pot).max()) >= limit:
+        raise FlowInputError(f"warm.potentials must lie between {-limit} and {limit}")
+    return flow, pot
+
+
+def _infeasible(net: ResidualNetwork, n: int, demand: int, routed: int) -> InfeasibleError:
+    side = violated_cut(net, n)
+    return InfeasibleError(
+        f"the supplies cannot be met: {int(side.sum())} nodes must send out {demand - routed} "
+        "more units than the upper bounds of their outgoing edges allow",
+        source_side=side,
+        deficit=demand - routed,
+    )
+
+
+def _primal_dual(
+    edges: EdgeArrays, need: np.ndarray, base_flow: np.ndarray, pot: np.ndarray, budget: int = 0
+) -> tuple[ResidualNetwork, np.ndarray] | None:
+    """Primal-dual from `base_flow` and potentials `pot`; return the network and potentials.
+
+    Returns None if the searches scanned more than `budget` arcs (when `budget` > 0).
+    """
+    n = edges.n
+    costs = cast(np.ndarray, edges.costs)
+    reduced = costs + pot[edges.tails] - pot[edges.heads]
+    # Arcs on the wrong side of their reduced cost go to the bound that makes them optimal.
+    start_flow = np.where(reduced < 0, edges.upper, np.where(reduced > 0, edges.lower, base_flow))
+    excess = need - net_outflow(n, edges.tails, edges.heads, start_flow)
+    net, demand = build_with_terminals(
+        n, edges.tails, edges.heads, edges.upper, edges.lower, start_flow, excess, costs
+    )
+    potentials = np.zeros(n + 2, dtype=np.int64)
+    potentials[:n] = pot
+    # Terminal arcs cost 0: these potentials keep their reduced costs >= 0 from the start.
+    senders, receivers = excess > 0, excess < 0
+    potentials[n] = int(pot[senders].max()) if senders.any() else 0
+    potentials[n + 1] = int(pot[receivers].min()) if receivers.any() else 0
+    routed, _, gave_up = primal_dual_kernel(
+        net.start, net.head, net.cap, net.rev, net.cost, potentials,
+        np.int64(n), np.int64(n + 1), np.int64(demand), np.int64(budget),
+    )
+    if gave_up:
+        return None
+    if routed < demand:
+        raise _infeasible(net, n, demand, routed)
+    return net, potentials[:n].copy()
+
+
+def _warm_primal_dual(
+    edges: EdgeArrays, need: np.ndarray, base_flow: np.ndarray, pot: np.ndarray
+) -> tuple[ResidualNetwork, np.ndarray] | None:
+    """Primal-dual from a previous flow, searching from the deficits on the reversed network.
+
+    After a small change the deficits are few and local (the papers that lost a reviewer),
+    while the excess sits at hubs such as the planner's source, from which every search would
+    spread over the whole graph. Reversing every edge swaps the two roles: flows stay, supplies
+    and potentials change sign. Returns None when the supplies cannot be met, so that the cold
+    path can report the cut in the original orientation.
+    """
+    flipped = EdgeArrays(
+        n=edges.n, tails=edges.heads, heads=edges.tails, upper=edges.upper, lower=edges.lower,
+        costs=edges.costs,
+    )
+    # A change that is not small enough to pay off is handed to the cold solver.
+    budget = WARM_WORK_LIMIT * (2 * len(edges.tails) + edges.n)
+    try:
+        solved = _primal_dual(flipped, -need, base_flow, -pot, budget)
+    except InfeasibleError:
+        return None
+    if solved is None:
+        return None
+    net, potentials = solved
+    return net, -potentials
+
+
+def _cost_scaling(edges: EdgeArrays, need: np.ndarray) -> tuple[ResidualNetwork, np.ndarray] | None:
+    """Cost scaling from a Dinic-routed feasible flow; None if prices would leave int64."""
+    n = edges.n
+    costs = cast(np.ndarray, edges.costs)
+    excess = need - net_outflow(n, edges.tails, edges.heads, edges.lower)
+    net, demand = build_with_terminals(
+        n, edges.tails, edges.heads, edges.upper, edges.lower, edges.lower, excess, costs
+    )
+    routed, _ = dinic(net, n, n + 1)
+    if routed < demand:
+        raise _infeasible(net, n, demand, routed)
+    # The terminal arcs have done their job; closing them leaves a circulation problem.
+    terminal = net.arc_of_edge[len(edges.tails):]
+    net.cap[terminal] = 0
+    net.cap[net.rev[terminal]] = 0
+    factor = n + 3
+    prices = np.zeros(n + 2, dtype=np.int64)
+    ok, _, _ = cost_scaling_kernel(
+        net.start, net.head, net.cap, net.rev, net.cost, prices,
+        np.int64(factor), np.int64(SCALING_ALPHA), np.int64(0), True,
+        np.int64(PRICE_UPDATE_EVERY),
+    )
+    if not ok:
+        return None
+    # Every residual arc has scaled reduced cost >= -1, so floor(prices / factor) misses the
+    # exact conditions by at most 1 per arc; a shortest-path pass repairs that exactly.
+    pot = np.floor_divide(prices, factor)
+    if not exact_potentials(net.start, net.head, net.cap, net.cost, pot):
+        return None
+    return net, pot[:n].copy()
+
+
 def min_cost_flow(
     n: int,
     tails: Any,
@@ -172,45 +305,36 @@ def min_cost_flow(
     *,
     supplies: Any = None,
     lower: Any = None,
+    method: str = "auto",
+    warm: WarmStart | None = None,
 ) -> CostFlowResult:
     """A flow of least total cost meeting the supplies (`out - in = supplies[v]`) and the bounds.
 
     Costs are integers and may be negative; `supplies=None` asks for a circulation. Self-loops
     are allowed (a negative one is optimally saturated). The result's potentials certify
     optimality (see `CostFlowResult`). Raises `InfeasibleError` with a cut when the supplies
-    cannot be met.
+    cannot be met. `method` picks the algorithm (`COST_METHODS`); `warm` restarts the
+    primal-dual method from a previous flow and potentials, which pays off after small changes
+    (after a large one it gives up early and the cold `method` solves instead).
     """
+    if method not in COST_METHODS:
+        choices = ", ".join(repr(m) for m in COST_METHODS)
+        raise FlowInputError(f"method {method!r} is not available; choose one of {choices}")
     n = check_n(n, 1)
     edges = check_edges(n, tails, heads, capacities, lower=lower, costs=costs)
     need = np.zeros(n, dtype=np.int64) if supplies is None else check_supplies(supplies, n)
     costs_in = cast(np.ndarray, edges.costs)  # check_edges returns the costs it was given
 
-    start_flow = np.where(costs_in < 0, edges.upper, edges.lower)
-    excess = need - net_outflow(n, edges.tails, edges.heads, start_flow)
-    net, demand = build_with_terminals(
-        n, edges.tails, edges.heads, edges.upper, edges.lower, start_flow, excess, costs_in
-    )
-    potentials = np.zeros(n + 2, dtype=np.int64)
-    routed, _ = primal_dual_kernel(
-        net.start,
-        net.head,
-        net.cap,
-        net.rev,
-        net.cost,
-        potentials,
-        np.int64(n),
-        np.int64(n + 1),
-        np.int64(demand),
-    )
-    if routed < demand:
-        side = violated_cut(net, n)
-        raise InfeasibleError(
-            f"the supplies cannot be met: {int(side.sum())} nodes must send out {demand - routed} "
-            "more units than the upper bounds of their outgoing edges allow",
-            source_side=side,
-            deficit=demand - routed,
-        )
+    solved = None
+    if warm is not None:
+        flow, pot = _check_warm(warm, len(edges.tails), n)
+        solved = _warm_primal_dual(edges, need, np.clip(flow, edges.lower, edges.upper), pot)
+    if solved is None and method != "primal-dual":
+        solved = _cost_scaling(edges, need)
+    if solved is None:
+        solved = _primal_dual(edges, need, edges.lower, np.zeros(n, dtype=np.int64))
+    if solved is None:  # only a budget makes the primal-dual method give up, and none was set
+        raise AssertionError("the primal-dual method gave up without a work budget")
+    net, potentials = solved
     flow = net.edge_flow(edges.lower)
-    return CostFlowResult(
-        flow=flow, cost=_total_cost(flow, costs_in), potentials=potentials[:n].copy()
-    )
+    return CostFlowResult(flow=flow, cost=_total_cost(flow, costs_in), potentials=potentials)

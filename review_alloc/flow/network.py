@@ -30,7 +30,7 @@ class ResidualNetwork:
         return lower + self.cap[self.rev[self.arc_of_edge[: len(lower)]]]
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _csr_kernel(
     n: int,
     tails: np.ndarray,

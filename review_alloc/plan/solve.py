@@ -33,8 +33,9 @@ from review_alloc.plan.fairness import coverage_flows, highest_threshold, score_
 from review_alloc.plan.figures import plan_figures
 from review_alloc.plan.leads import LeadChoice, pick_leads, with_leads
 from review_alloc.plan.network import SCORE_RESOLUTION, PlanNetwork, build_network
+from review_alloc.plan.warm import warm_start_for
 
-METHOD = "lexicographic min-cost flow (primal-dual with Dinic blocking flows)"
+METHOD = "lexicographic min-cost flow (cost scaling; re-plans warm-started by primal-dual)"
 
 TIERS = ("required", "seniors", "coverage", "floors", "score")
 """Names of the values `tier_values` returns, highest tier first."""
@@ -48,6 +49,8 @@ class PlanOutcome:
     network: PlanNetwork
     potentials: np.ndarray
     leads: LeadChoice | None = None
+    flow: np.ndarray | None = None
+    """The optimal flow on `network`'s arcs, kept so that the next plan can start from it."""
     bottleneck: float | None = None
     """The bottleneck threshold (lowest allowed unpinned score) when the option is on."""
     relaxed_bound: dict[str, float] = field(default_factory=dict)
@@ -85,11 +88,20 @@ def tier_values(net: PlanNetwork, used: np.ndarray) -> dict[str, float]:
     }
 
 
-def _run(session: Session, net: PlanNetwork) -> CostFlowResult:
+def _run(session: Session, net: PlanNetwork, warm: PlanOutcome | None = None) -> CostFlowResult:
     """Solve one network; a hard rule that cannot be met becomes a PlanInputError."""
+    start = None
+    if warm is not None and warm.flow is not None:
+        start = warm_start_for(warm.network, warm.flow, warm.potentials, net)
     try:
         return min_cost_flow(
-            net.n_nodes, net.tails, net.heads, net.capacities, net.costs, lower=net.lower
+            net.n_nodes,
+            net.tails,
+            net.heads,
+            net.capacities,
+            net.costs,
+            lower=net.lower,
+            warm=start,
         )
     except InfeasibleError as error:
         if not net.senior_hard:
@@ -193,6 +205,7 @@ def _solve_split(
     split: dict[tuple[int, str], int],
     conflicts: ConflictSet,
     earlier: Plan | None,
+    warm: PlanOutcome | None = None,
 ) -> _Node:
     net = build_network(
         session,
@@ -201,7 +214,7 @@ def _solve_split(
         conflicts=conflicts,
         earlier=earlier,
     )
-    result = _run(session, net)
+    result = _run(session, net, warm)
     used = result.flow[net.pair_arcs] > 0
     return _Node(net, result, split, _violated_splits(session, net, used))
 
@@ -212,6 +225,7 @@ def _solve_rules(
     split: dict[tuple[int, str], int],
     conflicts: ConflictSet,
     earlier: Plan | None = None,
+    warm: PlanOutcome | None = None,
 ) -> tuple[PlanNetwork, CostFlowResult, dict[tuple[int, str], int], dict[str, float]]:
     """Solve, with mixed institution groups split exactly by branch and bound where needed.
 
@@ -223,7 +237,7 @@ def _solve_rules(
     `SEARCH_BUDGET`. Returns the network, its result, its split, and the tier values of the best
     remaining bound ({} when the plan is proven optimal).
     """
-    root = _solve_split(session, threshold, dict(split), conflicts, earlier)
+    root = _solve_split(session, threshold, dict(split), conflicts, earlier, warm)
     if not root.violated:
         return root.net, root.result, root.split, {}
     best = root
@@ -308,8 +322,12 @@ def _decode(session: Session, net: PlanNetwork, result: CostFlowResult, now: dat
     score = net.pair_score[chosen]
     order = np.lexsort((reviewer, paper))
     reviewer, paper, score = reviewer[order], paper[order], score[order]
+    # The ids come from the validated session and the scores from its validated table, so
+    # re-validating thousands of rows would only slow every re-plan down.
+    paper_ids = [p.id for p in session.papers]
+    reviewer_ids = [r.id for r in session.reviewers]
     assignments = [
-        Assignment(paper=session.papers[i].id, reviewer=session.reviewers[j].id, score=float(s))
+        Assignment.model_construct(paper=paper_ids[i], reviewer=reviewer_ids[j], score=float(s))
         for j, i, s in zip(reviewer.tolist(), paper.tolist(), score.tolist(), strict=True)
     ]
     return Plan(
@@ -327,15 +345,19 @@ def make_plan(
     fresh: bool = False,
     earlier: Plan | None = None,
     now: datetime | None = None,
+    warm: PlanOutcome | None = None,
 ) -> PlanOutcome:
     """Solve the session's lexicographic objective exactly and return the checked plan.
 
     A re-plan keeps the pairs of `earlier` (default: the session's current plan) as a tier just
     above score, so it moves as few reviews as coverage and floors allow; `fresh` ignores it.
+    With `warm` (the outcome of an earlier plan, before a small change such as a withdrawal, a
+    cap change or a new conflict) the solver restarts from that plan's flow and potentials; the
+    result is just as optimal and checked.
     """
     keep_from = None if fresh else (earlier if earlier is not None else session.plan)
     net, result, split, bound = _solve_rules(
-        session, None, {}, conflict_pairs(session), keep_from
+        session, None, {}, conflict_pairs(session), keep_from, warm
     )
     bottleneck = None
     if session.policy.bottleneck:
@@ -381,6 +403,7 @@ def make_plan(
         plan=plan.model_copy(update=extra),
         network=net,
         potentials=result.potentials,
+        flow=result.flow,
         leads=leads,
         bottleneck=bottleneck,
         relaxed_bound=relaxed,

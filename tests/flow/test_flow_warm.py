@@ -16,12 +16,15 @@ _PROBE = """
 import json, os, sys
 import review_alloc.flow as flow
 before = flow.kernels_ready()
+on_disk_before = flow.solver_cache_ready()
 if sys.argv[1] == "warm":
     flow.warm_up()
 print(json.dumps({
     "cache": os.environ.get("NUMBA_CACHE_DIR"),
     "before": before,
     "after": flow.kernels_ready(),
+    "on_disk_before": on_disk_before,
+    "on_disk_after": flow.solver_cache_ready(),
     "textual": any(name.split(".")[0] == "textual" for name in sys.modules),
 }))
 """
@@ -49,6 +52,10 @@ def test_warm_up_compiles_every_kernel_into_the_xdg_cache(tmp_path: Path) -> Non
     assert report["before"] is False and report["after"] is True
     assert any(folder.rglob("*.nbi")), "numba wrote no cache index"
     assert report["textual"] is False  # the engine imports without the UI toolkit
+    assert report["on_disk_before"] is False and report["on_disk_after"] is True
+    # A second process finds the cache ready before compiling or loading anything.
+    again = _probe({"XDG_CACHE_HOME": str(tmp_path), "NUMBA_CACHE_DIR": None}, "cold")
+    assert again["on_disk_before"] is True and again["before"] is False
 
 
 def test_a_chosen_numba_cache_dir_is_kept(tmp_path: Path) -> None:
@@ -56,6 +63,13 @@ def test_a_chosen_numba_cache_dir_is_kept(tmp_path: Path) -> None:
     report = _probe({"NUMBA_CACHE_DIR": str(chosen), "XDG_CACHE_HOME": str(tmp_path)}, "cold")
     assert report["cache"] == str(chosen)
     assert report["before"] is False and report["after"] is False
+
+
+def test_every_kernel_releases_the_gil() -> None:
+    # The TUI solves in a worker thread; a kernel holding the GIL would freeze the screen.
+    from review_alloc.flow.warm import _KERNELS
+
+    assert all(kernel.targetoptions.get("nogil") for kernel in _KERNELS)
 
 
 def test_warm_up_in_process() -> None:

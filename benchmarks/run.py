@@ -1,0 +1,400 @@
+"""Speed and memory of the engine, side by side with scipy, OR-Tools and HiGHS.
+
+    python benchmarks/run.py                  # sizes S and M, every family
+    python benchmarks/run.py --sizes L        # the large instances (a few minutes)
+    python benchmarks/run.py --sizes S,M,L --write-results
+
+Every comparison runs in this one process on the same arrays, after a warm-up run, and reports
+the median of `--repeats` runs (3 by default) and the ratio ours / reference (below 1: we are
+faster). Results go to `benchmarks/results/latest.json`; `--write-results` also rewrites
+`benchmarks/RESULTS.md` with the table and the machine it ran on. Timings are wall-clock
+seconds; a busy machine makes them noisy, which is why every pair runs back to back.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import platform
+import resource
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+HERE = Path(__file__).resolve().parent
+ROOT = HERE.parent
+sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(HERE))
+
+from instances import (  # noqa: E402
+    FAMILIES,
+    SIZES,
+    Instance,
+    make_instance,
+    make_session,
+    max_flow_arrays,
+    withdrawal,
+)
+
+from review_alloc.flow import max_flow, min_cost_flow, warm_up  # noqa: E402
+from review_alloc.plan import build_network, make_plan  # noqa: E402
+from review_alloc.plan.network import PlanNetwork  # noqa: E402
+
+
+def median_time(run: Callable[[], Any], repeats: int) -> tuple[float, Any]:
+    """Run once to warm up, then `repeats` times; return the median seconds and the last result."""
+    result = run()
+    times = []
+    for _ in range(repeats):
+        began = time.perf_counter()
+        result = run()
+        times.append(time.perf_counter() - began)
+    return statistics.median(times), result
+
+
+# --- reference solvers -------------------------------------------------------------------------
+
+
+def scipy_max_flow(n: int, tails: np.ndarray, heads: np.ndarray, caps: np.ndarray,
+                   s: int, t: int) -> Callable[[], int]:
+    """scipy.sparse.csgraph.maximum_flow(method="dinic") on the same edges (CSR built once)."""
+    from scipy.sparse import csr_matrix
+    from scipy.sparse.csgraph import maximum_flow
+
+    graph = csr_matrix((caps.astype(np.int32), (tails, heads)), shape=(n, n))
+    graph.sum_duplicates()
+    return lambda: int(maximum_flow(graph, s, t, method="dinic").flow_value)
+
+
+def ortools_max_flow(n: int, tails: np.ndarray, heads: np.ndarray, caps: np.ndarray,
+                     s: int, t: int) -> Callable[[], int]:
+    """OR-Tools SimpleMaxFlow, arcs added from the same arrays on every run."""
+    from ortools.graph.python import max_flow as ortools_mf
+
+    def run() -> int:
+        solver = ortools_mf.SimpleMaxFlow()
+        solver.add_arcs_with_capacity(tails, heads, caps)
+        status = solver.solve(s, t)
+        assert status == solver.OPTIMAL, status
+        return int(solver.optimal_flow())
+
+    return run
+
+
+def ortools_min_cost(net: PlanNetwork) -> Callable[[], int]:
+    """OR-Tools SimpleMinCostFlow on the planner's circulation (lower bounds shifted out)."""
+    from ortools.graph.python import min_cost_flow as ortools_mcf
+
+    low = net.lower
+    need = np.zeros(net.n_nodes, np.int64)
+    np.subtract.at(need, net.tails, low)
+    np.add.at(need, net.heads, low)
+    nodes = np.arange(net.n_nodes)
+
+    def run() -> int:
+        solver = ortools_mcf.SimpleMinCostFlow()
+        solver.add_arcs_with_capacity_and_unit_cost(
+            net.tails, net.heads, net.capacities - low, net.costs
+        )
+        solver.set_nodes_supplies(nodes, need)
+        status = solver.solve()
+        assert status == solver.OPTIMAL, status
+        return int(solver.optimal_cost()) + int(low @ net.costs)
+
+    return run
+
+
+def highs_min_cost(net: PlanNetwork) -> Callable[[], int]:
+    """HiGHS through scipy.optimize.linprog on the flow LP of the same circulation."""
+    from scipy.optimize import linprog
+    from scipy.sparse import coo_matrix
+
+    m = len(net.tails)
+    rows = np.concatenate([net.tails, net.heads])
+    cols = np.concatenate([np.arange(m), np.arange(m)])
+    vals = np.concatenate([np.ones(m), -np.ones(m)])
+    incidence = coo_matrix((vals, (rows, cols)), shape=(net.n_nodes, m)).tocsr()
+    bounds = np.column_stack([net.lower, net.capacities]).astype(float)
+
+    def run() -> int:
+        result = linprog(net.costs.astype(float), A_eq=incidence,
+                         b_eq=np.zeros(net.n_nodes), bounds=bounds, method="highs")
+        assert result.status == 0, result.message
+        return int(round(result.fun))
+
+    return run
+
+
+def ortools_plan(inst: Instance) -> Callable[[], int]:
+    """The same pipeline with OR-Tools as the solver: session -> network -> solve -> pairs."""
+    session = make_session(inst)
+
+    def run() -> int:
+        net = build_network(session)
+        ortools_min_cost(net)()
+        return len(net.tails)
+
+    return run
+
+
+# --- one instance ------------------------------------------------------------------------------
+
+
+def ours_min_cost(net: PlanNetwork) -> Callable[[], int]:
+    """Our min_cost_flow on the planner's network."""
+    return lambda: min_cost_flow(
+        net.n_nodes, net.tails, net.heads, net.capacities, net.costs, lower=net.lower
+    ).cost
+
+
+def bench_instance(family: str, size: str, repeats: int) -> list[dict[str, Any]]:
+    """Every comparison on one instance; one row per comparison."""
+    inst = make_instance(family, size)
+    rows: list[dict[str, Any]] = []
+
+    def row(task: str, ours: float, ref_name: str, ref: float | None, **extra: Any) -> None:
+        rows.append({
+            "instance": inst.name, "task": task, "ours_s": ours, "reference": ref_name,
+            "reference_s": ref, "ratio": None if ref is None else ours / ref, **extra,
+        })
+        shown = "" if ref is None else f"  {ref_name} {ref:.3f}s  ratio {ours / ref:.2f}"
+        print(f"  {inst.name:10s} {task:22s} ours {ours:.3f}s{shown}", flush=True)
+
+    n, tails, heads, caps, s, t = max_flow_arrays(inst)
+    ours_t, ours_flow = median_time(lambda: max_flow(n, tails, heads, caps, s, t), repeats)
+    for name, make in (("scipy dinic", scipy_max_flow), ("OR-Tools", ortools_max_flow)):
+        ref_t, value = median_time(make(n, tails, heads, caps, s, t), repeats)
+        assert value == ours_flow.value, (name, value, ours_flow.value)
+        row("max flow", ours_t, name, ref_t, phases=ours_flow.phases)
+
+    session = make_session(inst)
+    net = build_network(session)
+    ours_t, cost = median_time(ours_min_cost(net), repeats)
+    ref_t, ref_cost = median_time(ortools_min_cost(net), repeats)
+    assert cost == ref_cost, (cost, ref_cost)
+    row("weighted (min-cost)", ours_t, "OR-Tools", ref_t)
+    if size == "M":
+        ref_t, ref_cost = median_time(highs_min_cost(net), 1)
+        assert cost == ref_cost, (cost, ref_cost)
+        row("weighted (min-cost)", ours_t, "HiGHS", ref_t)
+
+    plan_t, outcome = median_time(lambda: make_plan(session), repeats)
+    ref_t, _ = median_time(ortools_plan(inst), repeats)
+    row("plan (make_plan)", plan_t, "OR-Tools pipeline", ref_t)
+
+    after = make_session(inst, withdrawn=withdrawal(inst))
+    cold_t, cold = median_time(lambda: make_plan(after), repeats)
+    warm_t, warm = median_time(lambda: make_plan(after, warm=outcome), repeats)
+    w, c = warm.plan.figures, cold.plan.figures
+    # Equal optima; the score sums may differ in the last bits when ties are broken apart.
+    assert (w.required_coverage, w.coverage, w.floors_met) == (
+        c.required_coverage, c.coverage, c.floors_met)
+    assert abs(w.total_score - c.total_score) <= 1e-6 * max(1.0, abs(c.total_score))
+    row("re-plan, 1% withdrawn", warm_t, "cold plan", cold_t)
+    return rows
+
+
+# --- scaling, memory, compile ------------------------------------------------------------------
+
+
+def bench_phases(sides: list[int], degree: int = 4, seed: int = 3) -> list[dict[str, Any]]:
+    """Dinic phases on unit-capacity bipartite graphs of growing size, against sqrt(V)."""
+    rows = []
+    rng = np.random.default_rng(seed)
+    for side in sides:
+        left = np.repeat(np.arange(side), degree)
+        right = rng.integers(0, side, side * degree)
+        n = 2 * side + 2
+        s, t = 0, n - 1
+        tails = np.concatenate([np.zeros(side, np.int64), 1 + left, 1 + side + np.arange(side)])
+        heads = np.concatenate([1 + np.arange(side), 1 + side + right, np.full(side, t)])
+        caps = np.ones(len(tails), np.int64)
+        result = max_flow(n, tails, heads, caps, s, t)
+        rows.append({"nodes": n, "edges": len(tails), "phases": result.phases,
+                     "phases_per_sqrt_v": result.phases / np.sqrt(n)})
+        print(f"  unit bipartite V={n:>8d} E={len(tails):>9d} phases {result.phases:3d} "
+              f"phases/sqrt(V) {result.phases / np.sqrt(n):.4f}", flush=True)
+    return rows
+
+
+_MEMORY_PROBE = """
+import resource, sys, time
+sys.path[:0] = [{root!r}, {here!r}]
+from instances import make_instance, make_session
+from review_alloc.plan import make_plan
+session = make_session(make_instance({family!r}, {size!r}))
+before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+make_plan(session)
+print(before, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
+"""
+
+
+def bench_memory(size: str, family: str = "loose") -> dict[str, Any]:
+    """Peak resident memory of a fresh process that builds the session and plans it."""
+    code = _MEMORY_PROBE.format(root=str(ROOT), here=str(HERE), family=family, size=size)
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          check=True, timeout=3600)
+    before, peak = (int(v) for v in done.stdout.split()[-2:])
+    # ru_maxrss is in KiB on Linux.
+    result = {"instance": f"{family}-{size}", "peak_gib": peak / 2**20,
+              "session_gib": before / 2**20}
+    print(f"  peak memory {family}-{size}: {result['peak_gib']:.2f} GiB "
+          f"(after building the session: {result['session_gib']:.2f} GiB)", flush=True)
+    return result
+
+
+_COMPILE_PROBE = """
+import sys, time
+sys.path.insert(0, {root!r})
+began = time.perf_counter()
+import review_alloc.flow as flow
+imported = time.perf_counter()
+flow.warm_up()
+print(imported - began, time.perf_counter() - imported)
+"""
+
+
+def bench_compile() -> dict[str, Any]:
+    """Kernel compile time with an empty cache, then load time from that cache (fresh processes)."""
+    with tempfile.TemporaryDirectory() as folder:
+        env = dict(os.environ, NUMBA_CACHE_DIR=folder)
+        code = _COMPILE_PROBE.format(root=str(ROOT))
+        times = []
+        for _ in range(2):
+            done = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True,
+                                  text=True, check=True, timeout=600)
+            times.append([float(v) for v in done.stdout.split()[-2:]])
+    result = {"import_s": times[0][0], "compile_cold_s": times[0][1],
+              "load_from_cache_s": times[1][1], "import_cached_s": times[1][0]}
+    print(f"  kernels: compile cold {result['compile_cold_s']:.2f}s, load from cache "
+          f"{result['load_from_cache_s']:.2f}s (import {result['import_cached_s']:.2f}s)",
+          flush=True)
+    return result
+
+
+# --- report ------------------------------------------------------------------------------------
+
+
+def machine() -> dict[str, Any]:
+    """Where the numbers come from."""
+    import numba
+    import scipy
+
+    cpu = "unknown"
+    try:
+        for line in Path("/proc/cpuinfo").read_text().splitlines():
+            if line.startswith("model name"):
+                cpu = line.split(":", 1)[1].strip()
+                break
+    except OSError:
+        cpu = platform.processor() or "unknown"
+    versions = {"python": platform.python_version(), "numpy": np.__version__,
+                "numba": numba.__version__, "scipy": scipy.__version__}
+    try:
+        import ortools
+
+        versions["ortools"] = ortools.__version__
+    except ImportError:
+        versions["ortools"] = "missing"
+    return {"cpus": os.cpu_count(), "cpu": cpu, "system": platform.platform(), **versions}
+
+
+def markdown(report: dict[str, Any]) -> str:
+    """The RESULTS.md text: machine, the comparison table, scaling, memory and compile."""
+    m = report["machine"]
+    lines = [
+        "# Benchmark results",
+        "",
+        f"Command: `{report['command']}` ({report['date']}).",
+        "",
+        f"Machine: {m['cpus']} CPUs, {m['cpu']}; {m['system']}; Python {m['python']}, "
+        f"numpy {m['numpy']}, numba {m['numba']}, scipy {m['scipy']}, OR-Tools {m['ortools']}.",
+        "",
+        f"Median wall-clock seconds of {report['repeats']} runs after a warm-up, in one process "
+        "on the same arrays; ratio = ours / reference (below 1: ours is faster).",
+        "",
+        "| instance | task | ours (s) | reference | reference (s) | ratio |",
+        "| --- | --- | ---: | --- | ---: | ---: |",
+    ]
+    for r in report["rows"]:
+        lines.append(
+            f"| {r['instance']} | {r['task']} | {r['ours_s']:.3f} | {r['reference']} | "
+            f"{r['reference_s']:.3f} | {r['ratio']:.2f} |"
+        )
+    if report.get("phases"):
+        lines += ["", "Dinic phases on unit-capacity bipartite graphs (degree 4):", "",
+                  "| V | E | phases | phases / sqrt(V) |", "| ---: | ---: | ---: | ---: |"]
+        for r in report["phases"]:
+            lines.append(f"| {r['nodes']} | {r['edges']} | {r['phases']} | "
+                         f"{r['phases_per_sqrt_v']:.4f} |")
+    if report.get("memory"):
+        mem = report["memory"]
+        lines += ["", f"Peak memory planning {mem['instance']} in a fresh process: "
+                  f"{mem['peak_gib']:.2f} GiB ({mem['session_gib']:.2f} GiB once the session "
+                  "is built)."]
+    if report.get("compile"):
+        c = report["compile"]
+        lines += ["", f"Kernels: {c['compile_cold_s']:.2f} s to compile with an empty cache, "
+                  f"{c['load_from_cache_s']:.2f} s to load from the cache "
+                  f"(package import {c['import_cached_s']:.2f} s)."]
+    return "\n".join(lines) + "\n"
+
+
+def main(argv: list[str] | None = None) -> None:
+    """Run the chosen benchmarks, print the table, write the JSON (and RESULTS.md)."""
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--sizes", default="S,M", help="comma-separated: S, M, L")
+    parser.add_argument("--families", default=",".join(FAMILIES))
+    parser.add_argument("--repeats", type=int, default=3)
+    parser.add_argument("--no-extras", action="store_true",
+                        help="skip the phase scaling, memory and compile measurements")
+    parser.add_argument("--write-results", action="store_true",
+                        help="also rewrite benchmarks/RESULTS.md")
+    args = parser.parse_args(argv)
+    sizes = [s.strip().upper() for s in args.sizes.split(",") if s.strip()]
+    families = [f.strip() for f in args.families.split(",") if f.strip()]
+    for size in sizes:
+        if size not in SIZES:
+            parser.error(f"unknown size {size!r}; choose from {', '.join(SIZES)}")
+    for family in families:
+        if family not in FAMILIES:
+            parser.error(f"unknown family {family!r}; choose from {', '.join(FAMILIES)}")
+
+    warm_up()
+    report: dict[str, Any] = {
+        "command": "python benchmarks/run.py " + " ".join(argv if argv is not None
+                                                         else sys.argv[1:]),
+        "date": time.strftime("%Y-%m-%d %H:%M UTC", time.gmtime()),
+        "machine": machine(), "repeats": args.repeats, "rows": [],
+    }
+    for size in sizes:
+        for family in families:
+            report["rows"] += bench_instance(family, size, args.repeats)
+    if not args.no_extras:
+        report["phases"] = bench_phases([1_000, 4_000, 16_000, 64_000, 256_000])
+        report["memory"] = bench_memory(sizes[-1])
+        report["compile"] = bench_compile()
+    report["peak_rss_gib_this_process"] = (
+        resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 2**20
+    )
+
+    out = HERE / "results"
+    out.mkdir(exist_ok=True)
+    (out / "latest.json").write_text(json.dumps(report, indent=2) + "\n")
+    text = markdown(report)
+    print()
+    print(text)
+    if args.write_results:
+        (HERE / "RESULTS.md").write_text(text)
+
+
+if __name__ == "__main__":
+    main()
