@@ -21,7 +21,6 @@ from textual.command import DiscoveryHit, Hit, Hits, Provider
 from textual.containers import Horizontal
 from textual.message import Message
 from textual.widgets import (
-    DataTable,
     Footer,
     Label,
     ProgressBar,
@@ -34,6 +33,7 @@ from review_alloc.model import InputError, Session
 from review_alloc.plan import PlanCheckError, PlanOutcome
 from review_alloc.tui.dialogs import Confirm, Field, Form, HelpScreen, ImportForm, whole_or_default
 from review_alloc.tui.facts import Facts, plan_change
+from review_alloc.tui.grid import RowTable
 from review_alloc.tui.overview import Overview
 from review_alloc.tui.records import ConflictView, HistoryView, Revision
 from review_alloc.tui.tables import EntityView, GapView, PaperView, ReviewerView
@@ -167,10 +167,12 @@ class ReviewAllocApp(App[None]):
 
     def _refresh_all(self) -> None:
         """New facts after a change; redraw the bar and the visible view now, others on show."""
-        self.facts = Facts.of(self.workspace.session)
+        self.facts = Facts.of(self.workspace.session, self.facts)
         self._version += 1
         self._draw_bar()
-        self.query_one(HistoryView).revisions = list(self.revisions)
+        history = self.query_one(HistoryView)
+        if len(history.revisions) != len(self.revisions):
+            history.revisions = list(self.revisions)
         self._show_view(self.query_one(TabbedContent).active or "overview")
 
     def _show_view(self, tab: str) -> None:
@@ -521,7 +523,7 @@ class ReviewAllocApp(App[None]):
         """Show one tab."""
         self.query_one(TabbedContent).active = tab
         view = self.query_one(f"#{tab}-view")
-        tables = view.query(DataTable)
+        tables = view.query(RowTable)
         if tables:
             tables.first().focus()
 

@@ -90,8 +90,13 @@ class Facts:
     pair_values: np.ndarray = field(repr=False)
 
     @classmethod
-    def of(cls, session: Session) -> Facts:
-        """Compute the facts of `session` as it is now."""
+    def of(cls, session: Session, previous: Facts | None = None) -> Facts:
+        """Compute the facts of `session` as it is now.
+
+        Conflicts and the sorted score table are taken over from `previous` when the lists they
+        depend on are the very same objects (a pin, a block or a plan leaves them alone), which
+        spares a large session most of the work of a refresh.
+        """
         n_p, n_r = len(session.papers), len(session.reviewers)
         paper_at, reviewer_at = session.paper_index(), session.reviewer_index()
         by_paper: list[list[tuple[int, float]]] = [[] for _ in range(n_p)]
@@ -105,8 +110,23 @@ class Facts:
         counts = np.array([len(x) for x in by_paper], dtype=np.int64)
         reviews, minimum, cap, floor = active_demands(session)
         table = session.scores
-        keys = table.reviewer.astype(np.int64) * max(n_p, 1) + table.paper
-        order = np.argsort(keys, kind="stable")
+        old = previous.session if previous is not None else None
+        if old is not None and old.scores is table and len(old.papers) == n_p:
+            assert previous is not None
+            pair_keys, pair_values = previous.pair_keys, previous.pair_values
+        else:
+            keys = table.reviewer.astype(np.int64) * max(n_p, 1) + table.paper
+            order = np.argsort(keys, kind="stable")
+            pair_keys, pair_values = keys[order], table.value[order]
+        same_people = old is not None and all(
+            getattr(old, name) is getattr(session, name)
+            for name in ("papers", "reviewers", "conflicts", "policy")
+        )
+        if same_people:
+            assert previous is not None
+            conflict_reason = previous.conflict_reason
+        else:
+            conflict_reason = conflict_pairs(session).reason_of()
         return cls(
             session=session,
             loads=loads,
@@ -117,11 +137,11 @@ class Facts:
             floor=floor,
             assigned_of_paper=by_paper,
             assigned_of_reviewer=by_reviewer,
-            conflict_reason=conflict_pairs(session).reason_of(),
+            conflict_reason=conflict_reason,
             blocked={(reviewer_at[b.reviewer], paper_at[b.paper]) for b in session.blocks},
             pinned={(reviewer_at[p.reviewer], paper_at[p.paper]) for p in session.pins},
-            pair_keys=keys[order],
-            pair_values=table.value[order],
+            pair_keys=pair_keys,
+            pair_values=pair_values,
         )
 
     # -- single figures -------------------------------------------------------------------
@@ -213,7 +233,9 @@ class Facts:
             taken.add(j)
             if len(out) >= len(self.assigned_of_paper[paper]) + limit:
                 return out
-        # Too few scored rows: show conflicted and unscored people too, so nobody is hidden.
+        if self.session.policy.unscored == "exclude":
+            return out
+        # Too few scored rows: unscored pairs are eligible at score 0, so show those people too.
         for j in range(len(self.session.reviewers)):
             if len(out) >= len(self.assigned_of_paper[paper]) + limit:
                 break

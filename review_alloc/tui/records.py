@@ -13,11 +13,11 @@ from textual.message import Message
 from textual.reactive import reactive
 from textual.timer import Timer
 from textual.widget import Widget
-from textual.widgets import DataTable, Input, Static
+from textual.widgets import Input, Static
 
 from review_alloc.model import Plan
-from review_alloc.tui.facts import Facts, plan_change
-from review_alloc.tui.grid import fill_table
+from review_alloc.tui.facts import Facts, PlanChange, plan_change
+from review_alloc.tui.grid import RowTable
 
 CONFLICT_COLUMNS = ("Reviewer", "Name", "Paper", "Title", "Kind", "Reasons")
 REVISION_COLUMNS = ("No.", "Made", "Reviews", "Score", "Note")
@@ -59,7 +59,7 @@ class ConflictView(Widget):
             classes="filter",
         )
         yield Static("", classes="count")
-        yield DataTable(cursor_type="row", zebra_stripes=True, classes="main")
+        yield RowTable(classes="main")
 
     def watch_facts(self, facts: Facts | None) -> None:
         """Rebuild the rows from the conflict set of the new facts."""
@@ -79,9 +79,8 @@ class ConflictView(Widget):
     def _redraw(self) -> None:
         words = self._filter.casefold().split()
         matching = [r for r in self._rows if all(w in " ".join(r[2]).casefold() for w in words)]
-        table = self.query_one(DataTable)
-        fill_table(
-            table,
+        table = self.query_one(RowTable)
+        table.fill(
             CONFLICT_COLUMNS,
             [cells for *_, cells in matching[:SHOWN_AT_MOST]],
             [cells for *_, cells in self._rows[:SHOWN_AT_MOST]],
@@ -113,7 +112,7 @@ class ConflictView(Widget):
     @on(Input.Submitted, ".filter")
     def _filter_done(self) -> None:
         self._redraw()
-        self.query_one(DataTable).focus()
+        self.query_one(RowTable).focus()
 
     def action_focus_filter(self) -> None:
         """Move to the filter line."""
@@ -121,7 +120,7 @@ class ConflictView(Widget):
 
     def action_add(self) -> None:
         """Ask the app for the declare-conflict form, pre-filled from the cursor row."""
-        table = self.query_one(DataTable)
+        table = self.query_one(RowTable)
         shown = getattr(self, "_shown", [])
         reviewer, paper = ("", "")
         if shown and 0 <= table.cursor_row < len(shown):
@@ -155,22 +154,23 @@ class HistoryView(Widget):
     def __init__(self, *, id: str | None = None) -> None:
         super().__init__(id=id)
         self._base: int | None = None
+        self._diffs: dict[tuple[int, int], PlanChange] = {}
 
     def compose(self) -> ComposeResult:
         """Revisions and their diff side by side; the change log below."""
         with Horizontal(classes="top"):
             with Vertical(classes="revisions-box"):
                 yield Static(Text("Plans (m marks the base of the diff)", style="bold"))
-                yield DataTable(cursor_type="row", classes="revisions")
+                yield RowTable(classes="revisions")
             with Vertical(classes="diff-box"):
                 yield Static("", classes="diff-head")
-                yield DataTable(cursor_type="row", classes="diff")
+                yield RowTable(classes="diff")
         yield Static(Text("Changes, newest first (u or ctrl+z undoes the last)", style="bold"))
-        yield DataTable(cursor_type="row", classes="events")
+        yield RowTable(classes="events")
 
     def watch_revisions(self, revisions: list[Revision]) -> None:
         """Redraw the plan list with the newest selected."""
-        table = self.query_one(".revisions", DataTable)
+        table = self.query_one(".revisions", RowTable)
         rows = [
             [
                 f"{r.number}" + (" (base)" if r.number == self._base else ""),
@@ -181,9 +181,9 @@ class HistoryView(Widget):
             ]
             for r in revisions
         ]
-        fill_table(table, REVISION_COLUMNS, rows)
+        table.fill(REVISION_COLUMNS, rows)
         if revisions:
-            table.move_cursor(row=len(revisions) - 1, animate=False)
+            table.move_cursor(len(revisions) - 1)
         self._show_diff()
 
     def watch_facts(self, facts: Facts | None) -> None:
@@ -199,40 +199,43 @@ class HistoryView(Widget):
             ]
             for e in reversed(facts.session.events[-500:])
         ]
-        fill_table(self.query_one(".events", DataTable), EVENT_COLUMNS, rows)
+        self.query_one(".events", RowTable).fill(EVENT_COLUMNS, rows)
 
-    @on(DataTable.RowHighlighted, ".revisions")
+    @on(RowTable.Highlighted, ".revisions")
     def _revision_moved(self) -> None:
         self._show_diff()
 
     def _current(self) -> int | None:
-        table = self.query_one(".revisions", DataTable)
+        table = self.query_one(".revisions", RowTable)
         if not self.revisions or not 0 <= table.cursor_row < len(self.revisions):
             return None
         return table.cursor_row
 
     def _show_diff(self) -> None:
         head = self.query_one(".diff-head", Static)
-        table = self.query_one(".diff", DataTable)
+        table = self.query_one(".diff", RowTable)
         k = self._current()
         if k is None:
-            fill_table(table, DIFF_COLUMNS, [])
+            table.fill(DIFF_COLUMNS, [])
             head.update(Text("No plans yet: press r to plan.", style="dim"))
             return
         target = self.revisions[k]
         base_no = self._base if self._base is not None else target.number - 1
         base = next((r for r in self.revisions if r.number == base_no), None)
-        change = plan_change(base.plan if base else None, target.plan)
+        pair = (base.number if base else 0, target.number)
+        change = self._diffs.get(pair)
+        if change is None:
+            change = self._diffs[pair] = plan_change(base.plan if base else None, target.plan)
         title = f"plan {target.number} against " + (f"plan {base.number}" if base else "nothing")
         head.update(Text(f"{title}: {change.headline()}", style="bold"))
         rows = [("added", p, r, f"{s:.2f}") for p, r, s in change.added]
         rows += [("removed", p, r, f"{s:.2f}") for p, r, s in change.removed]
-        fill_table(table, DIFF_COLUMNS, rows[:3000])
+        table.fill(DIFF_COLUMNS, rows[:3000])
 
     def diff_rows(self) -> list[tuple[str, ...]]:
         """The diff table's rows as text (for the tests)."""
-        table = self.query_one(".diff", DataTable)
-        return [tuple(str(c) for c in table.get_row_at(k)) for k in range(table.row_count)]
+        table = self.query_one(".diff", RowTable)
+        return [tuple(table.row_at(k)) for k in range(table.row_count)]
 
     def action_mark(self) -> None:
         """Make the plan under the cursor the base the others are compared against."""
@@ -243,7 +246,7 @@ class HistoryView(Widget):
         self._base = None if self._base == number else number
         self.revisions = self.revisions
         if k < len(self.revisions):
-            self.query_one(".revisions", DataTable).move_cursor(row=k, animate=False)
+            self.query_one(".revisions", RowTable).move_cursor(k)
 
     def action_undo(self) -> None:
         """Ask the app to take back the last change."""

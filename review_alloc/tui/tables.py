@@ -17,11 +17,11 @@ from textual.message import Message
 from textual.reactive import reactive
 from textual.timer import Timer
 from textual.widget import Widget
-from textual.widgets import DataTable, Input, Static
+from textual.widgets import Input, Static
 
 from review_alloc.tui.facts import Candidate, Facts
+from review_alloc.tui.grid import RowTable
 from review_alloc.tui.grid import cell_text as _cell_text
-from review_alloc.tui.grid import fill_table
 
 Row = tuple[str, list[object]]
 """A table row: its key (the entity id) and its cells."""
@@ -95,16 +95,17 @@ class EntityView(Widget):
         self._debounce: Timer | None = None
         self._shown_key: str | None = None
         self._pairs: list[Candidate] = []
+        self._visible_keys: list[str] = []
 
     def compose(self) -> ComposeResult:
         """A filter line, the main table, then the detail (heading and pair table)."""
         yield Input(placeholder=self.filter_hint(), compact=True, classes="filter")
         with Vertical(classes="split"):
-            table: DataTable = DataTable(cursor_type="row", zebra_stripes=True, classes="main")
+            table = RowTable(classes="main")
             yield table
             with Vertical(classes="detail"):
                 yield Static("", classes="detail-head")
-                yield DataTable(cursor_type="row", classes="pairs")
+                yield RowTable(classes="pairs")
 
     # -- what subclasses provide ----------------------------------------------------------
 
@@ -156,39 +157,39 @@ class EntityView(Widget):
         return rows
 
     def _redraw(self) -> None:
-        table = self.query_one(".main", DataTable)
+        table = self.query_one(".main", RowTable)
         keep = self._current_key()
         visible = self._visible()
-        fill_table(table, self.columns, [cells for _, cells in visible], [c for _, c in self._rows])
-        # add_rows gives generated keys; map positions to entity ids ourselves.
         self._visible_keys = [key for key, _ in visible]
-        if keep in self._visible_keys:
-            table.move_cursor(row=self._visible_keys.index(keep), animate=False)
+        at = self._visible_keys.index(keep) if keep in self._visible_keys else 0
+        table.fill(
+            self.columns, [cells for _, cells in visible], [c for _, c in self._rows], cursor=at
+        )
         self._show_detail()
 
     def _current_key(self) -> str | None:
-        table = self.query_one(".main", DataTable)
-        keys = getattr(self, "_visible_keys", [])
+        table = self.query_one(".main", RowTable)
+        keys = self._visible_keys
         if not keys or table.cursor_row < 0 or table.cursor_row >= len(keys):
             return None
         return keys[table.cursor_row]
 
     def _show_detail(self) -> None:
         head = self.query_one(".detail-head", Static)
-        pairs = self.query_one(".pairs", DataTable)
+        pairs = self.query_one(".pairs", RowTable)
         key = self._current_key()
         facts = self.facts
         if key is None or facts is None:
             head.update(Text("Nothing matches the filter." if self._filter else "", style="dim"))
-            pairs.clear()
+            pairs.fill(self.pair_columns(), [])
             self._pairs = []
             return
         heading, self._pairs = self.detail(facts, key)
         head.update(heading)
         row = pairs.cursor_row if key == self._shown_key else 0
-        fill_table(pairs, self.pair_columns(), [self.pair_cells(facts, c) for c in self._pairs])
+        pairs.fill(self.pair_columns(), [self.pair_cells(facts, c) for c in self._pairs])
         if self._pairs:
-            pairs.move_cursor(row=min(row, len(self._pairs) - 1), animate=False)
+            pairs.move_cursor(min(row, len(self._pairs) - 1))
         self._shown_key = key
 
     # -- events ---------------------------------------------------------------------------
@@ -206,19 +207,19 @@ class EntityView(Widget):
         if self._debounce is not None:
             self._debounce.stop()
         self._redraw()
-        self.query_one(".main", DataTable).focus()
+        self.query_one(".main", RowTable).focus()
 
-    @on(DataTable.RowHighlighted, ".main")
+    @on(RowTable.Highlighted, ".main")
     def _row_moved(self) -> None:
         self._show_detail()
 
-    @on(DataTable.RowSelected, ".main")
+    @on(RowTable.Chosen, ".main")
     def _row_chosen(self) -> None:
-        self.query_one(".pairs", DataTable).focus()
+        self.query_one(".pairs", RowTable).focus()
 
-    @on(DataTable.HeaderSelected, ".main")
-    def _header_clicked(self, event: DataTable.HeaderSelected) -> None:
-        self.sort_by(event.column_index)
+    @on(RowTable.HeaderClicked, ".main")
+    def _header_clicked(self, event: RowTable.HeaderClicked) -> None:
+        self.sort_by(event.column)
 
     def sort_by(self, column: int) -> None:
         """Sort by a column; choosing the same column again reverses the order."""
@@ -238,7 +239,7 @@ class EntityView(Widget):
 
     def visible_keys(self) -> list[str]:
         """Ids of the rows shown, in order (for the app and the tests)."""
-        return list(getattr(self, "_visible_keys", []))
+        return list(self._visible_keys)
 
     def select(self, key: str) -> bool:
         """Put the cursor on the row of `key`, clearing the filter if it hides it."""
@@ -246,7 +247,7 @@ class EntityView(Widget):
             self.set_filter("")
         if key not in self.visible_keys():
             return False
-        self.query_one(".main", DataTable).move_cursor(
+        self.query_one(".main", RowTable).move_cursor(
             row=self.visible_keys().index(key), animate=False
         )
         self._show_detail()
@@ -254,7 +255,7 @@ class EntityView(Widget):
 
     def selected_pair(self) -> Candidate | None:
         """The pair under the detail table's cursor."""
-        pairs = self.query_one(".pairs", DataTable)
+        pairs = self.query_one(".pairs", RowTable)
         if not self._pairs or not 0 <= pairs.cursor_row < len(self._pairs):
             return None
         return self._pairs[pairs.cursor_row]
