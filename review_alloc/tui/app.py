@@ -194,7 +194,8 @@ class ReviewAllocApp(App[None]):
         s = ws.session
         text = Text()
         text.append(f" {s.name} ", style="bold reverse")
-        text.append(f" {ws.path or '(not saved yet)'} ", style="dim")
+        # The file name only: a long folder path would push the marks off a narrow screen.
+        text.append(f" {ws.path.name if ws.path else '(not saved yet)'} ", style="dim")
         if ws.dirty:
             text.append(" ● UNSAVED CHANGES (ctrl+s) ", style="bold black on yellow")
         else:
