@@ -5,8 +5,8 @@ from __future__ import annotations
 import json
 import shutil
 import threading
-from datetime import UTC, datetime
 from collections.abc import Callable
+from datetime import UTC, datetime
 from pathlib import Path
 
 from textual.widgets import Input, Static, TabbedContent
