@@ -4,11 +4,27 @@ The command line and the terminal app talk only to a Workspace. Every change is 
 refused with a clear reason when a hard rule forbids it, recorded as an `Event`, and applied to
 the current plan at once where it invalidates assignments (a withdrawn reviewer, a new conflict,
 a block, a lowered cap), so that no plan on screen or on disk ever holds a forbidden pair.
+
+Planning and history (stable names, used by the terminal app):
+
+- `Workspace.solve(fresh=False, *, progress=None) -> PlanOutcome`: a re-plan keeps the pairs
+  of the current revision's plan as a tier below floors (`plan --fresh` ignores them); every
+  plan becomes a new `Revision` (`model.history`) whose parent is the current one.
+- `Workspace.install_plan(outcome, planned) -> None`: the same, for a plan made elsewhere
+  (a worker thread) from the session object `planned`.
+- `Workspace.revisions -> list[Revision]`, `Workspace.history() -> list[HistoryEntry]`.
+- `Workspace.undo(reason="") -> int`: back to the current revision's parent, plan *and* data,
+  recorded as an `undo` event; returns the revision number now current.
+- `Workspace.diff(a=None, b=None) -> PlanDiff`: defaults to the last two revisions.
+- `Workspace.notify_rows(since) -> list[NotifyRow]`: reviewers whose list changed from
+  revision `since` to the current one.
+- `Workspace.plan_of(number) -> Plan`, `Workspace.data_of(number) -> SessionData`.
 """
 
 from __future__ import annotations
 
 from collections.abc import Callable
+from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
 
@@ -23,12 +39,55 @@ from review_alloc.model import (
     Paper,
     Plan,
     Reviewer,
+    ScoreTable,
     Session,
     load_session,
     save_session,
 )
+from review_alloc.model.history import (
+    DataDelta,
+    Revision,
+    SessionData,
+    assignment_table,
+    restore_data,
+)
+from review_alloc.model.plans import PlanFigures
 from review_alloc.plan import PlanOutcome, conflict_pairs, make_plan
+from review_alloc.plan.diff import NotifyRow, PlanDiff, diff_plans, notify_rows
 from review_alloc.plan.figures import assignment_indices, plan_figures
+
+_MARKS = ("plan", "undo")
+"""Events after which the plan and the data agree again."""
+
+
+@dataclass(frozen=True)
+class HistoryEntry:
+    """One revision as a history view shows it."""
+
+    number: int
+    parent: int | None
+    created_at: datetime
+    current: bool
+    fresh: bool
+    kept: int | None
+    parent_pairs: int | None
+    figures: PlanFigures
+    changes: tuple[str, ...]
+    """The changes made since the revision before, one line each."""
+
+    def to_json(self) -> dict[str, object]:
+        """Plain JSON form."""
+        return {
+            "number": self.number,
+            "parent": self.parent,
+            "created_at": self.created_at.isoformat(),
+            "current": self.current,
+            "fresh": self.fresh,
+            "kept": self.kept,
+            "parent_pairs": self.parent_pairs,
+            "figures": self.figures.model_dump(),
+            "changes": list(self.changes),
+        }
 
 
 class ChangeRefused(InputError):
@@ -42,6 +101,8 @@ class Workspace:
         self.session = session
         self.path = path
         self.dirty = False
+        # Rebuilt revision data by number; revisions never change, so this never goes stale.
+        self._data: dict[int, SessionData] = {}
 
     @classmethod
     def open(cls, path: Path) -> Workspace:
@@ -66,32 +127,169 @@ class Workspace:
         return "proposal" if self.session.kind == "panel" else "paper"
 
     def data_changed_since_plan(self) -> bool:
-        """True when a change was recorded after the current plan was made."""
-        plan = self.session.plan
-        if plan is None:
-            return bool(self.session.events)
-        return any(e.at > plan.created_at and e.action != "plan" for e in self.session.events)
+        """True when a change was recorded after the current plan was made or restored."""
+        events = self.session.events
+        return bool(events) and events[-1].action not in _MARKS
 
-    def solve(self, *, progress: Callable[[str], None] | None = None) -> PlanOutcome:
-        """Make the optimal, checked plan of the session as it is now and install it."""
+    def solve(
+        self, fresh: bool = False, *, progress: Callable[[str], None] | None = None
+    ) -> PlanOutcome:
+        """Make the optimal, checked plan of the session as it is now and install it.
+
+        It keeps as many pairs of the current revision's plan as coverage and floors allow,
+        unless `fresh`.
+        """
         snapshot = self.session
         if progress:
             progress("building the network and solving")
-        outcome = make_plan(snapshot)
+        outcome = make_plan(snapshot, fresh=fresh, earlier=self.earlier_plan())
         self.install_plan(outcome, snapshot)
         return outcome
 
+    def earlier_plan(self) -> Plan | None:
+        """The plan a re-plan keeps pairs of: the current revision's, else the session's."""
+        if self.session.revision is not None:
+            return self.plan_of(self.session.revision)
+        return self.session.plan
+
     def install_plan(self, outcome: PlanOutcome, planned: Session) -> None:
-        """Install a plan made from `planned`; refused if the session changed meanwhile."""
+        """Install a plan made from `planned` as a new revision; refused if the session changed."""
         if planned is not self.session:
             raise ChangeRefused(["the session changed while the plan was being made; plan again"])
-        f = outcome.plan.figures
+        s = self.session
+        plan = outcome.plan
+        data = _data_of(s)
+        parent = s.revision
+        earlier = self.plan_of(parent) if parent is not None else None
+        kept = None
+        if earlier is not None:
+            before = {(a.reviewer, a.paper) for a in earlier.assignments}
+            kept = sum((a.reviewer, a.paper) in before for a in plan.assignments)
+        number = max((r.number for r in s.revisions), default=0) + 1
+        event_at = len(s.events)
+        marks = [k for k, e in enumerate(s.events) if e.action in _MARKS]
+        revision = Revision(
+            number=number,
+            parent=parent,
+            created_at=plan.created_at,
+            changes_from=marks[-1] + 1 if marks else 0,
+            event=event_at,
+            fresh=outcome.network.kept is None and self.earlier_plan() is not None,
+            kept=kept,
+            parent_pairs=len(earlier.assignments) if earlier is not None else None,
+            figures=plan.figures,
+            method=plan.method,
+            checked=plan.checked,
+            assignments=assignment_table(plan, data),
+            data=DataDelta.between(self.data_of(parent) if parent is not None else None, data),
+        )
+        self._data[number] = data
+        f = plan.figures
+        detail = (
+            f"revision {number}: coverage {f.coverage}/{f.demand}, required "
+            f"{f.required_coverage}/{f.required_demand}, score {f.total_score:.2f}"
+        )
+        if kept is not None:
+            detail += f", kept {kept}/{revision.parent_pairs} of revision {parent}"
         self._record(
             "plan",
-            "",
-            f"coverage {f.coverage}/{f.demand}, required {f.required_coverage}/"
-            f"{f.required_demand}, score {f.total_score:.2f}",
-            plan=outcome.plan,
+            str(number),
+            detail,
+            plan=plan,
+            revisions=[*s.revisions, revision],
+            revision=number,
+        )
+
+    # -- history --------------------------------------------------------------------------
+
+    @property
+    def revisions(self) -> list[Revision]:
+        """Every revision, oldest first."""
+        return self.session.revisions
+
+    def history(self) -> list[HistoryEntry]:
+        """The revisions with the changes made before each, oldest first."""
+        s = self.session
+        return [
+            HistoryEntry(
+                number=r.number,
+                parent=r.parent,
+                created_at=r.created_at,
+                current=r.number == s.revision,
+                fresh=r.fresh,
+                kept=r.kept,
+                parent_pairs=r.parent_pairs,
+                figures=r.figures,
+                changes=tuple(e.describe() for e in s.events[r.changes_from : r.event]),
+            )
+            for r in s.revisions
+        ]
+
+    def _revision(self, number: int) -> Revision:
+        for r in self.session.revisions:
+            if r.number == number:
+                return r
+        known = ", ".join(str(r.number) for r in self.session.revisions) or "none yet"
+        raise ChangeRefused([f"unknown revision {number} (revisions: {known})"])
+
+    def data_of(self, number: int) -> SessionData:
+        """The data revision `number` was planned from."""
+        self._revision(number)
+        if number not in self._data:
+            self._data[number] = restore_data(self.session.revisions, number)
+        return self._data[number]
+
+    def plan_of(self, number: int) -> Plan:
+        """The plan of revision `number`, exactly as it was made."""
+        return self._revision(number).plan(self.data_of(number))
+
+    def undo(self, reason: str = "") -> int:
+        """Go back to the revision before the current one: its plan and the data it had."""
+        s = self.session
+        if s.revision is None:
+            raise ChangeRefused(["there is no plan in the history to go back from"])
+        current = self._revision(s.revision)
+        if current.parent is None:
+            raise ChangeRefused([f"revision {current.number} is the first; nothing to go back to"])
+        target = current.parent
+        data = self.data_of(target)
+        self.session = s.model_copy(update=data.fields())
+        self._record(
+            "undo",
+            str(target),
+            f"back to revision {target} from {current.number}",
+            reason=reason,
+            plan=self.plan_of(target),
+            revision=target,
+        )
+        return target
+
+    def diff(self, a: int | None = None, b: int | None = None) -> PlanDiff:
+        """Pairs added and removed from revision `a` to `b` (default: the last two)."""
+        numbers = [r.number for r in self.session.revisions]
+        if not numbers:
+            raise ChangeRefused(["there are no revisions yet; make a plan first"])
+        if b is None:
+            b = numbers[-1] if a is None or a != numbers[-1] else a
+        if a is None:
+            earlier = [n for n in numbers if n < b]
+            if not earlier:
+                raise ChangeRefused([f"revision {b} is the first; name two revisions to compare"])
+            a = earlier[-1]
+        return diff_plans(self.plan_of(a), self.plan_of(b), old_number=a, new_number=b)
+
+    def notify_rows(self, since: int) -> list[NotifyRow]:
+        """Reviewers whose list changed from revision `since` to the current revision."""
+        current = self.session.revision
+        if current is None:
+            raise ChangeRefused(["the current plan is not a revision; make a plan first"])
+        change = self.diff(since, current)
+        return notify_rows(
+            change,
+            self.plan_of(since),
+            self.plan_of(current),
+            self.data_of(since),
+            self.data_of(current),
         )
 
     # -- changes --------------------------------------------------------------------------
@@ -147,25 +345,53 @@ class Workspace:
             "reinstate-paper", paper_id, "", reason, papers=self._with_paper(i, withdrawn=False)
         )
 
-    def add_reviewer(self, reviewer: Reviewer, reason: str = "") -> None:
-        """Add a new reviewer (ids are never reused)."""
+    def add_reviewer(
+        self, reviewer: Reviewer, reason: str = "", *, scores: dict[str, float] | None = None
+    ) -> None:
+        """Add a new reviewer, with fit scores by paper id (ids in use are refused)."""
         if reviewer.id in self.session.reviewer_index():
             raise ChangeRefused([f"reviewer {reviewer.id} already exists"])
         self._check_limits(reviewer.cap, reviewer.floor, f"reviewer {reviewer.id}")
+        j = len(self.session.reviewers)
+        rows = [(j, self._paper(pid), value) for pid, value in (scores or {}).items()]
         self._apply(
             "add-reviewer",
             reviewer.id,
-            reviewer.name,
+            reviewer.name + (f", {len(rows)} scores" if rows else ""),
             reason,
             reviewers=[*self.session.reviewers, reviewer],
+            scores=self._scores_with(rows),
         )
 
-    def add_paper(self, paper: Paper, reason: str = "") -> None:
-        """Add a new paper (ids are never reused)."""
+    def add_paper(
+        self, paper: Paper, reason: str = "", *, scores: dict[str, float] | None = None
+    ) -> None:
+        """Add a new paper, with fit scores by reviewer id (ids in use are refused)."""
         if paper.id in self.session.paper_index():
             raise ChangeRefused([f"{self.noun} {paper.id} already exists"])
+        i = len(self.session.papers)
+        rows = [(self._reviewer(rid), i, value) for rid, value in (scores or {}).items()]
         self._apply(
-            "add-paper", paper.id, paper.title, reason, papers=[*self.session.papers, paper]
+            "add-paper",
+            paper.id,
+            paper.title + (f", {len(rows)} scores" if rows else ""),
+            reason,
+            papers=[*self.session.papers, paper],
+            scores=self._scores_with(rows),
+        )
+
+    def _scores_with(self, rows: list[tuple[int, int, float]]) -> ScoreTable:
+        """The score table with rows for a new entity added (it has none yet)."""
+        table = self.session.scores
+        if not rows:
+            return table
+        for _, _, value in rows:
+            if not np.isfinite(value) or value < 0:
+                raise ChangeRefused([f"score {value!r}: a score must be a finite number >= 0"])
+        return ScoreTable.from_arrays(
+            np.concatenate([table.reviewer, np.array([r[0] for r in rows], dtype=np.int32)]),
+            np.concatenate([table.paper, np.array([r[1] for r in rows], dtype=np.int32)]),
+            np.concatenate([table.value, np.array([r[2] for r in rows], dtype=np.float64)]),
         )
 
     def set_reviewer(
@@ -388,12 +614,13 @@ class Workspace:
         *,
         reason: str = "",
         plan: Plan | None = None,
+        **fields: object,
     ) -> None:
         event = Event(
             at=datetime.now(UTC), action=action, subject=subject, detail=detail, reason=reason
         )
         self.session = self.session.model_copy(
-            update={"events": [*self.session.events, event], "plan": plan}
+            update={"events": [*self.session.events, event], "plan": plan, **fields}
         )
         self.dirty = True
 
@@ -444,3 +671,16 @@ class Workspace:
                 + " (edited since: forbidden pairs removed; plan again for the optimum)",
             }
         )
+
+
+def _data_of(session: Session) -> SessionData:
+    """The session's changeable data, sharing its lists (they are replaced, never edited)."""
+    return SessionData(
+        policy=session.policy,
+        papers=session.papers,
+        reviewers=session.reviewers,
+        conflicts=session.conflicts,
+        pins=session.pins,
+        blocks=session.blocks,
+        scores=session.scores,
+    )

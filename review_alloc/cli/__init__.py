@@ -11,11 +11,11 @@ import argparse
 import sys
 from collections.abc import Sequence
 
-from review_alloc.cli import app, basic
+from review_alloc.cli import app, basic, changes
 from review_alloc.cli.common import EXIT_CHECK, EXIT_INPUT
 from review_alloc.model import InputError
 
-_MODULES = (basic, app)
+_MODULES = (basic, changes, app)
 _DEFAULT_COMMAND = "app"
 
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import sys
 from collections.abc import Callable
 from pathlib import Path
 
@@ -46,6 +47,9 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
 
     p = sub.add_parser("plan", help="make the optimal plan and save it in the session")
     p.add_argument("session", type=Path)
+    p.add_argument(
+        "--fresh", action="store_true", help="ignore the earlier plan (keep none of its pairs)"
+    )
     p.add_argument("--json", action="store_true", help="print one JSON object")
 
     p = sub.add_parser("explain", help="list the papers short of reviews")
@@ -103,10 +107,17 @@ def _cmd_import(args: argparse.Namespace) -> int:
 
 
 def _cmd_plan(args: argparse.Namespace) -> int:
+    from review_alloc.flow import kernels_ready
     from review_alloc.plan import plan_summary
+    from review_alloc.workspace import Workspace
 
-    session = solve(load_session(args.session))
-    save_session(session, args.session)
+    # Through the Workspace so that the plan keeps earlier pairs and becomes a revision.
+    ws = Workspace.open(args.session)
+    if not kernels_ready():
+        print("Preparing the solver (first run on this machine)...", file=sys.stderr)
+    ws.solve(fresh=args.fresh)
+    ws.save()
+    session = ws.session
     summary = plan_summary(session, session.plan)
     if args.json:
         emit_json(summary)

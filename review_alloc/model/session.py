@@ -18,6 +18,7 @@ from pydantic import Field, PrivateAttr, model_validator
 from review_alloc.model.base import DocumentModel, Identifier
 from review_alloc.model.entities import Conflict, PairRule, Paper, Reviewer
 from review_alloc.model.events import Event
+from review_alloc.model.history import Revision
 from review_alloc.model.plans import Plan
 from review_alloc.model.policy import Policy
 from review_alloc.model.scores import ScoreTable
@@ -75,6 +76,10 @@ class Session(DocumentModel):
     plan: Plan | None = None
     events: list[Event] = Field(default_factory=list)
     """Every change made after import, oldest first."""
+    revisions: list[Revision] = Field(default_factory=list)
+    """Every plan made, oldest first (see `model.history`); files from before history load empty."""
+    revision: int | None = None
+    """Number of the revision the current plan and data came from (None: not from history)."""
 
     _indexes: _IndexCache = PrivateAttr(default_factory=_IndexCache)
 
@@ -114,6 +119,7 @@ class Session(DocumentModel):
                     f"pins.{k}: pair ({pair[0]}, {pair[1]}) is a declared conflict "
                     f"(conflicts.{declared[pair]})"
                 )
+        problems += self._history_problems()
         if self.plan is not None:
             for k, a in enumerate(self.plan.assignments):
                 if a.paper not in paper_at:
@@ -122,6 +128,23 @@ class Session(DocumentModel):
                     problems.append(
                         f"plan.assignments.{k}.reviewer: unknown reviewer {a.reviewer!r}"
                     )
+        return problems
+
+    def _history_problems(self) -> list[str]:
+        problems: list[str] = []
+        numbers: set[int] = set()
+        for k, rev in enumerate(self.revisions):
+            if rev.number in numbers:
+                problems.append(f"revisions.{k}.number: revision {rev.number} appears twice")
+            if rev.parent is not None and rev.parent not in numbers:
+                problems.append(
+                    f"revisions.{k}.parent: revision {rev.parent} is not an earlier revision"
+                )
+            if rev.event >= len(self.events) or rev.changes_from > rev.event:
+                problems.append(f"revisions.{k}.event: {rev.event} is not a recorded event")
+            numbers.add(rev.number)
+        if self.revision is not None and self.revision not in numbers:
+            problems.append(f"revision: {self.revision} is not in the history")
         return problems
 
     @staticmethod

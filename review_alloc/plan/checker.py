@@ -29,10 +29,16 @@ def check_plan(
     potentials: np.ndarray | None,
     *,
     network: PlanNetwork | None = None,
+    earlier: Plan | None = None,
 ) -> None:
-    """Raise PlanCheckError unless the plan keeps every rule and, given potentials, is optimal."""
+    """Raise PlanCheckError unless the plan keeps every rule and, given potentials, is optimal.
+
+    A re-plan's certificate is checked against the network with `earlier`'s keep tier.
+    """
     problems = _hard_rule_problems(session, plan)
     if not problems and potentials is not None:
+        if network is None:
+            network = build_network(session, earlier=earlier)
         problems = _certificate_problems(session, plan, potentials, network)
     if problems:
         raise PlanCheckError(problems[:_MAX_LISTED])

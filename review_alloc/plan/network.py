@@ -6,9 +6,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from review_alloc.model import Session
+from review_alloc.model import Plan, Session
 from review_alloc.plan.conflicts import ConflictSet, conflict_pairs
 from review_alloc.plan.errors import PlanInputError
+from review_alloc.plan.keep import earlier_pair_mask, fitting_resolution, keep_weight
 
 SCORE_RESOLUTION = 10_000
 """Integer cost steps per score unit: a score of 0.8532 becomes 8532 (ties closer than 1e-4 are
@@ -20,7 +21,9 @@ MAX_CANDIDATE_PAIRS = 60_000_000
 _COST_LIMIT = 2**62
 
 
-def tier_weights(max_pair_arcs_in_cycle: int, max_score: int) -> tuple[int, int, int]:
+def tier_weights(
+    max_pair_arcs_in_cycle: int, max_score: int, keep_weight: int = 0
+) -> tuple[int, int, int]:
     """Weights (required, coverage, floors) that make one min-cost flow lexicographic.
 
     An optimal flow has no negative residual cycle, and every flow difference splits into simple
@@ -28,8 +31,13 @@ def tier_weights(max_pair_arcs_in_cycle: int, max_score: int) -> tuple[int, int,
     each tier count by at most one, and it holds at most `max_pair_arcs_in_cycle` pair arcs, so it
     changes the total score by at most that many times `max_score`. With each weight larger than
     everything below it can move in one cycle, no cycle can trade a higher tier for lower ones.
+
+    A re-plan adds the kept-earlier-pairs tier between floors and score (`plan.keep`): each kept
+    pair is worth `keep_weight` (more than a cycle's score change), and a cycle changes the kept
+    count by at most its pair arcs, so the floors weight must exceed that many times
+    (`keep_weight` + `max_score`). With `keep_weight` 0 the weights are those of a fresh plan.
     """
-    floors = max_pair_arcs_in_cycle * max_score + 1
+    floors = max_pair_arcs_in_cycle * (max_score + keep_weight) + 1
     coverage = 2 * floors
     required = 2 * coverage
     return required, coverage, floors
@@ -62,6 +70,11 @@ class PlanNetwork:
 
     n_reviewers: int
     n_papers: int
+    kept: np.ndarray | None = None
+    """Per pair arc: True where the earlier plan of a re-plan assigned it (None: fresh plan)."""
+    keep_weight: int = 0
+    resolution: int = SCORE_RESOLUTION
+    """Score steps per unit actually used (coarser only when the keep tier needs the room)."""
 
     def paper_node(self, i: np.ndarray | int) -> np.ndarray | int:
         """Node id of paper index i (reviewer j is node 1 + j)."""
@@ -129,8 +142,11 @@ def candidate_pairs(session: Session) -> tuple[np.ndarray, np.ndarray, np.ndarra
     return keys // n, keys % n, scores
 
 
-def build_network(session: Session) -> PlanNetwork:
-    """Build the network: source → reviewer [floor, cap] → paper [0, 1] → sink [min, reviews]."""
+def build_network(session: Session, *, earlier: Plan | None = None) -> PlanNetwork:
+    """Build the network: source → reviewer [floor, cap] → paper [0, 1] → sink [min, reviews].
+
+    With an `earlier` plan the pairs it assigned earn the keep-tier bonus (`plan.keep`).
+    """
     n_r, n_p = len(session.reviewers), len(session.papers)
     conflicts = conflict_pairs(session)
     reviewer, paper, score = candidate_pairs(session)
@@ -160,9 +176,16 @@ def build_network(session: Session) -> PlanNetwork:
         pr, pp = _rule_pairs(session, session.pins)
         pinned[np.isin(keys, _pair_keys(pr, pp, n_p))] = 1
 
-    score_int = np.rint(score * SCORE_RESOLUTION).astype(np.int64)
+    cycle_arcs = 2 * max(min(n_r, n_p), 1)
+    kept = earlier_pair_mask(session, earlier, reviewer, paper) if earlier is not None else None
+    resolution = SCORE_RESOLUTION
+    if kept is not None:
+        top = float(score.max()) if len(score) else 0.0
+        resolution = fitting_resolution(SCORE_RESOLUTION, top, cycle_arcs, int(reviews.sum())) or 1
+    score_int = np.rint(score * resolution).astype(np.int64)
     max_score = int(score_int.max()) if len(score_int) else 0
-    weights = tier_weights(2 * max(min(n_r, n_p), 1), max_score)
+    w_keep = keep_weight(cycle_arcs, max_score) if kept is not None else 0
+    weights = tier_weights(cycle_arcs, max_score, w_keep)
     w_required, w_coverage, w_floor = weights
 
     source, sink = 0, 1 + n_r + n_p
@@ -186,7 +209,7 @@ def build_network(session: Session) -> PlanNetwork:
         [
             np.full(n_r, -w_floor, np.int64),
             np.zeros(n_r, np.int64),
-            max_score - score_int,
+            max_score - score_int - (w_keep * kept if kept is not None else 0),
             np.full(n_p, -(w_required + w_coverage + max_score), np.int64),
             np.full(n_p, -(w_coverage + max_score), np.int64),
             [0],
@@ -222,6 +245,9 @@ def build_network(session: Session) -> PlanNetwork:
         conflicts=conflicts,
         n_reviewers=n_r,
         n_papers=n_p,
+        kept=kept,
+        keep_weight=w_keep,
+        resolution=resolution,
     )
 
 

@@ -25,9 +25,20 @@ class PlanOutcome:
     potentials: np.ndarray
 
 
-def make_plan(session: Session, *, now: datetime | None = None) -> PlanOutcome:
-    """Solve the session's lexicographic objective exactly and return the checked plan."""
-    net = build_network(session)
+def make_plan(
+    session: Session,
+    *,
+    fresh: bool = False,
+    earlier: Plan | None = None,
+    now: datetime | None = None,
+) -> PlanOutcome:
+    """Solve the session's lexicographic objective exactly and return the checked plan.
+
+    A re-plan keeps the pairs of `earlier` (default: the session's current plan) as a tier just
+    above score, so it moves as few reviews as coverage and floors allow; `fresh` ignores it.
+    """
+    base = None if fresh else (earlier if earlier is not None else session.plan)
+    net = build_network(session, earlier=base)
     result = min_cost_flow(
         net.n_nodes, net.tails, net.heads, net.capacities, net.costs, lower=net.lower
     )

@@ -1,0 +1,261 @@
+"""Plan history: each plan is a `Revision` that gives back its plan and the data it came from.
+
+Storage is compact because a large venue has tens of thousands of assignments per revision:
+
+- the assignments are a `ScoreTable` (reviewer and paper positions, score), stored like the
+  session's scores: little-endian arrays, zlib-compressed, base64-encoded;
+- the data the plan was made from (policy, papers, reviewers, conflicts, pins, blocks, scores)
+  is a `DataDelta` against the revision's `parent` (the first revision holds it whole): each
+  list stores its new length and the positions whose entry changed, which suits lists that
+  grow at the end and change in place, as papers and reviewers do; scores store the rows
+  added or changed and the pairs removed.
+
+A revision's data is rebuilt by applying the deltas along its parent chain, from the root.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from datetime import datetime
+from typing import Generic, TypeVar
+
+import numpy as np
+from pydantic import Field, field_validator
+
+from review_alloc.model.base import DocumentModel
+from review_alloc.model.entities import Conflict, PairRule, Paper, Reviewer
+from review_alloc.model.plans import Assignment, Plan, PlanFigures
+from review_alloc.model.policy import Policy
+from review_alloc.model.scores import ScoreTable
+
+Item = TypeVar("Item", Paper, Reviewer, Conflict, PairRule)
+
+
+class ListDelta(DocumentModel, Generic[Item]):
+    """A list as the one before it cut or grown to `length`, with the entries at `changed` new."""
+
+    length: int = Field(ge=0)
+    changed: list[tuple[int, Item]] = Field(default_factory=list)
+
+    @classmethod
+    def between(cls, old: list[Item], new: list[Item]) -> ListDelta[Item] | None:
+        """The delta from `old` to `new`, or None when they are equal."""
+        changed = [
+            (k, item)
+            for k, item in enumerate(new)
+            if k >= len(old) or (item is not old[k] and item != old[k])
+        ]
+        if not changed and len(old) == len(new):
+            return None
+        return cls(length=len(new), changed=changed)
+
+    def apply(self, old: list[Item]) -> list[Item]:
+        """The list this delta describes, given the list it was taken against."""
+        if any(k >= self.length for k, _ in self.changed):
+            raise ValueError("a changed position lies beyond the list's length")
+        out: list[Item | None] = [*old[: self.length], *[None] * max(self.length - len(old), 0)]
+        for k, item in self.changed:
+            out[k] = item
+        if any(item is None for item in out):
+            raise ValueError("the delta leaves a position of the list empty")
+        return [item for item in out if item is not None]
+
+
+class ScoreDelta(DocumentModel):
+    """Score rows added or changed, and the pairs whose rows were removed (their value is 0)."""
+
+    added: ScoreTable
+    removed: ScoreTable
+
+    @classmethod
+    def between(cls, old: ScoreTable, new: ScoreTable) -> ScoreDelta | None:
+        """The delta from `old` to `new`, or None when they hold the same rows."""
+        if old == new:
+            return None
+        old_keys, new_keys = _keys(old), _keys(new)
+        pos = np.searchsorted(old_keys, new_keys)
+        pos_c = np.minimum(pos, max(len(old_keys) - 1, 0))
+        same = (
+            (old_keys[pos_c] == new_keys) & (old.value[pos_c] == new.value)
+            if len(old_keys)
+            else np.zeros(len(new_keys), dtype=bool)
+        )
+        gone = ~np.isin(old_keys, new_keys)
+        return cls(
+            added=ScoreTable.from_arrays(new.reviewer[~same], new.paper[~same], new.value[~same]),
+            removed=ScoreTable.from_arrays(
+                old.reviewer[gone], old.paper[gone], np.zeros(int(gone.sum()))
+            ),
+        )
+
+    def apply(self, old: ScoreTable) -> ScoreTable:
+        """The score table this delta describes, given the one it was taken against."""
+        old_keys = _keys(old)
+        drop = np.isin(old_keys, _keys(self.removed)) | np.isin(old_keys, _keys(self.added))
+        return ScoreTable.from_arrays(
+            np.concatenate([old.reviewer[~drop], self.added.reviewer]),
+            np.concatenate([old.paper[~drop], self.added.paper]),
+            np.concatenate([old.value[~drop], self.added.value]),
+        )
+
+
+def _keys(table: ScoreTable) -> np.ndarray:
+    return (table.reviewer.astype(np.int64) << 32) | table.paper.astype(np.int64)
+
+
+@dataclass(frozen=True)
+class SessionData:
+    """The data a chair changes: what undo brings back with a revision's plan."""
+
+    policy: Policy
+    papers: list[Paper]
+    reviewers: list[Reviewer]
+    conflicts: list[Conflict]
+    pins: list[PairRule]
+    blocks: list[PairRule]
+    scores: ScoreTable
+
+    def fields(self) -> dict[str, object]:
+        """The data as `Session.model_copy(update=...)` fields."""
+        return {
+            "policy": self.policy,
+            "papers": self.papers,
+            "reviewers": self.reviewers,
+            "conflicts": self.conflicts,
+            "pins": self.pins,
+            "blocks": self.blocks,
+            "scores": self.scores,
+        }
+
+
+class DataDelta(DocumentModel):
+    """How a revision's data differs from its parent's; a field left None did not change."""
+
+    policy: Policy | None = None
+    papers: ListDelta[Paper] | None = None
+    reviewers: ListDelta[Reviewer] | None = None
+    conflicts: ListDelta[Conflict] | None = None
+    pins: ListDelta[PairRule] | None = None
+    blocks: ListDelta[PairRule] | None = None
+    scores: ScoreDelta | None = None
+
+    @classmethod
+    def between(cls, old: SessionData | None, new: SessionData) -> DataDelta:
+        """The delta from `old` (None: nothing, so the delta holds `new` whole) to `new`."""
+        base = old or _EMPTY
+        return cls(
+            policy=new.policy if old is None or new.policy != old.policy else None,
+            papers=ListDelta[Paper].between(base.papers, new.papers),
+            reviewers=ListDelta[Reviewer].between(base.reviewers, new.reviewers),
+            conflicts=ListDelta[Conflict].between(base.conflicts, new.conflicts),
+            pins=ListDelta[PairRule].between(base.pins, new.pins),
+            blocks=ListDelta[PairRule].between(base.blocks, new.blocks),
+            scores=ScoreDelta.between(base.scores, new.scores),
+        )
+
+    def apply(self, old: SessionData | None) -> SessionData:
+        """The data this delta describes, given the parent's (None for a root revision)."""
+        if old is None and self.policy is None:
+            raise ValueError("the first revision must hold its policy")
+        base = old or _EMPTY
+        return SessionData(
+            policy=self.policy if self.policy is not None else base.policy,
+            papers=self.papers.apply(base.papers) if self.papers else base.papers,
+            reviewers=self.reviewers.apply(base.reviewers) if self.reviewers else base.reviewers,
+            conflicts=self.conflicts.apply(base.conflicts) if self.conflicts else base.conflicts,
+            pins=self.pins.apply(base.pins) if self.pins else base.pins,
+            blocks=self.blocks.apply(base.blocks) if self.blocks else base.blocks,
+            scores=self.scores.apply(base.scores) if self.scores else base.scores,
+        )
+
+
+_EMPTY = SessionData(
+    policy=Policy(),
+    papers=[],
+    reviewers=[],
+    conflicts=[],
+    pins=[],
+    blocks=[],
+    scores=ScoreTable.empty(),
+)
+
+
+class Revision(DocumentModel):
+    """One plan in the history, with the changes before it, its figures and its data."""
+
+    number: int = Field(ge=1)
+    parent: int | None = None
+    """The revision this one re-planned from (its data delta and kept pairs refer to it)."""
+    created_at: datetime
+    changes_from: int = Field(ge=0)
+    """`Session.events[changes_from:event]` are the changes made since the revision before."""
+    event: int = Field(ge=0)
+    """Position of this revision's own `plan` event in `Session.events`."""
+    fresh: bool = False
+    """Made ignoring the earlier plan (`plan --fresh`)."""
+    kept: int | None = None
+    """Pairs of the parent's plan this plan kept (None without a parent)."""
+    parent_pairs: int | None = None
+    figures: PlanFigures
+    method: str
+    checked: bool
+    assignments: ScoreTable
+    """Reviewer position, paper position and score of each assigned pair."""
+    data: DataDelta
+
+    @field_validator("created_at")
+    @classmethod
+    def _aware(cls, value: datetime) -> datetime:
+        if value.tzinfo is None:
+            raise ValueError("the time must carry a time zone")
+        return value
+
+    def plan(self, data: SessionData) -> Plan:
+        """The revision's plan, given its own data (see `restore_data`)."""
+        reviewer = self.assignments.reviewer.astype(np.int64)
+        paper = self.assignments.paper.astype(np.int64)
+        value = self.assignments.value
+        order = np.lexsort((reviewer, paper))
+        assignments = [
+            Assignment(paper=data.papers[i].id, reviewer=data.reviewers[j].id, score=float(s))
+            for j, i, s in zip(
+                reviewer[order].tolist(), paper[order].tolist(), value[order].tolist(), strict=True
+            )
+        ]
+        return Plan(
+            assignments=assignments,
+            figures=self.figures,
+            created_at=self.created_at,
+            checked=self.checked,
+            method=self.method,
+        )
+
+
+def restore_data(revisions: list[Revision], number: int) -> SessionData:
+    """Rebuild the data of revision `number` from the deltas along its parent chain."""
+    by_number = {r.number: r for r in revisions}
+    chain: list[Revision] = []
+    at: int | None = number
+    while at is not None:
+        if at not in by_number:
+            raise KeyError(f"revision {at} is not in the history")
+        if len(chain) > len(by_number):
+            raise ValueError("the revision parents form a loop")
+        chain.append(by_number[at])
+        at = by_number[at].parent
+    data: SessionData | None = None
+    for revision in reversed(chain):
+        data = revision.data.apply(data)
+    assert data is not None
+    return data
+
+
+def assignment_table(plan: Plan, data: SessionData) -> ScoreTable:
+    """A plan's assignments as a compact table of positions in `data`."""
+    rid = {r.id: j for j, r in enumerate(data.reviewers)}
+    pid = {p.id: i for i, p in enumerate(data.papers)}
+    return ScoreTable.from_arrays(
+        np.array([rid[a.reviewer] for a in plan.assignments], dtype=np.int32),
+        np.array([pid[a.paper] for a in plan.assignments], dtype=np.int32),
+        np.array([a.score for a in plan.assignments], dtype=np.float64),
+    )
