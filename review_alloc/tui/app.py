@@ -29,18 +29,17 @@ from textual.widgets import (
     TabPane,
 )
 
-from review_alloc.model import InputError, Session
+from review_alloc.model import InputError, Plan, Session
 from review_alloc.plan import PlanCheckError, PlanOutcome
 from review_alloc.tui.dialogs import Confirm, Field, Form, HelpScreen, ImportForm, whole_or_default
-from review_alloc.tui.facts import Facts, plan_change
+from review_alloc.tui.facts import Facts
 from review_alloc.tui.grid import RowTable
 from review_alloc.tui.overview import Overview
-from review_alloc.tui.records import ConflictView, HistoryView, Revision
+from review_alloc.tui.records import ConflictView, HistoryView
 from review_alloc.tui.tables import EntityView, GapView, PaperView, ReviewerView
 from review_alloc.workspace import Workspace
 
 TABS = ("overview", "papers", "reviewers", "conflicts", "gaps", "history")
-UNDO_DEPTH = 50
 
 
 def _utc_now() -> datetime:
@@ -80,7 +79,8 @@ class ReviewAllocApp(App[None]):
         Binding("r", "plan", "Plan", tooltip="Make the optimal plan in the background"),
         Binding("escape", "cancel_plan", "Cancel plan", show=False),
         Binding("ctrl+s", "save", "Save"),
-        Binding("ctrl+z", "undo", "Undo"),
+        Binding("R", "plan(True)", "Plan fresh", show=False),
+        Binding("ctrl+z", "undo", "Back a revision"),
         Binding("i", "import", "Import CSV", show=False),
         Binding("question_mark,f1", "help", "Keys"),
         Binding("1", "tab('overview')", "Overview", show=False),
@@ -111,15 +111,11 @@ class ReviewAllocApp(App[None]):
         self.workspace = workspace
         self.clock = clock
         self.facts = Facts.of(workspace.session)
-        self.revisions: list[Revision] = []
-        if workspace.session.plan is not None:
-            self.revisions.append(Revision(1, workspace.session.plan, "loaded with the session"))
-        self._undo: list[Session] = []
         self._generation = 0
         self._planning_since: float | None = None
         self._shown_version: dict[str, int] = {}
         self._version = 0
-        self.last_change = None
+        self._history_mark: tuple[int, int | None] | None = None
 
     # -- layout ---------------------------------------------------------------------------
 
@@ -171,8 +167,10 @@ class ReviewAllocApp(App[None]):
         self._version += 1
         self._draw_bar()
         history = self.query_one(HistoryView)
-        if len(history.revisions) != len(self.revisions):
-            history.revisions = list(self.revisions)
+        mark = (len(self.workspace.revisions), self.workspace.session.revision)
+        if mark != self._history_mark:
+            self._history_mark = mark
+            history.entries = self.workspace.history()
         self._show_view(self.query_one(TabbedContent).active or "overview")
 
     def _show_view(self, tab: str) -> None:
@@ -217,8 +215,12 @@ class ReviewAllocApp(App[None]):
         """Whether a plan is being made right now."""
         return self._planning_since is not None
 
-    def action_plan(self) -> None:
-        """Make the optimal plan in a worker thread; the screen stays live."""
+    def action_plan(self, fresh: bool = False) -> None:
+        """Make the optimal plan in a worker thread; the screen stays live.
+
+        A re-plan keeps as many pairs of the current revision as coverage and floors allow
+        (so few reviewers have to be told); `fresh` ignores them.
+        """
         if self.planning:
             self.notify("a plan is already being made (escape cancels it)")
             return
@@ -231,15 +233,16 @@ class ReviewAllocApp(App[None]):
         self.query_one("#planning-label", Label).update(
             f"planning {papers} {self.noun}s exactly... escape cancels "
         )
-        self._solve(snapshot, self._generation)
+        earlier = None if fresh else self.workspace.earlier_plan()
+        self._solve(snapshot, earlier, fresh, self._generation)
 
     @work(thread=True, exclusive=True, group="plan", exit_on_error=False)
-    def _solve(self, snapshot: Session, generation: int) -> None:
+    def _solve(self, snapshot: Session, earlier: Plan | None, fresh: bool, generation: int) -> None:
         """Run the planner on a snapshot and post the outcome back to the app."""
         from review_alloc.plan import make_plan
 
         try:
-            outcome = make_plan(snapshot, now=self.clock())
+            outcome = make_plan(snapshot, fresh=fresh, earlier=earlier, now=self.clock())
         except InputError as error:
             self.post_message(self.PlanFailed(generation, list(error.lines)))
             return
@@ -277,32 +280,30 @@ class ReviewAllocApp(App[None]):
         started = self._planning_since or monotonic()
         self._end_planning()
         ws = self.workspace
-        before = ws.session
         try:
             ws.install_plan(message.outcome, message.planned)
         except InputError as error:
             self.notify("\n".join(error.lines), title="Plan not installed", severity="warning")
             return
-        self._push_undo(before)
-        change = plan_change(before.plan, message.outcome.plan)
-        self.last_change = change
-        number = len(self.revisions) + 1
-        self.revisions.append(Revision(number, message.outcome.plan, change.headline()))
         self._refresh_all()
         f = message.outcome.plan.figures
+        number = ws.session.revision
+        change = "the first revision"
+        entry = ws.history()[-1]
+        if entry.parent is not None:
+            d = ws.diff(entry.parent, number)
+            change = (
+                f"against revision {entry.parent}: +{len(d.added)} / -{len(d.removed)} pairs, "
+                f"{d.kept} kept, {len(d.by_reviewer)} reviewers to tell"
+            )
         self.notify(
-            f"plan {number}: {f.coverage}/{f.demand} reviews, score {f.total_score:.2f} "
-            f"({monotonic() - started:.1f} s)\nagainst the last plan: {change.headline()}"
-            "\nHistory (6) lists every pair that changed.",
+            f"revision {number}: {f.coverage}/{f.demand} reviews, score {f.total_score:.2f} "
+            f"({monotonic() - started:.1f} s)\n{change}\nHistory (6) shows who changed.",
             title="Plan made and checked",
             timeout=8,
         )
 
     # -- changes --------------------------------------------------------------------------
-
-    def _push_undo(self, session: Session) -> None:
-        self._undo.append(session)
-        del self._undo[:-UNDO_DEPTH]
 
     def _change(self, what: str, apply: Callable[[], None]) -> bool:
         """Apply one Workspace change; show its refusal reasons instead when it is refused."""
@@ -312,7 +313,6 @@ class ReviewAllocApp(App[None]):
         except InputError as error:
             self.notify("\n".join(error.lines[:8]), title=f"{what}: refused", severity="warning")
             return False
-        self._push_undo(before)
         self._refresh_all()
         note = ""
         if before.plan is not None:
@@ -393,7 +393,6 @@ class ReviewAllocApp(App[None]):
             if problems:
                 return problems
             ws = self.workspace
-            before = ws.session
             try:
                 if kind == "reviewer":
                     ws.set_reviewer(ident, cap=numbers["cap"], floor=numbers["floor"])
@@ -403,7 +402,6 @@ class ReviewAllocApp(App[None]):
                     )
             except InputError as error:
                 return list(error.lines)
-            self._push_undo(before)
             self._refresh_all()
             self.notify(f"{title}: changed. Press r to plan again.")
             return []
@@ -451,21 +449,58 @@ class ReviewAllocApp(App[None]):
         self.action_undo()
 
     def action_undo(self) -> None:
-        """Take back the last change or plan (the session returns to how it was)."""
+        """Go back to the previous revision, its plan and its data (asks if that drops changes)."""
         if self.planning:
-            self.notify("wait for the plan or cancel it (escape) before undoing")
+            self.notify("wait for the plan or cancel it (escape) before going back")
             return
-        if not self._undo:
-            self.notify("nothing to undo in this sitting")
+        ws = self.workspace
+        current = ws.session.revision
+        entry = next((e for e in ws.history() if e.number == current), None)
+        if entry is None or entry.parent is None:
+            self.notify("no earlier revision to go back to", severity="warning")
             return
-        last = self.workspace.session.events[-1] if self.workspace.session.events else None
-        # The Workspace has no undo of its own yet; a session is a value, so the one taken
-        # before the change is the state to return to.
-        self.workspace.session = self._undo.pop()
-        self.workspace.dirty = True
+        events = ws.session.events
+        marks = [k for k, e in enumerate(events) if e.action in ("plan", "undo")]
+        unplanned = len(events) - (marks[-1] + 1 if marks else 0)
+        if not unplanned:
+            self._go_back()
+            return
+
+        def answered(yes: bool | None) -> None:
+            if yes:
+                self._go_back()
+
+        self.push_screen(
+            Confirm(
+                f"Go back to revision {entry.parent}? The {unplanned} change(s) made since "
+                f"revision {current} are dropped with it (they stay listed under History).",
+                yes=f"Back to revision {entry.parent}",
+                no="Stay",
+            ),
+            answered,
+        )
+
+    def _go_back(self) -> None:
+        try:
+            number = self.workspace.undo()
+        except InputError as error:
+            self.notify("\n".join(error.lines), title="Cannot go back", severity="warning")
+            return
         self._refresh_all()
-        what = f"{last.action} {last.subject}".strip() if last else "the last change"
-        self.notify(f"undone: {what}")
+        self.notify(f"back to revision {number}: its plan and its data")
+
+    @on(HistoryView.DiffWanted)
+    def _diff_wanted(self, message: HistoryView.DiffWanted) -> None:
+        from review_alloc.plan.diff import diff_plans
+
+        ws = self.workspace
+        entry = next(e for e in ws.history() if e.number == message.target)
+        base = message.base if message.base is not None else entry.parent
+        view = self.query_one(HistoryView)
+        if base is None:
+            view.diff = diff_plans(None, ws.plan_of(message.target), new_number=message.target)
+        else:
+            view.diff = ws.diff(base, message.target)
 
     # -- files ----------------------------------------------------------------------------
 
@@ -494,7 +529,7 @@ class ReviewAllocApp(App[None]):
         workspace = Workspace(session, None)
         workspace.save(target)
         self.workspace = workspace
-        self.revisions, self._undo = [], []
+        self._history_mark = None
         self._refresh_all()
         self.notify(f"imported {len(session.papers)} {self.noun}s into {target}")
 
@@ -564,7 +599,8 @@ class ReviewAllocApp(App[None]):
         """Our commands for the palette: (name, help, callback)."""
         yield "Plan now", "make the optimal, checked plan", self.action_plan
         yield "Save session", "write the session file (atomic)", self.action_save
-        yield "Undo last change", "take back the last change or plan", self.action_undo
+        yield "Plan fresh", "plan ignoring the current revision's pairs", self._plan_fresh
+        yield "Back a revision", "return to the previous revision's plan and data", self.action_undo
         yield "Declare a conflict", "add a conflict of interest", self.action_declare_conflict
         yield "Import from CSV", "build a session from CSV files", self.action_import
         yield "Show keys", "every key of the app", self.action_help
@@ -576,6 +612,9 @@ class ReviewAllocApp(App[None]):
             f"filter the {self.noun}s to those below their required reviews",
             self._below_minimum,
         )
+
+    def _plan_fresh(self) -> None:
+        self.action_plan(fresh=True)
 
     def _below_minimum(self) -> None:
         self.action_tab("papers")

@@ -15,14 +15,15 @@ from textual.timer import Timer
 from textual.widget import Widget
 from textual.widgets import Input, Static
 
-from review_alloc.model import Plan
-from review_alloc.tui.facts import Facts, PlanChange, plan_change
+from review_alloc.plan.diff import PlanDiff
+from review_alloc.tui.facts import Facts
 from review_alloc.tui.grid import RowTable
+from review_alloc.workspace import HistoryEntry
 
 CONFLICT_COLUMNS = ("Reviewer", "Name", "Paper", "Title", "Kind", "Reasons")
-REVISION_COLUMNS = ("No.", "Made", "Reviews", "Score", "Note")
-DIFF_COLUMNS = ("Change", "Paper", "Reviewer", "Score")
-EVENT_COLUMNS = ("When", "Change", "Subject", "Detail")
+REVISION_COLUMNS = ("No.", "From", "Made (UTC)", "Reviews", "Score", "Kept", "Changes")
+DIFF_COLUMNS = ("Reviewer", "Papers added", "Papers removed")
+EVENT_COLUMNS = ("When (UTC)", "Change")
 
 SHOWN_AT_MOST = 2000
 """Rows drawn at once in the Conflicts table; the filter narrows the rest."""
@@ -128,109 +129,114 @@ class ConflictView(Widget):
         self.post_message(self.AddRequest(reviewer, paper))
 
 
-@dataclass(frozen=True)
-class Revision:
-    """A plan made (or loaded) in this sitting, numbered from 1."""
-
-    number: int
-    plan: Plan
-    note: str
-
-
 class HistoryView(Widget):
-    """Plans made so far, the difference between any two, and every recorded change."""
+    """Revisions (every plan made), the difference between any two, and every change."""
 
     BINDINGS = [
-        Binding("m", "mark", "Mark base", tooltip="Compare other plans against this one"),
-        Binding("u", "undo", "Undo change"),
+        Binding("m", "mark", "Mark base", tooltip="Compare other revisions against this one"),
+        Binding("u", "undo", "Back a revision", tooltip="Return to the previous revision"),
     ]
 
-    revisions: reactive[list[Revision]] = reactive(list, always_update=True)
+    entries: reactive[list[HistoryEntry]] = reactive(list, always_update=True)
+    diff: reactive[PlanDiff | None] = reactive(None, always_update=True)
     facts: reactive[Facts | None] = reactive(None, always_update=True)
 
+    @dataclass
+    class DiffWanted(Message):
+        """Show the difference from revision `base` to revision `target` (None: its parent)."""
+
+        base: int | None
+        target: int
+
     class UndoRequest(Message):
-        """The chair wants the last change taken back."""
+        """The chair wants to go back to the previous revision."""
 
     def __init__(self, *, id: str | None = None) -> None:
         super().__init__(id=id)
         self._base: int | None = None
-        self._diffs: dict[tuple[int, int], PlanChange] = {}
 
     def compose(self) -> ComposeResult:
         """Revisions and their diff side by side; the change log below."""
         with Horizontal(classes="top"):
             with Vertical(classes="revisions-box"):
-                yield Static(Text("Plans (m marks the base of the diff)", style="bold"))
+                yield Static(Text("Revisions (m marks the base of the diff)", style="bold"))
                 yield RowTable(classes="revisions")
             with Vertical(classes="diff-box"):
                 yield Static("", classes="diff-head")
                 yield RowTable(classes="diff")
-        yield Static(Text("Changes, newest first (u or ctrl+z undoes the last)", style="bold"))
+        yield Static(Text("Changes, newest first", style="bold"))
         yield RowTable(classes="events")
 
-    def watch_revisions(self, revisions: list[Revision]) -> None:
-        """Redraw the plan list with the newest selected."""
-        table = self.query_one(".revisions", RowTable)
+    def watch_entries(self, entries: list[HistoryEntry]) -> None:
+        """Redraw the revision list with the current revision under the cursor."""
         rows = [
             [
-                f"{r.number}" + (" (base)" if r.number == self._base else ""),
-                r.plan.created_at.strftime("%H:%M:%S"),
-                f"{r.plan.figures.coverage}/{r.plan.figures.demand}",
-                f"{r.plan.figures.total_score:.2f}",
-                r.note,
+                f"{e.number}"
+                + (" ◀ now" if e.current else "")
+                + (" base" if e.number == self._base else ""),
+                e.parent if e.parent is not None else "-",
+                e.created_at.strftime("%m-%d %H:%M"),
+                f"{e.figures.coverage}/{e.figures.demand}",
+                f"{e.figures.total_score:.2f}",
+                "fresh"
+                if e.fresh
+                else (f"{e.kept}/{e.parent_pairs}" if e.kept is not None else "-"),
+                len(e.changes),
             ]
-            for r in revisions
+            for e in entries
         ]
-        table.fill(REVISION_COLUMNS, rows)
-        if revisions:
-            table.move_cursor(len(revisions) - 1)
-        self._show_diff()
+        current = next((k for k, e in enumerate(entries) if e.current), len(entries) - 1)
+        self.query_one(".revisions", RowTable).fill(REVISION_COLUMNS, rows, cursor=max(current, 0))
+        self._want_diff()
+
+    def watch_diff(self, diff: PlanDiff | None) -> None:
+        """Show one diff, reviewer by reviewer (the people a chair has to tell)."""
+        head = self.query_one(".diff-head", Static)
+        table = self.query_one(".diff", RowTable)
+        if diff is None:
+            head.update(Text("No revisions yet: press r to plan.", style="dim"))
+            table.fill(DIFF_COLUMNS, [])
+            return
+        old = f"revision {diff.old}" if diff.old is not None else "no plan"
+        head.update(
+            Text(
+                f"revision {diff.new} against {old}: +{len(diff.added)} / -{len(diff.removed)} "
+                f"pairs, {diff.kept} kept; {len(diff.by_reviewer)} reviewers to tell",
+                style="bold",
+            )
+        )
+        rows = [
+            [reviewer, " ".join(c.added) or "-", " ".join(c.removed) or "-"]
+            for reviewer, c in diff.by_reviewer.items()
+        ]
+        table.fill(DIFF_COLUMNS, rows)
 
     def watch_facts(self, facts: Facts | None) -> None:
         """Redraw the change log."""
         if facts is None:
             return
         rows = [
-            [
-                e.at.strftime("%m-%d %H:%M:%S"),
-                e.action,
-                e.subject,
-                (e.detail + (f" ({e.reason})" if e.reason else ""))[:60],
-            ]
+            [e.at.strftime("%m-%d %H:%M:%S"), e.describe()[:90]]
             for e in reversed(facts.session.events[-500:])
         ]
         self.query_one(".events", RowTable).fill(EVENT_COLUMNS, rows)
 
     @on(RowTable.Highlighted, ".revisions")
     def _revision_moved(self) -> None:
-        self._show_diff()
+        self._want_diff()
 
     def _current(self) -> int | None:
-        table = self.query_one(".revisions", RowTable)
-        if not self.revisions or not 0 <= table.cursor_row < len(self.revisions):
-            return None
-        return table.cursor_row
+        k = self.query_one(".revisions", RowTable).cursor_row
+        return k if 0 <= k < len(self.entries) else None
 
-    def _show_diff(self) -> None:
-        head = self.query_one(".diff-head", Static)
-        table = self.query_one(".diff", RowTable)
+    def _want_diff(self) -> None:
         k = self._current()
         if k is None:
-            table.fill(DIFF_COLUMNS, [])
-            head.update(Text("No plans yet: press r to plan.", style="dim"))
+            self.diff = None
             return
-        target = self.revisions[k]
-        base_no = self._base if self._base is not None else target.number - 1
-        base = next((r for r in self.revisions if r.number == base_no), None)
-        pair = (base.number if base else 0, target.number)
-        change = self._diffs.get(pair)
-        if change is None:
-            change = self._diffs[pair] = plan_change(base.plan if base else None, target.plan)
-        title = f"plan {target.number} against " + (f"plan {base.number}" if base else "nothing")
-        head.update(Text(f"{title}: {change.headline()}", style="bold"))
-        rows = [("added", p, r, f"{s:.2f}") for p, r, s in change.added]
-        rows += [("removed", p, r, f"{s:.2f}") for p, r, s in change.removed]
-        table.fill(DIFF_COLUMNS, rows[:3000])
+        target = self.entries[k].number
+        base = self._base if self._base != target else None
+        self.post_message(self.DiffWanted(base, target))
 
     def diff_rows(self) -> list[tuple[str, ...]]:
         """The diff table's rows as text (for the tests)."""
@@ -238,16 +244,15 @@ class HistoryView(Widget):
         return [tuple(table.row_at(k)) for k in range(table.row_count)]
 
     def action_mark(self) -> None:
-        """Make the plan under the cursor the base the others are compared against."""
+        """Make the revision under the cursor the base the others are compared against."""
         k = self._current()
         if k is None:
             return
-        number = self.revisions[k].number
+        number = self.entries[k].number
         self._base = None if self._base == number else number
-        self.revisions = self.revisions
-        if k < len(self.revisions):
-            self.query_one(".revisions", RowTable).move_cursor(k)
+        self.entries = self.entries
+        self.query_one(".revisions", RowTable).move_cursor(k)
 
     def action_undo(self) -> None:
-        """Ask the app to take back the last change."""
+        """Ask the app to return to the previous revision."""
         self.post_message(self.UndoRequest())

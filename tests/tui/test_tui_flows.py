@@ -68,7 +68,7 @@ async def test_plan_runs_in_a_worker_and_is_checked(new_app: Factory) -> None:
         overview = str(app.query_one("#figures", Static).render())
         assert f"{summary['coverage']} of {summary['demand']}" in overview
         assert "UNSAVED" in bar_text(app)
-        assert app.query_one(HistoryView).revisions[-1].number == 1
+        assert [e.number for e in app.query_one(HistoryView).entries] == [1]
 
 
 async def test_cancelled_plan_is_discarded(new_app: Factory) -> None:
@@ -217,21 +217,25 @@ async def test_withdraw_replan_diff_and_undo(new_app: Factory) -> None:
         await pilot.press("6")
         await pilot.pause()
         history = app.query_one(HistoryView)
-        assert [r.number for r in history.revisions] == [1, 2]
-        removed = {(row[1], row[2]) for row in history.diff_rows() if row[0] == "removed"}
-        assert {(p, gone) for p in held} <= removed
-        assert not any(row[2] == gone for row in history.diff_rows() if row[0] == "added")
-        # Compare plan 2 against plan 1 by marking plan 1 as the base.
+        assert [e.number for e in history.entries] == [1, 2]
+        # The diff lists the withdrawn reviewer with every paper they lost, and nothing new.
+        rows = {row[0]: row for row in history.diff_rows()}
+        assert rows[gone][1] == "-" and set(rows[gone][2].split()) == held
+        # The diff the Workspace computes is the one shown.
+        diff = app.workspace.diff(1, 2)
+        assert set(rows) == set(diff.by_reviewer)
+        # Mark revision 2 as the base and look at revision 1: the same pairs, the other way.
         table = history.query_one(".revisions", RowTable)
-        table.move_cursor(0)
         await pilot.press("m")
-        table.move_cursor(1)
+        table.move_cursor(0)
         await pilot.pause()
-        assert {(row[1], row[2]) for row in history.diff_rows() if row[0] == "removed"} == removed
-        # Undo the plan, then the withdrawal.
-        await pilot.press("ctrl+z", "ctrl+z")
+        rows = {row[0]: row for row in history.diff_rows()}
+        assert set(rows[gone][1].split()) == held and rows[gone][2] == "-"
+        # Back a revision: plan 1 and its data (the reviewer active again).
+        await pilot.press("ctrl+z")
         await pilot.pause()
         s = app.workspace.session
+        assert s.revision == 1
         assert not s.reviewers[0].withdrawn
         assert any(a.reviewer == gone for a in s.plan.assignments)
 
@@ -253,7 +257,8 @@ async def test_save_and_reload(new_app: Factory, tmp_path: Path) -> None:
     async with again.run_test(size=SIZE) as pilot:
         await pilot.pause()
         assert "plan is current" in bar_text(again)
-        assert again.query_one(HistoryView).revisions[0].plan == saved
+        assert again.workspace.plan_of(again.workspace.session.revision) == saved
+        assert [e.number for e in again.query_one(HistoryView).entries] == [1]
     json.loads(path.read_text())
 
 
@@ -361,7 +366,7 @@ async def test_our_commands_are_in_the_palette(new_app: Factory) -> None:
     app = new_app()
     async with app.run_test(size=SIZE) as pilot:
         names = [name for name, _, _ in app.palette_commands()]
-        assert {"Plan now", "Save session", "Undo last change", "Import from CSV"} <= set(names)
+        assert {"Plan now", "Plan fresh", "Save session", "Back a revision"} <= set(names)
         await pilot.press("ctrl+p")
         await pilot.pause()
         await pilot.press(*"plan now")
