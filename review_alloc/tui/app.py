@@ -191,21 +191,23 @@ class ReviewAllocApp(App[None]):
         ws = self.workspace
         s = ws.session
         text = Text()
-        text.append(f" {s.name} ", style="bold reverse")
-        # The file name only: a long folder path would push the marks off a narrow screen.
-        text.append(f" {ws.path.name if ws.path else '(not saved yet)'} ", style="dim")
+        name = s.name if len(s.name) <= 30 else s.name[:29] + "…"
+        text.append(f" {name} ", style="bold reverse")
         if ws.dirty:
-            text.append(" ● UNSAVED CHANGES (ctrl+s) ", style="bold black on yellow")
+            text.append(" ● UNSAVED (ctrl+s) ", style="bold black on yellow")
         else:
             text.append(" saved ", style="green")
         if s.plan is None:
-            text.append("  no plan yet: press r", style="yellow")
+            text.append(" no plan yet: press r ", style="yellow")
         elif ws.data_changed_since_plan():
-            text.append("  plan is STALE: data changed, press r", style="bold yellow")
+            text.append(" plan STALE: data changed, press r ", style="bold yellow")
         else:
-            text.append("  plan is current", style="green")
+            revision = f" (revision {s.revision})" if s.revision is not None else ""
+            text.append(f" plan current{revision} ", style="green")
         if s.kind == "panel":
-            text.append("  (grant panel)", style="dim")
+            text.append(" grant panel ", style="dim")
+        # The file name only, last: a long folder path would push the marks off the screen.
+        text.append(f" {ws.path.name if ws.path else '(not saved yet)'}", style="dim")
         self.query_one("#bar", Static).update(text)
 
     # -- planning -------------------------------------------------------------------------

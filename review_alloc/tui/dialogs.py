@@ -98,7 +98,10 @@ class Form(ModalScreen[bool]):
         missing = [f.label for f in self.fields if not f.optional and not values[f.name]]
         problems = [f"{m}: required" for m in missing] or self.apply(values)
         if problems:
-            self.query_one(".problems", Static).update(Text("\n".join(problems[:12]), style="red"))
+            shown = problems[:6] + (
+                [f"... and {len(problems) - 6} more"] if len(problems) > 6 else []
+            )
+            self.query_one(".problems", Static).update(Text("\n".join(shown), style="red"))
         else:
             self.dismiss(True)
 

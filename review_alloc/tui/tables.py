@@ -123,7 +123,7 @@ class EntityView(Widget):
 
     def pair_columns(self) -> tuple[str, ...]:
         """Columns of the detail's pair table."""
-        return ("Id", "Score", "Standing", "Name")
+        return ("Id", "Score", "Name", "Standing")
 
     def pair_cells(self, facts: Facts, c: Candidate) -> list[object]:
         """Cells of one pair in the detail table."""
@@ -353,14 +353,13 @@ class PaperView(EntityView):
             f"(needs {s.paper_min_reviews(i)})   "
         )
         head.append_text(_state(facts.paper_status(i)))
-        head.append("\np pin  b block  w withdraw/reinstate  e change reviews", style="dim")
         return head, facts.candidates_of_paper(i)
 
     def pair_cells(self, facts: Facts, c: Candidate) -> list[object]:
         """Reviewer id, name, score and standing."""
         r = facts.session.reviewers[c.reviewer]
         score = "-" if c.score is None else f"{c.score:.2f}"
-        return [r.id, score, _state(c.status), r.name[:22]]
+        return [r.id, score, r.name[:20], _state(c.status)]
 
     def filter_hint(self) -> str:
         """Placeholder of the filter line."""
@@ -409,18 +408,17 @@ class ReviewerView(EntityView):
             f"load {int(facts.loads[j])}, cap {s.reviewer_cap(j)}, floor {s.reviewer_floor(j)}   "
         )
         head.append_text(_state(facts.reviewer_status(j)))
-        head.append("\np pin  b block  w withdraw/reinstate  e change cap/floor", style="dim")
         return head, facts.candidates_of_reviewer(j)
 
     def pair_columns(self) -> tuple[str, ...]:
         """Columns of the paper list in the detail."""
-        return ("Id", "Score", "Standing", "Title")
+        return ("Id", "Score", "Title", "Standing")
 
     def pair_cells(self, facts: Facts, c: Candidate) -> list[object]:
         """Paper id, title, score and standing."""
         p = facts.session.papers[c.paper]
         score = "-" if c.score is None else f"{c.score:.2f}"
-        return [p.id, score, _state(c.status), p.title[:30]]
+        return [p.id, score, p.title[:24], _state(c.status)]
 
     def filter_hint(self) -> str:
         """Placeholder of the filter line."""

@@ -146,8 +146,8 @@ async def test_open_a_paper_shows_its_reviewers_and_why_others_are_unused(
         paper = session.papers[1].id
         assigned = {a.reviewer for a in session.plan.assignments if a.paper == paper}
         rows = [pairs.row_at(k) for k in range(pairs.row_count)]
-        assert {r[0] for r in rows if r[2] == "assigned"} == assigned
-        others = [r[2] for r in rows if r[2] != "assigned"]
+        assert {r[0] for r in rows if r[3] == "assigned"} == assigned
+        others = [r[3] for r in rows if r[3] != "assigned"]
         assert others and all(
             s.startswith(("conflict", "cap full", "paper already", "eligible", "blocked"))
             for s in others
@@ -156,7 +156,7 @@ async def test_open_a_paper_shows_its_reviewers_and_why_others_are_unused(
         declared = {(c.reviewer, c.paper) for c in session.conflicts}
         for r in rows:
             if (r[0], paper) in declared:
-                assert r[2].startswith("conflict: declared")
+                assert r[3].startswith("conflict: declared")
 
 
 async def test_pin_and_block(new_app: Factory) -> None:
@@ -177,7 +177,7 @@ async def test_pin_and_block(new_app: Factory) -> None:
         assert "STALE" in bar_text(app)
         # Pin the first eligible candidate.
         rows = [pairs.row_at(k) for k in range(pairs.row_count)]
-        target = next(k for k, r in enumerate(rows) if r[2].startswith(("eligible", "cap full")))
+        target = next(k for k, r in enumerate(rows) if r[3].startswith(("eligible", "cap full")))
         pairs.move_cursor(target)
         await pilot.press("p")
         await pilot.pause()
@@ -185,7 +185,7 @@ async def test_pin_and_block(new_app: Factory) -> None:
         assert any(p.reviewer == rows[target][0] and p.paper == paper for p in s.pins)
         # A conflicted pair cannot be pinned; the refusal names the reason.
         rows = [pairs.row_at(k) for k in range(pairs.row_count)]
-        conflicted = [k for k, r in enumerate(rows) if r[2].startswith("conflict")]
+        conflicted = [k for k, r in enumerate(rows) if r[3].startswith("conflict")]
         if conflicted:
             pairs.move_cursor(conflicted[0])
             before = len(app.workspace.session.pins)
@@ -256,7 +256,7 @@ async def test_save_and_reload(new_app: Factory, tmp_path: Path) -> None:
     again = new_app(path)
     async with again.run_test(size=SIZE) as pilot:
         await pilot.pause()
-        assert "plan is current" in bar_text(again)
+        assert "plan current (revision 1)" in bar_text(again)
         assert again.workspace.plan_of(again.workspace.session.revision) == saved
         assert [e.number for e in again.query_one(HistoryView).entries] == [1]
     json.loads(path.read_text())
@@ -411,9 +411,10 @@ async def test_import_dialog_reports_rows_and_opens_the_session(
         form.query_one("#field-papers", Input).value = str(csv / "papers.csv")
         form.query_one("#field-conflicts", Input).value = str(csv / "conflicts.csv")
         form.query_one("#field-scores", Input).value = str(csv / "scores.csv")
-        await pilot.click("#ok")
+        form.query_one("#field-target", Input).focus()
+        await pilot.press("enter")
         await pilot.pause()
-        assert not isinstance(app.screen, Form)
+        assert not isinstance(app.screen, Form), str(form.query_one(".problems", Static).render())
         assert app.workspace.path == tmp_path / "new.json"
         assert len(app.workspace.session.papers) == 40
         assert load_session(tmp_path / "new.json").name == "new"
