@@ -13,7 +13,7 @@ from textual.widgets import Static
 from review_alloc.plan import find_gaps, load_issues
 from review_alloc.tui.facts import CAUTION, Facts
 
-BAR_WIDTH = 10
+BAR_WIDTH = 8
 
 
 def bar(value: int, most: int, width: int = BAR_WIDTH, style: str = "") -> Text:
@@ -136,7 +136,7 @@ class Overview(VerticalScroll):
                 short = "" if placed == wanted else f" -{wanted - placed}"
                 note = f"{placed}/{wanted}{short}"
                 style = "green" if placed == wanted else "yellow"
-                rows.append((topic[:14], placed, wanted, note, style))
+                rows.append((topic[:13], placed, wanted, note, style))
         return _chart("Coverage per topic", rows)
 
 

@@ -63,6 +63,7 @@ class EntityView(Widget):
         Binding("b", "block", "Block/unblock", tooltip="Block or unblock that pair"),
         Binding("w", "withdraw", "Withdraw/reinstate"),
         Binding("e", "edit", "Edit limits"),
+        Binding("c", "edit_pair_cap", "Pair's reviewer cap", show=False),
     ]
 
     facts: reactive[Facts | None] = reactive(None, always_update=True)
@@ -303,6 +304,15 @@ class EntityView(Widget):
         action = "reinstate" if self._withdrawn(self.facts, key) else "withdraw"
         self.post_message(self.EntityRequest(action, self.kind, key))
 
+    def action_edit_pair_cap(self) -> None:
+        """Change the cap of the reviewer in the pair under the detail's cursor."""
+        facts, c = self.facts, self.selected_pair()
+        if facts is None or c is None:
+            self.notify("choose a pair in the lower table first", severity="warning")
+            return
+        reviewer = facts.session.reviewers[c.reviewer].id
+        self.post_message(self.EntityRequest("edit", "reviewer", reviewer))
+
     def action_edit(self) -> None:
         """Change the chosen row's cap/floor or reviews/min reviews."""
         key = self._current_key()
@@ -451,8 +461,8 @@ class GapView(PaperView):
         free = sum(r.startswith(("eligible", "unscored (counts")) for r in reasons)
         head.append(
             f"\nof the best {len(reasons)} others: {full} at cap, {conflicted} in conflict, "
-            f"{free} free. Fix: raise a full cap (e on Reviewers) or pin a free one (p), "
-            "then plan (r).",
+            f"{free} free. To close it: raise a full cap (c on that pair), pin a free one (p), "
+            "or lower this one's reviews (e); then plan (r).",
             style="italic",
         )
         return head, pairs

@@ -45,6 +45,11 @@ async def test_no_arguments_opens_a_copy_of_the_demo(private_data_folder: Path) 
         await pilot.pause()
         assert "Harbourlight" in bar_text(app)
         assert "no plan yet" in bar_text(app)
+        # Nothing changed, so quitting does not ask.
+        await pilot.press("ctrl+q")
+        await pilot.pause()
+        assert not isinstance(app.screen, Confirm)
+    assert app.return_code == 0
     # The sample shipped with the program is never the file being edited.
     assert (REPO / "sample_sessions" / "workshop.json").read_bytes() == shipped
     assert demo_session_path() == app.workspace.path
@@ -107,29 +112,21 @@ async def test_filter_papers(new_app: Factory) -> None:
         ]
         assert shown == expected and shown
         await pilot.press("enter")
-        assert app.focused is view.query_one(".main", RowTable)
-
-
-async def test_sort_by_clicking_a_header(new_app: Factory) -> None:
-    app = new_app()
-    async with app.run_test(size=SIZE) as pilot:
-        await plan(app, pilot)
-        await pilot.press("2")
-        await pilot.pause()
-        view = app.query_one(PaperView)
         table = view.query_one(".main", RowTable)
+        assert app.focused is table
         # "Mean" is the sixth column; sorting it twice puts the highest first.
+        view.set_filter("")
         view.sort_by(5)
         view.sort_by(5)
         await pilot.pause()
         means = [float(table.row_at(k)[5]) for k in range(table.row_count)]
-        assert means == sorted(means, reverse=True)
+        assert means == sorted(means, reverse=True) and len(means) == 40
         # A click on the "Has" heading (second column, after the five-letter ids) sorts by it.
         await pilot.click(table, offset=(9, 0))
         await pilot.pause()
+        assert table.columns[1] == "Has"
         has = [int(table.row_at(k)[1]) for k in range(table.row_count)]
         assert has == sorted(has)
-        assert table.columns[1] == "Has"
 
 
 async def test_open_a_paper_shows_its_reviewers_and_why_others_are_unused(
@@ -279,14 +276,6 @@ async def test_quit_asks_when_there_are_unsaved_changes(new_app: Factory) -> Non
     assert app.return_code == 0
 
 
-async def test_quit_without_changes_does_not_ask(new_app: Factory) -> None:
-    app = new_app()
-    async with app.run_test(size=SIZE) as pilot:
-        await pilot.press("ctrl+q")
-        await pilot.pause()
-        assert not app.is_running or not isinstance(app.screen, Confirm)
-
-
 async def test_change_a_cap_through_the_form(new_app: Factory) -> None:
     app = new_app()
     async with app.run_test(size=SIZE) as pilot:
@@ -330,24 +319,7 @@ async def test_declare_a_conflict(new_app: Factory) -> None:
         assert pair not in {(a.reviewer, a.paper) for a in app.workspace.session.plan.assignments}
 
 
-async def test_gaps_list_the_papers_short_of_reviews(new_app: Factory) -> None:
-    app = new_app()
-    async with app.run_test(size=SIZE) as pilot:
-        # Lower every cap so the workshop cannot be covered, then plan.
-        ws = app.workspace
-        for r in ws.session.reviewers:
-            ws.set_reviewer(r.id, cap=3, floor=0)
-        await plan(app, pilot)
-        await pilot.press("5")
-        await pilot.pause()
-        view = app.query_one("#gaps-view", PaperView)
-        gaps = find_gaps(ws.session, ws.session.plan)
-        assert gaps and set(view.visible_keys()) == {g.paper for g in gaps}
-        head = str(view.query_one(".detail-head", Static).render())
-        assert "Fix:" in head
-
-
-async def test_help_lists_every_key(new_app: Factory) -> None:
+async def test_help_lists_every_key_and_the_palette_has_our_commands(new_app: Factory) -> None:
     app = new_app()
     async with app.run_test(size=SIZE) as pilot:
         await pilot.press("question_mark")
@@ -360,11 +332,6 @@ async def test_help_lists_every_key(new_app: Factory) -> None:
             assert word in text
         await pilot.press("escape")
         assert not isinstance(app.screen, HelpScreen)
-
-
-async def test_our_commands_are_in_the_palette(new_app: Factory) -> None:
-    app = new_app()
-    async with app.run_test(size=SIZE) as pilot:
         names = [name for name, _, _ in app.palette_commands()]
         assert {"Plan now", "Plan fresh", "Save session", "Back a revision"} <= set(names)
         await pilot.press("ctrl+p")
@@ -460,3 +427,86 @@ async def test_conference_sample_filters_fast(new_app: Factory, tmp_path: Path) 
         await pilot.press("end", "pageup", "home")
         await pilot.pause()
         assert time.perf_counter() - started < 1.5
+
+
+async def test_mouse_tabs_rows_and_buttons(new_app: Factory) -> None:
+    app = new_app()
+    async with app.run_test(size=SIZE) as pilot:
+        await plan(app, pilot)
+        await pilot.click("#--content-tab-reviewers")
+        await pilot.pause()
+        assert app.query_one(TabbedContent).active == "reviewers"
+        view = app.query_one(ReviewerView)
+        table = view.query_one(".main", RowTable)
+        # Row 3 on screen is the third reviewer (line 0 is the heading).
+        await pilot.click(table, offset=(2, 3))
+        await pilot.pause()
+        assert table.cursor_row == 2
+        head = str(view.query_one(".detail-head", Static).render())
+        assert view.visible_keys()[2] in head
+        # A second click on the same row opens its pair list.
+        await pilot.click(table, offset=(2, 3))
+        await pilot.pause()
+        assert app.focused is view.query_one(".pairs", RowTable)
+
+
+async def test_going_back_asks_before_dropping_unplanned_changes(new_app: Factory) -> None:
+    app = new_app()
+    async with app.run_test(size=SIZE) as pilot:
+        await plan(app, pilot)
+        await plan(app, pilot)
+        assert app.workspace.session.revision == 2
+        await pilot.press("3", "w")
+        await pilot.pause()
+        assert app.workspace.session.reviewers[0].withdrawn
+        await pilot.press("ctrl+z")
+        await pilot.pause()
+        assert isinstance(app.screen, Confirm)
+        await pilot.press("escape")
+        await pilot.pause()
+        assert app.workspace.session.revision == 2
+        assert app.workspace.session.reviewers[0].withdrawn
+        await pilot.press("ctrl+z")
+        await pilot.pause()
+        await pilot.click("#yes")
+        await pilot.pause()
+        assert app.workspace.session.revision == 1
+        assert not app.workspace.session.reviewers[0].withdrawn
+        # At the first revision there is nothing earlier to go back to.
+        await pilot.press("ctrl+z")
+        await pilot.pause()
+        assert app.workspace.session.revision == 1
+
+
+async def test_gaps_and_raising_a_full_cap_from_one(new_app: Factory) -> None:
+    app = new_app()
+    async with app.run_test(size=SIZE) as pilot:
+        # Lower every cap so the workshop cannot be covered, then plan.
+        ws = app.workspace
+        for r in ws.session.reviewers:
+            ws.set_reviewer(r.id, cap=3, floor=0)
+        await plan(app, pilot)
+        placed = ws.session.plan.figures.coverage
+        await pilot.press("5")
+        await pilot.pause()
+        view = app.query_one("#gaps-view", PaperView)
+        gaps = find_gaps(ws.session, ws.session.plan)
+        assert gaps and set(view.visible_keys()) == {g.paper for g in gaps}
+        head = str(view.query_one(".detail-head", Static).render())
+        assert "To close it" in head
+        await pilot.press("enter")
+        pairs = view.query_one(".pairs", RowTable)
+        rows = [pairs.row_at(k) for k in range(pairs.row_count)]
+        full = next(k for k, r in enumerate(rows) if r[3].startswith("cap full"))
+        pairs.move_cursor(full)
+        await pilot.press("c")
+        await pilot.pause()
+        form = app.screen
+        assert isinstance(form, Form)
+        form.query_one("#field-cap", Input).value = "9"
+        await pilot.press("enter")
+        await pilot.pause()
+        reviewer = rows[full][0]
+        assert ws.session.reviewers[ws.session.reviewer_index()[reviewer]].cap == 9
+        await plan(app, pilot)
+        assert ws.session.plan.figures.coverage > placed
