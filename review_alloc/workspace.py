@@ -13,7 +13,8 @@ Planning and history (stable names, used by the terminal app):
 - `Workspace.install_plan(outcome, planned) -> None`: the same, for a plan made elsewhere
   (a worker thread) from the session object `planned`.
 - `Workspace.revisions -> list[Revision]`, `Workspace.history() -> list[HistoryEntry]`.
-- `Workspace.undo(reason="") -> int`: back to the current revision's parent, plan *and* data,
+- `Workspace.undo(reason="") -> int`: back to the current revision's parent, plan *and* data
+  (or, with changes made since the current revision, back to the current revision itself),
   recorded as an `undo` event; returns the revision number now current.
 - `Workspace.diff(a=None, b=None) -> PlanDiff`: defaults to the last two revisions.
 - `Workspace.notify_rows(since) -> list[NotifyRow]`: reviewers whose list changed from
@@ -49,6 +50,7 @@ from review_alloc.model.history import (
     Revision,
     SessionData,
     assignment_table,
+    rebase_root_scores,
     restore_data,
 )
 from review_alloc.model.plans import PlanFigures
@@ -167,7 +169,10 @@ class Workspace:
             kept = sum((a.reviewer, a.paper) in before for a in plan.assignments)
         number = max((r.number for r in s.revisions), default=0) + 1
         event_at = len(s.events)
+        # The changes since the data last agreed with a plan; an undo that set it counts.
         marks = [k for k, e in enumerate(s.events) if e.action in _MARKS]
+        if marks and s.events[marks[-1]].action == "undo":
+            marks[-1] -= 1
         revision = Revision(
             number=number,
             parent=parent,
@@ -181,7 +186,9 @@ class Workspace:
             method=plan.method,
             checked=plan.checked,
             assignments=assignment_table(plan, data),
-            data=DataDelta.between(self.data_of(parent) if parent is not None else None, data),
+            data=DataDelta.between(
+                self.data_of(parent) if parent is not None else None, data, s.scores
+            ),
         )
         self._data[number] = data
         f = plan.figures
@@ -236,7 +243,12 @@ class Workspace:
         """The data revision `number` was planned from."""
         self._revision(number)
         if number not in self._data:
-            self._data[number] = restore_data(self.session.revisions, number)
+            try:
+                self._data[number] = restore_data(
+                    self.session.revisions, number, self.session.scores
+                )
+            except ValueError as error:
+                raise ChangeRefused([f"revision {number}: {error}"]) from None
         return self._data[number]
 
     def plan_of(self, number: int) -> Plan:
@@ -244,20 +256,34 @@ class Workspace:
         return self._revision(number).plan(self.data_of(number))
 
     def undo(self, reason: str = "") -> int:
-        """Go back to the revision before the current one: its plan and the data it had."""
+        """Go back one step: its plan and the data it had.
+
+        With changes made since the current revision, that step is the current revision
+        itself (the changes are dropped, and stay listed as events); otherwise it is the
+        revision the current one was planned from.
+        """
         s = self.session
         if s.revision is None:
             raise ChangeRefused(["there is no plan in the history to go back from"])
         current = self._revision(s.revision)
-        if current.parent is None:
+        if self.data_changed_since_plan():
+            target = current.number
+        elif current.parent is None:
             raise ChangeRefused([f"revision {current.number} is the first; nothing to go back to"])
-        target = current.parent
+        else:
+            target = current.parent
         data = self.data_of(target)
-        self.session = s.model_copy(update=data.fields())
+        self.session = s.model_copy(
+            update={
+                **data.fields(),
+                "revisions": rebase_root_scores(s.revisions, s.scores, data.scores),
+            }
+        )
         self._record(
             "undo",
             str(target),
-            f"back to revision {target} from {current.number}",
+            f"back to revision {target}"
+            + (f" from {current.number}" if target != current.number else ", changes dropped"),
             reason=reason,
             plan=self.plan_of(target),
             revision=target,
@@ -603,6 +629,15 @@ class Workspace:
         problems = candidate.validation_problems()
         if problems:
             raise ChangeRefused(problems)
+        if "scores" in fields:
+            # The first revision's scores are kept relative to the session's: retake them.
+            candidate = candidate.model_copy(
+                update={
+                    "revisions": rebase_root_scores(
+                        candidate.revisions, self.session.scores, candidate.scores
+                    )
+                }
+            )
         self.session = candidate
         self._record(action, subject, detail, reason=reason, plan=self._pruned_plan())
 

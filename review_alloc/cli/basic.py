@@ -119,10 +119,21 @@ def _cmd_plan(args: argparse.Namespace) -> int:
     ws.save()
     session = ws.session
     summary = plan_summary(session, session.plan)
+    revision = ws.revisions[-1]
+    summary["revision"] = revision.number
+    summary["kept"] = revision.kept
     if args.json:
         emit_json(summary)
     else:
-        print("\n".join(summary_lines(session, summary, str(args.session))))
+        lines = summary_lines(session, summary, str(args.session))
+        if revision.kept is not None:
+            lines.insert(
+                1,
+                f"  revision {revision.number}: kept {revision.kept} of the "
+                f"{revision.parent_pairs} pairs of revision {revision.parent}"
+                + (" (fresh plan)" if revision.fresh else ""),
+            )
+        print("\n".join(lines))
     return EXIT_OK
 
 

@@ -2,20 +2,26 @@
 
 Storage is compact because a large venue has tens of thousands of assignments per revision:
 
-- the assignments are a `ScoreTable` (reviewer and paper positions, score), stored like the
-  session's scores: little-endian arrays, zlib-compressed, base64-encoded;
+- the assignments are a `ScoreTable` of reviewer and paper positions, stored like the
+  session's scores (little-endian arrays, zlib-compressed, base64-encoded); its value column
+  is all zeros, since each pair's score is read back from the revision's own score data;
 - the data the plan was made from (policy, papers, reviewers, conflicts, pins, blocks, scores)
   is a `DataDelta` against the revision's `parent` (the first revision holds it whole): each
   list stores its new length and the positions whose entry changed, which suits lists that
   grow at the end and change in place, as papers and reviewers do; scores store the rows
   added or changed and the pairs removed.
 
+The first (root) revision's scores are a delta against the session's *current* score table
+rather than held whole, since a large venue has millions of score rows and they rarely change
+after import; whoever changes `Session.scores` rebases the root (`rebase_root_scores`).
+
 A revision's data is rebuilt by applying the deltas along its parent chain, from the root.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+import zlib
+from dataclasses import dataclass, replace
 from datetime import datetime
 from typing import Generic, TypeVar
 
@@ -99,6 +105,14 @@ class ScoreDelta(DocumentModel):
         )
 
 
+def score_digest(table: ScoreTable) -> str:
+    """A CRC-32 of a score table's rows, to tell that a root's base is the table it was."""
+    crc = zlib.crc32(table.reviewer.astype("<i4").tobytes())
+    crc = zlib.crc32(table.paper.astype("<i4").tobytes(), crc)
+    crc = zlib.crc32(table.value.astype("<f8").tobytes(), crc)
+    return f"{len(table)}:{crc:08x}"
+
+
 def _keys(table: ScoreTable) -> np.ndarray:
     return (table.reviewer.astype(np.int64) << 32) | table.paper.astype(np.int64)
 
@@ -138,11 +152,16 @@ class DataDelta(DocumentModel):
     pins: ListDelta[PairRule] | None = None
     blocks: ListDelta[PairRule] | None = None
     scores: ScoreDelta | None = None
+    scores_base: str | None = None
+    """For a root: the digest of the score table its scores are taken against."""
 
     @classmethod
-    def between(cls, old: SessionData | None, new: SessionData) -> DataDelta:
-        """The delta from `old` (None: nothing, so the delta holds `new` whole) to `new`."""
-        base = old or _EMPTY
+    def between(
+        cls, old: SessionData | None, new: SessionData, current_scores: ScoreTable
+    ) -> DataDelta:
+        """The delta from `old` to `new`; with `old` None (a root) it holds `new` whole, but
+        its scores against `current_scores`."""
+        base = old or replace(_EMPTY, scores=current_scores)
         return cls(
             policy=new.policy if old is None or new.policy != old.policy else None,
             papers=ListDelta[Paper].between(base.papers, new.papers),
@@ -151,13 +170,20 @@ class DataDelta(DocumentModel):
             pins=ListDelta[PairRule].between(base.pins, new.pins),
             blocks=ListDelta[PairRule].between(base.blocks, new.blocks),
             scores=ScoreDelta.between(base.scores, new.scores),
+            scores_base=score_digest(current_scores) if old is None else None,
         )
 
-    def apply(self, old: SessionData | None) -> SessionData:
-        """The data this delta describes, given the parent's (None for a root revision)."""
+    def apply(self, old: SessionData | None, current_scores: ScoreTable) -> SessionData:
+        """The data this delta describes, given the parent's (None for a root revision, whose
+        scores are taken against `current_scores`)."""
         if old is None and self.policy is None:
             raise ValueError("the first revision must hold its policy")
-        base = old or _EMPTY
+        if old is None and self.scores_base != score_digest(current_scores):
+            raise ValueError(
+                "the session's scores were changed outside the workspace; the first revision's "
+                "scores cannot be rebuilt"
+            )
+        base = old or replace(_EMPTY, scores=current_scores)
         return SessionData(
             policy=self.policy if self.policy is not None else base.policy,
             papers=self.papers.apply(base.papers) if self.papers else base.papers,
@@ -200,7 +226,7 @@ class Revision(DocumentModel):
     method: str
     checked: bool
     assignments: ScoreTable
-    """Reviewer position, paper position and score of each assigned pair."""
+    """Reviewer and paper position of each assigned pair (scores come from the data)."""
     data: DataDelta
 
     @field_validator("created_at")
@@ -214,7 +240,7 @@ class Revision(DocumentModel):
         """The revision's plan, given its own data (see `restore_data`)."""
         reviewer = self.assignments.reviewer.astype(np.int64)
         paper = self.assignments.paper.astype(np.int64)
-        value = self.assignments.value
+        value = pair_scores(data.scores, reviewer, paper)
         order = np.lexsort((reviewer, paper))
         assignments = [
             Assignment(paper=data.papers[i].id, reviewer=data.reviewers[j].id, score=float(s))
@@ -231,7 +257,7 @@ class Revision(DocumentModel):
         )
 
 
-def restore_data(revisions: list[Revision], number: int) -> SessionData:
+def restore_data(revisions: list[Revision], number: int, current_scores: ScoreTable) -> SessionData:
     """Rebuild the data of revision `number` from the deltas along its parent chain."""
     by_number = {r.number: r for r in revisions}
     chain: list[Revision] = []
@@ -245,17 +271,56 @@ def restore_data(revisions: list[Revision], number: int) -> SessionData:
         at = by_number[at].parent
     data: SessionData | None = None
     for revision in reversed(chain):
-        data = revision.data.apply(data)
+        data = revision.data.apply(data, current_scores)
     assert data is not None
     return data
 
 
+def pair_scores(table: ScoreTable, reviewer: np.ndarray, paper: np.ndarray) -> np.ndarray:
+    """The score of each (reviewer, paper) position pair in `table`, 0 where it has no row."""
+    keys = (reviewer.astype(np.int64) << 32) | paper.astype(np.int64)
+    table_keys = _keys(table)
+    if not len(table_keys):
+        return np.zeros(len(keys))
+    pos = np.minimum(np.searchsorted(table_keys, keys), len(table_keys) - 1)
+    return np.where(table_keys[pos] == keys, table.value[pos], 0.0)
+
+
 def assignment_table(plan: Plan, data: SessionData) -> ScoreTable:
-    """A plan's assignments as a compact table of positions in `data`."""
+    """A plan's assignments as a compact table of positions in `data`.
+
+    The value column is left at 0: a pair's score is the one in the revision's own data (the
+    planner takes it from there, 0 for an unscored pin), so it is looked up on restore rather
+    than stored again. Raises ValueError if a score differs from the data's.
+    """
     rid = {r.id: j for j, r in enumerate(data.reviewers)}
     pid = {p.id: i for i, p in enumerate(data.papers)}
-    return ScoreTable.from_arrays(
-        np.array([rid[a.reviewer] for a in plan.assignments], dtype=np.int32),
-        np.array([pid[a.paper] for a in plan.assignments], dtype=np.int32),
-        np.array([a.score for a in plan.assignments], dtype=np.float64),
-    )
+    reviewer = np.array([rid[a.reviewer] for a in plan.assignments], dtype=np.int32)
+    paper = np.array([pid[a.paper] for a in plan.assignments], dtype=np.int32)
+    given = np.array([a.score for a in plan.assignments], dtype=np.float64)
+    if not np.array_equal(given, pair_scores(data.scores, reviewer, paper)):
+        raise ValueError("the plan's scores differ from the session's score table")
+    return ScoreTable.from_arrays(reviewer, paper, np.zeros(len(reviewer)))
+
+
+def rebase_root_scores(
+    revisions: list[Revision], old_scores: ScoreTable, new_scores: ScoreTable
+) -> list[Revision]:
+    """The revisions with each root's score delta retaken against `new_scores` (the session's
+    score table is changing from `old_scores`), so that every revision keeps its own scores."""
+    if old_scores is new_scores or old_scores == new_scores:
+        return revisions
+    out = []
+    for revision in revisions:
+        if revision.parent is None:
+            delta = revision.data.scores
+            own = delta.apply(old_scores) if delta is not None else old_scores
+            data = revision.data.model_copy(
+                update={
+                    "scores": ScoreDelta.between(new_scores, own),
+                    "scores_base": score_digest(new_scores),
+                }
+            )
+            revision = revision.model_copy(update={"data": data})
+        out.append(revision)
+    return out

@@ -52,8 +52,9 @@ def fitting_resolution(
 
     With the keep tier the floors weight grows like (pair arcs in a cycle)² x max score, which
     for 15,000 reviewers, 60,000 reviews and scores up to 1 at 10,000 steps would pass the
-    int64 headroom; the score steps are then made coarser (ties finer than the step count as
-    equal) while every count tier stays exact. Returns 0 if even one step per unit cannot fit.
+    int64 headroom; the score steps are then made coarser (3,558 per unit for that venue: ties
+    finer than a step count as equal) while every count tier stays exact, and the plan's method
+    says so. Returns 0 if even one step per unit cannot fit.
     """
     k = max(max_pair_arcs_in_cycle, 1)
     demand = max(total_demand, 1)

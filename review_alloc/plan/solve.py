@@ -11,7 +11,7 @@ from review_alloc.flow import min_cost_flow
 from review_alloc.model import Assignment, Plan, Session
 from review_alloc.plan.checker import check_plan
 from review_alloc.plan.figures import plan_figures
-from review_alloc.plan.network import PlanNetwork, build_network
+from review_alloc.plan.network import SCORE_RESOLUTION, PlanNetwork, build_network
 
 METHOD = "lexicographic min-cost flow (primal-dual with Dinic blocking flows)"
 
@@ -57,7 +57,13 @@ def make_plan(
         figures=plan_figures(session, reviewer, paper, score),
         created_at=now or datetime.now(UTC),
         checked=False,
-        method=METHOD,
+        method=METHOD
+        + (", keeping earlier pairs" if net.kept is not None else "")
+        + (
+            f", scores in steps of 1/{net.resolution} to fit the keep tier"
+            if net.resolution != SCORE_RESOLUTION
+            else ""
+        ),
     )
     check_plan(session, plan, result.potentials, network=net)
     return PlanOutcome(

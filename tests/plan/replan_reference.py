@@ -141,3 +141,61 @@ def replan_optimum(inst: ReplanInstance, *, with_score: bool = True) -> tuple[fl
         b_ub = np.append(b_ub, -best + 1e-7)
     counts = tuple(float(round(v)) for v in values[:4])
     return (*counts, values[4]) if with_score else counts
+
+
+def ortools_count_optimum(inst: ReplanInstance) -> tuple[int, int, int, int]:
+    """(required coverage, coverage, floors met, earlier pairs kept) by OR-tools min-cost flow.
+
+    OR-tools' SimpleMinCostFlow solves one flow with the count tiers weighted in the test's own
+    way: a simple cycle moves each of the first three counts by at most one and the kept count
+    by at most its pair arcs, so a floor is worth more than every pair arc at once, and so on
+    up. It serves where the staged HiGHS programs would take minutes (the conference sample).
+    Pins are not modelled: the cases given to it have none.
+    """
+    from ortools.graph.python import min_cost_flow
+
+    assert not inst.pinned.any(), "the OR-tools reference does not model pins"
+    n_r, n_p = len(inst.cap), len(inst.reviews)
+    w_keep = 1
+    w_floor = (2 * min(n_r, n_p) + 2) * w_keep + 1
+    w_coverage = 2 * w_floor
+    w_required = 2 * w_coverage
+    source, sink = n_r + n_p, n_r + n_p + 1
+    total = int(inst.reviews.sum())
+    tails, heads, caps, costs = [], [], [], []
+
+    def arc(t: int, h: int, c: int, w: int) -> None:
+        tails.append(t)
+        heads.append(h)
+        caps.append(c)
+        costs.append(w)
+
+    for j in range(n_r):
+        arc(source, j, int(inst.floor[j]), -w_floor)
+        arc(source, j, int(inst.cap[j] - inst.floor[j]), 0)
+    for j, i, was in zip(inst.reviewer, inst.paper, inst.earlier, strict=True):
+        arc(int(j), n_r + int(i), 1, -w_keep if was else 0)
+    for i in range(n_p):
+        arc(n_r + i, sink, int(inst.min_reviews[i]), -(w_required + w_coverage))
+        arc(n_r + i, sink, int(inst.reviews[i] - inst.min_reviews[i]), -w_coverage)
+    arc(source, sink, total, 0)  # unused supply goes straight through at no gain
+    solver = min_cost_flow.SimpleMinCostFlow()
+    solver.add_arcs_with_capacity_and_unit_cost(
+        np.array(tails, dtype=np.int32),
+        np.array(heads, dtype=np.int32),
+        np.array(caps, dtype=np.int64),
+        np.array(costs, dtype=np.int64),
+    )
+    solver.set_node_supply(source, total)
+    solver.set_node_supply(sink, -total)
+    assert solver.solve() == solver.OPTIMAL
+    flow = solver.flows(np.arange(len(tails), dtype=np.int32))
+    n_e = len(inst.reviewer)
+    pair_flow = flow[2 * n_r : 2 * n_r + n_e]
+    sink_flow = flow[2 * n_r + n_e : 2 * n_r + n_e + 2 * n_p]
+    return (
+        int(sink_flow[0::2].sum()),
+        int(sink_flow.sum()),
+        int(flow[0 : 2 * n_r : 2].sum()),
+        int(pair_flow[inst.earlier].sum()),
+    )

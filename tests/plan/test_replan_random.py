@@ -8,7 +8,7 @@ import pytest
 from review_alloc.model import Paper, Reviewer
 from review_alloc.plan import check_plan, make_plan
 from review_alloc.workspace import ChangeRefused, Workspace
-from tests.plan.replan_reference import replan_instance, replan_optimum
+from tests.plan.replan_reference import ortools_count_optimum, replan_instance, replan_optimum
 from tests.plan.test_planner import random_session
 
 
@@ -114,3 +114,21 @@ def test_a_conflict_declared_after_a_plan_is_gone_from_the_next_plan() -> None:
     now = {(a.reviewer, a.paper) for a in ws.session.plan.assignments}
     assert not now & set(pairs)
     assert ws.session.plan.checked
+
+
+@pytest.mark.parametrize("seed", range(15))
+def test_the_two_references_agree_on_the_count_tiers(seed: int) -> None:
+    rng = np.random.default_rng(seed)
+    ws = Workspace(random_session(700 + seed))
+    ws.solve()
+    for k in range(3):
+        _random_change(ws, rng, k)
+    ws.session = ws.session.model_copy(update={"pins": []})
+    inst = replan_instance(ws.session, ws.plan_of(1))
+    # References: OR-tools SimpleMinCostFlow (weighted counts) and HiGHS (staged LPs).
+    assert ortools_count_optimum(inst) == replan_optimum(inst, with_score=False)
+    outcome = ws.solve()
+    before = {(a.reviewer, a.paper) for a in ws.plan_of(1).assignments}
+    f = outcome.plan.figures
+    kept = sum((a.reviewer, a.paper) in before for a in outcome.plan.assignments)
+    assert (f.required_coverage, f.coverage, f.floors_met, kept) == ortools_count_optimum(inst)

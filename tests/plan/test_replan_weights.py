@@ -67,6 +67,7 @@ def test_a_coarser_score_step_keeps_every_count_tier_exact(
     earlier = ws.plan_of(ws.session.revision)
     outcome = ws.solve()
     assert outcome.network.resolution < SCORE_RESOLUTION
+    assert f"steps of 1/{outcome.network.resolution}" in outcome.plan.method
     f = outcome.plan.figures
     before = {(a.reviewer, a.paper) for a in earlier.assignments}
     kept = sum((a.reviewer, a.paper) in before for a in outcome.plan.assignments)

@@ -146,8 +146,9 @@ def test_list_and_data_deltas_round_trip() -> None:
     assert ListDelta[Paper].between(a, list(a)) is None
     s = workshop()
     data = SessionData(s.policy, s.papers, s.reviewers, s.conflicts, s.pins, s.blocks, s.scores)
-    assert DataDelta.between(None, data).apply(None) == data
-    assert DataDelta.between(data, data) == DataDelta()
+    assert DataDelta.between(None, data, s.scores).apply(None, s.scores) == data
+    assert DataDelta.between(None, data, s.scores).scores is None
+    assert DataDelta.between(data, data, s.scores) == DataDelta()
 
 
 def test_revisions_are_compact() -> None:
@@ -160,7 +161,9 @@ def test_revisions_are_compact() -> None:
     assert second.data.reviewers is not None and len(second.data.reviewers.changed) == 1
     assert second.data.papers is None and second.data.scores is None
     assert len(second.model_dump_json()) < len(ws.session.plan.model_dump_json()) / 3
-    assert restore_data(ws.revisions, 2).reviewers == ws.session.reviewers
+    assert restore_data(ws.revisions, 2, ws.session.scores).reviewers == ws.session.reviewers
+    # The first revision holds no copy of the score table: it equals the session's.
+    assert ws.revisions[0].data.scores is None
 
 
 def test_an_older_file_without_history_loads_and_plans(tmp_path: Path) -> None:
@@ -198,3 +201,59 @@ def test_an_interrupted_save_leaves_the_previous_file_intact(
     assert path.read_bytes() == before
     assert [p.name for p in tmp_path.iterdir()] == ["s.json"]
     assert load_session(path).revision == 1
+
+
+def test_undo_with_unplanned_changes_drops_them_first() -> None:
+    ws = Workspace(workshop())
+    ws.solve()
+    ws.withdraw_reviewer(ws.session.plan.assignments[0].reviewer)
+    ws.solve()
+    plan_2 = ws.session.plan.model_dump_json()
+    reviewers_2 = ws.session.reviewers
+    ws.withdraw_paper(ws.session.papers[0].id)
+    ws.set_reviewer(ws.session.reviewers[1].id, cap=1, floor=0)
+    assert ws.data_changed_since_plan()
+    assert ws.undo() == 2
+    assert ws.session.plan.model_dump_json() == plan_2
+    assert ws.session.reviewers == reviewers_2 and not ws.session.papers[0].withdrawn
+    assert ws.session.events[-1].detail == "back to revision 2, changes dropped"
+    assert ws.undo() == 1
+    ws.solve()
+    assert ws.history()[-1].changes == ("undo 1 (back to revision 1 from 2)",)
+    assert ws.history()[-1].parent == 1
+
+
+def test_score_changes_rebase_the_first_revision_and_survive_reopening(tmp_path: Path) -> None:
+    path = tmp_path / "s.json"
+    ws = Workspace(workshop(), path)
+    ws.solve()
+    original = ws.session.scores
+    plan_1 = ws.session.plan.model_dump_json()
+    paper, reviewer = ws.session.papers[0].id, ws.session.reviewers[0].id
+    ws.add_reviewer(Reviewer(id="LATE-R", cap=2), scores={paper: 0.99})
+    ws.add_paper(Paper(id="LATE-P"), scores={reviewer: 0.5, "LATE-R": 0.75})
+    ws.solve()
+    plan_2 = ws.session.plan.model_dump_json()
+    ws.save()
+    again = Workspace.open(path)
+    # The first revision's scores are stored against today's table, which has 3 more rows.
+    assert len(again.revisions[0].data.scores.removed) == 3
+    assert again.data_of(1).scores == original
+    assert again.plan_of(1).model_dump_json() == plan_1
+    assert again.plan_of(2).model_dump_json() == plan_2
+    assert again.undo() == 1
+    assert again.session.scores == original and again.revisions[0].data.scores is None
+    again.save()
+    third = Workspace.open(path)
+    assert third.plan_of(2).model_dump_json() == plan_2
+    assert len(third.data_of(2).scores) == len(original) + 3
+
+
+def test_scores_changed_behind_the_workspace_are_detected_not_misread() -> None:
+    ws = Workspace(workshop())
+    ws.solve()
+    table = ws.session.scores
+    shifted = type(table).from_arrays(table.reviewer, table.paper, table.value * 0.5)
+    edited = Workspace(ws.session.model_copy(update={"scores": shifted}))
+    with pytest.raises(ChangeRefused, match="changed outside the workspace"):
+        edited.plan_of(1)
