@@ -80,7 +80,7 @@ class ReviewAllocApp(App[None]):
         Binding("escape", "cancel_plan", "Cancel plan", show=False),
         Binding("ctrl+s", "save", "Save"),
         Binding("R", "plan(True)", "Plan fresh", show=False),
-        Binding("ctrl+z", "undo", "Back a revision"),
+        Binding("ctrl+z", "undo", "Undo"),
         Binding("i", "import", "Import CSV", show=False),
         Binding("question_mark,f1", "help", "Keys"),
         Binding("1", "tab('overview')", "Overview", show=False),
@@ -451,22 +451,26 @@ class ReviewAllocApp(App[None]):
         self.action_undo()
 
     def action_undo(self) -> None:
-        """Go back to the previous revision, its plan and its data (asks if that drops changes)."""
+        """Go back one step with the Workspace: drop the changes made since the current revision
+        (asking first), or else return to the revision it was planned from."""
         if self.planning:
             self.notify("wait for the plan or cancel it (escape) before going back")
             return
         ws = self.workspace
         current = ws.session.revision
-        entry = next((e for e in ws.history() if e.number == current), None)
-        if entry is None or entry.parent is None:
-            self.notify("no earlier revision to go back to", severity="warning")
+        if current is None:
+            self.notify("nothing to go back to: no plan has been made yet", severity="warning")
+            return
+        if not ws.data_changed_since_plan():
+            entry = next((e for e in ws.history() if e.number == current), None)
+            if entry is None or entry.parent is None:
+                self.notify(f"revision {current} is the first; nothing to go back to")
+                return
+            self._go_back()
             return
         events = ws.session.events
         marks = [k for k, e in enumerate(events) if e.action in ("plan", "undo")]
         unplanned = len(events) - (marks[-1] + 1 if marks else 0)
-        if not unplanned:
-            self._go_back()
-            return
 
         def answered(yes: bool | None) -> None:
             if yes:
@@ -474,10 +478,10 @@ class ReviewAllocApp(App[None]):
 
         self.push_screen(
             Confirm(
-                f"Go back to revision {entry.parent}? The {unplanned} change(s) made since "
-                f"revision {current} are dropped with it (they stay listed under History).",
-                yes=f"Back to revision {entry.parent}",
-                no="Stay",
+                f"Drop the {unplanned} change(s) made since revision {current} and return to "
+                "its plan and data? (They stay listed under History.)",
+                yes="Drop the changes",
+                no="Keep them",
             ),
             answered,
         )
@@ -602,7 +606,11 @@ class ReviewAllocApp(App[None]):
         yield "Plan now", "make the optimal, checked plan", self.action_plan
         yield "Save session", "write the session file (atomic)", self.action_save
         yield "Plan fresh", "plan ignoring the current revision's pairs", self._plan_fresh
-        yield "Back a revision", "return to the previous revision's plan and data", self.action_undo
+        yield (
+            "Undo",
+            "drop the changes since the current revision, or go back to the one before",
+            self.action_undo,
+        )
         yield "Declare a conflict", "add a conflict of interest", self.action_declare_conflict
         yield "Import from CSV", "build a session from CSV files", self.action_import
         yield "Show keys", "every key of the app", self.action_help

@@ -134,7 +134,7 @@ class HistoryView(Widget):
 
     BINDINGS = [
         Binding("m", "mark", "Mark base", tooltip="Compare other revisions against this one"),
-        Binding("u", "undo", "Back a revision", tooltip="Return to the previous revision"),
+        Binding("u", "undo", "Undo", tooltip="Go back one step, like ctrl+z"),
     ]
 
     entries: reactive[list[HistoryEntry]] = reactive(list, always_update=True)

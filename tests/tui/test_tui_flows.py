@@ -333,7 +333,7 @@ async def test_help_lists_every_key_and_the_palette_has_our_commands(new_app: Fa
         await pilot.press("escape")
         assert not isinstance(app.screen, HelpScreen)
         names = [name for name, _, _ in app.palette_commands()]
-        assert {"Plan now", "Plan fresh", "Save session", "Back a revision"} <= set(names)
+        assert {"Plan now", "Plan fresh", "Save session", "Undo"} <= set(names)
         await pilot.press("ctrl+p")
         await pilot.pause()
         await pilot.press(*"plan now")
@@ -450,7 +450,7 @@ async def test_mouse_tabs_rows_and_buttons(new_app: Factory) -> None:
         assert app.focused is view.query_one(".pairs", RowTable)
 
 
-async def test_going_back_asks_before_dropping_unplanned_changes(new_app: Factory) -> None:
+async def test_undo_asks_before_dropping_unplanned_changes(new_app: Factory) -> None:
     app = new_app()
     async with app.run_test(size=SIZE) as pilot:
         await plan(app, pilot)
@@ -464,14 +464,19 @@ async def test_going_back_asks_before_dropping_unplanned_changes(new_app: Factor
         assert isinstance(app.screen, Confirm)
         await pilot.press("escape")
         await pilot.pause()
-        assert app.workspace.session.revision == 2
         assert app.workspace.session.reviewers[0].withdrawn
+        # Dropping the change returns to revision 2 as it was.
         await pilot.press("ctrl+z")
         await pilot.pause()
         await pilot.click("#yes")
         await pilot.pause()
-        assert app.workspace.session.revision == 1
+        assert app.workspace.session.revision == 2
         assert not app.workspace.session.reviewers[0].withdrawn
+        # Without changes, undo goes back to the revision before, without asking.
+        await pilot.press("ctrl+z")
+        await pilot.pause()
+        assert not isinstance(app.screen, Confirm)
+        assert app.workspace.session.revision == 1
         # At the first revision there is nothing earlier to go back to.
         await pilot.press("ctrl+z")
         await pilot.pause()
