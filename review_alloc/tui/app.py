@@ -296,7 +296,7 @@ class ReviewAllocApp(App[None]):
             d = ws.diff(entry.parent, number)
             change = (
                 f"against revision {entry.parent}: +{len(d.added)} / -{len(d.removed)} pairs, "
-                f"{d.kept} kept, {len(d.by_reviewer)} reviewers to tell"
+                f"{d.kept} kept, {len(d.by_reviewer)} reviewer(s) to tell"
             )
         self.notify(
             f"revision {number}: {f.coverage}/{f.demand} reviews, score {f.total_score:.2f} "

@@ -11,7 +11,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from review_alloc.model import Plan, Session
+from review_alloc.model import Session
 from review_alloc.plan import conflict_pairs
 from review_alloc.plan.figures import active_demands
 
@@ -35,39 +35,6 @@ class Candidate:
     def usable(self) -> bool:
         """Whether a pin could be placed on this pair (no hard rule forbids it)."""
         return not self.status.startswith(("conflict", "blocked", "withdrawn", "not eligible"))
-
-
-@dataclass(frozen=True)
-class PlanChange:
-    """What changed between two plans: pairs added and removed, and the figures before/after."""
-
-    added: list[tuple[str, str, float]]
-    removed: list[tuple[str, str, float]]
-    coverage: tuple[int, int]
-    score: tuple[float, float]
-
-    def headline(self) -> str:
-        """One line for a notification: counts of pairs and the change in coverage and score."""
-        cov = self.coverage[1] - self.coverage[0]
-        score = self.score[1] - self.score[0]
-        return (
-            f"+{len(self.added)} / -{len(self.removed)} pairs; "
-            f"reviews placed {cov:+d}; total score {score:+.2f}"
-        )
-
-
-def plan_change(before: Plan | None, after: Plan) -> PlanChange:
-    """Pairs in `after` not in `before` and the reverse, each as (paper, reviewer, score)."""
-    old = {(a.paper, a.reviewer): a.score for a in before.assignments} if before else {}
-    new = {(a.paper, a.reviewer): a.score for a in after.assignments}
-    added = sorted((p, r, s) for (p, r), s in new.items() if (p, r) not in old)
-    removed = sorted((p, r, s) for (p, r), s in old.items() if (p, r) not in new)
-    return PlanChange(
-        added=added,
-        removed=removed,
-        coverage=(before.figures.coverage if before else 0, after.figures.coverage),
-        score=(before.figures.total_score if before else 0.0, after.figures.total_score),
-    )
 
 
 @dataclass

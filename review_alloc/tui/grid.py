@@ -142,14 +142,15 @@ class RowTable(ScrollView, can_focus=True):
         measure: Sequence[Sequence[object]] | None = None,
         *,
         cursor: int = 0,
+        widest: int = WIDEST,
     ) -> None:
-        """Show `rows` under `names`; widths fit `measure` (default `rows`), capped at WIDEST."""
+        """Show `rows` under `names`; widths fit `measure` (default `rows`), capped at `widest`."""
         widths = [len(n) for n in names]
         for cells in rows if measure is None else measure:
             for k, c in enumerate(cells):
                 size = len(cell_text(c))
                 if size > widths[k]:
-                    widths[k] = min(size, WIDEST)
+                    widths[k] = min(size, widest)
         self._names, self._widths, self._rows = list(names), widths, list(rows)
         self._lines.clear()
         total = sum(widths) + GAP * len(widths)

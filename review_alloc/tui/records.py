@@ -29,6 +29,11 @@ SHOWN_AT_MOST = 2000
 """Rows drawn at once in the Conflicts table; the filter narrows the rest."""
 
 
+def _people(count: int) -> str:
+    """'1 reviewer', '3 reviewers'."""
+    return f"{count} reviewer" + ("" if count == 1 else "s")
+
+
 class ConflictView(Widget):
     """Every conflicted pair, declared or inferred, with its reasons; `a` declares a new one."""
 
@@ -201,7 +206,7 @@ class HistoryView(Widget):
         head.update(
             Text(
                 f"revision {diff.new} against {old}: +{len(diff.added)} / -{len(diff.removed)} "
-                f"pairs, {diff.kept} kept; {len(diff.by_reviewer)} reviewers to tell",
+                f"pairs, {diff.kept} kept; {_people(len(diff.by_reviewer))} to tell",
                 style="bold",
             )
         )
@@ -209,17 +214,17 @@ class HistoryView(Widget):
             [reviewer, " ".join(c.added) or "-", " ".join(c.removed) or "-"]
             for reviewer, c in diff.by_reviewer.items()
         ]
-        table.fill(DIFF_COLUMNS, rows)
+        table.fill(DIFF_COLUMNS, rows, widest=200)
 
     def watch_facts(self, facts: Facts | None) -> None:
         """Redraw the change log."""
         if facts is None:
             return
         rows = [
-            [e.at.strftime("%m-%d %H:%M:%S"), e.describe()[:90]]
+            [e.at.strftime("%m-%d %H:%M:%S"), e.describe()[:160]]
             for e in reversed(facts.session.events[-500:])
         ]
-        self.query_one(".events", RowTable).fill(EVENT_COLUMNS, rows)
+        self.query_one(".events", RowTable).fill(EVENT_COLUMNS, rows, widest=120)
 
     @on(RowTable.Highlighted, ".revisions")
     def _revision_moved(self) -> None:
