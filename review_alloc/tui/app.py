@@ -302,7 +302,7 @@ class ReviewAllocApp(App[None]):
             f"revision {number}: {f.coverage}/{f.demand} reviews, score {f.total_score:.2f} "
             f"({monotonic() - started:.1f} s)\n{change}\nHistory (6) shows who changed.",
             title="Plan made and checked",
-            timeout=8,
+            timeout=6,
         )
 
     # -- changes --------------------------------------------------------------------------
@@ -583,6 +583,9 @@ class ReviewAllocApp(App[None]):
                 desc = b.description if isinstance(b, Binding) else b[2]
                 if key == "escape":
                     desc = "cancel the plan being made; close a form"
+                elif key in "123456" and len(key) == 1:
+                    tab = f"{self.noun}s" if desc == "Papers" else desc
+                    desc = f"show the {tab.capitalize()} tab"
                 out.append((key.replace("question_mark", "?").replace("slash", "/"), desc))
             return out
 
