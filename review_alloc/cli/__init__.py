@@ -11,12 +11,12 @@ import argparse
 import sys
 from collections.abc import Sequence
 
-from review_alloc.cli import basic, changes, explain
+from review_alloc.cli import app, basic, changes, explain
 from review_alloc.cli.common import EXIT_CHECK, EXIT_INPUT
 from review_alloc.model import InputError
 
-_MODULES = (basic, explain, changes)
-_DEFAULT_COMMAND = "demo"
+_MODULES = (basic, explain, changes, app)
+_DEFAULT_COMMAND = "app"
 
 
 def build_parser() -> tuple[argparse.ArgumentParser, dict]:

@@ -1,0 +1,35 @@
+"""`review-alloc open SESSION` and `review-alloc` alone: the terminal app."""
+
+from __future__ import annotations
+
+import argparse
+from collections.abc import Callable
+from pathlib import Path
+
+from review_alloc.cli.common import EXIT_OK
+
+Handler = Callable[[argparse.Namespace], int]
+
+
+def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
+    """Add `open` and the no-argument default that opens the demo; return their handlers."""
+    p = sub.add_parser("open", help="open a session file in the terminal app")
+    p.add_argument("session", type=Path)
+    return {"open": _cmd_open, "app": _cmd_app}
+
+
+def _run(path: Path | None) -> int:
+    # Textual is imported only here, so the other commands start without it.
+    from review_alloc.tui import make_app
+
+    make_app(path).run()
+    return EXIT_OK
+
+
+def _cmd_open(args: argparse.Namespace) -> int:
+    return _run(args.session)
+
+
+def _cmd_app(args: argparse.Namespace) -> int:
+    """No command given: the app on the user's copy of the demo workshop."""
+    return _run(None)

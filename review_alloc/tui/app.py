@@ -1,0 +1,647 @@
+"""The terminal app: one screen of tabs over an open Workspace.
+
+The app owns a `Workspace` and nothing else of the domain: every change goes through it, plans
+are made by the planner in a worker thread and installed with `Workspace.install_plan`, and
+the views only get `Facts` (attributes down) and post requests (messages up).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass
+from datetime import UTC, datetime
+from pathlib import Path
+from time import monotonic
+
+from rich.text import Text
+from textual import on, work
+from textual.app import App, ComposeResult
+from textual.binding import Binding
+from textual.command import DiscoveryHit, Hit, Hits, Provider
+from textual.containers import Horizontal
+from textual.message import Message
+from textual.widgets import (
+    Footer,
+    Label,
+    ProgressBar,
+    Static,
+    TabbedContent,
+    TabPane,
+)
+
+from review_alloc.model import InputError, Plan, Session
+from review_alloc.plan import PlanCheckError, PlanOutcome
+from review_alloc.tui.dialogs import Confirm, Field, Form, HelpScreen, ImportForm, whole_or_default
+from review_alloc.tui.facts import Facts
+from review_alloc.tui.grid import RowTable
+from review_alloc.tui.overview import Overview
+from review_alloc.tui.records import ConflictView, HistoryView
+from review_alloc.tui.tables import EntityView, GapView, PaperView, ReviewerView
+from review_alloc.workspace import Workspace
+
+TABS = ("overview", "papers", "reviewers", "conflicts", "gaps", "history")
+
+
+def _utc_now() -> datetime:
+    return datetime.now(UTC)
+
+
+class ChairCommands(Provider):
+    """The app's own commands in the command palette (ctrl+p)."""
+
+    async def discover(self) -> Hits:
+        """Every command, for an empty palette."""
+        app = self.app
+        assert isinstance(app, ReviewAllocApp)
+        for name, help_text, run in app.palette_commands():
+            yield DiscoveryHit(name, run, help=help_text)
+
+    async def search(self, query: str) -> Hits:
+        """Commands whose name matches what was typed."""
+        app = self.app
+        assert isinstance(app, ReviewAllocApp)
+        matcher = self.matcher(query)
+        for name, help_text, run in app.palette_commands():
+            score = matcher.match(name)
+            if score > 0:
+                yield Hit(score, matcher.highlight(name), run, help=help_text)
+
+
+class ReviewAllocApp(App[None]):
+    """Plan reviewer assignments for one session, keyboard first."""
+
+    CSS_PATH = "app.tcss"
+    TITLE = "review-alloc"
+    COMMANDS = App.COMMANDS | {ChairCommands}
+    HORIZONTAL_BREAKPOINTS = [(0, "-narrow"), (110, "-wide")]
+    BINDINGS = [
+        Binding("ctrl+q", "quit", "Quit", priority=True),
+        Binding("r", "plan", "Plan", tooltip="Make the optimal plan in the background"),
+        Binding("escape", "cancel_plan", "Cancel plan", show=False),
+        Binding("ctrl+s", "save", "Save"),
+        Binding("R", "plan(True)", "Plan fresh", show=False),
+        Binding("ctrl+z", "undo", "Undo"),
+        Binding("i", "import", "Import CSV", show=False),
+        Binding("question_mark,f1", "help", "Keys"),
+        Binding("1", "tab('overview')", "Overview", show=False),
+        Binding("2", "tab('papers')", "Papers", show=False),
+        Binding("3", "tab('reviewers')", "Reviewers", show=False),
+        Binding("4", "tab('conflicts')", "Conflicts", show=False),
+        Binding("5", "tab('gaps')", "Gaps", show=False),
+        Binding("6", "tab('history')", "History", show=False),
+    ]
+
+    @dataclass
+    class PlanReady(Message):
+        """A plan finished in the worker (`generation` tells stale results apart)."""
+
+        generation: int
+        planned: Session
+        outcome: PlanOutcome
+
+    @dataclass
+    class PlanFailed(Message):
+        """The planner refused the session or its checker withheld the plan."""
+
+        generation: int
+        lines: list[str]
+
+    def __init__(self, workspace: Workspace, *, clock: Callable[[], datetime] = _utc_now) -> None:
+        super().__init__()
+        self.workspace = workspace
+        self.clock = clock
+        self.facts = Facts.of(workspace.session)
+        self._generation = 0
+        self._planning_since: float | None = None
+        self._shown_version: dict[str, int] = {}
+        self._version = 0
+        self._history_mark: tuple[int, int | None] | None = None
+
+    # -- layout ---------------------------------------------------------------------------
+
+    @property
+    def noun(self) -> str:
+        """'proposal' for a panel session, 'paper' otherwise."""
+        return self.workspace.noun
+
+    def compose(self) -> ComposeResult:
+        """The session bar, the planning strip, the tabs and the footer."""
+        noun = self.noun.capitalize()
+        yield Static("", id="bar")
+        with Horizontal(id="planning"):
+            yield Label("", id="planning-label")
+            yield ProgressBar(total=None, show_eta=False, id="planning-progress")
+        with TabbedContent(id="tabs"):
+            with TabPane("1 Overview", id="overview"):
+                yield Overview(id="overview-view")
+            with TabPane(f"2 {noun}s", id="papers"):
+                yield PaperView(id="papers-view")
+            with TabPane("3 Reviewers", id="reviewers"):
+                yield ReviewerView(id="reviewers-view")
+            with TabPane("4 Conflicts", id="conflicts"):
+                yield ConflictView(id="conflicts-view")
+            with TabPane("5 Gaps", id="gaps"):
+                yield GapView(id="gaps-view")
+            with TabPane("6 History", id="history"):
+                yield HistoryView(id="history-view")
+        yield Footer()
+
+    def on_mount(self) -> None:
+        """Draw the first screen at once; warm the solver up behind it."""
+        self.query_one("#planning").display = False
+        self._refresh_all()
+        self._warm_up()
+
+    @work(thread=True, group="warm-up", exit_on_error=False)
+    def _warm_up(self) -> None:
+        """Compile or load the flow kernels so that the first plan starts at full speed."""
+        from review_alloc.flow import warm_up
+
+        warm_up()
+
+    # -- drawing --------------------------------------------------------------------------
+
+    def _refresh_all(self) -> None:
+        """New facts after a change; redraw the bar and the visible view now, others on show."""
+        self.facts = Facts.of(self.workspace.session, self.facts)
+        self._version += 1
+        self._draw_bar()
+        history = self.query_one(HistoryView)
+        mark = (len(self.workspace.revisions), self.workspace.session.revision)
+        if mark != self._history_mark:
+            self._history_mark = mark
+            history.entries = self.workspace.history()
+        self._show_view(self.query_one(TabbedContent).active or "overview")
+
+    def _show_view(self, tab: str) -> None:
+        if self._shown_version.get(tab) == self._version:
+            return
+        self._shown_version[tab] = self._version
+        view = self.query_one(f"#{tab}-view")
+        if isinstance(view, Overview):
+            view.changed_since = self.workspace.data_changed_since_plan()
+        view.facts = self.facts  # type: ignore[attr-defined]
+
+    @on(TabbedContent.TabActivated)
+    def _tab_shown(self, event: TabbedContent.TabActivated) -> None:
+        if event.pane.id:
+            self._show_view(event.pane.id)
+
+    def _draw_bar(self) -> None:
+        ws = self.workspace
+        s = ws.session
+        text = Text()
+        name = s.name if len(s.name) <= 30 else s.name[:29] + "…"
+        text.append(f" {name} ", style="bold reverse")
+        if ws.dirty:
+            text.append(" ● UNSAVED (ctrl+s) ", style="bold black on yellow")
+        else:
+            text.append(" saved ", style="green")
+        if s.plan is None:
+            text.append(" no plan yet: press r ", style="yellow")
+        elif ws.data_changed_since_plan():
+            text.append(" plan STALE: data changed, press r ", style="bold yellow")
+        else:
+            revision = f" (revision {s.revision})" if s.revision is not None else ""
+            text.append(f" plan current{revision} ", style="green")
+        if s.kind == "panel":
+            text.append(" grant panel ", style="dim")
+        # The file name only, last: a long folder path would push the marks off the screen.
+        text.append(f" {ws.path.name if ws.path else '(not saved yet)'}", style="dim")
+        self.query_one("#bar", Static).update(text)
+
+    # -- planning -------------------------------------------------------------------------
+
+    @property
+    def planning(self) -> bool:
+        """Whether a plan is being made right now."""
+        return self._planning_since is not None
+
+    def action_plan(self, fresh: bool = False) -> None:
+        """Make the optimal plan in a worker thread; the screen stays live.
+
+        A re-plan keeps as many pairs of the current revision as coverage and floors allow
+        (so few reviewers have to be told); `fresh` ignores them.
+        """
+        if self.planning:
+            self.notify("a plan is already being made (escape cancels it)")
+            return
+        self._generation += 1
+        snapshot = self.workspace.session
+        self._planning_since = monotonic()
+        strip = self.query_one("#planning")
+        strip.display = True
+        papers = sum(not p.withdrawn for p in snapshot.papers)
+        self.query_one("#planning-label", Label).update(
+            f"planning {papers} {self.noun}s exactly... escape cancels "
+        )
+        earlier = None if fresh else self.workspace.earlier_plan()
+        self._solve(snapshot, earlier, fresh, self._generation)
+
+    @work(thread=True, exclusive=True, group="plan", exit_on_error=False)
+    def _solve(self, snapshot: Session, earlier: Plan | None, fresh: bool, generation: int) -> None:
+        """Run the planner on a snapshot and post the outcome back to the app."""
+        from review_alloc.plan import make_plan
+
+        try:
+            outcome = make_plan(snapshot, fresh=fresh, earlier=earlier, now=self.clock())
+        except InputError as error:
+            self.post_message(self.PlanFailed(generation, list(error.lines)))
+            return
+        except PlanCheckError as error:
+            self.post_message(
+                self.PlanFailed(generation, [f"plan withheld by the checker: {error}"])
+            )
+            return
+        self.post_message(self.PlanReady(generation, snapshot, outcome))
+
+    def _end_planning(self) -> None:
+        self._planning_since = None
+        self.query_one("#planning").display = False
+
+    def action_cancel_plan(self) -> None:
+        """Stop waiting for the plan being made; its result will be discarded."""
+        if not self.planning:
+            return
+        self._generation += 1
+        self.workers.cancel_group(self, "plan")
+        self._end_planning()
+        self.notify("planning cancelled; nothing changed")
+
+    @on(PlanFailed)
+    def _plan_failed(self, message: PlanFailed) -> None:
+        if message.generation != self._generation:
+            return
+        self._end_planning()
+        self.notify("\n".join(message.lines[:8]), title="No plan", severity="error", timeout=12)
+
+    @on(PlanReady)
+    def _plan_ready(self, message: PlanReady) -> None:
+        if message.generation != self._generation:
+            return
+        started = self._planning_since or monotonic()
+        self._end_planning()
+        ws = self.workspace
+        try:
+            ws.install_plan(message.outcome, message.planned)
+        except InputError as error:
+            self.notify("\n".join(error.lines), title="Plan not installed", severity="warning")
+            return
+        self._refresh_all()
+        f = message.outcome.plan.figures
+        number = ws.session.revision
+        change = "the first revision"
+        entry = ws.history()[-1]
+        if entry.parent is not None:
+            d = ws.diff(entry.parent, number)
+            change = (
+                f"against revision {entry.parent}: +{len(d.added)} / -{len(d.removed)} pairs, "
+                f"{d.kept} kept, {len(d.by_reviewer)} reviewer(s) to tell"
+            )
+        self.notify(
+            f"revision {number}: {f.coverage}/{f.demand} reviews, score {f.total_score:.2f} "
+            f"({monotonic() - started:.1f} s)\n{change}\nHistory (6) shows who changed.",
+            title="Plan made and checked",
+            timeout=6,
+        )
+
+    # -- changes --------------------------------------------------------------------------
+
+    def _change(self, what: str, apply: Callable[[], None]) -> bool:
+        """Apply one Workspace change; show its refusal reasons instead when it is refused."""
+        before = self.workspace.session
+        try:
+            apply()
+        except InputError as error:
+            self.notify("\n".join(error.lines[:8]), title=f"{what}: refused", severity="warning")
+            return False
+        self._refresh_all()
+        note = ""
+        if before.plan is not None:
+            pruned = len(before.plan.assignments) - len(self.workspace.session.plan.assignments)
+            if pruned:
+                note = f"; {pruned} pair(s) left the plan"
+        self.notify(f"{what}{note}. Press r to plan again.")
+        return True
+
+    @on(EntityView.PairRequest)
+    def _pair_request(self, message: EntityView.PairRequest) -> None:
+        ws = self.workspace
+        run = {
+            "pin": ws.pin,
+            "unpin": ws.unpin,
+            "block": ws.block,
+            "unblock": ws.unblock,
+        }[message.action]
+        self._change(
+            f"{message.action} ({message.reviewer}, {message.paper})",
+            lambda: run(message.reviewer, message.paper),
+        )
+
+    @on(EntityView.EntityRequest)
+    def _entity_request(self, message: EntityView.EntityRequest) -> None:
+        ws = self.workspace
+        ident = message.ident
+        if message.action == "edit":
+            self._edit(message.kind, ident)
+            return
+        runs = {
+            ("withdraw", "reviewer"): ws.withdraw_reviewer,
+            ("reinstate", "reviewer"): ws.reinstate_reviewer,
+            ("withdraw", "paper"): ws.withdraw_paper,
+            ("reinstate", "paper"): ws.reinstate_paper,
+        }
+        run = runs[(message.action, message.kind)]
+        noun = "reviewer" if message.kind == "reviewer" else self.noun
+        self._change(f"{message.action} {noun} {ident}", lambda: run(ident))
+
+    def _edit(self, kind: str, ident: str) -> None:
+        s = self.workspace.session
+        if kind == "reviewer":
+            j = s.reviewer_index()[ident]
+            r = s.reviewers[j]
+            fields = [
+                Field("cap", f"cap (most {self.noun}s; now {s.reviewer_cap(j)})", str(r.cap or "")),
+                Field(
+                    "floor",
+                    f"floor (fewest; now {s.reviewer_floor(j)})",
+                    str(r.floor or ""),
+                    optional=True,
+                ),
+            ]
+            title = f"Limits of reviewer {ident} ({r.name})"
+        else:
+            i = s.paper_index()[ident]
+            p = s.papers[i]
+            fields = [
+                Field(
+                    "reviews", f"reviews wanted (now {s.paper_reviews(i)})", str(p.reviews or "")
+                ),
+                Field(
+                    "min_reviews",
+                    f"reviews required (now {s.paper_min_reviews(i)})",
+                    str(p.min_reviews or ""),
+                    optional=True,
+                ),
+            ]
+            title = f"Reviews of {self.noun} {ident}"
+
+        def apply(values: dict[str, str]) -> list[str]:
+            numbers: dict[str, int | None] = {}
+            problems: list[str] = []
+            for name, text in values.items():
+                numbers[name], bad = whole_or_default(text, name)
+                problems += bad
+            if problems:
+                return problems
+            ws = self.workspace
+            try:
+                if kind == "reviewer":
+                    ws.set_reviewer(ident, cap=numbers["cap"], floor=numbers["floor"])
+                else:
+                    ws.set_paper(
+                        ident, reviews=numbers["reviews"], min_reviews=numbers["min_reviews"]
+                    )
+            except InputError as error:
+                return list(error.lines)
+            self._refresh_all()
+            self.notify(f"{title}: changed. Press r to plan again.")
+            return []
+
+        self.push_screen(Form(title, fields, apply, hint="an empty line keeps the current value"))
+
+    @on(ConflictView.AddRequest)
+    def _add_conflict(self, message: ConflictView.AddRequest) -> None:
+        self.action_declare_conflict(message.reviewer, message.paper)
+
+    def action_declare_conflict(self, reviewer: str = "", paper: str = "") -> None:
+        """Open the form that declares a conflict of interest."""
+        fields = [
+            Field("reviewer", "reviewer id", reviewer),
+            Field("paper", f"{self.noun} id", paper),
+            Field(
+                "reason", "reason (e.g. co-author in the last three years)", "declared by the chair"
+            ),
+        ]
+
+        def apply(values: dict[str, str]) -> list[str]:
+            return (
+                []
+                if self._change(
+                    f"conflict ({values['reviewer']}, {values['paper']}) declared",
+                    lambda: self.workspace.declare_conflict(
+                        values["reviewer"], values["paper"], values["reason"]
+                    ),
+                )
+                else [self._last_refusal(values)]
+            )
+
+        self.push_screen(Form("Declare a conflict of interest", fields, apply))
+
+    def _last_refusal(self, values: dict[str, str]) -> str:
+        s = self.workspace.session
+        if values["reviewer"] not in s.reviewer_index():
+            return f"unknown reviewer {values['reviewer']!r}"
+        if values["paper"] not in s.paper_index():
+            return f"unknown {self.noun} {values['paper']!r}"
+        return "refused: see the message in the corner"
+
+    @on(HistoryView.UndoRequest)
+    def _undo_request(self) -> None:
+        self.action_undo()
+
+    def action_undo(self) -> None:
+        """Go back one step with the Workspace: drop the changes made since the current revision
+        (asking first), or else return to the revision it was planned from."""
+        if self.planning:
+            self.notify("wait for the plan or cancel it (escape) before going back")
+            return
+        ws = self.workspace
+        current = ws.session.revision
+        if current is None:
+            self.notify("nothing to go back to: no plan has been made yet", severity="warning")
+            return
+        if not ws.data_changed_since_plan():
+            entry = next((e for e in ws.history() if e.number == current), None)
+            if entry is None or entry.parent is None:
+                self.notify(f"revision {current} is the first; nothing to go back to")
+                return
+            self._go_back()
+            return
+        events = ws.session.events
+        marks = [k for k, e in enumerate(events) if e.action in ("plan", "undo")]
+        unplanned = len(events) - (marks[-1] + 1 if marks else 0)
+
+        def answered(yes: bool | None) -> None:
+            if yes:
+                self._go_back()
+
+        self.push_screen(
+            Confirm(
+                f"Drop the {unplanned} change(s) made since revision {current} and return to "
+                "its plan and data? (They stay listed under History.)",
+                yes="Drop the changes",
+                no="Keep them",
+            ),
+            answered,
+        )
+
+    def _go_back(self) -> None:
+        try:
+            number = self.workspace.undo()
+        except InputError as error:
+            self.notify("\n".join(error.lines), title="Cannot go back", severity="warning")
+            return
+        self._refresh_all()
+        self.notify(f"back to revision {number}: its plan and its data")
+
+    @on(HistoryView.DiffWanted)
+    def _diff_wanted(self, message: HistoryView.DiffWanted) -> None:
+        from review_alloc.plan.diff import diff_plans
+
+        ws = self.workspace
+        entry = next(e for e in ws.history() if e.number == message.target)
+        base = message.base if message.base is not None else entry.parent
+        view = self.query_one(HistoryView)
+        if base is None:
+            view.diff = diff_plans(None, ws.plan_of(message.target), new_number=message.target)
+        else:
+            view.diff = ws.diff(base, message.target)
+
+    # -- files ----------------------------------------------------------------------------
+
+    def action_save(self) -> None:
+        """Write the session atomically to its file."""
+        try:
+            path = self.workspace.save()
+        except (InputError, OSError) as error:
+            lines = error.lines if isinstance(error, InputError) else [str(error)]
+            self.notify("\n".join(lines), title="Not saved", severity="error")
+            return
+        self._draw_bar()
+        self.notify(f"saved to {path}")
+
+    def action_import(self) -> None:
+        """Build a new session from CSV files and open it (after saving this one)."""
+        if self.workspace.dirty:
+            self.notify(
+                "save this session first (ctrl+s): an import replaces it on screen",
+                severity="warning",
+            )
+            return
+        self.push_screen(ImportForm(self._open_imported))
+
+    def _open_imported(self, session: Session, target: Path) -> None:
+        workspace = Workspace(session, None)
+        workspace.save(target)
+        self.workspace = workspace
+        self._history_mark = None
+        self._refresh_all()
+        self.notify(f"imported {len(session.papers)} {self.noun}s into {target}")
+
+    async def action_quit(self) -> None:
+        """Quit, asking first when there are unsaved changes."""
+        if not self.workspace.dirty:
+            self.exit()
+            return
+
+        def answered(quit_anyway: bool | None) -> None:
+            if quit_anyway:
+                self.exit()
+
+        self.push_screen(
+            Confirm(
+                "There are unsaved changes. Quit without saving them?\n"
+                "(No goes back; ctrl+s saves.)",
+                yes="Quit without saving",
+                no="Stay",
+            ),
+            answered,
+        )
+
+    # -- navigation and help --------------------------------------------------------------
+
+    def action_tab(self, tab: str) -> None:
+        """Show one tab."""
+        self.query_one(TabbedContent).active = tab
+        view = self.query_one(f"#{tab}-view")
+        tables = view.query(RowTable)
+        if tables:
+            tables.first().focus()
+
+    def action_help(self) -> None:
+        """Show every key."""
+        self.push_screen(HelpScreen(self.key_sections()))
+
+    def key_sections(self) -> list[tuple[str, list[tuple[str, str]]]]:
+        """Every binding of the app and its views, grouped by where it works."""
+
+        def rows(bindings: list) -> list[tuple[str, str]]:
+            out = []
+            for b in bindings:
+                key = b.key if isinstance(b, Binding) else b[0]
+                desc = b.description if isinstance(b, Binding) else b[2]
+                if key == "escape":
+                    desc = "cancel the plan being made; close a form"
+                elif key in "123456" and len(key) == 1:
+                    tab = f"{self.noun}s" if desc == "Papers" else desc
+                    desc = f"show the {tab.capitalize()} tab"
+                out.append((key.replace("question_mark", "?").replace("slash", "/"), desc))
+            return out
+
+        return [
+            ("Everywhere", rows(self.BINDINGS) + [("ctrl+p", "command palette")]),
+            (
+                f"{self.noun.capitalize()}s, Reviewers, Gaps",
+                rows(EntityView.BINDINGS)
+                + [
+                    ("enter", "from the table to its pair list"),
+                    ("tab", "next part of the view"),
+                    ("click header", "sort by that column (again: reverse)"),
+                ],
+            ),
+            ("Conflicts", rows(ConflictView.BINDINGS)),
+            ("History", rows(HistoryView.BINDINGS)),
+        ]
+
+    def palette_commands(self) -> Iterator[tuple[str, str, Callable[[], object]]]:
+        """Our commands for the palette: (name, help, callback)."""
+        yield "Plan now", "make the optimal, checked plan", self.action_plan
+        yield "Save session", "write the session file (atomic)", self.action_save
+        yield "Plan fresh", "plan ignoring the current revision's pairs", self._plan_fresh
+        yield (
+            "Undo",
+            "drop the changes since the current revision, or go back to the one before",
+            self.action_undo,
+        )
+        yield "Declare a conflict", "add a conflict of interest", self.action_declare_conflict
+        yield "Import from CSV", "build a session from CSV files", self.action_import
+        yield "Show keys", "every key of the app", self.action_help
+        for tab in TABS:
+            label = f"{self.noun}s" if tab == "papers" else tab
+            yield f"Go to {label}", f"show the {label} tab", lambda t=tab: self.action_tab(t)
+        yield (
+            f"Show {self.noun}s below minimum",
+            f"filter the {self.noun}s to those below their required reviews",
+            self._below_minimum,
+        )
+
+    def _plan_fresh(self) -> None:
+        self.action_plan(fresh=True)
+
+    def _below_minimum(self) -> None:
+        self.action_tab("papers")
+        self.query_one(PaperView).set_filter("below min")
+
+
+def make_app(
+    session_path: Path | str | None = None, *, clock: Callable[[], datetime] | None = None
+) -> ReviewAllocApp:
+    """The app on a session file, or on the user's copy of the demo workshop when None.
+
+    Raises `InputError` (file, field, problem) when the file cannot be read.
+    """
+    from review_alloc.tui.start import demo_session_path
+
+    path = Path(session_path) if session_path is not None else demo_session_path()
+    return ReviewAllocApp(Workspace.open(path), clock=clock or _utc_now)

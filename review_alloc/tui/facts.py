@@ -1,0 +1,280 @@
+"""What the screens show, derived from a session and its plan; no widgets, no solving.
+
+`Facts` is rebuilt after every change. It only reads the session and the current plan: loads,
+review counts, the people on each paper, and for any pair the reason the plan could not or did
+not use it. Plans themselves come from the Workspace.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from review_alloc.model import Session
+from review_alloc.plan import conflict_pairs
+from review_alloc.plan.figures import active_demands
+
+CAUTION = (
+    "A plan is advice to the chair, who follows the venue's conflict-of-interest policy: "
+    "check every pair before any assignment goes out."
+)
+
+
+@dataclass(frozen=True)
+class Candidate:
+    """One (reviewer, paper) pair seen from the paper or the reviewer, with its standing."""
+
+    reviewer: int
+    paper: int
+    score: float | None
+    status: str
+    """'assigned', 'pinned', or the reason the pair is not in the plan."""
+
+    @property
+    def usable(self) -> bool:
+        """Whether a pin could be placed on this pair (no hard rule forbids it)."""
+        return not self.status.startswith(("conflict", "blocked", "withdrawn", "not eligible"))
+
+
+@dataclass
+class Facts:
+    """Per-paper and per-reviewer figures of a session and its current plan."""
+
+    session: Session
+    loads: np.ndarray
+    counts: np.ndarray
+    reviews: np.ndarray
+    minimum: np.ndarray
+    cap: np.ndarray
+    floor: np.ndarray
+    assigned_of_paper: list[list[tuple[int, float]]]
+    assigned_of_reviewer: list[list[tuple[int, float]]]
+    conflict_reason: dict[tuple[int, int], str]
+    blocked: set[tuple[int, int]]
+    pinned: set[tuple[int, int]]
+    pair_keys: np.ndarray = field(repr=False)
+    pair_values: np.ndarray = field(repr=False)
+
+    @classmethod
+    def of(cls, session: Session, previous: Facts | None = None) -> Facts:
+        """Compute the facts of `session` as it is now.
+
+        Conflicts and the sorted score table are taken over from `previous` when the lists they
+        depend on are the very same objects (a pin, a block or a plan leaves them alone), which
+        spares a large session most of the work of a refresh.
+        """
+        n_p, n_r = len(session.papers), len(session.reviewers)
+        paper_at, reviewer_at = session.paper_index(), session.reviewer_index()
+        by_paper: list[list[tuple[int, float]]] = [[] for _ in range(n_p)]
+        by_reviewer: list[list[tuple[int, float]]] = [[] for _ in range(n_r)]
+        plan = session.plan
+        for a in plan.assignments if plan else ():
+            i, j = paper_at[a.paper], reviewer_at[a.reviewer]
+            by_paper[i].append((j, a.score))
+            by_reviewer[j].append((i, a.score))
+        loads = np.array([len(x) for x in by_reviewer], dtype=np.int64)
+        counts = np.array([len(x) for x in by_paper], dtype=np.int64)
+        reviews, minimum, cap, floor = active_demands(session)
+        table = session.scores
+        old = previous.session if previous is not None else None
+        if old is not None and old.scores is table and len(old.papers) == n_p:
+            assert previous is not None
+            pair_keys, pair_values = previous.pair_keys, previous.pair_values
+        else:
+            keys = table.reviewer.astype(np.int64) * max(n_p, 1) + table.paper
+            order = np.argsort(keys, kind="stable")
+            pair_keys, pair_values = keys[order], table.value[order]
+        same_people = old is not None and all(
+            getattr(old, name) is getattr(session, name)
+            for name in ("papers", "reviewers", "conflicts", "policy")
+        )
+        if same_people:
+            assert previous is not None
+            conflict_reason = previous.conflict_reason
+        else:
+            conflict_reason = conflict_pairs(session).reason_of()
+        return cls(
+            session=session,
+            loads=loads,
+            counts=counts,
+            reviews=reviews,
+            minimum=minimum,
+            cap=cap,
+            floor=floor,
+            assigned_of_paper=by_paper,
+            assigned_of_reviewer=by_reviewer,
+            conflict_reason=conflict_reason,
+            blocked={(reviewer_at[b.reviewer], paper_at[b.paper]) for b in session.blocks},
+            pinned={(reviewer_at[p.reviewer], paper_at[p.paper]) for p in session.pins},
+            pair_keys=pair_keys,
+            pair_values=pair_values,
+        )
+
+    # -- single figures -------------------------------------------------------------------
+
+    def score(self, reviewer: int, paper: int) -> float | None:
+        """The score of a pair, or None when the table has no row for it."""
+        key = reviewer * max(len(self.session.papers), 1) + paper
+        at = int(np.searchsorted(self.pair_keys, key))
+        if at < len(self.pair_keys) and self.pair_keys[at] == key:
+            return float(self.pair_values[at])
+        return None
+
+    def paper_status(self, i: int) -> str:
+        """A short word for a paper's coverage, readable without colour."""
+        if self.session.papers[i].withdrawn:
+            return "withdrawn"
+        if self.session.plan is None:
+            return "unplanned"
+        got, want, need = int(self.counts[i]), int(self.reviews[i]), int(self.minimum[i])
+        if got < need:
+            return f"BELOW MIN {need - got}"
+        if got < want:
+            return f"short {want - got}"
+        return "covered"
+
+    def reviewer_status(self, j: int) -> str:
+        """A short word for a reviewer's load against cap and floor, readable without colour."""
+        if self.session.reviewers[j].withdrawn:
+            return "withdrawn"
+        load, cap, floor = int(self.loads[j]), int(self.cap[j]), int(self.floor[j])
+        if load > cap:
+            return f"OVER CAP {load - cap}"
+        if load == cap:
+            return "at cap"
+        if load < floor:
+            return f"below floor {floor - load}"
+        return f"room {cap - load}"
+
+    # -- pairs ----------------------------------------------------------------------------
+
+    def pair_status(self, reviewer: int, paper: int) -> str:
+        """Why a pair is or is not in the plan, in the chair's words."""
+        s = self.session
+        pair = (reviewer, paper)
+        in_plan = any(j == reviewer for j, _ in self.assigned_of_paper[paper])
+        if pair in self.pinned:
+            return "pinned" if in_plan else "pinned (plan again)"
+        if in_plan:
+            return "assigned"
+        if pair in self.conflict_reason:
+            return f"conflict: {self.conflict_reason[pair]}"
+        if pair in self.blocked:
+            return "blocked by the chair"
+        if s.reviewers[reviewer].withdrawn:
+            return "withdrawn reviewer"
+        if s.papers[paper].withdrawn:
+            return f"withdrawn {self.noun}"
+        score = self.score(reviewer, paper)
+        if score is None and s.policy.unscored == "exclude":
+            return "not eligible: unscored"
+        if self.loads[reviewer] >= self.cap[reviewer]:
+            return f"cap full ({int(self.loads[reviewer])}/{int(self.cap[reviewer])})"
+        if self.counts[paper] >= self.reviews[paper]:
+            return f"{self.noun} already has its reviews"
+        if score is None:
+            return "unscored (counts as 0)"
+        return "eligible, not chosen"
+
+    @property
+    def noun(self) -> str:
+        """'proposal' for a panel, 'paper' otherwise."""
+        return "proposal" if self.session.kind == "panel" else "paper"
+
+    def candidates_of_paper(self, paper: int, limit: int = 12) -> list[Candidate]:
+        """The paper's assigned people, then the best-scored others with why each is unused."""
+        out = [
+            Candidate(j, paper, score, self.pair_status(j, paper))
+            for j, score in sorted(self.assigned_of_paper[paper], key=lambda x: -x[1])
+        ]
+        taken = {c.reviewer for c in out}
+        n_p = max(len(self.session.papers), 1)
+        rows = np.flatnonzero(self.pair_keys % n_p == paper)
+        ranked = rows[np.argsort(-self.pair_values[rows], kind="stable")]
+        for k in ranked:
+            j = int(self.pair_keys[k] // n_p)
+            if j in taken:
+                continue
+            out.append(Candidate(j, paper, float(self.pair_values[k]), self.pair_status(j, paper)))
+            taken.add(j)
+            if len(out) >= len(self.assigned_of_paper[paper]) + limit:
+                return out
+        if self.session.policy.unscored == "exclude":
+            return out
+        # Too few scored rows: unscored pairs are eligible at score 0, so show those people too.
+        for j in range(len(self.session.reviewers)):
+            if len(out) >= len(self.assigned_of_paper[paper]) + limit:
+                break
+            if j not in taken:
+                out.append(Candidate(j, paper, None, self.pair_status(j, paper)))
+                taken.add(j)
+        return out
+
+    def candidates_of_reviewer(self, reviewer: int, limit: int = 12) -> list[Candidate]:
+        """The reviewer's assigned papers, then their best-scored others and why each is unused."""
+        out = [
+            Candidate(reviewer, i, score, self.pair_status(reviewer, i))
+            for i, score in sorted(self.assigned_of_reviewer[reviewer], key=lambda x: -x[1])
+        ]
+        taken = {c.paper for c in out}
+        n_p = max(len(self.session.papers), 1)
+        lo = int(np.searchsorted(self.pair_keys, reviewer * n_p))
+        hi = int(np.searchsorted(self.pair_keys, (reviewer + 1) * n_p))
+        span = np.arange(lo, hi)
+        ranked = span[np.argsort(-self.pair_values[lo:hi], kind="stable")]
+        for k in ranked:
+            i = int(self.pair_keys[k] % n_p)
+            if i in taken:
+                continue
+            out.append(
+                Candidate(reviewer, i, float(self.pair_values[k]), self.pair_status(reviewer, i))
+            )
+            taken.add(i)
+            if len(out) >= len(self.assigned_of_reviewer[reviewer]) + limit:
+                break
+        return out
+
+    # -- charts ---------------------------------------------------------------------------
+
+    def load_bands(self) -> list[tuple[str, int]]:
+        """Active reviewers counted by load against cap, in bands a chair reads at a glance."""
+        bands = {"idle": 0, "< half cap": 0, "< cap": 0, "at cap": 0}
+        bands["over cap"] = 0
+        for j, r in enumerate(self.session.reviewers):
+            if r.withdrawn:
+                continue
+            load, cap = int(self.loads[j]), int(self.cap[j])
+            if load > cap:
+                bands["over cap"] += 1
+            elif load == cap:
+                bands["at cap"] += 1
+            elif load == 0:
+                bands["idle"] += 1
+            elif 2 * load < cap:
+                bands["< half cap"] += 1
+            else:
+                bands["< cap"] += 1
+        return list(bands.items())
+
+    def score_histogram(self, bins: int = 8) -> list[tuple[str, int]]:
+        """Assigned pairs counted by score, in equal-width bins from 0 to the highest score."""
+        plan = self.session.plan
+        if plan is None or not plan.assignments:
+            return []
+        values = np.array([a.score for a in plan.assignments], dtype=np.float64)
+        top = float(values.max()) or 1.0
+        counts, edges = np.histogram(values, bins=bins, range=(0.0, top))
+        return [(f"{edges[k]:.2f}-{edges[k + 1]:.2f}", int(c)) for k, c in enumerate(counts)]
+
+    def topic_coverage(self) -> list[tuple[str, int, int]]:
+        """(topic, reviews placed, reviews wanted) over active papers, topics by name."""
+        placed: dict[str, int] = {}
+        wanted: dict[str, int] = {}
+        for i, p in enumerate(self.session.papers):
+            if p.withdrawn:
+                continue
+            for topic in p.topics or ["(no topic)"]:
+                placed[topic] = placed.get(topic, 0) + int(min(self.counts[i], self.reviews[i]))
+                wanted[topic] = wanted.get(topic, 0) + int(self.reviews[i])
+        return [(t, placed[t], wanted[t]) for t in sorted(wanted)]

@@ -1,0 +1,263 @@
+"""The Conflicts and History views: declared and inferred conflicts; plans and changes so far."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from rich.text import Text
+from textual import on
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal, Vertical
+from textual.message import Message
+from textual.reactive import reactive
+from textual.timer import Timer
+from textual.widget import Widget
+from textual.widgets import Input, Static
+
+from review_alloc.plan.diff import PlanDiff
+from review_alloc.tui.facts import Facts
+from review_alloc.tui.grid import RowTable
+from review_alloc.workspace import HistoryEntry
+
+CONFLICT_COLUMNS = ("Reviewer", "Name", "Paper", "Title", "Kind", "Reasons")
+REVISION_COLUMNS = ("No.", "From", "Made (UTC)", "Reviews", "Score", "Kept", "Changes")
+DIFF_COLUMNS = ("Reviewer", "Papers added", "Papers removed")
+EVENT_COLUMNS = ("When (UTC)", "Change")
+
+SHOWN_AT_MOST = 2000
+"""Rows drawn at once in the Conflicts table; the filter narrows the rest."""
+
+
+def _people(count: int) -> str:
+    """'1 reviewer', '3 reviewers'."""
+    return f"{count} reviewer" + ("" if count == 1 else "s")
+
+
+class ConflictView(Widget):
+    """Every conflicted pair, declared or inferred, with its reasons; `a` declares a new one."""
+
+    BINDINGS = [
+        Binding("slash", "focus_filter", "Filter"),
+        Binding("a", "add", "Add conflict", tooltip="Declare a conflict of interest"),
+    ]
+
+    facts: reactive[Facts | None] = reactive(None, always_update=True)
+
+    @dataclass
+    class AddRequest(Message):
+        """The chair wants to declare a conflict (pre-filled from the cursor row)."""
+
+        reviewer: str
+        paper: str
+
+    def __init__(self, *, id: str | None = None) -> None:
+        super().__init__(id=id)
+        self._rows: list[tuple[str, str, list[str]]] = []
+        self._filter = ""
+        self._debounce: Timer | None = None
+
+    def compose(self) -> ComposeResult:
+        """Filter, count line and the table."""
+        yield Input(
+            placeholder="filter (/): reviewer, paper, 'declared', 'inferred' or a reason",
+            compact=True,
+            classes="filter",
+        )
+        yield Static("", classes="count")
+        yield RowTable(classes="main")
+
+    def watch_facts(self, facts: Facts | None) -> None:
+        """Rebuild the rows from the conflict set of the new facts."""
+        if facts is None:
+            return
+        s = facts.session
+        rows = []
+        for (j, i), why in sorted(facts.conflict_reason.items(), key=lambda x: (x[0][1], x[0][0])):
+            r, p = s.reviewers[j], s.papers[i]
+            kind = "declared" if why.startswith("declared") else "inferred"
+            if kind == "declared" and ";" in why:
+                kind = "declared+inferred"
+            rows.append((r.id, p.id, [r.id, r.name[:20], p.id, p.title[:26], kind, why]))
+        self._rows = rows
+        self._redraw()
+
+    def _redraw(self) -> None:
+        words = self._filter.casefold().split()
+        matching = [r for r in self._rows if all(w in " ".join(r[2]).casefold() for w in words)]
+        table = self.query_one(RowTable)
+        table.fill(
+            CONFLICT_COLUMNS,
+            [cells for *_, cells in matching[:SHOWN_AT_MOST]],
+            [cells for *_, cells in self._rows[:SHOWN_AT_MOST]],
+        )
+        self._shown = matching[:SHOWN_AT_MOST]
+        declared = sum(r[2][4].startswith("declared") for r in self._rows)
+        note = (
+            f"{len(self._rows)} conflicted pairs ({declared} declared, "
+            f"{len(self._rows) - declared} inferred from e-mail and institution); "
+            f"{len(matching)} match"
+        )
+        if len(matching) > SHOWN_AT_MOST:
+            note += f", first {SHOWN_AT_MOST} shown: filter to narrow"
+        self.query_one(".count", Static).update(
+            Text(note + ".   a: declare a conflict", style="dim")
+        )
+
+    def shown_pairs(self) -> list[tuple[str, str]]:
+        """(reviewer, paper) of the rows shown."""
+        return [(r, p) for r, p, _ in self._shown]
+
+    @on(Input.Changed, ".filter")
+    def _filter_changed(self, event: Input.Changed) -> None:
+        self._filter = event.value
+        if self._debounce is not None:
+            self._debounce.stop()
+        self._debounce = self.set_timer(0.15, self._redraw)
+
+    @on(Input.Submitted, ".filter")
+    def _filter_done(self) -> None:
+        self._redraw()
+        self.query_one(RowTable).focus()
+
+    def action_focus_filter(self) -> None:
+        """Move to the filter line."""
+        self.query_one(Input).focus()
+
+    def action_add(self) -> None:
+        """Ask the app for the declare-conflict form, pre-filled from the cursor row."""
+        table = self.query_one(RowTable)
+        shown = getattr(self, "_shown", [])
+        reviewer, paper = ("", "")
+        if shown and 0 <= table.cursor_row < len(shown):
+            reviewer, paper = shown[table.cursor_row][0], ""
+        self.post_message(self.AddRequest(reviewer, paper))
+
+
+class HistoryView(Widget):
+    """Revisions (every plan made), the difference between any two, and every change."""
+
+    BINDINGS = [
+        Binding("m", "mark", "Mark base", tooltip="Compare other revisions against this one"),
+        Binding("u", "undo", "Undo", tooltip="Go back one step, like ctrl+z"),
+    ]
+
+    entries: reactive[list[HistoryEntry]] = reactive(list, always_update=True)
+    diff: reactive[PlanDiff | None] = reactive(None, always_update=True)
+    facts: reactive[Facts | None] = reactive(None, always_update=True)
+
+    @dataclass
+    class DiffWanted(Message):
+        """Show the difference from revision `base` to revision `target` (None: its parent)."""
+
+        base: int | None
+        target: int
+
+    class UndoRequest(Message):
+        """The chair wants to go back to the previous revision."""
+
+    def __init__(self, *, id: str | None = None) -> None:
+        super().__init__(id=id)
+        self._base: int | None = None
+
+    def compose(self) -> ComposeResult:
+        """Revisions and their diff side by side; the change log below."""
+        with Horizontal(classes="top"):
+            with Vertical(classes="revisions-box"):
+                yield Static(Text("Revisions (m marks the base of the diff)", style="bold"))
+                yield RowTable(classes="revisions")
+            with Vertical(classes="diff-box"):
+                yield Static("", classes="diff-head")
+                yield RowTable(classes="diff")
+        yield Static(Text("Changes, newest first", style="bold"))
+        yield RowTable(classes="events")
+
+    def watch_entries(self, entries: list[HistoryEntry]) -> None:
+        """Redraw the revision list with the current revision under the cursor."""
+        rows = [
+            [
+                f"{e.number}"
+                + (" ◀ now" if e.current else "")
+                + (" base" if e.number == self._base else ""),
+                e.parent if e.parent is not None else "-",
+                e.created_at.strftime("%m-%d %H:%M"),
+                f"{e.figures.coverage}/{e.figures.demand}",
+                f"{e.figures.total_score:.2f}",
+                "fresh"
+                if e.fresh
+                else (f"{e.kept}/{e.parent_pairs}" if e.kept is not None else "-"),
+                len(e.changes),
+            ]
+            for e in entries
+        ]
+        current = next((k for k, e in enumerate(entries) if e.current), len(entries) - 1)
+        self.query_one(".revisions", RowTable).fill(REVISION_COLUMNS, rows, cursor=max(current, 0))
+        self._want_diff()
+
+    def watch_diff(self, diff: PlanDiff | None) -> None:
+        """Show one diff, reviewer by reviewer (the people a chair has to tell)."""
+        head = self.query_one(".diff-head", Static)
+        table = self.query_one(".diff", RowTable)
+        if diff is None:
+            head.update(Text("No revisions yet: press r to plan.", style="dim"))
+            table.fill(DIFF_COLUMNS, [])
+            return
+        old = f"revision {diff.old}" if diff.old is not None else "no plan"
+        head.update(
+            Text(
+                f"revision {diff.new} against {old}: +{len(diff.added)} / -{len(diff.removed)} "
+                f"pairs, {diff.kept} kept; {_people(len(diff.by_reviewer))} to tell",
+                style="bold",
+            )
+        )
+        rows = [
+            [reviewer, " ".join(c.added) or "-", " ".join(c.removed) or "-"]
+            for reviewer, c in diff.by_reviewer.items()
+        ]
+        table.fill(DIFF_COLUMNS, rows, widest=200)
+
+    def watch_facts(self, facts: Facts | None) -> None:
+        """Redraw the change log."""
+        if facts is None:
+            return
+        rows = [
+            [e.at.strftime("%m-%d %H:%M:%S"), e.describe()[:160]]
+            for e in reversed(facts.session.events[-500:])
+        ]
+        self.query_one(".events", RowTable).fill(EVENT_COLUMNS, rows, widest=120)
+
+    @on(RowTable.Highlighted, ".revisions")
+    def _revision_moved(self) -> None:
+        self._want_diff()
+
+    def _current(self) -> int | None:
+        k = self.query_one(".revisions", RowTable).cursor_row
+        return k if 0 <= k < len(self.entries) else None
+
+    def _want_diff(self) -> None:
+        k = self._current()
+        if k is None:
+            self.diff = None
+            return
+        target = self.entries[k].number
+        base = self._base if self._base != target else None
+        self.post_message(self.DiffWanted(base, target))
+
+    def diff_rows(self) -> list[tuple[str, ...]]:
+        """The diff table's rows as text (for the tests)."""
+        table = self.query_one(".diff", RowTable)
+        return [tuple(table.row_at(k)) for k in range(table.row_count)]
+
+    def action_mark(self) -> None:
+        """Make the revision under the cursor the base the others are compared against."""
+        k = self._current()
+        if k is None:
+            return
+        number = self.entries[k].number
+        self._base = None if self._base == number else number
+        self.entries = self.entries
+        self.query_one(".revisions", RowTable).move_cursor(k)
+
+    def action_undo(self) -> None:
+        """Ask the app to return to the previous revision."""
+        self.post_message(self.UndoRequest())

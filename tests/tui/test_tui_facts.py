@@ -1,0 +1,84 @@
+"""What the screens show agrees with the planner's own reports of the same plan."""
+
+from __future__ import annotations
+
+import pytest
+
+from review_alloc.model import Session
+from review_alloc.plan import conflict_pairs, find_gaps, load_issues, make_plan
+from review_alloc.samples import workshop
+from review_alloc.tui.facts import Facts
+
+
+@pytest.fixture(scope="module")
+def tight() -> Session:
+    """The workshop with caps too low to cover it, planned."""
+    s = workshop()
+    s = s.model_copy(
+        update={"reviewers": [r.model_copy(update={"cap": 4, "floor": 0}) for r in s.reviewers]}
+    )
+    return s.model_copy(update={"plan": make_plan(s).plan})
+
+
+def test_paper_states_match_the_gap_report(tight: Session) -> None:
+    facts = Facts.of(tight)
+    gaps = {g.paper: g for g in find_gaps(tight, tight.plan)}
+    assert gaps
+    for i, p in enumerate(tight.papers):
+        state = facts.paper_status(i)
+        if p.id not in gaps:
+            assert state == "covered"
+        elif gaps[p.id].missing_required:
+            assert state == f"BELOW MIN {gaps[p.id].missing_required}"
+        else:
+            assert state == f"short {gaps[p.id].missing}"
+
+
+def test_reviewer_states_and_load_bands(tight: Session) -> None:
+    facts = Facts.of(tight)
+    over, under = load_issues(tight, tight.plan)
+    assert not over
+    below = {u.reviewer for u in under}
+    for j, r in enumerate(tight.reviewers):
+        assert facts.reviewer_status(j).startswith("below floor") == (r.id in below)
+    bands = dict(facts.load_bands())
+    assert sum(bands.values()) == len(tight.reviewers)
+    loads = [sum(a.reviewer == r.id for a in tight.plan.assignments) for r in tight.reviewers]
+    assert bands["at cap"] == sum(load == 4 for load in loads)
+
+
+def test_pair_reasons(tight: Session) -> None:
+    facts = Facts.of(tight)
+    reasons = conflict_pairs(tight).reason_of()
+    assigned = {(a.reviewer, a.paper) for a in tight.plan.assignments}
+    for i in range(len(tight.papers)):
+        for c in facts.candidates_of_paper(i, limit=30):
+            pair = (tight.reviewers[c.reviewer].id, tight.papers[c.paper].id)
+            if pair in assigned:
+                assert c.status == "assigned"
+            elif (c.reviewer, c.paper) in reasons:
+                assert c.status == f"conflict: {reasons[(c.reviewer, c.paper)]}"
+                assert not c.usable
+            elif facts.loads[c.reviewer] >= 4:
+                assert c.status == "cap full (4/4)"
+            # Scores shown are the table's own.
+            assert c.score == tight.scores.get(c.reviewer, c.paper)
+
+
+def test_charts_count_every_assignment(tight: Session) -> None:
+    facts = Facts.of(tight)
+    assert sum(n for _, n in facts.score_histogram()) == len(tight.plan.assignments)
+    placed = sum(p for _, p, _ in facts.topic_coverage())
+    # A paper with two topics counts in both, so the topic sums bound the coverage from above.
+    assert placed >= tight.plan.figures.coverage
+    single = all(len(p.topics) <= 1 for p in tight.papers)
+    assert not single or placed == tight.plan.figures.coverage
+
+
+def test_facts_reuse_conflicts_only_when_people_are_unchanged(tight: Session) -> None:
+    first = Facts.of(tight)
+    pinned = tight.model_copy(update={"pins": []})
+    assert Facts.of(pinned, first).conflict_reason is first.conflict_reason
+    moved = tight.model_copy(update={"conflicts": []})
+    again = Facts.of(moved, first)
+    assert again.conflict_reason == conflict_pairs(moved).reason_of()
