@@ -44,6 +44,10 @@ def main(argv: Sequence[str] | None = None) -> int:
         for line in error.lines:
             print(f"error: {line}", file=sys.stderr)
         return EXIT_INPUT
+    except BrokenPipeError:
+        # The reader (`head`, a pager) stopped early; that is not an error of ours.
+        sys.stderr.close()
+        return 0
     except PlanCheckError as error:
         print(f"internal error, plan withheld: {error}", file=sys.stderr)
         return EXIT_CHECK

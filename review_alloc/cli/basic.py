@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import sys
 from collections.abc import Callable
 from pathlib import Path
 
@@ -12,6 +11,7 @@ from review_alloc.cli.common import (
     emit_json,
     noun,
     positive,
+    prepare_solver,
     solve,
     summary_lines,
     validation_message,
@@ -225,7 +225,6 @@ def _cmd_import(args: argparse.Namespace) -> int:
 
 
 def _cmd_plan(args: argparse.Namespace) -> int:
-    from review_alloc.flow import kernels_ready
     from review_alloc.plan import plan_summary
     from review_alloc.workspace import Workspace
 
@@ -234,8 +233,7 @@ def _cmd_plan(args: argparse.Namespace) -> int:
     changes = rule_overrides(args)
     if changes:
         ws.set_policy(changes, reason="plan options")
-    if not kernels_ready():
-        print("Preparing the solver (first run on this machine)...", file=sys.stderr)
+    prepare_solver()
     ws.solve(fresh=args.fresh)
     ws.save()
     session = ws.session

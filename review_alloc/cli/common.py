@@ -46,15 +46,20 @@ def noun(session: Session) -> str:
     return "proposal" if session.kind == "panel" else "paper"
 
 
-def solve(session: Session) -> Session:
-    """Plan the session and return it with the new, checked plan in place."""
+def prepare_solver() -> None:
+    """Compile the kernels on a cold machine, saying so once; instant when the cache is warm."""
     from review_alloc.flow import solver_cache_ready, warm_up
-    from review_alloc.plan import make_plan
 
     if not solver_cache_ready():
-        # Only a cold on-disk cache costs seconds of compiling; say so once, then fill it.
         print("Preparing the solver (first run on this machine)...", file=sys.stderr)
         warm_up()
+
+
+def solve(session: Session) -> Session:
+    """Plan the session and return it with the new, checked plan in place."""
+    from review_alloc.plan import make_plan
+
+    prepare_solver()
     outcome = make_plan(session)
     return session.model_copy(update={"plan": outcome.plan})
 
