@@ -18,7 +18,7 @@ from textual import on, work
 from textual.app import App, ComposeResult
 from textual.binding import Binding
 from textual.command import DiscoveryHit, Hit, Hits, Provider
-from textual.containers import Horizontal
+from textual.containers import Horizontal, Vertical
 from textual.message import Message
 from textual.widgets import (
     Footer,
@@ -31,8 +31,17 @@ from textual.widgets import (
 
 from review_alloc.model import InputError, Plan, Session
 from review_alloc.plan import PlanCheckError, PlanOutcome
+from review_alloc.plan.whatif import WhatIf
 from review_alloc.tui.dialogs import Confirm, Field, Form, HelpScreen, ImportForm, whole_or_default
 from review_alloc.tui.facts import Facts
+from review_alloc.tui.gapfix import (
+    ExplainView,
+    Explanation,
+    PaneHint,
+    accept_fix,
+    explain,
+    preview_fix,
+)
 from review_alloc.tui.grid import RowTable
 from review_alloc.tui.overview import Overview
 from review_alloc.tui.records import ConflictView, HistoryView
@@ -106,6 +115,22 @@ class ReviewAllocApp(App[None]):
         generation: int
         lines: list[str]
 
+    @dataclass
+    class ExplainReady(Message):
+        """The explanation of `session` finished in its worker."""
+
+        session: Session
+        explanation: Explanation | None
+        lines: list[str]
+
+    @dataclass
+    class PreviewReady(Message):
+        """A what-if preview of one fix finished in its worker."""
+
+        explanation: Explanation
+        preview: WhatIf | None
+        lines: list[str]
+
     def __init__(self, workspace: Workspace, *, clock: Callable[[], datetime] = _utc_now) -> None:
         super().__init__()
         self.workspace = workspace
@@ -116,6 +141,7 @@ class ReviewAllocApp(App[None]):
         self._shown_version: dict[str, int] = {}
         self._version = 0
         self._history_mark: tuple[int, int | None] | None = None
+        self._explaining: Session | None = None
 
     # -- layout ---------------------------------------------------------------------------
 
@@ -140,8 +166,13 @@ class ReviewAllocApp(App[None]):
                 yield ReviewerView(id="reviewers-view")
             with TabPane("4 Conflicts", id="conflicts"):
                 yield ConflictView(id="conflicts-view")
-            with TabPane("5 Gaps", id="gaps"):
+            with TabPane("5 Gaps", id="gaps"), Vertical(id="gaps-box"):
+                yield PaneHint(
+                    "x: why short and the fixes (shortfall groups, cap raises, recruits)",
+                    id="gaps-hint",
+                )
                 yield GapView(id="gaps-view")
+                yield ExplainView(id="explain-view")
             with TabPane("6 History", id="history"):
                 yield HistoryView(id="history-view")
         yield Footer()
@@ -149,6 +180,7 @@ class ReviewAllocApp(App[None]):
     def on_mount(self) -> None:
         """Draw the first screen at once; warm the solver up behind it."""
         self.query_one("#planning").display = False
+        self.query_one(ExplainView).display = False
         self._refresh_all()
         self._warm_up()
 
@@ -171,7 +203,10 @@ class ReviewAllocApp(App[None]):
         if mark != self._history_mark:
             self._history_mark = mark
             history.entries = self.workspace.history()
-        self._show_view(self.query_one(TabbedContent).active or "overview")
+        active = self.query_one(TabbedContent).active or "overview"
+        self._show_view(active)
+        if active == "gaps":
+            self._maybe_explain()
 
     def _show_view(self, tab: str) -> None:
         if self._shown_version.get(tab) == self._version:
@@ -186,6 +221,8 @@ class ReviewAllocApp(App[None]):
     def _tab_shown(self, event: TabbedContent.TabActivated) -> None:
         if event.pane.id:
             self._show_view(event.pane.id)
+        if event.pane.id == "gaps":
+            self._maybe_explain()
 
     def _draw_bar(self) -> None:
         ws = self.workspace
@@ -304,6 +341,124 @@ class ReviewAllocApp(App[None]):
             title="Plan made and checked",
             timeout=6,
         )
+
+    # -- explanations and fixes -----------------------------------------------------------
+
+    def action_gap_pane(self, which: str) -> None:
+        """In the Gaps tab, show the short papers or the shortfall groups and fixes."""
+        if self.query_one(TabbedContent).active != "gaps":
+            self.action_tab("gaps")
+        explaining = which == "explain"
+        gaps, why = self.query_one(GapView), self.query_one(ExplainView)
+        gaps.display, why.display = not explaining, explaining
+        self.query_one("#gaps-hint", PaneHint).update(
+            "x: back to the short papers; tab between groups and fixes; v preview, a accept"
+            if explaining
+            else "x: why short and the fixes (shortfall groups, cap raises, recruits)"
+        )
+        target = why if explaining else gaps
+        target.query(RowTable).first().focus()
+        self._maybe_explain()
+
+    def action_gap_pane_toggle(self) -> None:
+        """Switch the Gaps tab between its two panes (a click on its hint line)."""
+        self.action_gap_pane("papers" if self.query_one(ExplainView).display else "explain")
+
+    def _maybe_explain(self) -> None:
+        """Explain the session as it is now, unless that is shown or being computed already."""
+        view = self.query_one(ExplainView)
+        session = self.workspace.session
+        shown = view.explanation
+        if self._explaining is session or (shown is not None and shown.session is session):
+            return
+        self._explaining = session
+        view.preview = None
+        view.state = (
+            f"explaining… (shortfall groups and fixes of {len(session.papers)} {self.noun}s)"
+        )
+        self._explain(session)
+
+    @work(thread=True, exclusive=True, group="explain", exit_on_error=False)
+    def _explain(self, session: Session) -> None:
+        """Compute the groups and fixes of a session snapshot and post them back."""
+        try:
+            result = explain(session)
+        except (InputError, PlanCheckError, OverflowError) as error:
+            lines = list(error.lines) if isinstance(error, InputError) else [str(error)]
+            self.post_message(self.ExplainReady(session, None, lines))
+            return
+        self.post_message(self.ExplainReady(session, result, []))
+
+    @on(ExplainReady)
+    def _explain_ready(self, message: ExplainReady) -> None:
+        if message.session is not self._explaining:
+            return
+        self._explaining = None
+        view = self.query_one(ExplainView)
+        if message.explanation is None:
+            view.state = "no explanation: " + "; ".join(message.lines[:3])
+            return
+        view.explanation = message.explanation
+        short = message.explanation.shortfall
+        stale = message.session is not self.workspace.session
+        view.state = (
+            f"{len(message.explanation.groups)} shortfall group(s): {short['reviews']} reviews "
+            f"missing, {short['min_reviews']} below the minimum"
+            + ("  (out of date: explaining again)" if stale else "")
+        )
+        if stale:
+            self._maybe_explain()
+
+    @on(ExplainView.FixRequest)
+    def _fix_request(self, message: ExplainView.FixRequest) -> None:
+        view = self.query_one(ExplainView)
+        explanation = view.explanation
+        if explanation is None or explanation.session is not self.workspace.session:
+            self.notify("the explanation is being brought up to date; try again in a moment")
+            self._maybe_explain()
+            return
+        if message.action == "preview":
+            view.state = f"previewing the {message.kind} fix on a copy… (planning twice)"
+            self._preview(explanation, message.kind)
+            return
+        if self.planning:
+            self.notify("wait for the plan or cancel it (escape) before accepting a fix")
+            return
+        try:
+            done = accept_fix(self.workspace, explanation, message.kind)
+        except InputError as error:
+            self._refresh_all()
+            self.notify("\n".join(error.lines[:8]), title="Fix refused", severity="warning")
+            return
+        self._refresh_all()
+        self.notify(
+            "\n".join(done[:6] + ([f"… {len(done) - 6} more"] if len(done) > 6 else []))
+            + "\nRecorded under History; planning again.",
+            title=f"Accepted the {message.kind} fix",
+        )
+        self.action_plan()
+
+    @work(thread=True, exclusive=True, group="whatif", exit_on_error=False)
+    def _preview(self, explanation: Explanation, kind: str) -> None:
+        """Plan the session and its changed copy; the workspace is never touched."""
+        try:
+            result = preview_fix(explanation, kind)
+        except (InputError, PlanCheckError) as error:
+            lines = list(error.lines) if isinstance(error, InputError) else [str(error)]
+            self.post_message(self.PreviewReady(explanation, None, lines))
+            return
+        self.post_message(self.PreviewReady(explanation, result, []))
+
+    @on(PreviewReady)
+    def _preview_ready(self, message: PreviewReady) -> None:
+        view = self.query_one(ExplainView)
+        if view.explanation is not message.explanation:
+            return
+        if message.preview is None:
+            view.state = "no preview: " + "; ".join(message.lines[:3])
+            return
+        view.preview = message.preview
+        view.state = f"preview ready: {len(message.preview.gaps_after)} {self.noun}s short after it"
 
     # -- changes --------------------------------------------------------------------------
 
@@ -600,6 +755,7 @@ class ReviewAllocApp(App[None]):
                     ("click header", "sort by that column (again: reverse)"),
                 ],
             ),
+            ("Gaps", rows(GapView.BINDINGS[-1:]) + rows(ExplainView.BINDINGS)),
             ("Conflicts", rows(ConflictView.BINDINGS)),
             ("History", rows(HistoryView.BINDINGS)),
         ]
@@ -617,6 +773,11 @@ class ReviewAllocApp(App[None]):
         yield "Declare a conflict", "add a conflict of interest", self.action_declare_conflict
         yield "Import from CSV", "build a session from CSV files", self.action_import
         yield "Show keys", "every key of the app", self.action_help
+        yield (
+            "Why short and the fixes",
+            "shortfall groups, the least cap raise and recruits, with a what-if preview",
+            lambda: self.action_gap_pane("explain"),
+        )
         for tab in TABS:
             label = f"{self.noun}s" if tab == "papers" else tab
             yield f"Go to {label}", f"show the {label} tab", lambda t=tab: self.action_tab(t)

@@ -438,6 +438,15 @@ class ReviewerView(EntityView):
 class GapView(PaperView):
     """Only the papers short of reviews, with who could close each gap and what blocks them."""
 
+    BINDINGS = [
+        Binding(
+            "x",
+            "app.gap_pane('explain')",
+            "Why & fixes",
+            tooltip="Shortfall groups, the least cap raise, recruits; preview and accept",
+        ),
+    ]
+
     columns = ("Id", "Has", "Wants", "Min", "State", "Mean", "Title", "Topics")
 
     def rows(self, facts: Facts) -> list[Row]:

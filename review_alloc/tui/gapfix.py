@@ -1,0 +1,395 @@
+"""The Gaps tab's second pane: why papers are short (shortfall groups) and the computed fixes.
+
+The app computes an `Explanation` in a worker thread and hands it down; the view shows it and
+asks for a what-if preview or for accepting a fix by posting `FixRequest` (messages up). Only
+cap raises and recruits are fixes; conflicts and blocks are listed as information and can be
+neither previewed nor accepted.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from rich.text import Text
+from textual import on
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Vertical, VerticalScroll
+from textual.message import Message
+from textual.reactive import reactive
+from textual.widget import Widget
+from textual.widgets import Static
+
+from review_alloc.model import Reviewer, Session
+from review_alloc.plan.explain import TIERS, ShortfallGroup, coverage_network, shortfall_groups
+from review_alloc.plan.fixes import (
+    CAUTIONS,
+    CapRaiseFix,
+    PairLoss,
+    RecruitFix,
+    best_fixes,
+)
+from review_alloc.plan.network import build_network
+from review_alloc.plan.whatif import WhatIf, apply_cap_fix, apply_recruit_fix, what_if
+from review_alloc.tui.grid import RowTable
+from review_alloc.workspace import Workspace
+
+FIX_KINDS = ("raise-caps", "recruit")
+"""The two kinds of fix the pane can preview and accept, in the order shown."""
+
+_TIER_WORDS = {"min_reviews": "required", "reviews": "all"}
+"""Group labels by tier: 'required 1' is the CLI's min_reviews-1, 'all 1' its reviews-1."""
+
+
+@dataclass(frozen=True)
+class Explanation:
+    """The shortfall groups of both tiers and the fixes, computed for one session object."""
+
+    session: Session
+    groups: tuple[ShortfallGroup, ...]
+    caps: CapRaiseFix
+    recruits: RecruitFix
+    losses: tuple[PairLoss, ...]
+    shortfall: dict[str, int]
+
+
+def explain(session: Session) -> Explanation:
+    """Groups for both tiers and the best fixes, with one shared network (no plan is made)."""
+    net = build_network(session)
+    covs = {tier: coverage_network(session, tier, plan_net=net) for tier in TIERS}
+    groups = tuple(g for tier in TIERS for g in shortfall_groups(covs[tier]))
+    caps, recruits, losses = best_fixes(session, covs["reviews"])
+    return Explanation(
+        session=session,
+        groups=groups,
+        caps=caps,
+        recruits=recruits,
+        losses=losses,
+        shortfall={tier: cov.shortfall for tier, cov in covs.items()},
+    )
+
+
+def fix_changes(explanation: Explanation, kind: str) -> tuple[Session, tuple[str, ...]]:
+    """The changed copy of a fix (by the plan layer's own functions) and its change lines."""
+    s = explanation.session
+    if kind == "raise-caps":
+        fix = explanation.caps
+        lines = tuple(
+            f"raise cap of {r.reviewer} by {r.raise_by} ({r.cap} -> {r.new_cap})"
+            for r in fix.raises
+        )
+        return apply_cap_fix(s, fix), lines
+    if kind == "recruit":
+        rec = explanation.recruits
+        lines = tuple(f"add {n.recruits} reviewers in '{n.topic}'" for n in rec.needs)
+        return apply_recruit_fix(s, rec), lines
+    raise ValueError(f"fix {kind!r} must be one of {FIX_KINDS}")
+
+
+def preview_fix(explanation: Explanation, kind: str) -> WhatIf:
+    """Plan the session as it is and with the fix, both on copies; nothing is installed."""
+    changed, lines = fix_changes(explanation, kind)
+    return what_if(explanation.session, changed, lines)
+
+
+def accept_fix(workspace: Workspace, explanation: Explanation, kind: str) -> list[str]:
+    """Apply a fix through the Workspace (recorded as events); return what was done.
+
+    The changed copy comes from the same plan-layer function the `whatif` command uses; its
+    differences from the session become Workspace changes: raised caps and added reviewers.
+    """
+    if workspace.session is not explanation.session:
+        raise ValueError("the session changed since this explanation; wait for the new one")
+    before = explanation.session
+    changed, _ = fix_changes(explanation, kind)
+    reason = f"Gaps tab: accepted the {kind} fix"
+    done: list[str] = []
+    for j, old in enumerate(before.reviewers):
+        new_cap = changed.reviewers[j].cap
+        if new_cap is not None and new_cap != before.reviewer_cap(j):
+            workspace.set_reviewer(old.id, cap=new_cap, reason=reason)
+            done.append(f"cap of {old.id}: {before.reviewer_cap(j)} -> {new_cap}")
+    table = changed.scores
+    for j in range(len(before.reviewers), len(changed.reviewers)):
+        recruit: Reviewer = changed.reviewers[j]
+        rows = table.reviewer == j
+        scores = {
+            changed.papers[int(i)].id: float(v)
+            for i, v in zip(table.paper[rows], table.value[rows], strict=True)
+        }
+        workspace.add_reviewer(recruit, reason=reason, scores=scores)
+        done.append(f"added {recruit.id} ({recruit.name})")
+    return done
+
+
+class PaneHint(Static):
+    """The Gaps tab's hint line; a click on it switches the tab's pane."""
+
+    async def on_click(self) -> None:
+        """Switch between the short papers and the groups and fixes."""
+        await self.app.run_action("gap_pane_toggle")
+
+
+def _short(ids: tuple[str, ...], most: int = 8) -> str:
+    shown = ", ".join(ids[:most])
+    return shown + (f" … ({len(ids)} in all)" if len(ids) > most else "")
+
+
+class ExplainView(Widget):
+    """Shortfall groups over the fixes; the detail shows the chosen row, a preview, cautions."""
+
+    BINDINGS = [
+        Binding("v", "preview", "Preview fix", tooltip="Plan a copy with the fix: before/after"),
+        Binding("a", "accept", "Accept fix", tooltip="Apply the fix to the session, then plan"),
+        Binding("x", "app.gap_pane('papers')", "Short papers", tooltip="Back to the paper list"),
+    ]
+
+    explanation: reactive[Explanation | None] = reactive(None, always_update=True)
+    state: reactive[str] = reactive("", always_update=True)
+    preview: reactive[WhatIf | None] = reactive(None, always_update=True)
+
+    @dataclass
+    class FixRequest(Message):
+        """Preview or accept one fix (`kind` is one of FIX_KINDS)."""
+
+        action: str
+        kind: str
+
+    GROUP_COLUMNS = ("Group", "Topic", "Papers", "Eligible", "Needed", "Avail", "Short")
+    FIX_COLUMNS = ("Fix", "Change", "Coverage")
+
+    def __init__(self, *, id: str | None = None) -> None:
+        super().__init__(id=id)
+        self._fix_kinds: list[str | None] = []
+
+    def compose(self) -> ComposeResult:
+        """A state line, the groups, the fixes and a scrolling detail."""
+        yield Static("", classes="explain-state")
+        with Vertical(classes="explain-tables"):
+            yield RowTable(classes="groups")
+            yield RowTable(classes="fixes")
+        with VerticalScroll(classes="explain-detail"):
+            yield Static("", classes="explain-text")
+
+    # -- drawing --------------------------------------------------------------------------
+
+    def watch_state(self, state: str) -> None:
+        """The line that says whether an explanation is being computed."""
+        self.query_one(".explain-state", Static).update(Text(state, style="bold"))
+
+    def watch_explanation(self, explanation: Explanation | None) -> None:
+        """Fill both tables from a new explanation."""
+        groups = self.query_one(".groups", RowTable)
+        fixes = self.query_one(".fixes", RowTable)
+        if explanation is None:
+            groups.fill(self.GROUP_COLUMNS, [])
+            fixes.fill(self.FIX_COLUMNS, [])
+            self._fix_kinds = []
+            self._show_detail()
+            return
+        groups.fill(
+            self.GROUP_COLUMNS,
+            [
+                [
+                    f"{_TIER_WORDS[g.tier]} {k}",
+                    g.topics[0] if g.topics else "-",
+                    len(g.papers),
+                    len(g.reviewers),
+                    g.needed,
+                    g.available,
+                    g.shortfall,
+                ]
+                for k, g in self._numbered(explanation)
+            ],
+            widest=24,
+        )
+        rows: list[list[object]] = []
+        self._fix_kinds = []
+        caps, rec = explanation.caps, explanation.recruits
+        if caps.raises:
+            rows.append(
+                [
+                    "raise caps",
+                    f"+{caps.total} over {len(caps.raises)} reviewers",
+                    f"{caps.coverage_before} -> {caps.coverage_after}/{caps.demand}",
+                ]
+            )
+            self._fix_kinds.append("raise-caps")
+        if rec.needs:
+            rows.append(
+                [
+                    "recruit",
+                    f"{rec.total} new: " + ", ".join(f"{n.recruits} {n.topic}" for n in rec.needs),
+                    f"{rec.coverage_before} -> {rec.coverage_after}/{rec.demand}",
+                ]
+            )
+            self._fix_kinds.append("recruit")
+        for loss in explanation.losses:
+            gain = f"+{loss.gain}" if loss.exact else f"at least +{loss.gain}"
+            rows.append([f"info: {loss.kind}", f"{loss.reviewer}, {len(loss.papers)} pairs", gain])
+            self._fix_kinds.append(None)
+        fixes.fill(self.FIX_COLUMNS, rows)
+        self._show_detail()
+
+    def watch_preview(self) -> None:
+        """Show a finished what-if preview."""
+        self._show_detail()
+
+    @staticmethod
+    def _numbered(explanation: Explanation) -> list[tuple[int, ShortfallGroup]]:
+        """Groups with their number inside their tier (as `explain` names them)."""
+        out: list[tuple[int, ShortfallGroup]] = []
+        seen: dict[str, int] = {}
+        for g in explanation.groups:
+            seen[g.tier] = seen.get(g.tier, 0) + 1
+            out.append((seen[g.tier], g))
+        return out
+
+    def group_rows(self) -> list[list[str]]:
+        """The group table's rows as text (for the app and the tests)."""
+        table = self.query_one(".groups", RowTable)
+        return [table.row_at(k) for k in range(table.row_count)]
+
+    def chosen_fix(self) -> str | None:
+        """The fix kind under the fix table's cursor, None on an information row."""
+        table = self.query_one(".fixes", RowTable)
+        if not self._fix_kinds or not 0 <= table.cursor_row < len(self._fix_kinds):
+            return None
+        return self._fix_kinds[table.cursor_row]
+
+    def choose_fix(self, kind: str) -> bool:
+        """Put the fix table's cursor on a fix kind."""
+        if kind not in self._fix_kinds:
+            return False
+        self.query_one(".fixes", RowTable).move_cursor(self._fix_kinds.index(kind))
+        return True
+
+    def detail_text(self) -> str:
+        """The detail pane as plain text."""
+        return str(self.query_one(".explain-text", Static).render())
+
+    def _show_detail(self) -> None:
+        out = Text()
+        explanation = self.explanation
+        if explanation is None:
+            self.query_one(".explain-text", Static).update(out)
+            return
+        if not explanation.groups:
+            out.append(
+                f"No shortfall: every {self._noun()} can get all its reviews.\n", style="green"
+            )
+        focused = self.app.focused if self.is_mounted else None
+        groups = self.query_one(".groups", RowTable)
+        fixes = self.query_one(".fixes", RowTable)
+        if focused is fixes and self._fix_kinds:
+            self._fix_detail(out, explanation)
+        elif explanation.groups and 0 <= groups.cursor_row < len(explanation.groups):
+            self._group_detail(out, explanation.groups[groups.cursor_row])
+        if self.preview is not None:
+            self._preview_detail(out, self.preview)
+        out.append("\nCautions\n", style="bold")
+        for line in CAUTIONS:
+            out.append(f"• {line}\n", style="yellow")
+        self.query_one(".explain-text", Static).update(out)
+
+    def _noun(self) -> str:
+        """'proposal' for a grant panel, 'paper' otherwise."""
+        e = self.explanation
+        return "proposal" if e is not None and e.session.kind == "panel" else "paper"
+
+    def _group_detail(self, out: Text, g: ShortfallGroup) -> None:
+        noun = self._noun()
+        out.append(f"{len(g.papers)} {noun}s short of {_TIER_WORDS[g.tier]} reviews", style="bold")
+        out.append(
+            f": needed {g.needed}, available {g.available}, shortfall {g.shortfall}\n"
+            f"{noun}s: {_short(g.papers)}\n"
+            f"eligible reviewers: {_short(g.reviewers)}\n"
+        )
+        out.append(f"cause: {g.cause}\n", style="italic")
+        out.append("tab to the fixes below; v previews one, a accepts it\n", style="dim")
+
+    def _fix_detail(self, out: Text, explanation: Explanation) -> None:
+        kind = self.chosen_fix()
+        table = self.query_one(".fixes", RowTable)
+        if kind == "raise-caps":
+            fix = explanation.caps
+            out.append(f"Least cap raise: +{fix.total} in total\n", style="bold")
+            for r in fix.raises:
+                out.append(f"  {r.reviewer} {r.name}: cap {r.cap} -> {r.new_cap} (+{r.raise_by})\n")
+            for u in fix.unclosable:
+                out.append(f"  cannot close {u.paper} this way: {u.reason}\n")
+        elif kind == "recruit":
+            rec = explanation.recruits
+            out.append(
+                f"Recruit {rec.total} reviewers, each taking up to {rec.recruit_cap}\n",
+                style="bold",
+            )
+            for need in rec.needs:
+                out.append(f"  {need.profile}\n")
+            if rec.note:
+                out.append(f"  note: {rec.note}\n")
+            out.append("  accepting adds placeholder reviewers named 'recruit k for TOPIC'\n")
+        else:
+            k = table.cursor_row - sum(x is not None for x in self._fix_kinds)
+            loss = explanation.losses[k]
+            out.append(
+                f"Information only, not a fix: {loss.reviewer} ({loss.kind})\n", style="bold"
+            )
+            for pid, why in zip(loss.papers, loss.reasons, strict=True):
+                out.append(f"  {pid}: {why}\n")
+            out.append("  No fix lifts a conflict of interest or a block.\n")
+        if kind is not None:
+            out.append("v previews this fix on a copy; a accepts it and plans again\n", style="dim")
+
+    def _preview_detail(self, out: Text, w: WhatIf) -> None:
+        b, a = w.before.figures, w.after.figures
+        out.append("\nWhat if (a copy; the session is unchanged)\n", style="bold")
+        for change in w.changes[:8]:
+            out.append(f"  - {change}\n")
+        if len(w.changes) > 8:
+            out.append(f"  … and {len(w.changes) - 8} more\n")
+        out.append(
+            f"  required reviews {b.required_coverage} -> {a.required_coverage} of "
+            f"{a.required_demand}\n"
+            f"  all reviews      {b.coverage} -> {a.coverage} of {a.demand}\n"
+            f"  total score      {b.total_score:.2f} -> {a.total_score:.2f}\n"
+            f"  {self._noun()}s short: {len(w.gaps_before)} -> {len(w.gaps_after)}\n"
+        )
+        out.append("  press a to accept it\n", style="dim")
+
+    # -- events ---------------------------------------------------------------------------
+
+    @on(RowTable.Highlighted)
+    def _moved(self) -> None:
+        self._show_detail()
+
+    @on(RowTable.Chosen, ".groups")
+    def _group_chosen(self) -> None:
+        self.query_one(".fixes", RowTable).focus()
+        self._show_detail()
+
+    @on(RowTable.Chosen, ".fixes")
+    def _fix_chosen(self) -> None:
+        self.action_preview()
+
+    def on_descendant_focus(self) -> None:
+        """The detail follows the table that has focus."""
+        self._show_detail()
+
+    def _request(self, action: str) -> None:
+        kind = self.chosen_fix()
+        if kind is None:
+            self.notify(
+                "choose a fix in the lower table (conflicts and blocks are never a fix)",
+                severity="warning",
+            )
+            return
+        self.post_message(self.FixRequest(action, kind))
+
+    def action_preview(self) -> None:
+        """Ask for a what-if preview of the fix under the cursor."""
+        self._request("preview")
+
+    def action_accept(self) -> None:
+        """Ask to apply the fix under the cursor."""
+        self._request("accept")
