@@ -32,9 +32,9 @@ def _fsync_directory(folder: Path) -> None:
     except OSError:
         return
     try:
-        os.fsync(fd)
-    except OSError:
-        pass
+        # Some file systems refuse fsync on a directory; the rename has still happened.
+        with contextlib.suppress(OSError):
+            os.fsync(fd)
     finally:
         os.close(fd)
 
