@@ -2,7 +2,10 @@
 
 Each paper takes exactly one lead, so giving every reviewer `max_leads` copies ("slots") turns
 the choice into a one-to-one assignment of papers to slots, which the Hungarian method solves
-exactly (scipy's `linear_sum_assignment`). The costs are lexicographic: first as many papers as
+exactly (scipy's `linear_sum_assignment`). The slot matrix is dense, so above
+`DENSE_LIMIT` entries (a large venue) the same assignment is solved as the equivalent sparse
+min-cost flow (source → reviewer, capacity `max_leads` → paper along assigned pairs → sink),
+which is just as exact. The costs are lexicographic: first as many papers as
 possible get a lead, then as many of them as possible get a senior lead, then the total score of
 the lead pairs is highest.
 """
@@ -18,6 +21,8 @@ from review_alloc.model import Plan, Session
 from review_alloc.plan.figures import assignment_indices
 
 _RESOLUTION = 10_000
+DENSE_LIMIT = 4_000_000
+"""Most entries of the dense slot matrix; larger choices go through the sparse flow."""
 
 
 @dataclass(frozen=True)
@@ -51,6 +56,11 @@ def pick_leads(session: Session, plan: Plan) -> LeadChoice:
 
     loads = np.bincount(reviewer, minlength=len(session.reviewers))
     slots = np.minimum(loads, limit)
+    gain = per_lead + per_senior * senior.astype(np.int64) + score_int
+    if len(papers_with) * int(slots.sum()) > DENSE_LIMIT:
+        chosen = _leads_by_flow(reviewer, paper, gain, limit, len(session.reviewers))
+        lead_of = {session.papers[paper[k]].id: session.reviewers[reviewer[k]].id for k in chosen}
+        return _choice(session, papers_with, lead_of)
     people = np.flatnonzero(slots > 0)
     first_slot = np.zeros(len(session.reviewers), dtype=np.int64)
     first_slot[people] = np.cumsum(slots[people]) - slots[people]
@@ -59,7 +69,6 @@ def pick_leads(session: Session, plan: Plan) -> LeadChoice:
     # Not assigned = cost 0, assigned = a large negative cost: minimising takes as many
     # assigned pairs as possible, which is why entries outside the plan never win.
     cost = np.zeros((len(papers_with), int(slots.sum())), dtype=np.float64)
-    gain = per_lead + per_senior * senior.astype(np.int64) + score_int
     for k in range(limit):
         has = slots[reviewer] > k
         cost[row_of[paper[has]], first_slot[reviewer[has]] + k] = -gain[has].astype(np.float64)
@@ -69,6 +78,35 @@ def pick_leads(session: Session, plan: Plan) -> LeadChoice:
     lead_of: dict[str, str] = {}
     for r, c in zip(rows[picked].tolist(), cols[picked].tolist(), strict=True):
         lead_of[session.papers[papers_with[r]].id] = session.reviewers[slot_owner[c]].id
+    return _choice(session, papers_with, lead_of)
+
+
+def _leads_by_flow(
+    reviewer: np.ndarray, paper: np.ndarray, gain: np.ndarray, limit: int, n_reviewers: int
+) -> np.ndarray:
+    """Indices of the assigned pairs chosen as leads, by a min-cost circulation (exact)."""
+    from review_alloc.flow import min_cost_flow
+
+    papers, local = np.unique(paper, return_inverse=True)
+    n_p = len(papers)
+    source, sink = 0, 1 + n_reviewers + n_p
+    n = sink + 1
+    tails = np.concatenate(
+        [np.zeros(n_reviewers, np.int64), 1 + reviewer, 1 + n_reviewers + np.arange(n_p), [sink]]
+    )
+    heads = np.concatenate(
+        [1 + np.arange(n_reviewers), 1 + n_reviewers + local, np.full(n_p, sink), [source]]
+    )
+    capacities = np.concatenate(
+        [np.full(n_reviewers, limit), np.ones(len(paper)), np.ones(n_p), [n_p]]
+    ).astype(np.int64)
+    costs = np.concatenate([np.zeros(n_reviewers), -gain, np.zeros(n_p), [0]]).astype(np.int64)
+    result = min_cost_flow(n, tails.astype(np.int64), heads.astype(np.int64), capacities, costs)
+    pair_flow = result.flow[n_reviewers : n_reviewers + len(paper)]
+    return np.flatnonzero(pair_flow > 0)
+
+
+def _choice(session: Session, papers_with: np.ndarray, lead_of: dict[str, str]) -> LeadChoice:
     no_lead = tuple(
         session.papers[i].id for i in papers_with if session.papers[i].id not in lead_of
     )

@@ -9,6 +9,7 @@ import numpy as np
 import pytest
 from scipy.optimize import linear_sum_assignment
 
+import review_alloc.plan.leads as leads
 from review_alloc.model import Assignment, Paper, Plan, Policy, Reviewer, ScoreTable, Session
 from review_alloc.plan import PlanCheckError, check_plan
 from review_alloc.plan.figures import assignment_indices, plan_figures
@@ -169,3 +170,17 @@ def test_checker_rejects_too_many_leads() -> None:
     )
     with pytest.raises(PlanCheckError, match="max_leads"):
         check_plan(session, forged, None)
+
+
+@pytest.mark.parametrize("seed", range(40))
+def test_sparse_flow_path_matches_brute_force(seed: int, monkeypatch: pytest.MonkeyPatch) -> None:
+    # Large venues take the sparse min-cost-flow path; force it on the small cases.
+    monkeypatch.setattr(leads, "DENSE_LIMIT", 0)
+    session, plan = lead_case(seed)
+    choice = pick_leads(session, plan)
+    # Reference: exhaustive search over every lead choice (lexicographic order of the three).
+    got = value(session, plan, choice.lead_of)
+    want = brute_force(session, plan)
+    assert got[:2] == want[:2]
+    assert got[2] == pytest.approx(want[2], abs=1e-9)
+    check_plan(session, with_leads(plan, choice), None)
