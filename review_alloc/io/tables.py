@@ -104,6 +104,32 @@ def _register(row: _Row, found: Entities, column: str, noun: str) -> str | None:
     return key
 
 
+def _read_counted(
+    row: _Row, problems: FileProblems, column: str, least: int
+) -> tuple[int | None, bool]:
+    """A whole-number cell (>= `least`) and whether it was read without a problem."""
+    before = problems.count
+    value = row.read(column, lambda t: whole_number(t, least))
+    return value, problems.count == before
+
+
+def _check_lower_limit(
+    row: _Row,
+    lower_name: str,
+    lower: int | None,
+    upper_name: str,
+    upper: int | None,
+    policy_upper: int,
+) -> None:
+    """Refuse a lower limit (min_reviews, floor) above its upper one (reviews, cap)."""
+    if lower is None:
+        return
+    most = policy_upper if upper is None else upper
+    if lower > most:
+        whose = "" if upper is not None else " (the policy's)"
+        row.fail(lower_name, f"{lower} exceeds {upper_name} {most}{whose}")
+
+
 def read_papers(
     path: str | os.PathLike[str], policy: Policy, ignore_extra: bool, problems: FileProblems
 ) -> Entities | None:
@@ -116,9 +142,7 @@ def read_papers(
     for line, cells in data_rows(rows, header, problems):
         row = _Row(header, cells, line, problems)
         key = _register(row, found, "paper_id", "paper")
-        before = problems.count
-        reviews = row.read("reviews", lambda t: whole_number(t, 1))
-        reviews_read = problems.count == before
+        reviews, reviews_read = _read_counted(row, problems, "reviews", 1)
         minimum = row.read("min_reviews", lambda t: whole_number(t, 0))
         values = {
             "id": key,
@@ -129,11 +153,8 @@ def read_papers(
             "authors": row.read("authors", emails),
             "institutions": listing(row.text("institutions")),
         }
-        if minimum is not None:
-            wanted = policy.reviews if reviews is None else reviews
-            if minimum > wanted and reviews_read:
-                whose = "" if reviews is not None else " (the policy's)"
-                row.fail("min_reviews", f"{minimum} exceeds reviews {wanted}{whose}")
+        if reviews_read:
+            _check_lower_limit(row, "min_reviews", minimum, "reviews", reviews, policy.reviews)
         if row.good and key is not None:
             paper = _build(row, Paper, _PAPER_COLUMN, values)
             if paper is not None:
@@ -155,9 +176,7 @@ def read_reviewers(
     for line, cells in data_rows(rows, header, problems):
         row = _Row(header, cells, line, problems)
         key = _register(row, found, "reviewer_id", "reviewer")
-        before = problems.count
-        cap = row.read("cap", lambda t: whole_number(t, 0))
-        cap_read = problems.count == before
+        cap, cap_read = _read_counted(row, problems, "cap", 0)
         floor = row.read("floor", lambda t: whole_number(t, 0))
         values = {
             "id": key,
@@ -169,11 +188,8 @@ def read_reviewers(
             "floor": floor,
             "senior": row.read("senior", yes_no) or False,
         }
-        if floor is not None:
-            most = policy.cap if cap is None else cap
-            if floor > most and cap_read:
-                whose = "" if cap is not None else " (the policy's)"
-                row.fail("floor", f"{floor} exceeds cap {most}{whose}")
+        if cap_read:
+            _check_lower_limit(row, "floor", floor, "cap", cap, policy.cap)
         if row.good and key is not None:
             reviewer = _build(row, Reviewer, _REVIEWER_COLUMN, values)
             if reviewer is not None:
