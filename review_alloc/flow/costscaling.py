@@ -234,13 +234,17 @@ def cost_scaling_kernel(
                                     v, start, head, cap, scaled, price, current
                                 )
                             ):
-                                price[v] = _relabel(v, start, head, cap, scaled, price, eps)
-                                current[v] = start[v]
-                                relabels += 1
-                                since_update += 1
-                                if price[v] < -PRICE_LIMIT:
-                                    return False, phases, relabels
-                                continue
+                                lowered = _relabel(v, start, head, cap, scaled, price, eps)
+                                # A node whose arcs are all full or fixed has no price to
+                                # drop to; the push itself gives it the way back to u.
+                                if lowered != -(2**62) - eps:
+                                    price[v] = lowered
+                                    current[v] = start[v]
+                                    relabels += 1
+                                    since_update += 1
+                                    if price[v] < -PRICE_LIMIT:
+                                        return False, phases, relabels
+                                    continue
                             d = min(r, excess[u])
                             cap[a] -= d
                             cap[rev[a]] += d
