@@ -269,6 +269,12 @@ class Session(DocumentModel):
             count=len(self.reviewers),
         )
 
+    def reviewer_senior_array(self) -> np.ndarray:
+        """Whether each reviewer, by position, counts as senior (bool)."""
+        return np.fromiter(
+            (r.senior for r in self.reviewers), dtype=bool, count=len(self.reviewers)
+        )
+
     def reviewer_floor_array(self) -> np.ndarray:
         """`reviewer_floor` of every reviewer, by position (int64)."""
         cap = self.reviewer_cap_array()

@@ -157,7 +157,7 @@ def _constraint_problems(
                 )
     if policy.senior_hard:
         need = paper_senior_need(session)
-        senior = np.array([r.senior for r in session.reviewers], dtype=bool)
+        senior = session.reviewer_senior_array()
         have = np.bincount(paper[senior[reviewer]], minlength=len(session.papers))
         for i in np.flatnonzero(have < need):
             problems.append(

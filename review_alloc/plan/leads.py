@@ -3,9 +3,9 @@
 Each paper takes exactly one lead, so giving every reviewer `max_leads` copies ("slots") turns
 the choice into a one-to-one assignment of papers to slots, which the Hungarian method solves
 exactly (scipy's `linear_sum_assignment`). The slot matrix is dense, so above
-`DENSE_LIMIT` entries (a large venue) the same assignment is solved as the equivalent sparse
-min-cost flow (source → reviewer, capacity `max_leads` → paper along assigned pairs → sink),
-which is just as exact. The costs are lexicographic: first as many papers as
+`DENSE_LIMIT` entries (a large venue) the same choice is solved on the equivalent sparse
+network (source → reviewer, capacity `max_leads` → paper along assigned pairs → sink), one tier
+at a time, which is just as exact. The order is lexicographic: first as many papers as
 possible get a lead, then as many of them as possible get a senior lead, then the total score of
 the lead pairs is highest.
 """
@@ -44,23 +44,30 @@ def lead_costs(score_int: np.ndarray, n_papers: int) -> tuple[int, int]:
 
 def pick_leads(session: Session, plan: Plan) -> LeadChoice:
     """Choose the leads of a plan: most papers led, then most senior leads, then best score."""
-    limit = session.policy.max_leads
     reviewer, paper, score = assignment_indices(session, plan.assignments)
-    papers_with = np.unique(paper)
-    if limit == 0 or len(paper) == 0:
-        ids = tuple(session.papers[i].id for i in papers_with)
-        return LeadChoice(lead_of={}, no_lead=ids, no_senior_lead=ids)
-    senior = np.array([session.reviewers[j].senior for j in reviewer], dtype=bool)
-    score_int = np.rint(score * _RESOLUTION).astype(np.int64)
-    per_lead, per_senior = lead_costs(score_int, len(papers_with))
+    return lead_choice(session, reviewer, paper, lead_mask(session, reviewer, paper, score))
 
+
+def lead_mask(
+    session: Session, reviewer: np.ndarray, paper: np.ndarray, score: np.ndarray
+) -> np.ndarray:
+    """Which of the assigned pairs (index arrays) lead their paper, chosen as `pick_leads` does."""
+    limit = session.policy.max_leads
+    mask = np.zeros(len(paper), dtype=bool)
+    if limit == 0 or len(paper) == 0:
+        return mask
+    papers_with = np.unique(paper)
+    senior = session.reviewer_senior_array()[reviewer]
+    score_int = np.rint(score * _RESOLUTION).astype(np.int64)
     loads = np.bincount(reviewer, minlength=len(session.reviewers))
     slots = np.minimum(loads, limit)
-    gain = per_lead + per_senior * senior.astype(np.int64) + score_int
     if len(papers_with) * int(slots.sum()) > DENSE_LIMIT:
-        chosen = _leads_by_flow(reviewer, paper, gain, limit, len(session.reviewers))
-        lead_of = {session.papers[paper[k]].id: session.reviewers[reviewer[k]].id for k in chosen}
-        return _choice(session, papers_with, lead_of)
+        mask[_leads_by_flow(reviewer, paper, senior, score_int, limit, len(session.reviewers))] = (
+            True
+        )
+        return mask
+    per_lead, per_senior = lead_costs(score_int, len(papers_with))
+    gain = per_lead + per_senior * senior.astype(np.int64) + score_int
     people = np.flatnonzero(slots > 0)
     first_slot = np.zeros(len(session.reviewers), dtype=np.int64)
     first_slot[people] = np.cumsum(slots[people]) - slots[people]
@@ -69,54 +76,92 @@ def pick_leads(session: Session, plan: Plan) -> LeadChoice:
     # Not assigned = cost 0, assigned = a large negative cost: minimising takes as many
     # assigned pairs as possible, which is why entries outside the plan never win.
     cost = np.zeros((len(papers_with), int(slots.sum())), dtype=np.float64)
+    pair_at = np.full(cost.shape, -1, dtype=np.int64)
     for k in range(limit):
-        has = slots[reviewer] > k
-        cost[row_of[paper[has]], first_slot[reviewer[has]] + k] = -gain[has].astype(np.float64)
+        has = np.flatnonzero(slots[reviewer] > k)
+        cell = (row_of[paper[has]], first_slot[reviewer[has]] + k)
+        cost[cell] = -gain[has].astype(np.float64)
+        pair_at[cell] = has
     rows, cols = linear_sum_assignment(cost)
     picked = cost[rows, cols] < 0
-    slot_owner = np.repeat(np.arange(len(session.reviewers)), slots)
-    lead_of: dict[str, str] = {}
-    for r, c in zip(rows[picked].tolist(), cols[picked].tolist(), strict=True):
-        lead_of[session.papers[papers_with[r]].id] = session.reviewers[slot_owner[c]].id
-    return _choice(session, papers_with, lead_of)
+    mask[pair_at[rows[picked], cols[picked]]] = True
+    return mask
+
+
+def lead_choice(
+    session: Session, reviewer: np.ndarray, paper: np.ndarray, mask: np.ndarray
+) -> LeadChoice:
+    """The LeadChoice of the pairs marked in `mask`, with the papers left without (senior) lead."""
+    paper_ids = [p.id for p in session.papers]
+    reviewer_ids = [r.id for r in session.reviewers]
+    lead_of = {
+        paper_ids[i]: reviewer_ids[j]
+        for i, j in zip(paper[mask].tolist(), reviewer[mask].tolist(), strict=True)
+    }
+    papers_with = np.unique(paper)
+    led = np.zeros(len(session.papers), dtype=bool)
+    led[paper[mask]] = True
+    senior_led = np.zeros(len(session.papers), dtype=bool)
+    senior_led[paper[mask & session.reviewer_senior_array()[reviewer]]] = True
+    no_lead = tuple(paper_ids[i] for i in papers_with[~led[papers_with]].tolist())
+    no_senior = tuple(paper_ids[i] for i in papers_with[~senior_led[papers_with]].tolist())
+    return LeadChoice(lead_of=lead_of, no_lead=no_lead, no_senior_lead=no_senior)
 
 
 def _leads_by_flow(
-    reviewer: np.ndarray, paper: np.ndarray, gain: np.ndarray, limit: int, n_reviewers: int
+    reviewer: np.ndarray, paper: np.ndarray, senior: np.ndarray, score_int: np.ndarray,
+    limit: int, n_reviewers: int,
 ) -> np.ndarray:
-    """Indices of the assigned pairs chosen as leads, by a min-cost circulation (exact)."""
-    from review_alloc.flow import min_cost_flow
+    """Indices of the assigned pairs chosen as leads, by three small exact flow solves.
+
+    One combined cost would need weights of about papers**2 times the score range, beyond what
+    cost scaling can price in int64 on a large venue (the slow fallback took seconds). Fixing
+    each tier before the next keeps every cost tiny: the most papers led (a maximum flow), then
+    the most senior leads with that many papers led, then the best score with both fixed. The
+    source feeds senior and junior reviewers through two hubs, so the senior count is the flow
+    on one arc.
+    """
+    from review_alloc.flow import max_flow, min_cost_flow
 
     papers, local = np.unique(paper, return_inverse=True)
     n_p = len(papers)
-    source, sink = 0, 1 + n_reviewers + n_p
+    # Nodes: source, senior hub, junior hub, reviewers, papers, sink.
+    source, senior_hub, junior_hub = 0, 1, 2
+    first_reviewer = 3
+    first_paper = first_reviewer + n_reviewers
+    sink = first_paper + n_p
     n = sink + 1
-    tails = np.concatenate(
-        [np.zeros(n_reviewers, np.int64), 1 + reviewer, 1 + n_reviewers + np.arange(n_p), [sink]]
-    )
-    heads = np.concatenate(
-        [1 + np.arange(n_reviewers), 1 + n_reviewers + local, np.full(n_p, sink), [source]]
-    )
-    capacities = np.concatenate(
-        [np.full(n_reviewers, limit), np.ones(len(paper)), np.ones(n_p), [n_p]]
-    ).astype(np.int64)
-    costs = np.concatenate([np.zeros(n_reviewers), -gain, np.zeros(n_p), [0]]).astype(np.int64)
-    result = min_cost_flow(n, tails.astype(np.int64), heads.astype(np.int64), capacities, costs)
-    pair_flow = result.flow[n_reviewers : n_reviewers + len(paper)]
-    return np.flatnonzero(pair_flow > 0)
+    is_senior = np.zeros(n_reviewers, dtype=bool)
+    is_senior[reviewer[senior]] = True
+    hub = np.where(is_senior, senior_hub, junior_hub)
+    tails = np.concatenate([
+        [source, source], hub, first_reviewer + reviewer, first_paper + np.arange(n_p),
+    ]).astype(np.int64)
+    heads = np.concatenate([
+        [senior_hub, junior_hub], first_reviewer + np.arange(n_reviewers), first_paper + local,
+        np.full(n_p, sink),
+    ]).astype(np.int64)
+    upper = np.concatenate([
+        [n_p, n_p], np.full(n_reviewers, limit), np.ones(len(paper)), np.ones(n_p),
+    ]).astype(np.int64)
+    pairs = slice(2 + n_reviewers, 2 + n_reviewers + len(paper))
+    led = max_flow(n, tails, heads, upper, source, sink).value
 
+    # The return arc sink -> source carries exactly `led` units in both weighted solves.
+    tails = np.append(tails, sink)
+    heads = np.append(heads, source)
+    upper = np.append(upper, led)
+    lower = np.zeros(len(tails), dtype=np.int64)
+    lower[-1] = led
+    costs = np.zeros(len(tails), dtype=np.int64)
+    costs[0] = -1
+    seniors = min_cost_flow(n, tails, heads, upper, costs, lower=lower).flow[0]
 
-def _choice(session: Session, papers_with: np.ndarray, lead_of: dict[str, str]) -> LeadChoice:
-    no_lead = tuple(
-        session.papers[i].id for i in papers_with if session.papers[i].id not in lead_of
-    )
-    is_senior = {r.id: r.senior for r in session.reviewers}
-    no_senior = tuple(
-        session.papers[i].id
-        for i in papers_with
-        if not is_senior.get(lead_of.get(session.papers[i].id, ""), False)
-    )
-    return LeadChoice(lead_of=lead_of, no_lead=no_lead, no_senior_lead=no_senior)
+    lower[0] = upper[0] = seniors
+    costs[0] = 0
+    costs[pairs] = -score_int
+    flow = min_cost_flow(n, tails, heads, upper, costs, lower=lower).flow
+    return np.flatnonzero(flow[pairs] > 0)
 
 
 def with_leads(plan: Plan, choice: LeadChoice) -> Plan:

@@ -332,7 +332,7 @@ def _senior_nodes(
     senior_papers = np.flatnonzero(need > 0).astype(np.int64)
     index_of = np.full(len(session.papers), -1, dtype=np.int64)
     index_of[senior_papers] = np.arange(len(senior_papers))
-    is_senior = np.array([r.senior for r in session.reviewers], dtype=bool)
+    is_senior = session.reviewer_senior_array()
     pair_senior = np.where(is_senior[reviewer], index_of[paper], -1) if len(paper) else paper
     return senior_papers, need[senior_papers], pair_senior.astype(np.int64)
 

@@ -124,7 +124,7 @@ def rule_report(session: Session, plan: Plan) -> dict[str, Any]:
     loads, counts = loads_and_counts(session, reviewer, paper)
     reviews, _, cap, _ = active_demands(session)
     need = paper_senior_need(session)
-    senior = np.array([r.senior for r in session.reviewers], dtype=bool)
+    senior = session.reviewer_senior_array()
     have = np.bincount(paper[senior[reviewer]], minlength=len(session.papers))
     on_paper: dict[int, set[int]] = {}
     for j, i in zip(reviewer.tolist(), paper.tolist(), strict=True):

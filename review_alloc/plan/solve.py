@@ -31,7 +31,7 @@ from review_alloc.plan.conflicts import ConflictSet, conflict_pairs
 from review_alloc.plan.errors import PlanInputError
 from review_alloc.plan.fairness import coverage_flows, highest_threshold, score_thresholds
 from review_alloc.plan.figures import plan_figures
-from review_alloc.plan.leads import LeadChoice, pick_leads, with_leads
+from review_alloc.plan.leads import LeadChoice, lead_choice, lead_mask
 from review_alloc.plan.network import SCORE_RESOLUTION, PlanNetwork, build_network
 from review_alloc.plan.warm import warm_start_for
 
@@ -315,28 +315,41 @@ def _bottleneck(
     return float(thresholds[top]), net_t, result_t, split_t, bound_t
 
 
-def _decode(session: Session, net: PlanNetwork, result: CostFlowResult, now: datetime) -> Plan:
+def _decode(
+    session: Session, net: PlanNetwork, result: CostFlowResult, now: datetime
+) -> tuple[Plan, LeadChoice | None]:
+    """The plan of an optimal flow, its leads chosen when the policy asks for them."""
     chosen = np.flatnonzero(result.flow[net.pair_arcs] > 0)
     reviewer = net.pair_reviewer[chosen]
     paper = net.pair_paper[chosen]
     score = net.pair_score[chosen]
     order = np.lexsort((reviewer, paper))
     reviewer, paper, score = reviewer[order], paper[order], score[order]
+    leads = None
+    lead = np.zeros(len(paper), dtype=bool)
+    if session.policy.max_leads > 0:
+        lead = lead_mask(session, reviewer, paper, score)
+        leads = lead_choice(session, reviewer, paper, lead)
     # The ids come from the validated session and the scores from its validated table, so
     # re-validating thousands of rows would only slow every re-plan down.
     paper_ids = [p.id for p in session.papers]
     reviewer_ids = [r.id for r in session.reviewers]
     assignments = [
-        Assignment.model_construct(paper=paper_ids[i], reviewer=reviewer_ids[j], score=float(s))
-        for j, i, s in zip(reviewer.tolist(), paper.tolist(), score.tolist(), strict=True)
+        Assignment.model_construct(
+            paper=paper_ids[i], reviewer=reviewer_ids[j], score=float(s), lead=k
+        )
+        for j, i, s, k in zip(
+            reviewer.tolist(), paper.tolist(), score.tolist(), lead.tolist(), strict=True
+        )
     ]
-    return Plan(
+    plan = Plan(
         assignments=assignments,
         figures=plan_figures(session, reviewer, paper, score),
         created_at=now,
         checked=False,
         method=METHOD,
     )
+    return plan, leads
 
 
 def make_plan(
@@ -366,7 +379,7 @@ def make_plan(
     used = result.flow[net.pair_arcs] > 0
     final = tier_values(net, used)
     relaxed = bound if bound != final else {}
-    plan = _decode(session, net, result, now or datetime.now(UTC))
+    plan, leads = _decode(session, net, result, now or datetime.now(UTC))
     if net.kept is not None or net.resolution != SCORE_RESOLUTION:
         plan = plan.model_copy(
             update={
@@ -379,9 +392,6 @@ def make_plan(
                 )
             }
         )
-    leads = pick_leads(session, plan) if session.policy.max_leads > 0 else None
-    if leads is not None:
-        plan = with_leads(plan, leads)
     check_plan(session, plan, result.potentials, network=net)
     before = None
     if session.policy.balance > 0:

@@ -184,3 +184,42 @@ def test_sparse_flow_path_matches_brute_force(seed: int, monkeypatch: pytest.Mon
     assert got[:2] == want[:2]
     assert got[2] == pytest.approx(want[2], abs=1e-9)
     check_plan(session, with_leads(plan, choice), None)
+
+
+def _larger_lead_case(seed: int) -> tuple[Session, Plan]:
+    """A few hundred papers with three reviewers each, so that lead limits bind somewhere."""
+    rng = np.random.default_rng(seed)
+    n_r, n_p = 60, 200
+    reviewers = [Reviewer(id=f"r{j}", senior=bool(rng.random() < 0.3)) for j in range(n_r)]
+    papers = [Paper(id=f"p{i}") for i in range(n_p)]
+    session = Session(
+        name=f"many leads {seed}", policy=Policy(max_leads=3, cap=20),
+        papers=papers, reviewers=reviewers,
+    )
+    pairs = [
+        (f"r{j}", f"p{i}", float(np.round(rng.uniform(0, 1), 2)))
+        for i in range(n_p)
+        for j in rng.choice(n_r, size=3, replace=False)
+    ]
+    session = with_scores(session, pairs)
+    return session, plan_of(session, pairs)
+
+
+@pytest.mark.parametrize("seed", range(5))
+def test_sparse_flow_path_needs_no_slow_fallback(
+    seed: int, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # The tier-by-tier solves have tiny costs and fixed arcs (the return arc, the senior hub);
+    # cost scaling must solve them itself rather than hand them to the primal-dual method,
+    # which took seconds on a large venue.
+    import review_alloc.flow.mincost as mincost
+
+    session, plan = _larger_lead_case(seed)
+    monkeypatch.setattr(leads, "DENSE_LIMIT", 0)
+    monkeypatch.setattr(mincost, "_primal_dual", None)
+    sparse = value(session, plan, pick_leads(session, plan).lead_of)
+    monkeypatch.undo()
+    # Reference: the same choice through scipy's linear_sum_assignment on the dense slot matrix.
+    dense = value(session, plan, pick_leads(session, plan).lead_of)
+    assert sparse[:2] == dense[:2]
+    assert sparse[2] == pytest.approx(dense[2], abs=1e-9)
