@@ -30,21 +30,20 @@ def _node_labels(net: PlanNetwork) -> np.ndarray:
     return labels
 
 
-def _arc_keys(net: PlanNetwork, dense: dict[int, int] | np.ndarray, size: int) -> np.ndarray:
+def _arc_keys(net: PlanNetwork, labels: np.ndarray, size: int, ranks: int) -> np.ndarray:
     """(tail, head, rank among parallel arcs) folded into one int64 per arc; -1 if unmatched."""
-    labels = _node_labels(net)
     tail, head = labels[net.tails], labels[net.heads]
     ok = (tail >= 0) & (head >= 0)
-    t = np.where(ok, np.searchsorted(dense, tail), 0)
-    h = np.where(ok, np.searchsorted(dense, head), 0)
-    pair = t * size + h
-    order = np.lexsort((np.arange(len(pair)), pair))
+    pair = np.where(ok, tail * size + head, -1)
+    # A stable sort keeps parallel arcs in arc order, which gives each its rank.
+    order = np.argsort(pair, kind="stable")
     sorted_pair = pair[order]
-    starts = np.r_[0, np.flatnonzero(np.diff(sorted_pair)) + 1]
+    starts = np.r_[0, np.flatnonzero(sorted_pair[1:] != sorted_pair[:-1]) + 1]
     run_start = np.repeat(starts, np.diff(np.r_[starts, len(pair)]))
     rank = np.empty(len(pair), dtype=np.int64)
     rank[order] = np.arange(len(pair)) - run_start
-    keys = pair * (1 << 20) + np.minimum(rank, (1 << 20) - 1)
+    # Parallel arcs beyond `ranks` share the last rank: they only get a poorer hint.
+    keys = pair * ranks + np.minimum(rank, ranks - 1)
     return np.where(ok, keys, -1)
 
 
@@ -53,14 +52,19 @@ def warm_start_for(
 ) -> WarmStart:
     """The earlier optimum (`flow`, `potentials` on `old`) mapped onto `new`."""
     old_labels, new_labels = _node_labels(old), _node_labels(new)
-    dense = np.unique(np.concatenate([old_labels, new_labels]))
-    dense = dense[dense >= 0]
-    size = len(dense) + 1
-    old_keys, new_keys = _arc_keys(old, dense, size), _arc_keys(new, dense, size)
+    # Labels are small (about three per paper or reviewer), so (tail, head, rank) fits in int64.
+    size = int(max(old_labels.max(initial=0), new_labels.max(initial=0))) + 1
+    ranks = max(1, min(1 << 20, (1 << 62) // (size * size)))
+    old_keys = _arc_keys(old, old_labels, size, ranks)
+    new_keys = _arc_keys(new, new_labels, size, ranks)
     carried = np.zeros(len(new.tails), dtype=np.int64)
-    _, new_at, old_at = np.intersect1d(new_keys, old_keys, return_indices=True)
-    valid = new_keys[new_at] >= 0
-    carried[new_at[valid]] = np.minimum(flow[old_at[valid]], new.capacities[new_at[valid]])
+    old_order = np.argsort(old_keys)
+    old_sorted = old_keys[old_order]
+    at = np.minimum(np.searchsorted(old_sorted, new_keys), max(len(old_sorted) - 1, 0))
+    if len(old_sorted):
+        hit = (new_keys >= 0) & (old_sorted[at] == new_keys)
+        new_at, old_at = np.flatnonzero(hit), old_order[at[hit]]
+        carried[new_at] = np.minimum(flow[old_at], new.capacities[new_at])
 
     start = np.zeros(new.n_nodes, dtype=np.int64)
     _, new_node, old_node = np.intersect1d(new_labels, old_labels, return_indices=True)
