@@ -30,9 +30,12 @@ def _node_labels(net: PlanNetwork) -> np.ndarray:
     return labels
 
 
-def _arc_keys(net: PlanNetwork, labels: np.ndarray, size: int, ranks: int) -> np.ndarray:
-    """(tail, head, rank among parallel arcs) folded into one int64 per arc; -1 if unmatched."""
-    tail, head = labels[net.tails], labels[net.heads]
+def _arc_keys(
+    net: PlanNetwork, arcs: np.ndarray, labels: np.ndarray, size: int, ranks: int
+) -> np.ndarray:
+    """(tail, head, rank among parallel arcs) of `arcs` folded into one int64 each; -1 if
+    unmatched."""
+    tail, head = labels[net.tails[arcs]], labels[net.heads[arcs]]
     ok = (tail >= 0) & (head >= 0)
     pair = np.where(ok, tail * size + head, -1)
     # A stable sort keeps parallel arcs in arc order, which gives each its rank.
@@ -47,24 +50,49 @@ def _arc_keys(net: PlanNetwork, labels: np.ndarray, size: int, ranks: int) -> np
     return np.where(ok, keys, -1)
 
 
+def _match(old_keys: np.ndarray, new_keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Positions (in new, in old) of the keys >= 0 that both hold; old keys are unique."""
+    if not len(old_keys) or not len(new_keys):
+        return np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64)
+    increasing = bool(np.all(old_keys[1:] > old_keys[:-1]))
+    order = np.arange(len(old_keys)) if increasing else np.argsort(old_keys)
+    old_sorted = old_keys[order]
+    at = np.minimum(np.searchsorted(old_sorted, new_keys), len(old_sorted) - 1)
+    hit = (new_keys >= 0) & (old_sorted[at] == new_keys)
+    return np.flatnonzero(hit), order[at[hit]]
+
+
+def _pair_keys(net: PlanNetwork, n_papers: int) -> np.ndarray:
+    return net.pair_reviewer * n_papers + net.pair_paper
+
+
 def warm_start_for(
     old: PlanNetwork, flow: np.ndarray, potentials: np.ndarray, new: PlanNetwork
 ) -> WarmStart:
     """The earlier optimum (`flow`, `potentials` on `old`) mapped onto `new`."""
     old_labels, new_labels = _node_labels(old), _node_labels(new)
+    carried = np.zeros(len(new.tails), dtype=np.int64)
+    # Pair arcs, most of the network, are matched by (reviewer, paper), which the builder
+    # emits in increasing order: no sort is needed.
+    n_papers = max(old.n_papers, new.n_papers)
+    old_pairs = np.arange(len(old.tails))[old.pair_arcs]
+    new_pairs = np.arange(len(new.tails))[new.pair_arcs]
+    new_at, old_at = _match(_pair_keys(old, n_papers), _pair_keys(new, n_papers))
+    new_at, old_at = new_pairs[new_at], old_pairs[old_at]
+    carried[new_at] = np.minimum(flow[old_at], new.capacities[new_at])
+
+    # The other arcs by their end nodes' roles and their rank among parallel arcs.
+    old_rest = np.setdiff1d(np.arange(len(old.tails)), old_pairs, assume_unique=True)
+    new_rest = np.setdiff1d(np.arange(len(new.tails)), new_pairs, assume_unique=True)
     # Labels are small (about three per paper or reviewer), so (tail, head, rank) fits in int64.
     size = int(max(old_labels.max(initial=0), new_labels.max(initial=0))) + 1
     ranks = max(1, min(1 << 20, (1 << 62) // (size * size)))
-    old_keys = _arc_keys(old, old_labels, size, ranks)
-    new_keys = _arc_keys(new, new_labels, size, ranks)
-    carried = np.zeros(len(new.tails), dtype=np.int64)
-    old_order = np.argsort(old_keys)
-    old_sorted = old_keys[old_order]
-    at = np.minimum(np.searchsorted(old_sorted, new_keys), max(len(old_sorted) - 1, 0))
-    if len(old_sorted):
-        hit = (new_keys >= 0) & (old_sorted[at] == new_keys)
-        new_at, old_at = np.flatnonzero(hit), old_order[at[hit]]
-        carried[new_at] = np.minimum(flow[old_at], new.capacities[new_at])
+    new_at, old_at = _match(
+        _arc_keys(old, old_rest, old_labels, size, ranks),
+        _arc_keys(new, new_rest, new_labels, size, ranks),
+    )
+    new_at, old_at = new_rest[new_at], old_rest[old_at]
+    carried[new_at] = np.minimum(flow[old_at], new.capacities[new_at])
 
     start = np.zeros(new.n_nodes, dtype=np.int64)
     _, new_node, old_node = np.intersect1d(new_labels, old_labels, return_indices=True)
