@@ -176,11 +176,13 @@ def reachable(net: ResidualNetwork, source: int) -> np.ndarray:
 
 @njit(cache=True, nogil=True)
 def _edge_bfs(
+    identity: bool,
     out_start: np.ndarray,
     out_edge: np.ndarray,
     in_start: np.ndarray,
     in_edge: np.ndarray,
     in_tail: np.ndarray,
+    carried: np.ndarray,
     heads: np.ndarray,
     caps: np.ndarray,
     flow: np.ndarray,
@@ -189,8 +191,11 @@ def _edge_bfs(
     level: np.ndarray,
     queue: np.ndarray,
 ) -> bool:
-    """`bfs_levels` on the edge index: forward arcs (caps - flow) first, then reverse (flow)."""
-    identity = out_edge.size == 0
+    """`bfs_levels` on the edge index: forward arcs (caps - flow) first, then reverse arcs.
+
+    `carried[p]` tells whether edge `in_edge[p]` carries flow, so reverse arcs are tested in
+    memory order rather than by a random read of `flow`.
+    """
     level[:] = -1
     level[source] = 0
     queue[0] = source
@@ -210,7 +215,7 @@ def _edge_bfs(
                 q_tail += 1
         for p in range(in_start[u], in_start[u + 1]):
             v = in_tail[p]
-            if level[v] < 0 and flow[in_edge[p]] > 0:
+            if level[v] < 0 and carried[p]:
                 level[v] = next_level
                 if v == sink:
                     return True
@@ -221,11 +226,14 @@ def _edge_bfs(
 
 @njit(cache=True, nogil=True)
 def _edge_blocking_flow(
+    identity: bool,
     out_start: np.ndarray,
     out_edge: np.ndarray,
     in_start: np.ndarray,
     in_edge: np.ndarray,
     in_tail: np.ndarray,
+    in_pos: np.ndarray,
+    carried: np.ndarray,
     heads: np.ndarray,
     caps: np.ndarray,
     flow: np.ndarray,
@@ -239,10 +247,10 @@ def _edge_blocking_flow(
 ) -> int:
     """`blocking_flow` on the edge index, trying arcs in the same order; returns its value.
 
-    A stack entry is an edge e pushed forward, or ~e for e's reverse arc; `nodes` holds the
-    tail of each stack entry, so a retreat needs no lookup.
+    A stack entry is an edge e pushed forward, or ~p for the reverse arc of edge `in_edge[p]`;
+    `nodes` holds the tail of each stack entry, so a retreat needs no lookup. `carried` follows
+    every change of `flow`.
     """
-    identity = out_edge.size == 0
     total = 0
     depth = 0
     u = source
@@ -251,7 +259,7 @@ def _edge_blocking_flow(
             push = _INF
             for i in range(depth):
                 a = stack[i]
-                residual = caps[a] - flow[a] if a >= 0 else flow[~a]
+                residual = caps[a] - flow[a] if a >= 0 else flow[in_edge[~a]]
                 if residual < push:
                     push = residual
             first_full = -1
@@ -259,10 +267,13 @@ def _edge_blocking_flow(
                 a = stack[i]
                 if a >= 0:
                     flow[a] += push
+                    carried[in_pos[a]] = True
                     residual = caps[a] - flow[a]
                 else:
-                    flow[~a] -= push
-                    residual = flow[~a]
+                    e = in_edge[~a]
+                    flow[e] -= push
+                    residual = flow[e]
+                    carried[~a] = residual > 0
                 if first_full < 0 and residual == 0:
                     first_full = i
             total += push
@@ -287,9 +298,8 @@ def _edge_blocking_flow(
             while it_in[u] < end:
                 p = it_in[u]
                 v = in_tail[p]
-                e = in_edge[p]
-                if level[v] == next_level and flow[e] > 0:
-                    stack[depth] = ~e
+                if level[v] == next_level and carried[p]:
+                    stack[depth] = ~p
                     advanced = True
                     break
                 it_in[u] = p + 1
@@ -318,20 +328,25 @@ def max_flow_kernel(
     source: int,
     sink: int,
     total_checked: bool,
-) -> tuple[int, int, int, np.ndarray, np.ndarray]:
+    flow: np.ndarray,
+    carried: np.ndarray,
+    index: np.ndarray,
+) -> tuple[int, int, int, np.ndarray]:
     """Check, index and solve a max flow without lower bounds in one call.
 
-    Returns (status, value, phases, flow per edge, source side); a nonzero status is that of
-    `scan_and_index_edges` and nothing was solved. The source side comes from the last BFS,
-    which could not reach the sink and so labelled every node reachable in the final residual.
+    Takes zeroed `flow` (int64) and `carried` (bool) arrays with one entry per edge and an
+    int32 scratch `index` of shape (4, edges), all allocated by the caller. Returns (status,
+    value, phases, source side) and leaves the flow in `flow`; a nonzero status is that of
+    `scan_and_index_edges` and nothing was solved. The source side comes from the last BFS, which
+    could not reach the sink and so labelled every node reachable in the final residual.
     """
-    status, out_start, out_edge, in_start, in_edge, in_tail = scan_and_index_edges(
-        n, tails, heads, caps, total_checked
+    out_edge, in_edge, in_tail, in_pos = index[0], index[1], index[2], index[3]
+    status, identity, out_start, in_start = scan_and_index_edges(
+        n, tails, heads, caps, total_checked, out_edge, in_edge, in_tail, in_pos
     )
-    flow = np.zeros(tails.size, dtype=np.int64)
     level = np.empty(n, dtype=np.int32)
     if status != 0:
-        return status, 0, 0, flow, level >= 0
+        return status, 0, 0, level >= 0
     queue = np.empty(n, dtype=np.int32)
     it_out = np.empty(n, dtype=np.int64)
     it_in = np.empty(n, dtype=np.int64)
@@ -340,14 +355,14 @@ def max_flow_kernel(
     value = 0
     phases = 0
     while _edge_bfs(
-        out_start, out_edge, in_start, in_edge, in_tail, heads, caps, flow, source, sink,
-        level, queue,
+        identity, out_start, out_edge, in_start, in_edge, in_tail, carried, heads, caps, flow,
+        source, sink, level, queue,
     ):
         it_out[:] = out_start[:n]
         it_in[:] = in_start[:n]
         value += _edge_blocking_flow(
-            out_start, out_edge, in_start, in_edge, in_tail, heads, caps, flow, source, sink,
-            level, it_out, it_in, stack, nodes,
+            identity, out_start, out_edge, in_start, in_edge, in_tail, in_pos, carried, heads,
+            caps, flow, source, sink, level, it_out, it_in, stack, nodes,
         )
         phases += 1
-    return 0, value, phases, flow, level >= 0
+    return 0, value, phases, level >= 0

@@ -106,7 +106,9 @@ def _solve_without_lower(
     checked: bool,
 ) -> FlowResult | None:
     """Solve in the fused kernel; None when its scan found something for the full checks."""
-    status, value, phases, flow, side = max_flow_kernel(
+    m = len(tails)
+    flow = np.zeros(m, dtype=np.int64)
+    status, value, phases, side = max_flow_kernel(
         np.int64(n),
         np.ascontiguousarray(tails),
         np.ascontiguousarray(heads),
@@ -114,6 +116,9 @@ def _solve_without_lower(
         np.int64(source),
         np.int64(sink),
         checked,
+        flow,
+        np.zeros(m, dtype=np.bool_),
+        np.empty((4, m), dtype=np.int32),
     )
     if status != 0:
         return None

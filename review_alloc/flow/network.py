@@ -141,39 +141,48 @@ def build_with_terminals(
 
 @njit(cache=True, nogil=True)
 def scan_and_index_edges(
-    n: int, tails: np.ndarray, heads: np.ndarray, caps: np.ndarray, total_checked: bool
-) -> tuple[int, np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    n: int,
+    tails: np.ndarray,
+    heads: np.ndarray,
+    caps: np.ndarray,
+    total_checked: bool,
+    out_edge: np.ndarray,
+    in_edge: np.ndarray,
+    in_tail: np.ndarray,
+    in_pos: np.ndarray,
+) -> tuple[int, bool, np.ndarray, np.ndarray]:
     """Check a max-flow input in one pass and index its edges by tail and by head.
 
-    Returns (status, out_start, out_edge, in_start, in_edge, in_tail). Status 1: a node id is out
-    of range or a capacity is negative (the caller re-runs the full checks for the message);
-    status 2: the capacities add up to 2**61 or more, which the caller decides with the exact
-    check and then calls again with `total_checked`; status 0: the index is built. The edges
-    leaving v are `out_edge[out_start[v]:out_start[v + 1]]`, in edge order; `out_edge` is empty
-    when tails are already sorted, meaning those edges are the positions themselves. The edges
-    entering v are `in_edge[in_start[v]:in_start[v + 1]]`, in edge order, with their tails in
-    `in_tail`, so that scans of reverse arcs read memory in order.
+    Fills the int32 arrays given (one entry per edge; the caller allocates them, as numpy's
+    large allocations fault in far fewer pages) and returns (status, identity, out_start,
+    in_start). Status 1: a node id is out of range or a capacity is negative (the caller re-runs
+    the full checks for the message); status 2: the capacities add up to 2**61 or more, which the
+    caller decides with the exact check and then calls again with `total_checked`; status 0: the
+    index is built. The edges leaving v are `out_edge[out_start[v]:out_start[v + 1]]` in edge
+    order, except that with `identity` (tails already sorted) they are the positions themselves
+    and `out_edge` is left untouched. The edges entering v are
+    `in_edge[in_start[v]:in_start[v + 1]]` in edge order, with their tails in `in_tail` so that
+    scans of reverse arcs read memory in order; `in_pos[e]` is edge e's position in `in_edge`.
     """
     m = tails.size
     out_start = np.zeros(n + 1, dtype=np.int64)
     in_start = np.zeros(n + 1, dtype=np.int64)
-    none = np.zeros(0, dtype=np.int32)
     total = 0
-    sorted_tails = True
+    identity = True
     previous = 0
     for e in range(m):
         t = tails[e]
         h = heads[e]
         c = caps[e]
         if t < 0 or t >= n or h < 0 or h >= n or c < 0:
-            return 1, out_start, none, in_start, none, none
+            return 1, identity, out_start, in_start
         if not total_checked:
             # Stop adding before int64 could overflow; the exact check decides from there.
             if c >= 2**61 - total:
-                return 2, out_start, none, in_start, none, none
+                return 2, identity, out_start, in_start
             total += c
         if t < previous:
-            sorted_tails = False
+            identity = False
         previous = t
         out_start[t + 1] += 1
         in_start[h + 1] += 1
@@ -181,20 +190,17 @@ def scan_and_index_edges(
         out_start[v + 1] += out_start[v]
         in_start[v + 1] += in_start[v]
     fill = in_start[:n].copy()
-    in_edge = np.empty(m, dtype=np.int32)
-    in_tail = np.empty(m, dtype=np.int32)
     for e in range(m):
         h = heads[e]
         p = fill[h]
         fill[h] = p + 1
         in_edge[p] = e
         in_tail[p] = tails[e]
-    out_edge = none
-    if not sorted_tails:
+        in_pos[e] = p
+    if not identity:
         fill[:] = out_start[:n]
-        out_edge = np.empty(m, dtype=np.int32)
         for e in range(m):
             t = tails[e]
             out_edge[fill[t]] = e
             fill[t] += 1
-    return 0, out_start, out_edge, in_start, in_edge, in_tail
+    return 0, identity, out_start, in_start
