@@ -214,13 +214,15 @@ def _edge_bfs(
                 queue[q_tail] = v
                 q_tail += 1
         for p in range(in_start[u], in_start[u + 1]):
-            v = in_tail[p]
-            if level[v] < 0 and carried[p]:
-                level[v] = next_level
-                if v == sink:
-                    return True
-                queue[q_tail] = v
-                q_tail += 1
+            # Few edges carry flow: test the flag first and read the tail only for those.
+            if carried[p]:
+                v = in_tail[p]
+                if level[v] < 0:
+                    level[v] = next_level
+                    if v == sink:
+                        return True
+                    queue[q_tail] = v
+                    q_tail += 1
     return False
 
 
@@ -297,8 +299,8 @@ def _edge_blocking_flow(
             end = in_start[u + 1]
             while it_in[u] < end:
                 p = it_in[u]
-                v = in_tail[p]
-                if level[v] == next_level and carried[p]:
+                v = in_tail[p] if carried[p] else -1
+                if v >= 0 and level[v] == next_level:
                     stack[depth] = ~p
                     advanced = True
                     break
