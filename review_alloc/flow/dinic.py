@@ -181,7 +181,7 @@ def _edge_bfs(
     out_edge: np.ndarray,
     in_start: np.ndarray,
     in_edge: np.ndarray,
-    in_tail: np.ndarray,
+    tails: np.ndarray,
     carried: np.ndarray,
     heads: np.ndarray,
     caps: np.ndarray,
@@ -194,7 +194,7 @@ def _edge_bfs(
     """`bfs_levels` on the edge index: forward arcs (caps - flow) first, then reverse arcs.
 
     `carried[p]` tells whether edge `in_edge[p]` carries flow, so reverse arcs are tested in
-    memory order rather than by a random read of `flow`.
+    memory order; only those that carry flow look up their edge's tail.
     """
     level[:] = -1
     level[source] = 0
@@ -216,7 +216,7 @@ def _edge_bfs(
         for p in range(in_start[u], in_start[u + 1]):
             # Few edges carry flow: test the flag first and read the tail only for those.
             if carried[p]:
-                v = in_tail[p]
+                v = tails[in_edge[p]]
                 if level[v] < 0:
                     level[v] = next_level
                     if v == sink:
@@ -233,7 +233,7 @@ def _edge_blocking_flow(
     out_edge: np.ndarray,
     in_start: np.ndarray,
     in_edge: np.ndarray,
-    in_tail: np.ndarray,
+    tails: np.ndarray,
     in_pos: np.ndarray,
     carried: np.ndarray,
     heads: np.ndarray,
@@ -299,7 +299,7 @@ def _edge_blocking_flow(
             end = in_start[u + 1]
             while it_in[u] < end:
                 p = it_in[u]
-                v = in_tail[p] if carried[p] else -1
+                v = tails[in_edge[p]] if carried[p] else -1
                 if v >= 0 and level[v] == next_level:
                     stack[depth] = ~p
                     advanced = True
@@ -337,14 +337,14 @@ def max_flow_kernel(
     """Check, index and solve a max flow without lower bounds in one call.
 
     Takes zeroed `flow` (int64) and `carried` (bool) arrays with one entry per edge and an
-    int32 scratch `index` of shape (4, edges), all allocated by the caller. Returns (status,
+    int32 scratch `index` of shape (3, edges), all allocated by the caller. Returns (status,
     value, phases, source side) and leaves the flow in `flow`; a nonzero status is that of
     `scan_and_index_edges` and nothing was solved. The source side comes from the last BFS, which
     could not reach the sink and so labelled every node reachable in the final residual.
     """
-    out_edge, in_edge, in_tail, in_pos = index[0], index[1], index[2], index[3]
+    out_edge, in_edge, in_pos = index[0], index[1], index[2]
     status, identity, out_start, in_start = scan_and_index_edges(
-        n, tails, heads, caps, total_checked, out_edge, in_edge, in_tail, in_pos
+        n, tails, heads, caps, total_checked, out_edge, in_edge, in_pos
     )
     level = np.empty(n, dtype=np.int32)
     if status != 0:
@@ -357,13 +357,13 @@ def max_flow_kernel(
     value = 0
     phases = 0
     while _edge_bfs(
-        identity, out_start, out_edge, in_start, in_edge, in_tail, carried, heads, caps, flow,
+        identity, out_start, out_edge, in_start, in_edge, tails, carried, heads, caps, flow,
         source, sink, level, queue,
     ):
         it_out[:] = out_start[:n]
         it_in[:] = in_start[:n]
         value += _edge_blocking_flow(
-            identity, out_start, out_edge, in_start, in_edge, in_tail, in_pos, carried, heads,
+            identity, out_start, out_edge, in_start, in_edge, tails, in_pos, carried, heads,
             caps, flow, source, sink, level, it_out, it_in, stack, nodes,
         )
         phases += 1

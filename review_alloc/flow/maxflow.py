@@ -118,7 +118,7 @@ def _solve_without_lower(
         checked,
         flow,
         np.zeros(m, dtype=np.bool_),
-        np.empty((4, m), dtype=np.int32),
+        np.empty((3, m), dtype=np.int32),
     )
     if status != 0:
         return None

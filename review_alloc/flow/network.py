@@ -148,7 +148,6 @@ def scan_and_index_edges(
     total_checked: bool,
     out_edge: np.ndarray,
     in_edge: np.ndarray,
-    in_tail: np.ndarray,
     in_pos: np.ndarray,
 ) -> tuple[int, bool, np.ndarray, np.ndarray]:
     """Check a max-flow input in one pass and index its edges by tail and by head.
@@ -161,8 +160,8 @@ def scan_and_index_edges(
     index is built. The edges leaving v are `out_edge[out_start[v]:out_start[v + 1]]` in edge
     order, except that with `identity` (tails already sorted) they are the positions themselves
     and `out_edge` is left untouched. The edges entering v are
-    `in_edge[in_start[v]:in_start[v + 1]]` in edge order, with their tails in `in_tail` so that
-    scans of reverse arcs read memory in order; `in_pos[e]` is edge e's position in `in_edge`.
+    `in_edge[in_start[v]:in_start[v + 1]]` in edge order; `in_pos[e]` is edge e's position in
+    `in_edge`.
     """
     m = tails.size
     out_start = np.zeros(n + 1, dtype=np.int64)
@@ -195,7 +194,6 @@ def scan_and_index_edges(
         p = fill[h]
         fill[h] = p + 1
         in_edge[p] = e
-        in_tail[p] = tails[e]
         in_pos[e] = p
     if not identity:
         fill[:] = out_start[:n]
