@@ -11,7 +11,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from review_alloc.flow.network import ResidualNetwork
+from review_alloc.flow.network import ResidualNetwork, scan_and_index_edges
 
 _INF = np.iinfo(np.int64).max
 
@@ -172,3 +172,199 @@ def dinic(net: ResidualNetwork, source: int, sink: int) -> tuple[int, int]:
 def reachable(net: ResidualNetwork, source: int) -> np.ndarray:
     """Boolean mask of the nodes reachable from source in the residual network."""
     return reachable_kernel(net.start, net.head, net.cap, np.int64(source))
+
+
+@njit(cache=True, nogil=True)
+def _edge_bfs(
+    identity: bool,
+    out_start: np.ndarray,
+    out_edge: np.ndarray,
+    in_start: np.ndarray,
+    in_edge: np.ndarray,
+    tails: np.ndarray,
+    carried: np.ndarray,
+    heads: np.ndarray,
+    caps: np.ndarray,
+    flow: np.ndarray,
+    source: int,
+    sink: int,
+    level: np.ndarray,
+    queue: np.ndarray,
+) -> bool:
+    """`bfs_levels` on the edge index: forward arcs (caps - flow) first, then reverse arcs.
+
+    `carried[p]` tells whether edge `in_edge[p]` carries flow, so reverse arcs are tested in
+    memory order; only those that carry flow look up their edge's tail.
+    """
+    level[:] = -1
+    level[source] = 0
+    queue[0] = source
+    q_head, q_tail = 0, 1
+    while q_head < q_tail:
+        u = queue[q_head]
+        q_head += 1
+        next_level = level[u] + 1
+        for p in range(out_start[u], out_start[u + 1]):
+            e = p if identity else out_edge[p]
+            v = heads[e]
+            if level[v] < 0 and caps[e] > flow[e]:
+                level[v] = next_level
+                if v == sink:
+                    return True
+                queue[q_tail] = v
+                q_tail += 1
+        for p in range(in_start[u], in_start[u + 1]):
+            # Few edges carry flow: test the flag first and read the tail only for those.
+            if carried[p]:
+                v = tails[in_edge[p]]
+                if level[v] < 0:
+                    level[v] = next_level
+                    if v == sink:
+                        return True
+                    queue[q_tail] = v
+                    q_tail += 1
+    return False
+
+
+@njit(cache=True, nogil=True)
+def _edge_blocking_flow(
+    identity: bool,
+    out_start: np.ndarray,
+    out_edge: np.ndarray,
+    in_start: np.ndarray,
+    in_edge: np.ndarray,
+    tails: np.ndarray,
+    in_pos: np.ndarray,
+    carried: np.ndarray,
+    heads: np.ndarray,
+    caps: np.ndarray,
+    flow: np.ndarray,
+    source: int,
+    sink: int,
+    level: np.ndarray,
+    it_out: np.ndarray,
+    it_in: np.ndarray,
+    stack: np.ndarray,
+    nodes: np.ndarray,
+) -> int:
+    """`blocking_flow` on the edge index, trying arcs in the same order; returns its value.
+
+    A stack entry is an edge e pushed forward, or ~p for the reverse arc of edge `in_edge[p]`;
+    `nodes` holds the tail of each stack entry, so a retreat needs no lookup. `carried` follows
+    every change of `flow`.
+    """
+    total = 0
+    depth = 0
+    u = source
+    while True:
+        if u == sink:
+            push = _INF
+            for i in range(depth):
+                a = stack[i]
+                residual = caps[a] - flow[a] if a >= 0 else flow[in_edge[~a]]
+                if residual < push:
+                    push = residual
+            first_full = -1
+            for i in range(depth):
+                a = stack[i]
+                if a >= 0:
+                    flow[a] += push
+                    carried[in_pos[a]] = True
+                    residual = caps[a] - flow[a]
+                else:
+                    e = in_edge[~a]
+                    flow[e] -= push
+                    residual = flow[e]
+                    carried[~a] = residual > 0
+                if first_full < 0 and residual == 0:
+                    first_full = i
+            total += push
+            # Retreat to the tail of the first saturated arc: the path up to it is still open.
+            depth = first_full
+            u = nodes[depth]
+            continue
+        next_level = level[u] + 1
+        advanced = False
+        end = out_start[u + 1]
+        while it_out[u] < end:
+            p = it_out[u]
+            e = p if identity else out_edge[p]
+            v = heads[e]
+            if level[v] == next_level and caps[e] > flow[e]:
+                stack[depth] = e
+                advanced = True
+                break
+            it_out[u] = p + 1
+        if not advanced:
+            end = in_start[u + 1]
+            while it_in[u] < end:
+                p = it_in[u]
+                v = tails[in_edge[p]] if carried[p] else -1
+                if v >= 0 and level[v] == next_level:
+                    stack[depth] = ~p
+                    advanced = True
+                    break
+                it_in[u] = p + 1
+        if advanced:
+            nodes[depth] = u
+            depth += 1
+            u = v
+            continue
+        level[u] = -1
+        if depth == 0:
+            return total
+        depth -= 1
+        u = nodes[depth]
+        if stack[depth] >= 0:
+            it_out[u] += 1
+        else:
+            it_in[u] += 1
+
+
+@njit(cache=True, nogil=True)
+def max_flow_kernel(
+    n: int,
+    tails: np.ndarray,
+    heads: np.ndarray,
+    caps: np.ndarray,
+    source: int,
+    sink: int,
+    total_checked: bool,
+    flow: np.ndarray,
+    carried: np.ndarray,
+    index: np.ndarray,
+) -> tuple[int, int, int, np.ndarray]:
+    """Check, index and solve a max flow without lower bounds in one call.
+
+    Takes zeroed `flow` (int64) and `carried` (bool) arrays with one entry per edge and an
+    int32 scratch `index` of shape (3, edges), all allocated by the caller. Returns (status,
+    value, phases, source side) and leaves the flow in `flow`; a nonzero status is that of
+    `scan_and_index_edges` and nothing was solved. The source side comes from the last BFS, which
+    could not reach the sink and so labelled every node reachable in the final residual.
+    """
+    out_edge, in_edge, in_pos = index[0], index[1], index[2]
+    status, identity, out_start, in_start = scan_and_index_edges(
+        n, tails, heads, caps, total_checked, out_edge, in_edge, in_pos
+    )
+    level = np.empty(n, dtype=np.int32)
+    if status != 0:
+        return status, 0, 0, level >= 0
+    queue = np.empty(n, dtype=np.int32)
+    it_out = np.empty(n, dtype=np.int64)
+    it_in = np.empty(n, dtype=np.int64)
+    stack = np.empty(n, dtype=np.int64)
+    nodes = np.empty(n, dtype=np.int64)
+    value = 0
+    phases = 0
+    while _edge_bfs(
+        identity, out_start, out_edge, in_start, in_edge, tails, carried, heads, caps, flow,
+        source, sink, level, queue,
+    ):
+        it_out[:] = out_start[:n]
+        it_in[:] = in_start[:n]
+        value += _edge_blocking_flow(
+            identity, out_start, out_edge, in_start, in_edge, tails, in_pos, carried, heads,
+            caps, flow, source, sink, level, it_out, it_in, stack, nodes,
+        )
+        phases += 1
+    return 0, value, phases, level >= 0

@@ -7,10 +7,16 @@ from typing import Any
 import numpy as np
 
 from review_alloc.flow.circulation import route_lower_bounds
-from review_alloc.flow.dinic import dinic, reachable
-from review_alloc.flow.network import build_residual
+from review_alloc.flow.dinic import dinic, max_flow_kernel, reachable
 from review_alloc.flow.results import FlowInputError, FlowResult
-from review_alloc.flow.validate import EdgeArrays, check_edges, check_n, check_node
+from review_alloc.flow.validate import (
+    EdgeArrays,
+    as_int_array,
+    check_edges,
+    check_lengths,
+    check_n,
+    check_node,
+)
 
 METHODS = ("dinic",)
 """Algorithms `max_flow(method=...)` accepts."""
@@ -43,28 +49,41 @@ def max_flow(
     sink = check_node("sink", sink, n)
     if source == sink:
         raise FlowInputError(f"source and sink must differ (both {source})")
+    if lower is None:
+        # The kernel checks node ids, signs and the total in its first pass; on a problem the
+        # full checks below run in their documented order and raise the message.
+        arrays = [
+            ("tails", as_int_array("tails", tails)),
+            ("heads", as_int_array("heads", heads)),
+            ("capacities", as_int_array("capacities", capacities)),
+        ]
+        check_lengths(arrays)
+        result = _solve_without_lower(n, *(array for _, array in arrays), source, sink, False)
+        if result is not None:
+            return result
     edges = check_edges(n, tails, heads, capacities, lower=lower)
+    if not edges.lower.any():
+        result = _solve_without_lower(n, edges.tails, edges.heads, edges.upper, source, sink, True)
+        if result is None:
+            raise AssertionError("the edge scan refused edges that passed every check")
+        return result
 
-    phases = 0
-    if edges.lower.any():
-        # Return edges sink -> source and source -> sink turn any s-t flow, whatever the sign of
-        # its value, into a circulation; above the total capacity, they never limit it.
-        unlimited = int(edges.upper.sum()) + 1
-        with_return = EdgeArrays(
-            n=n,
-            tails=np.append(edges.tails, [sink, source]),
-            heads=np.append(edges.heads, [source, sink]),
-            upper=np.append(edges.upper, [unlimited, unlimited]),
-            lower=np.append(edges.lower, [0, 0]),
-            costs=None,
-        )
-        net, phases = route_lower_bounds(with_return)
-        for edge in (len(edges.tails), len(edges.tails) + 1):
-            arc = net.arc_of_edge[edge]
-            net.cap[arc] = 0
-            net.cap[net.rev[arc]] = 0
-    else:
-        net = build_residual(n, edges.tails, edges.heads, edges.upper, edges.lower, edges.lower)
+    # Return edges sink -> source and source -> sink turn any s-t flow, whatever the sign of its
+    # value, into a circulation; above the total capacity, they never limit it.
+    unlimited = int(edges.upper.sum()) + 1
+    with_return = EdgeArrays(
+        n=n,
+        tails=np.append(edges.tails, [sink, source]),
+        heads=np.append(edges.heads, [source, sink]),
+        upper=np.append(edges.upper, [unlimited, unlimited]),
+        lower=np.append(edges.lower, [0, 0]),
+        costs=None,
+    )
+    net, phases = route_lower_bounds(with_return)
+    for edge in (len(edges.tails), len(edges.tails) + 1):
+        arc = net.arc_of_edge[edge]
+        net.cap[arc] = 0
+        net.cap[net.rev[arc]] = 0
     _, more_phases = dinic(net, source, sink)
 
     flow = net.edge_flow(edges.lower)
@@ -75,3 +94,33 @@ def max_flow(
         source_side=reachable(net, source)[:n].copy(),
         phases=phases + more_phases,
     )
+
+
+def _solve_without_lower(
+    n: int,
+    tails: np.ndarray,
+    heads: np.ndarray,
+    capacities: np.ndarray,
+    source: int,
+    sink: int,
+    checked: bool,
+) -> FlowResult | None:
+    """Solve in the fused kernel; None when its scan found something for the full checks."""
+    m = len(tails)
+    flow = np.zeros(m, dtype=np.int64)
+    status, value, phases, side = max_flow_kernel(
+        np.int64(n),
+        np.ascontiguousarray(tails),
+        np.ascontiguousarray(heads),
+        np.ascontiguousarray(capacities),
+        np.int64(source),
+        np.int64(sink),
+        checked,
+        flow,
+        np.zeros(m, dtype=np.bool_),
+        np.empty((3, m), dtype=np.int32),
+    )
+    if status != 0:
+        return None
+    # No path of a level graph re-enters the source, so the pushed total is the net outflow.
+    return FlowResult(value=int(value), flow=flow, source_side=side, phases=int(phases))

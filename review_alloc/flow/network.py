@@ -137,3 +137,68 @@ def build_with_terminals(
         None if costs is None else np.concatenate([costs, zeros]),
     )
     return net, int(excess[senders].sum())
+
+
+@njit(cache=True, nogil=True)
+def scan_and_index_edges(
+    n: int,
+    tails: np.ndarray,
+    heads: np.ndarray,
+    caps: np.ndarray,
+    total_checked: bool,
+    out_edge: np.ndarray,
+    in_edge: np.ndarray,
+    in_pos: np.ndarray,
+) -> tuple[int, bool, np.ndarray, np.ndarray]:
+    """Check a max-flow input in one pass and index its edges by tail and by head.
+
+    Fills the int32 arrays given (one entry per edge; the caller allocates them, as numpy's
+    large allocations fault in far fewer pages) and returns (status, identity, out_start,
+    in_start). Status 1: a node id is out of range or a capacity is negative (the caller re-runs
+    the full checks for the message); status 2: the capacities add up to 2**61 or more, which the
+    caller decides with the exact check and then calls again with `total_checked`; status 0: the
+    index is built. The edges leaving v are `out_edge[out_start[v]:out_start[v + 1]]` in edge
+    order, except that with `identity` (tails already sorted) they are the positions themselves
+    and `out_edge` is left untouched. The edges entering v are
+    `in_edge[in_start[v]:in_start[v + 1]]` in edge order; `in_pos[e]` is edge e's position in
+    `in_edge`.
+    """
+    m = tails.size
+    out_start = np.zeros(n + 1, dtype=np.int64)
+    in_start = np.zeros(n + 1, dtype=np.int64)
+    total = 0
+    identity = True
+    previous = 0
+    for e in range(m):
+        t = tails[e]
+        h = heads[e]
+        c = caps[e]
+        if t < 0 or t >= n or h < 0 or h >= n or c < 0:
+            return 1, identity, out_start, in_start
+        if not total_checked:
+            # Stop adding before int64 could overflow; the exact check decides from there.
+            if c >= 2**61 - total:
+                return 2, identity, out_start, in_start
+            total += c
+        if t < previous:
+            identity = False
+        previous = t
+        out_start[t + 1] += 1
+        in_start[h + 1] += 1
+    for v in range(n):
+        out_start[v + 1] += out_start[v]
+        in_start[v + 1] += in_start[v]
+    fill = in_start[:n].copy()
+    for e in range(m):
+        h = heads[e]
+        p = fill[h]
+        fill[h] = p + 1
+        in_edge[p] = e
+        in_pos[e] = p
+    if not identity:
+        fill[:] = out_start[:n]
+        for e in range(m):
+            t = tails[e]
+            out_edge[fill[t]] = e
+            fill[t] += 1
+    return 0, identity, out_start, in_start
