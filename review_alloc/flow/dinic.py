@@ -143,7 +143,10 @@ def dinic_kernel(
     value = 0
     phases = 0
     while bfs_levels(start, head, cap, source, sink, level, queue, cost, pot):
-        it[:] = start[:n]
+        # A loop, not a slice copy: numba's slice assignment compiles a shape-mismatch message
+        # formatter that alone costs seconds of a cold start.
+        for v in range(n):
+            it[v] = start[v]
         value += blocking_flow(start, head, cap, rev, source, sink, level, it, stack, cost, pot)
         phases += 1
     return value, phases
@@ -157,7 +160,8 @@ def reachable_kernel(
     n = start.size - 1
     level = np.empty(n, dtype=np.int64)
     queue = np.empty(n, dtype=np.int64)
-    bfs_levels(start, head, cap, source, -1, level, queue, None, None)
+    # A typed -1: a literal would make numba compile a third copy of bfs_levels.
+    bfs_levels(start, head, cap, source, np.int64(-1), level, queue, None, None)
     return level >= 0
 
 
@@ -360,8 +364,9 @@ def max_flow_kernel(
         identity, out_start, out_edge, in_start, in_edge, tails, carried, heads, caps, flow,
         source, sink, level, queue,
     ):
-        it_out[:] = out_start[:n]
-        it_in[:] = in_start[:n]
+        for v in range(n):
+            it_out[v] = out_start[v]
+            it_in[v] = in_start[v]
         value += _edge_blocking_flow(
             identity, out_start, out_edge, in_start, in_edge, tails, in_pos, carried, heads,
             caps, flow, source, sink, level, it_out, it_in, stack, nodes,

@@ -37,10 +37,15 @@ def _csr_kernel(
     heads: np.ndarray,
     forward: np.ndarray,
     backward: np.ndarray,
-    costs: np.ndarray | None,
+    costs: np.ndarray,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Counting sort of the 2m arcs by tail: forward arcs in edge order, then reverse arcs."""
+    """Counting sort of the 2m arcs by tail: forward arcs in edge order, then reverse arcs.
+
+    An empty `costs` means a network without costs (one array type for both keeps numba to a
+    single compiled copy); its `cost` is then empty too.
+    """
     m = tails.size
+    costed = costs.size > 0
     start = np.zeros(n + 1, dtype=np.int64)
     for e in range(m):
         start[tails[e] + 1] += 1
@@ -51,7 +56,7 @@ def _csr_kernel(
     head = np.empty(2 * m, dtype=np.int32)
     cap = np.empty(2 * m, dtype=np.int64)
     rev = np.empty(2 * m, dtype=np.int32)
-    cost = np.zeros(0 if costs is None else 2 * m, dtype=np.int64)
+    cost = np.zeros(2 * m if costed else 0, dtype=np.int64)
     arc_of_edge = np.empty(m, dtype=np.int64)
     # Forward arcs are placed before any reverse arc at the same tail, as a stable sort would.
     for e in range(m):
@@ -60,7 +65,7 @@ def _csr_kernel(
         arc_of_edge[e] = a
         head[a] = heads[e]
         cap[a] = forward[e]
-        if costs is not None:
+        if costed:
             cost[a] = costs[e]
     for e in range(m):
         a = fill[heads[e]]
@@ -70,7 +75,7 @@ def _csr_kernel(
         cap[a] = backward[e]
         rev[a] = f
         rev[f] = a
-        if costs is not None:
+        if costed:
             cost[a] = -costs[e]
     return start, head, cap, rev, arc_of_edge, cost
 
@@ -91,7 +96,7 @@ def build_residual(
         np.ascontiguousarray(heads, dtype=np.int64),
         np.ascontiguousarray(upper - flow, dtype=np.int64),
         np.ascontiguousarray(flow - lower, dtype=np.int64),
-        None if costs is None else np.ascontiguousarray(costs, dtype=np.int64),
+        np.zeros(0, np.int64) if costs is None else np.ascontiguousarray(costs, dtype=np.int64),
     )
     return ResidualNetwork(
         n=n, start=start, head=head, cap=cap, rev=rev, arc_of_edge=arc_of_edge, cost=cost
@@ -196,7 +201,9 @@ def scan_and_index_edges(
         in_edge[p] = e
         in_pos[e] = p
     if not identity:
-        fill[:] = out_start[:n]
+        # A loop, not a slice copy, which would compile a costly shape-mismatch message.
+        for v in range(n):
+            fill[v] = out_start[v]
         for e in range(m):
             t = tails[e]
             out_edge[fill[t]] = e
