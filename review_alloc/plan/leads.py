@@ -15,7 +15,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import linear_sum_assignment
 
 from review_alloc.model import Plan, Session
 from review_alloc.plan.figures import assignment_indices
@@ -82,6 +81,10 @@ def lead_mask(
         cell = (row_of[paper[has]], first_slot[reviewer[has]] + k)
         cost[cell] = -gain[has].astype(np.float64)
         pair_at[cell] = has
+    # Imported here: scipy.optimize takes almost half a second to import, and every command
+    # that never picks leads by the Hungarian method would pay it.
+    from scipy.optimize import linear_sum_assignment
+
     rows, cols = linear_sum_assignment(cost)
     picked = cost[rows, cols] < 0
     mask[pair_at[rows[picked], cols[picked]]] = True
