@@ -4,6 +4,11 @@
 run, and a lock keeps two warm-ups from compiling at once). After a warm-up that succeeded, a
 small marker file in the cache folder lets `solver_cache_ready()` tell, without importing or
 compiling anything, whether the next process will load the kernels from disk.
+
+numba compiles one kernel at a time under a process-wide lock, so on a cold cache the two groups
+of kernels (max flow with the primal-dual method; lower bounds with cost scaling) are compiled by
+two child processes side by side, which fill the on-disk cache; this process then loads them.
+Should the children fail (no second CPU, no way to start a process), it compiles them itself.
 """
 
 from __future__ import annotations
@@ -11,6 +16,8 @@ from __future__ import annotations
 import hashlib
 import os
 import platform
+import subprocess
+import sys
 import threading
 from pathlib import Path
 
@@ -19,13 +26,14 @@ import numpy as np
 
 from review_alloc import __version__
 from review_alloc.flow.costscaling import cost_scaling_kernel, exact_potentials
-from review_alloc.flow.dinic import dinic_kernel, reachable_kernel
+from review_alloc.flow.dinic import dinic_kernel, max_flow_kernel, reachable_kernel
 from review_alloc.flow.maxflow import max_flow
 from review_alloc.flow.mincost import min_cost_flow, primal_dual_kernel
 from review_alloc.flow.network import _csr_kernel
 
 _KERNELS = (
     _csr_kernel,
+    max_flow_kernel,
     dinic_kernel,
     reachable_kernel,
     primal_dual_kernel,
@@ -60,23 +68,77 @@ def solver_cache_ready() -> bool:
         return False
 
 
-def warm_up() -> None:
-    """Run each solver once on a tiny graph so that later calls start at full speed."""
+_GROUPS = ("max flow, primal-dual", "lower bounds, cost scaling")
+"""Kernel groups of about equal compile time; a group's kernels share few callees."""
+
+_CHILD = "import sys; from review_alloc.flow.warm import exercise; exercise(sys.argv[1])"
+
+# Path 0 -> 1 -> 2 plus a direct edge; the lower bound exercises the circulation stage.
+_TAILS = np.array([0, 1, 0], dtype=np.int64)
+_HEADS = np.array([1, 2, 2], dtype=np.int64)
+_CAPACITIES = np.array([2, 2, 1], dtype=np.int64)
+_CIRCULATION = (
+    np.append(_TAILS, 2),
+    np.append(_HEADS, 0),
+    np.append(_CAPACITIES, 3),
+    np.array([1, 1, 3, -4], dtype=np.int64),
+)
+
+
+def exercise(group: str) -> None:
+    """Run the solvers of one kernel group on a tiny graph, compiling or loading its kernels."""
+    if group == _GROUPS[0]:
+        max_flow(3, _TAILS, _HEADS, _CAPACITIES, 0, 2)
+        min_cost_flow(3, *_CIRCULATION, method="primal-dual")
+    elif group == _GROUPS[1]:
+        max_flow(3, _TAILS, _HEADS, _CAPACITIES, 0, 2, lower=np.array([1, 0, 0], np.int64))
+        min_cost_flow(3, *_CIRCULATION, method="cost-scaling")
+    else:
+        raise ValueError(f"unknown kernel group {group!r}; choose from {_GROUPS}")
+
+
+def _compile_in_children() -> bool:
+    """Compile the kernel groups in parallel child processes; whether all of them succeeded."""
+    if (os.cpu_count() or 1) < 2 or not sys.executable:
+        return False
+    env = dict(os.environ)
+    # The children must import this very copy of the package and write the same cache.
+    package_root = str(Path(__file__).resolve().parents[2])
+    env["PYTHONPATH"] = os.pathsep.join(p for p in (package_root, env.get("PYTHONPATH")) if p)
+    if numba.config.CACHE_DIR:
+        env["NUMBA_CACHE_DIR"] = numba.config.CACHE_DIR
+    try:
+        children = [
+            subprocess.Popen(
+                [sys.executable, "-c", _CHILD, group], env=env,
+                stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+            )
+            for group in _GROUPS
+        ]
+    except OSError:
+        return False
+    ok = True
+    for child in children:
+        try:
+            ok = child.wait(timeout=600) == 0 and ok
+        except subprocess.TimeoutExpired:
+            child.kill()
+            ok = False
+    return ok
+
+
+def warm_up(parallel: bool = True) -> None:
+    """Compile or load every kernel so that later calls start at full speed.
+
+    With `parallel` and an empty cache, child processes compile the kernel groups side by side
+    first; the kernels are then loaded (or, if a child failed, compiled) in this process.
+    """
     with _lock:
-        # Path 0 -> 1 -> 2 plus a direct edge; the lower bound exercises the circulation stage.
-        tails = np.array([0, 1, 0], dtype=np.int64)
-        heads = np.array([1, 2, 2], dtype=np.int64)
-        capacities = np.array([2, 2, 1], dtype=np.int64)
-        max_flow(3, tails, heads, capacities, 0, 2)
-        max_flow(3, tails, heads, capacities, 0, 2, lower=np.array([1, 0, 0], dtype=np.int64))
-        circulation = (
-            np.append(tails, 2),
-            np.append(heads, 0),
-            np.append(capacities, 3),
-            np.array([1, 1, 3, -4], dtype=np.int64),
-        )
-        for method in ("cost-scaling", "primal-dual"):
-            min_cost_flow(3, *circulation, method=method)
+        if parallel and not kernels_ready() and not solver_cache_ready():
+            # A failure only means this process compiles what the children did not.
+            _compile_in_children()
+        for group in _GROUPS:
+            exercise(group)
         if kernels_ready() and not solver_cache_ready():
             try:
                 _marker().touch()

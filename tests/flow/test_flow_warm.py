@@ -8,6 +8,8 @@ import subprocess
 import sys
 from pathlib import Path
 
+import pytest
+
 from review_alloc.flow import kernels_ready, max_flow, warm_up
 
 _ROOT = Path(__file__).resolve().parents[2]
@@ -76,3 +78,38 @@ def test_warm_up_in_process() -> None:
     warm_up()
     assert kernels_ready()
     assert max_flow(2, [0], [1], [5], 0, 1).value == 5
+
+
+
+_CHILDREN_ONLY = """
+from review_alloc.flow.warm import _compile_in_children
+assert _compile_in_children()
+"""
+
+_LOADS_ONLY = """
+import json
+import review_alloc.flow as flow
+from review_alloc.flow.warm import _KERNELS
+flow.warm_up(parallel=False)
+print(json.dumps({k.__name__: [sum(k.stats.cache_hits.values()), sum(k.stats.cache_misses.values())]
+                  for k in _KERNELS}))
+"""
+
+
+def test_children_fill_the_cache_so_the_parent_only_loads(tmp_path: Path) -> None:
+    # The parallel cold start compiles in child processes; every kernel must then come from disk.
+    env = dict(os.environ, NUMBA_CACHE_DIR=str(tmp_path), PYTHONPATH=str(_ROOT))
+    for code in (_CHILDREN_ONLY, _LOADS_ONLY):
+        done = subprocess.run(
+            [sys.executable, "-c", code], env=env, capture_output=True, text=True, timeout=300,
+            check=True,
+        )
+    counts = json.loads(done.stdout.strip().splitlines()[-1])
+    assert counts and all(hits >= 1 and misses == 0 for hits, misses in counts.values()), counts
+
+
+def test_an_unknown_kernel_group_is_refused() -> None:
+    from review_alloc.flow.warm import exercise
+
+    with pytest.raises(ValueError, match="no such group"):
+        exercise("no such group")
