@@ -33,7 +33,7 @@ from review_alloc.plan.fairness import coverage_flows, highest_threshold, score_
 from review_alloc.plan.figures import plan_figures
 from review_alloc.plan.leads import LeadChoice, lead_choice, lead_mask
 from review_alloc.plan.network import SCORE_RESOLUTION, PlanNetwork, build_network
-from review_alloc.plan.warm import warm_start_for
+from review_alloc.plan.warm import same_cost_scale, warm_start_for
 
 METHOD = "lexicographic min-cost flow (cost scaling; re-plans warm-started by primal-dual)"
 
@@ -91,7 +91,7 @@ def tier_values(net: PlanNetwork, used: np.ndarray) -> dict[str, float]:
 def _run(session: Session, net: PlanNetwork, warm: PlanOutcome | None = None) -> CostFlowResult:
     """Solve one network; a hard rule that cannot be met becomes a PlanInputError."""
     start = None
-    if warm is not None and warm.flow is not None:
+    if warm is not None and warm.flow is not None and same_cost_scale(warm.network, net):
         start = warm_start_for(warm.network, warm.flow, warm.potentials, net)
     try:
         return min_cost_flow(

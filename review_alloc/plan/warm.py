@@ -66,6 +66,21 @@ def _pair_keys(net: PlanNetwork, n_papers: int) -> np.ndarray:
     return net.pair_reviewer * n_papers + net.pair_paper
 
 
+def same_cost_scale(old: PlanNetwork, new: PlanNetwork) -> bool:
+    """Whether both networks weigh the tiers alike, so that old potentials mean something.
+
+    A re-plan's keep tier, or coarser score steps, multiply the weights of every tier above the
+    score: an earlier optimum's potentials are then off by that factor on almost every arc, and
+    a warm start from them would only delay the cold solve.
+    """
+    return (
+        old.weights == new.weights
+        and old.senior_weight == new.senior_weight
+        and old.keep_weight == new.keep_weight
+        and old.resolution == new.resolution
+    )
+
+
 def warm_start_for(
     old: PlanNetwork, flow: np.ndarray, potentials: np.ndarray, new: PlanNetwork
 ) -> WarmStart:

@@ -80,3 +80,54 @@ def test_warm_start_from_a_different_session_shape_still_plans() -> None:
     f = warm.plan.figures
     assert (f.required_coverage, f.coverage, f.floors_met) == ref[:3]
     assert f.total_score == pytest.approx(ref[3], abs=1e-6)
+
+
+def _warm_arguments(monkeypatch: pytest.MonkeyPatch) -> list[object]:
+    """Record the `warm` argument of every engine call the planner makes."""
+    import review_alloc.plan.solve as solve
+
+    seen: list[object] = []
+    engine = solve.min_cost_flow
+
+    def recording(*args: object, **kwargs: object) -> object:
+        seen.append(kwargs.get("warm"))
+        return engine(*args, **kwargs)
+
+    monkeypatch.setattr(solve, "min_cost_flow", recording)
+    return seen
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_re_plans_that_keep_earlier_pairs_start_warm_once_the_weights_agree(
+    seed: int, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # The workspace re-plans a session that holds its plan, so the keep tier is on; the first
+    # re-plan after a fresh plan weighs the tiers differently and must not start warm.
+    rng = np.random.default_rng(3000 + seed)
+    session = random_session(500 + seed)
+    outcome = make_plan(session)
+    seen = _warm_arguments(monkeypatch)
+    warm_used = []
+    for step in range(4):
+        session = Session.model_validate(
+            _changed(session, rng).model_copy(update={"plan": outcome.plan}).model_dump()
+        )
+        seen.clear()
+        warm = make_plan(session, warm=outcome)
+        warm_used.append(any(s is not None for s in seen))
+        if step == 0:
+            assert not warm_used[0], "potentials of a fresh plan cannot price a keep tier"
+        cold = make_plan(session)
+        w, c = warm.plan.figures, cold.plan.figures
+        assert warm.plan.checked
+        assert (w.required_coverage, w.coverage, w.floors_met) == (
+            c.required_coverage, c.coverage, c.floors_met)
+        kept = {(a.reviewer, a.paper) for a in session.plan.assignments}
+        assert sum((a.reviewer, a.paper) in kept for a in warm.plan.assignments) == sum(
+            (a.reviewer, a.paper) in kept for a in cold.plan.assignments)
+        assert w.total_score == pytest.approx(c.total_score, abs=1e-9)
+        # Reference: HiGHS (scipy.optimize.linprog), tier by tier, for the tiers above keep.
+        ref = _reference(session)
+        assert (w.required_coverage, w.coverage, w.floors_met) == ref[:3]
+        outcome = warm
+    assert any(warm_used[1:]), "keep-to-keep re-plans should start from the earlier optimum"
