@@ -34,14 +34,26 @@ def _relabel(
     factor: int,
     price: np.ndarray,
     eps: int,
+    current: np.ndarray,
 ) -> int:
-    """The largest price of u that keeps every residual arc out of u epsilon-optimal, minus eps."""
+    """A new price for u, which has no admissible arc; `current[u]` moves to its first new one.
+
+    Lowering by eps keeps every residual arc epsilon-optimal (all have reduced cost >= 0), so
+    the scan stops at the first arc that this makes admissible, as OR-Tools' relabel does;
+    only when there is none is the largest epsilon-optimal drop needed (all arcs scanned).
+    Returns -(2**62) - eps when u has no residual arc at all.
+    """
+    floor = price[u] - eps
     best = -(2**62)
     for b in range(start[u], start[u + 1]):
         if cap[b] > 0:
             candidate = price[head[b]] - np.int64(cost[b]) * factor
+            if candidate > floor:
+                current[u] = b
+                return floor
             if candidate > best:
                 best = candidate
+    current[u] = start[u]
     return best - eps
 
 
@@ -242,12 +254,13 @@ def cost_scaling_kernel(
                                     v, start, head, cap, cost, factor, price, current
                                 )
                             ):
-                                lowered = _relabel(v, start, head, cap, cost, factor, price, eps)
+                                lowered = _relabel(
+                                    v, start, head, cap, cost, factor, price, eps, current
+                                )
                                 # A node whose arcs are all full or fixed has no price to
                                 # drop to; the push itself gives it the way back to u.
                                 if lowered != -(2**62) - eps:
                                     price[v] = lowered
-                                    current[v] = start[v]
                                     relabels += 1
                                     since_update += 1
                                     if price[v] < -PRICE_LIMIT:
@@ -274,9 +287,11 @@ def cost_scaling_kernel(
                 if excess[u] > 0:
                     if full:
                         price[u] = best - eps
+                        current[u] = start[u]
                     else:
-                        price[u] = _relabel(u, start, head, cap, cost, factor, price, eps)
-                    current[u] = start[u]
+                        price[u] = _relabel(
+                            u, start, head, cap, cost, factor, price, eps, current
+                        )
                     relabels += 1
                     since_update += 1
                     if price[u] < -PRICE_LIMIT:
