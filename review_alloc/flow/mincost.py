@@ -57,6 +57,10 @@ PRICE_UPDATE_EVERY = 0
 """Global price updates every this many times n relabels (0: off; they did not pay on the
 benchmark instances, where push look-ahead already keeps relabels low)."""
 
+OPTIMALITY_TEST_SCANS = 2
+"""Cost scaling tests for early optimality after each phase with eps below one cost unit, giving
+each test at most this many passes over the arcs (a test that succeeds needs about one)."""
+
 _INF = np.iinfo(np.int64).max
 
 
@@ -264,6 +268,14 @@ def _warm_primal_dual(
     return net, -potentials
 
 
+def _narrow(values: np.ndarray, reach: np.ndarray) -> np.ndarray:
+    """An int32 copy of `values` if every value in `reach` fits in int32, else `values` itself."""
+    info = np.iinfo(np.int32)
+    if reach.size == 0 or (int(reach.min()) >= info.min and int(reach.max()) <= info.max):
+        return values.astype(np.int32)
+    return values
+
+
 def _cost_scaling(edges: EdgeArrays, need: np.ndarray) -> tuple[ResidualNetwork, np.ndarray] | None:
     """Cost scaling from a Dinic-routed feasible flow; None if prices would leave int64."""
     n = edges.n
@@ -281,11 +293,17 @@ def _cost_scaling(edges: EdgeArrays, need: np.ndarray) -> tuple[ResidualNetwork,
     net.cap[net.rev[terminal]] = 0
     factor = n + 3
     prices = np.zeros(n + 2, dtype=np.int64)
+    # The kernel is bound by reading arcs: 4-byte residuals and costs, where every value fits,
+    # cut the bytes read per arc from 20 to 12.
+    cap = _narrow(net.cap, net.cap + net.cap[net.rev])
+    cost = _narrow(net.cost, net.cost)
     ok, _, _ = cost_scaling_kernel(
-        net.start, net.head, net.cap, net.rev, net.cost, prices,
+        net.start, net.head, cap, net.rev, cost, prices,
         np.int64(factor), np.int64(SCALING_ALPHA), np.int64(0), True,
-        np.int64(PRICE_UPDATE_EVERY),
+        np.int64(PRICE_UPDATE_EVERY), np.int64(OPTIMALITY_TEST_SCANS * net.head.size),
     )
+    if cap is not net.cap:
+        net.cap[:] = cap
     if not ok:
         return None
     # Every residual arc has scaled reduced cost >= -1, so floor(prices / factor) misses the

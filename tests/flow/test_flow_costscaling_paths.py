@@ -1,0 +1,126 @@
+"""Cost-scaling code paths: the early optimality test and the int32 / int64 arc arrays.
+
+Every optimum is compared with OR-Tools SimpleMinCostFlow (`ortools_cost`) and passes the
+reduced-cost certificate check.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from flow_helpers import ortools_cost
+
+from review_alloc.flow import check_cost_certificate, min_cost_flow
+from review_alloc.flow.costscaling import cost_scaling_kernel, exact_potentials
+from review_alloc.flow.dinic import dinic
+from review_alloc.flow.mincost import _narrow
+from review_alloc.flow.network import build_with_terminals, net_outflow
+
+
+def assignment_circulation(
+    rng: np.random.Generator, n_left: int, n_right: int, per_right: int, scale: int
+) -> tuple[int, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """A planner-like circulation: source -> left -> right -> sink -> source, rewarded coverage."""
+    source, sink = 0, 1 + n_left + n_right
+    tails, heads, caps, costs = [], [], [], []
+    for j in range(n_left):
+        tails.append(source)
+        heads.append(1 + j)
+        caps.append(int(rng.integers(1, 4)))
+        costs.append(0)
+    for i in range(n_right):
+        for j in rng.choice(n_left, per_right, replace=False):
+            tails.append(1 + int(j))
+            heads.append(1 + n_left + i)
+            caps.append(1)
+            costs.append(-int(rng.integers(0, 10_000)) * scale)
+        tails.append(1 + n_left + i)
+        heads.append(sink)
+        caps.append(2)
+        costs.append(-1_000_000 * scale)
+    tails.append(sink)
+    heads.append(source)
+    caps.append(10 * n_right)
+    costs.append(0)
+    return (
+        sink + 1,
+        np.array(tails, np.int64),
+        np.array(heads, np.int64),
+        np.array(caps, np.int64),
+        np.array(costs, np.int64),
+    )
+
+
+def run_kernel(
+    n: int, tails: np.ndarray, heads: np.ndarray, caps: np.ndarray, costs: np.ndarray,
+    test_budget: int, narrow: bool,
+) -> tuple[int, int]:
+    """Cost scaling straight through the kernel; returns (certified cost, phases)."""
+    lower = np.zeros(len(tails), np.int64)
+    excess = -net_outflow(n, tails, heads, lower)
+    net, _ = build_with_terminals(n, tails, heads, caps, lower, lower, excess, costs)
+    dinic(net, n, n + 1)
+    terminal = net.arc_of_edge[len(tails):]
+    net.cap[terminal] = 0
+    net.cap[net.rev[terminal]] = 0
+    cap = _narrow(net.cap, net.cap + net.cap[net.rev]) if narrow else net.cap
+    cost = _narrow(net.cost, net.cost) if narrow else net.cost
+    assert (cap.dtype == np.int32) == narrow
+    factor = n + 3
+    prices = np.zeros(n + 2, np.int64)
+    ok, phases, _ = cost_scaling_kernel(
+        net.start, net.head, cap, net.rev, cost, prices, np.int64(factor), np.int64(8),
+        np.int64(0), True, np.int64(0), np.int64(test_budget),
+    )
+    assert ok
+    net.cap[:] = cap
+    pot = np.floor_divide(prices, factor)
+    assert exact_potentials(net.start, net.head, net.cap, net.cost, pot)
+    flow = net.edge_flow(lower)
+    return check_cost_certificate(n, tails, heads, caps, costs, flow, pot[:n]), phases
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_early_optimality_test_keeps_the_optimum(seed: int) -> None:
+    rng = np.random.default_rng(seed)
+    n, tails, heads, caps, costs = assignment_circulation(rng, 30, 40, 6, 1)
+    reference = ortools_cost(n, tails, heads, caps, costs)  # OR-Tools SimpleMinCostFlow
+    full, full_phases = run_kernel(n, tails, heads, caps, costs, 0, narrow=True)
+    early, early_phases = run_kernel(n, tails, heads, caps, costs, 4 * 2 * len(tails), True)
+    assert full == early == reference
+    assert early_phases <= full_phases
+
+
+def test_early_optimality_test_skips_phases() -> None:
+    # Uniform costs of 0 or -1 per unit: short cycles decide, so the flow is optimal early.
+    rng = np.random.default_rng(7)
+    n, tails, heads, caps, costs = assignment_circulation(rng, 40, 60, 8, 1)
+    costs = np.where(costs < 0, -(rng.integers(0, 2, len(costs))), 0).astype(np.int64)
+    costs[-2] = -1000
+    reference = ortools_cost(n, tails, heads, caps, costs)  # OR-Tools SimpleMinCostFlow
+    full, full_phases = run_kernel(n, tails, heads, caps, costs, 0, narrow=True)
+    early, early_phases = run_kernel(n, tails, heads, caps, costs, 4 * 2 * len(tails), True)
+    assert full == early == reference
+    assert early_phases < full_phases
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_wide_arrays_when_costs_do_not_fit_int32(seed: int) -> None:
+    rng = np.random.default_rng(100 + seed)
+    # Costs near 2**40 cannot be narrowed, so the kernel runs on the int64 arrays.
+    n, tails, heads, caps, costs = assignment_circulation(rng, 20, 25, 5, 2**20)
+    reference = ortools_cost(n, tails, heads, caps, costs)  # OR-Tools SimpleMinCostFlow
+    wide, _ = run_kernel(n, tails, heads, caps, costs, 4 * 2 * len(tails), narrow=False)
+    assert wide == reference
+    result = min_cost_flow(n, tails, heads, caps, costs)
+    assert result.cost == reference
+    assert check_cost_certificate(
+        n, tails, heads, caps, costs, result.flow, result.potentials
+    ) == reference
+
+
+def test_narrow_refuses_values_beyond_int32() -> None:
+    values = np.array([1, 2, 3], np.int64)
+    assert _narrow(values, values).dtype == np.int32
+    wide = np.array([1, 2**31], np.int64)
+    assert _narrow(wide, wide) is wide
