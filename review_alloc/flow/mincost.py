@@ -53,10 +53,6 @@ WARM_WORK_LIMIT = 20
 """A warm start gives up (and the cold solver takes over) once its shortest-path searches have
 scanned this many times the arcs of the network: by then cost scaling would be done."""
 
-PRICE_UPDATE_EVERY = 0
-"""Global price updates every this many times n relabels (0: off; they did not pay on the
-benchmark instances, where push look-ahead already keeps relabels low)."""
-
 OPTIMALITY_TEST_SCANS = 2
 """Cost scaling tests for early optimality after each phase with eps below one cost unit, giving
 each test at most this many passes over the arcs (a test that succeeds needs about one)."""
@@ -87,7 +83,8 @@ def dijkstra(
     dist[:] = _INF
     done[:] = False
     dist[source] = 0
-    size = heap_push(heap_keys, heap_nodes, 0, 0, source)
+    # Typed zeros: literals would compile a second copy of heap_push.
+    size = heap_push(heap_keys, heap_nodes, np.int64(0), np.int64(0), source)
     while size > 0:
         d, u, size = heap_pop(heap_keys, heap_nodes, size)
         if done[u]:
@@ -152,7 +149,9 @@ def primal_dual_kernel(
         while routed < demand and bfs_levels(
             start, head, cap, source, sink, level, queue, cost, pot
         ):
-            it[:] = start[:n]
+            # A loop: a slice copy compiles numba's costly shape-mismatch message.
+            for v in range(n):
+                it[v] = start[v]
             routed += blocking_flow(
                 start, head, cap, rev, source, sink, level, it, stack, cost, pot
             )
@@ -293,14 +292,16 @@ def _cost_scaling(edges: EdgeArrays, need: np.ndarray) -> tuple[ResidualNetwork,
     net.cap[net.rev[terminal]] = 0
     factor = n + 3
     prices = np.zeros(n + 2, dtype=np.int64)
-    # The kernel is bound by reading arcs: 4-byte residuals and costs, where every value fits,
-    # cut the bytes read per arc from 20 to 12.
+    # The kernel is bound by reading arcs: 4-byte residuals, where every value fits, cut the
+    # bytes read per arc. Costs stay int64: a re-plan's keep tier needs that range, and 4-byte
+    # costs only where they fit would compile (and warm up) a second copy of the kernel for a
+    # gain lost in the noise on the L instances.
     cap = _narrow(net.cap, net.cap + net.cap[net.rev])
-    cost = _narrow(net.cost, net.cost)
+    cost = net.cost
     ok, _, _ = cost_scaling_kernel(
         net.start, net.head, cap, net.rev, cost, prices,
         np.int64(factor), np.int64(SCALING_ALPHA), np.int64(0), True,
-        np.int64(PRICE_UPDATE_EVERY), np.int64(OPTIMALITY_TEST_SCANS * net.head.size),
+        np.int64(OPTIMALITY_TEST_SCANS * net.head.size),
     )
     if cap is not net.cap:
         net.cap[:] = cap

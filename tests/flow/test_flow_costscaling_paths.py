@@ -70,7 +70,7 @@ def run_kernel(
     prices = np.zeros(n + 2, np.int64)
     ok, phases, _ = cost_scaling_kernel(
         net.start, net.head, cap, net.rev, cost, prices, np.int64(factor), np.int64(8),
-        np.int64(0), True, np.int64(0), np.int64(test_budget),
+        np.int64(0), True, np.int64(test_budget),
     )
     assert ok
     net.cap[:] = cap
