@@ -371,7 +371,15 @@ import resource, sys
 sys.path.insert(0, {root!r})
 from review_alloc.cli import main
 code = main(["plan", {path!r}])
-print(code, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
+# VmHWM is this process's own peak; Linux carries ru_maxrss over from the forking parent, so a
+# large benchmark process would inflate it.
+peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+try:
+    with open("/proc/self/status") as status:
+        peak = next(int(line.split()[1]) for line in status if line.startswith("VmHWM:"))
+except (OSError, StopIteration):
+    pass
+print(code, peak)
 """
 
 
