@@ -17,9 +17,38 @@ from __future__ import annotations
 
 import numpy as np
 from numba import njit
+from numba.cpython.unsafe.numbers import trailing_zeros
 
 PRICE_LIMIT = 2**61
 """A price beyond this aborts the kernel, which then reports failure instead of overflowing."""
+
+
+_ONE = np.uint64(1)
+
+
+@njit(cache=True, nogil=True)
+def _live_bits(cap: np.ndarray) -> np.ndarray:
+    """One bit per arc, set where the arc has residual capacity (64 arcs to a word)."""
+    live = np.zeros((cap.size + 63) // 64 + 1, dtype=np.uint64)
+    for a in range(cap.size):
+        if cap[a] > 0:
+            live[a >> 6] |= _ONE << np.uint64(a & 63)
+    return live
+
+
+@njit(cache=True, nogil=True)
+def _next_live(live: np.ndarray, a: int, end: int) -> int:
+    """The first arc in `a:end` with residual capacity, or `end`.
+
+    A node's arcs are contiguous, so one word covers up to 64 of them: a paper's many reverse
+    arcs, almost all empty, are skipped a word at a time without reading their capacities.
+    """
+    while a < end:
+        word = live[a >> 6] >> np.uint64(a & 63)
+        if word != 0:
+            return min(a + np.int64(trailing_zeros(word)), end)
+        a = (a | 63) + 1
+    return end
 
 
 @njit(cache=True, nogil=True)
@@ -27,7 +56,7 @@ def _relabel(
     u: int,
     start: np.ndarray,
     head: np.ndarray,
-    cap: np.ndarray,
+    live: np.ndarray,
     cost: np.ndarray,
     factor: int,
     price: np.ndarray,
@@ -43,14 +72,16 @@ def _relabel(
     """
     floor = price[u] - eps
     best = -(2**62)
-    for b in range(start[u], start[u + 1]):
-        if cap[b] > 0:
-            candidate = price[head[b]] - np.int64(cost[b]) * factor
-            if candidate > floor:
-                current[u] = b
-                return floor
-            if candidate > best:
-                best = candidate
+    end = start[u + 1]
+    b = _next_live(live, start[u], end)
+    while b < end:
+        candidate = price[head[b]] - np.int64(cost[b]) * factor
+        if candidate > floor:
+            current[u] = b
+            return floor
+        if candidate > best:
+            best = candidate
+        b = _next_live(live, b + 1, end)
     current[u] = start[u]
     return best - eps
 
@@ -60,7 +91,7 @@ def _has_admissible(
     v: int,
     start: np.ndarray,
     head: np.ndarray,
-    cap: np.ndarray,
+    live: np.ndarray,
     cost: np.ndarray,
     factor: int,
     price: np.ndarray,
@@ -68,11 +99,14 @@ def _has_admissible(
 ) -> bool:
     """Whether v has an admissible arc at or after its current arc (moving the pointer to it)."""
     pv = price[v]
-    for a in range(current[v], start[v + 1]):
-        if cap[a] > 0 and np.int64(cost[a]) * factor + pv - price[head[a]] < 0:
+    end = start[v + 1]
+    a = _next_live(live, current[v], end)
+    while a < end:
+        if np.int64(cost[a]) * factor + pv - price[head[a]] < 0:
             current[v] = a
             return True
-    current[v] = start[v + 1]
+        a = _next_live(live, a + 1, end)
+    current[v] = end
     return False
 
 
@@ -116,6 +150,8 @@ def cost_scaling_kernel(
     queue = np.empty(n, dtype=np.int64)
     queued = np.zeros(n, dtype=np.bool_)
     trial = np.empty(n, dtype=np.int64)
+    # Kept equal to `cap > 0` on every push: scans skip full arcs a word at a time.
+    live = _live_bits(cap)
     phases = 0
     relabels = 0
     while eps > 1:
@@ -124,15 +160,20 @@ def cost_scaling_kernel(
         # Saturating every arc of negative reduced cost makes the pseudoflow 0-optimal.
         for u in range(n):
             pu = price[u]
-            for a in range(start[u], start[u + 1]):
-                r = cap[a]
-                if r > 0:
-                    v = head[a]
-                    if np.int64(cost[a]) * factor + pu - price[v] < 0:
-                        cap[a] = 0
-                        cap[rev[a]] += r
-                        excess[u] -= r
-                        excess[v] += r
+            end = start[u + 1]
+            a = _next_live(live, start[u], end)
+            while a < end:
+                v = head[a]
+                if np.int64(cost[a]) * factor + pu - price[v] < 0:
+                    r = cap[a]
+                    cap[a] = 0
+                    live[a >> 6] &= ~(_ONE << np.uint64(a & 63))
+                    b = rev[a]
+                    cap[b] += r
+                    live[b >> 6] |= _ONE << np.uint64(b & 63)
+                    excess[u] -= r
+                    excess[v] += r
+                a = _next_live(live, a + 1, end)
         q_tail = 0
         size = 0
         for u in range(n):
@@ -156,55 +197,58 @@ def cost_scaling_kernel(
             end = start[u + 1]
             while excess[u] > 0:
                 pu = price[u]
-                a = current[u]
                 # A scan of all of u's arcs also yields its new price, so relabelling is free.
-                full = a == start[u]
+                full = current[u] == start[u]
+                a = _next_live(live, current[u], end)
                 best = -(2**62)
                 while a < end:
-                    r = cap[a]
-                    if r > 0:
-                        v = head[a]
-                        pv = price[v]
-                        sc = np.int64(cost[a]) * factor
-                        if sc + pu - pv < 0:
-                            if (
-                                lookahead
-                                and excess[v] >= 0
-                                and v != u
-                                and not _has_admissible(
-                                    v, start, head, cap, cost, factor, price, current
-                                )
-                            ):
-                                # int64 like u below: one compiled copy of _relabel.
-                                lowered = _relabel(
-                                    np.int64(v), start, head, cap, cost, factor, price, eps,
-                                    current,
-                                )
-                                # A node whose arcs are all full or fixed has no price to
-                                # drop to; the push itself gives it the way back to u.
-                                if lowered != -(2**62) - eps:
-                                    price[v] = lowered
-                                    relabels += 1
-                                    if price[v] < -PRICE_LIMIT:
-                                        return False, phases, relabels
-                                    continue
-                            d = min(r, excess[u])
-                            cap[a] -= d
-                            cap[rev[a]] += d
-                            excess[u] -= d
-                            excess[v] += d
-                            if excess[v] > 0 and not queued[v] and v != u:
-                                queue[q_tail] = v
-                                q_tail += 1
-                                if q_tail == n:
-                                    q_tail = 0
-                                size += 1
-                                queued[v] = True
-                            if excess[u] == 0:
-                                break
-                        elif pv - sc > best:
-                            best = pv - sc
-                    a += 1
+                    v = head[a]
+                    pv = price[v]
+                    sc = np.int64(cost[a]) * factor
+                    if sc + pu - pv < 0:
+                        if (
+                            lookahead
+                            and excess[v] >= 0
+                            and v != u
+                            and not _has_admissible(
+                                v, start, head, live, cost, factor, price, current
+                            )
+                        ):
+                            # int64 like u below: one compiled copy of _relabel.
+                            lowered = _relabel(
+                                np.int64(v), start, head, live, cost, factor, price, eps,
+                                current,
+                            )
+                            # A node whose arcs are all full or fixed has no price to
+                            # drop to; the push itself gives it the way back to u.
+                            if lowered != -(2**62) - eps:
+                                price[v] = lowered
+                                relabels += 1
+                                if price[v] < -PRICE_LIMIT:
+                                    return False, phases, relabels
+                                continue
+                        r = cap[a]
+                        d = min(r, excess[u])
+                        cap[a] = r - d
+                        if r == d:
+                            live[a >> 6] &= ~(_ONE << np.uint64(a & 63))
+                        b = rev[a]
+                        cap[b] += d
+                        live[b >> 6] |= _ONE << np.uint64(b & 63)
+                        excess[u] -= d
+                        excess[v] += d
+                        if excess[v] > 0 and not queued[v] and v != u:
+                            queue[q_tail] = v
+                            q_tail += 1
+                            if q_tail == n:
+                                q_tail = 0
+                            size += 1
+                            queued[v] = True
+                        if excess[u] == 0:
+                            break
+                    elif pv - sc > best:
+                        best = pv - sc
+                    a = _next_live(live, a + 1, end)
                 current[u] = a
                 if excess[u] > 0:
                     if full:
@@ -212,7 +256,7 @@ def cost_scaling_kernel(
                         current[u] = start[u]
                     else:
                         price[u] = _relabel(
-                            u, start, head, cap, cost, factor, price, eps, current
+                            u, start, head, live, cost, factor, price, eps, current
                         )
                     relabels += 1
                     if price[u] < -PRICE_LIMIT:

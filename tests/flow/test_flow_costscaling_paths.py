@@ -1,17 +1,24 @@
-"""Cost-scaling code paths: the early optimality test and the int32 / int64 arc arrays.
+"""Cost-scaling code paths: the early optimality test, the int32 / int64 arc arrays and the
+bitmap of arcs with residual capacity that the scans follow.
 
-Every optimum is compared with OR-Tools SimpleMinCostFlow (`ortools_cost`) and passes the
-reduced-cost certificate check.
+Every optimum is compared with OR-Tools SimpleMinCostFlow (`ortools_cost`) or networkx's
+network simplex, and passes the reduced-cost certificate check.
 """
 
 from __future__ import annotations
 
+import networkx as nx
 import numpy as np
 import pytest
 from flow_helpers import ortools_cost
 
 from review_alloc.flow import check_cost_certificate, min_cost_flow
-from review_alloc.flow.costscaling import cost_scaling_kernel, exact_potentials
+from review_alloc.flow.costscaling import (
+    _live_bits,
+    _next_live,
+    cost_scaling_kernel,
+    exact_potentials,
+)
 from review_alloc.flow.dinic import dinic
 from review_alloc.flow.mincost import _narrow
 from review_alloc.flow.network import build_with_terminals, net_outflow
@@ -124,3 +131,83 @@ def test_narrow_refuses_values_beyond_int32() -> None:
     assert _narrow(values, values).dtype == np.int32
     wide = np.array([1, 2**31], np.int64)
     assert _narrow(wide, wide) is wide
+
+
+@pytest.mark.parametrize("seed", range(3))
+@pytest.mark.parametrize("narrow", [True, False])
+def test_nodes_with_more_than_64_arcs(seed: int, narrow: bool) -> None:
+    rng = np.random.default_rng(200 + seed)
+    # 150 candidates per right node and about 230 arcs per left node: every node's arcs span
+    # several bitmap words, and most words hold the arcs of two nodes.
+    n, tails, heads, caps, costs = assignment_circulation(rng, 200, 300, 150, 1)
+    reference = ortools_cost(n, tails, heads, caps, costs)  # OR-Tools SimpleMinCostFlow
+    for budget in (0, 4 * 2 * len(tails)):
+        got, _ = run_kernel(n, tails, heads, caps, costs, budget, narrow)
+        assert got == reference
+
+
+def networkx_cost(
+    n: int, tails: np.ndarray, heads: np.ndarray, caps: np.ndarray, costs: np.ndarray,
+    supplies: np.ndarray,
+) -> int:
+    """Optimal cost by networkx's network simplex (parallel edges split by a middle node)."""
+    graph = nx.DiGraph()
+    for v in range(n):
+        graph.add_node(v, demand=-int(supplies[v]))
+    for e, (t, h, c, w) in enumerate(zip(tails, heads, caps, costs, strict=True)):
+        middle = ("e", e)
+        graph.add_node(middle, demand=0)
+        graph.add_edge(int(t), middle, capacity=int(c), weight=int(w))
+        graph.add_edge(middle, int(h), capacity=int(c), weight=0)
+    return int(nx.network_simplex(graph)[0])
+
+
+@pytest.mark.parametrize("degree", [63, 64, 65, 130])
+@pytest.mark.parametrize("seed", range(3))
+def test_hub_arcs_saturate_and_reopen(degree: int, seed: int) -> None:
+    rng = np.random.default_rng(300 + 7 * degree + seed)
+    # A hub with `degree` arcs of capacity 1..5 to spokes that route on to the others and back:
+    # pushes fill arcs partly and fully, and reverse arcs gain and lose capacity again, so bits
+    # are set and cleared many times over, across word boundaries of the hub and its neighbours.
+    n = degree + 2
+    hub, sink = 0, n - 1
+    tails, heads = [], []
+    for spoke in range(1, degree + 1):
+        tails += [hub, spoke]
+        heads += [spoke, sink]
+    for _ in range(4 * degree):
+        a, b = rng.choice(np.arange(1, degree + 1), 2, replace=False)
+        tails.append(int(a))
+        heads.append(int(b))
+    for _ in range(degree // 4):
+        tails.append(int(rng.integers(1, degree + 1)))
+        heads.append(hub)
+    m = len(tails)
+    caps = rng.integers(1, 6, m).astype(np.int64)
+    costs = rng.integers(-50, 50, m).astype(np.int64)
+    supplies = np.zeros(n, np.int64)
+    # Each spoke alone can pass min(in, out) units, so this much supply is always feasible.
+    supplies[hub] = int(np.minimum(caps[: 2 * degree : 2], caps[1 : 2 * degree : 2]).sum())
+    supplies[sink] = -supplies[hub]
+    tails_a, heads_a = np.array(tails, np.int64), np.array(heads, np.int64)
+    reference = networkx_cost(n, tails_a, heads_a, caps, costs, supplies)  # networkx simplex
+    assert reference == ortools_cost(n, tails_a, heads_a, caps, costs, supplies)  # OR-Tools
+    result = min_cost_flow(n, tails_a, heads_a, caps, costs, supplies=supplies)
+    assert result.cost == reference
+    assert check_cost_certificate(
+        n, tails_a, heads_a, caps, costs, result.flow, result.potentials, supplies=supplies
+    ) == reference
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_next_live_finds_the_next_arc_with_capacity(seed: int) -> None:
+    rng = np.random.default_rng(400 + seed)
+    cap = np.where(rng.random(300) < 0.15, rng.integers(1, 4, 300), 0).astype(np.int32)
+    live = _live_bits(cap)
+    open_arcs = np.flatnonzero(cap > 0)  # numpy's own scan is the reference
+    for a in range(0, 301, 7):
+        for end in (a, a + 1, a + 63, a + 64, a + 65, 300):
+            end = min(end, 300)
+            after = open_arcs[(open_arcs >= a) & (open_arcs < end)]
+            expected = int(after[0]) if after.size else end
+            assert _next_live(live, np.int64(a), np.int64(end)) == expected
