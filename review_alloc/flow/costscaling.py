@@ -339,4 +339,5 @@ def exact_potentials(
     corrections off. Returns False if some node is lowered more than n times: a negative
     residual cycle, so the flow was not optimal.
     """
-    return _bellman_ford(start, head, cap, cost, pot, 0)
+    # A typed zero: a literal would compile a second copy of _bellman_ford.
+    return _bellman_ford(start, head, cap, cost, pot, np.int64(0))

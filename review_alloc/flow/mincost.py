@@ -310,9 +310,11 @@ def _cost_scaling(edges: EdgeArrays, need: np.ndarray) -> tuple[ResidualNetwork,
     if not ok:
         return None
     # Every residual arc has scaled reduced cost >= -1, so floor(prices / factor) misses the
-    # exact conditions by at most 1 per arc; a shortest-path pass repairs that exactly.
+    # exact conditions by at most 1 per arc; a shortest-path pass repairs that exactly. It reads
+    # the kernel's residuals: the same array type as the kernel's own optimality test, so the
+    # shortest-path code is compiled (and warmed up) once instead of twice.
     pot = np.floor_divide(prices, factor)
-    if not exact_potentials(net.start, net.head, net.cap, net.cost, pot):
+    if not exact_potentials(net.start, net.head, cap, net.cost, pot):
         return None
     return net, pot[:n].copy()
 
