@@ -27,6 +27,7 @@ from typing import Any, cast
 import numpy as np
 from numba import njit
 
+from review_alloc.flow._cache import HELPER_OPTIONS, KERNEL_OPTIONS
 from review_alloc.flow.circulation import violated_cut
 from review_alloc.flow.costscaling import cost_scaling_kernel, exact_potentials
 from review_alloc.flow.dinic import bfs_levels, blocking_flow, dinic
@@ -62,7 +63,7 @@ each test at most this many passes over the arcs (a test that succeeds needs abo
 _INF = np.iinfo(np.int64).max
 
 
-@njit(cache=True, nogil=True)
+@njit(**HELPER_OPTIONS)
 def dijkstra(
     start: np.ndarray,
     head: np.ndarray,
@@ -102,11 +103,12 @@ def dijkstra(
                     candidate = d + cost[a] + pot[u] - pot[v]
                     if candidate < dist[v]:
                         dist[v] = candidate
-                        size = heap_push(heap_keys, heap_nodes, size, candidate, v)
+                        # head holds int32: widen so heap_push keeps one int64 signature.
+                        size = heap_push(heap_keys, heap_nodes, size, candidate, np.int64(v))
     return False
 
 
-@njit(cache=True, nogil=True)
+@njit(**KERNEL_OPTIONS)
 def primal_dual_kernel(
     start: np.ndarray,
     head: np.ndarray,
