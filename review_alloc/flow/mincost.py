@@ -294,8 +294,19 @@ def _cost_scaling(edges: EdgeArrays, need: np.ndarray) -> tuple[ResidualNetwork,
     terminal = net.arc_of_edge[len(edges.tails):]
     net.cap[terminal] = 0
     net.cap[net.rev[terminal]] = 0
-    factor = n + 3
-    prices = np.zeros(n + 2, dtype=np.int64)
+    pot = optimal_potentials(net)
+    if pot is None:
+        return None
+    return net, pot[:n].copy()
+
+
+def optimal_potentials(net: ResidualNetwork) -> np.ndarray | None:
+    """Make the circulation in `net` optimal by cost scaling; its exact potentials, or None.
+
+    None means scaled prices would leave int64 (the caller falls back to the primal-dual method).
+    """
+    factor = net.n + 1
+    prices = np.zeros(net.n, dtype=np.int64)
     # The kernel is bound by reading arcs: 4-byte residuals, where every value fits, cut the
     # bytes read per arc. Costs stay int64: a re-plan's keep tier needs that range, and 4-byte
     # costs only where they fit would compile (and warm up) a second copy of the kernel for a
@@ -316,7 +327,7 @@ def _cost_scaling(edges: EdgeArrays, need: np.ndarray) -> tuple[ResidualNetwork,
     pot = np.floor_divide(prices, factor)
     if not exact_potentials(net.start, net.head, net.cap, net.cost, pot):
         return None
-    return net, pot[:n].copy()
+    return pot
 
 
 def min_cost_flow(
