@@ -46,3 +46,17 @@ def configure_numba_cache() -> None:
 
         if not config.CACHE_DIR:
             config.CACHE_DIR = str(folder)
+
+
+KERNEL_OPTIONS: dict[str, bool] = {"cache": True, "nogil": True, "no_cfunc_wrapper": True}
+"""numba options of a kernel called from Python.
+
+`nogil` lets the TUI's worker thread solve while the screen keeps drawing. numba builds a C
+callback wrapper for every compiled function by default (for use as a first-class function
+value), which nothing here uses; `no_cfunc_wrapper` skips that part of every cold compile.
+"""
+
+HELPER_OPTIONS: dict[str, bool] = {**KERNEL_OPTIONS, "no_cpython_wrapper": True}
+"""numba options of a helper called only from other kernels: it needs no Python entry point
+either (the option numba's own `overload` helpers use), so none is compiled. Calling such a
+helper from Python raises; keep these for functions that only kernels call."""

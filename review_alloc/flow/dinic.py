@@ -2,8 +2,9 @@
 
 The kernels work in place on a `ResidualNetwork`'s arrays. They also serve the min-cost solver,
 which passes `cost` and `pot` to restrict every walk to arcs of zero reduced cost
-(`cost[a] + pot[tail] - pot[head] == 0`); the max-flow path passes `None` for both, and numba
-compiles that specialisation without the test.
+(`cost[a] + pot[tail] - pot[head] == 0`); the max-flow path passes empty arrays for both. One
+argument type for both uses keeps numba to a single compiled copy of each kernel, which costs a
+cold start far more than the test of `pot.size` costs a solve.
 """
 
 from __future__ import annotations
@@ -11,23 +12,13 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
+from review_alloc.flow._cache import HELPER_OPTIONS, KERNEL_OPTIONS
 from review_alloc.flow.network import ResidualNetwork, scan_and_index_edges
 
 _INF = np.iinfo(np.int64).max
 
 
-@njit(cache=True, nogil=True)
-def _usable(
-    a: int, u: int, v: int, cap: np.ndarray, cost: np.ndarray | None, pot: np.ndarray | None
-) -> bool:
-    if cap[a] <= 0:
-        return False
-    if cost is None:
-        return True
-    return cost[a] + pot[u] - pot[v] == 0
-
-
-@njit(cache=True, nogil=True)
+@njit(**HELPER_OPTIONS)
 def bfs_levels(
     start: np.ndarray,
     head: np.ndarray,
@@ -36,14 +27,16 @@ def bfs_levels(
     sink: int,
     level: np.ndarray,
     queue: np.ndarray,
-    cost: np.ndarray | None,
-    pot: np.ndarray | None,
+    cost: np.ndarray,
+    pot: np.ndarray,
 ) -> bool:
     """Label every node with its BFS distance from source over usable arcs (-1: unreached).
 
-    Stops as soon as the sink is labelled (pass sink = -1 to label everything reachable).
-    Returns whether the sink was reached.
+    A usable arc has residual capacity and, unless `pot` is empty, zero reduced cost. Stops as
+    soon as the sink is labelled (pass sink = -1 to label everything reachable). Returns whether
+    the sink was reached.
     """
+    costed = pot.size > 0
     level[:] = -1
     level[source] = 0
     queue[0] = source
@@ -53,7 +46,7 @@ def bfs_levels(
         q_head += 1
         for a in range(start[u], start[u + 1]):
             v = head[a]
-            if level[v] < 0 and _usable(a, u, v, cap, cost, pot):
+            if level[v] < 0 and cap[a] > 0 and (not costed or cost[a] + pot[u] - pot[v] == 0):
                 level[v] = level[u] + 1
                 if v == sink:
                     return True
@@ -62,7 +55,7 @@ def bfs_levels(
     return False
 
 
-@njit(cache=True, nogil=True)
+@njit(**HELPER_OPTIONS)
 def blocking_flow(
     start: np.ndarray,
     head: np.ndarray,
@@ -73,14 +66,15 @@ def blocking_flow(
     level: np.ndarray,
     it: np.ndarray,
     stack: np.ndarray,
-    cost: np.ndarray | None,
-    pot: np.ndarray | None,
+    cost: np.ndarray,
+    pot: np.ndarray,
 ) -> int:
     """Push a blocking flow along the level graph with an iterative DFS; return its value.
 
     `it[v]` is v's current-arc pointer: arcs before it are known to be useless this phase.
     A node whose arcs are exhausted is a dead end and gets level -1, so no later path tries it.
     """
+    costed = pot.size > 0
     total = 0
     depth = 0
     u = source
@@ -106,7 +100,11 @@ def blocking_flow(
         while it[u] < start[u + 1]:
             a = it[u]
             v = head[a]
-            if level[v] == level[u] + 1 and _usable(a, u, v, cap, cost, pot):
+            if (
+                level[v] == level[u] + 1
+                and cap[a] > 0
+                and (not costed or cost[a] + pot[u] - pot[v] == 0)
+            ):
                 stack[depth] = a
                 depth += 1
                 u = v
@@ -123,7 +121,7 @@ def blocking_flow(
             it[u] += 1
 
 
-@njit(cache=True, nogil=True)
+@njit(**KERNEL_OPTIONS)
 def dinic_kernel(
     start: np.ndarray,
     head: np.ndarray,
@@ -131,8 +129,8 @@ def dinic_kernel(
     rev: np.ndarray,
     source: int,
     sink: int,
-    cost: np.ndarray | None,
-    pot: np.ndarray | None,
+    cost: np.ndarray,
+    pot: np.ndarray,
 ) -> tuple[int, int]:
     """Run Dinic's phases until the sink is unreachable; return (flow value, phases)."""
     n = start.size - 1
@@ -152,7 +150,7 @@ def dinic_kernel(
     return value, phases
 
 
-@njit(cache=True, nogil=True)
+@njit(**KERNEL_OPTIONS)
 def reachable_kernel(
     start: np.ndarray, head: np.ndarray, cap: np.ndarray, source: int
 ) -> np.ndarray:
@@ -160,15 +158,18 @@ def reachable_kernel(
     n = start.size - 1
     level = np.empty(n, dtype=np.int64)
     queue = np.empty(n, dtype=np.int64)
-    # A typed -1: a literal would make numba compile a third copy of bfs_levels.
-    bfs_levels(start, head, cap, source, np.int64(-1), level, queue, None, None)
+    # A typed -1 and empty int64 costs: anything else would compile a second copy of bfs_levels.
+    no_costs = np.empty(0, dtype=np.int64)
+    bfs_levels(start, head, cap, source, np.int64(-1), level, queue, no_costs, no_costs)
     return level >= 0
 
 
 def dinic(net: ResidualNetwork, source: int, sink: int) -> tuple[int, int]:
     """Augment `net` in place to a maximum source-sink flow; return (added value, phases)."""
+    no_costs = np.empty(0, dtype=np.int64)
     value, phases = dinic_kernel(
-        net.start, net.head, net.cap, net.rev, np.int64(source), np.int64(sink), None, None
+        net.start, net.head, net.cap, net.rev, np.int64(source), np.int64(sink), no_costs,
+        no_costs,
     )
     return int(value), int(phases)
 
@@ -178,7 +179,7 @@ def reachable(net: ResidualNetwork, source: int) -> np.ndarray:
     return reachable_kernel(net.start, net.head, net.cap, np.int64(source))
 
 
-@njit(cache=True, nogil=True)
+@njit(**HELPER_OPTIONS)
 def _edge_bfs(
     identity: bool,
     out_start: np.ndarray,
@@ -230,7 +231,7 @@ def _edge_bfs(
     return False
 
 
-@njit(cache=True, nogil=True)
+@njit(**HELPER_OPTIONS)
 def _edge_blocking_flow(
     identity: bool,
     out_start: np.ndarray,
@@ -325,7 +326,7 @@ def _edge_blocking_flow(
             it_in[u] += 1
 
 
-@njit(cache=True, nogil=True)
+@njit(**KERNEL_OPTIONS)
 def max_flow_kernel(
     n: int,
     tails: np.ndarray,

@@ -27,6 +27,7 @@ from typing import Any, cast
 import numpy as np
 from numba import njit
 
+from review_alloc.flow._cache import HELPER_OPTIONS, KERNEL_OPTIONS
 from review_alloc.flow.circulation import violated_cut
 from review_alloc.flow.costscaling import cost_scaling_kernel, exact_potentials
 from review_alloc.flow.dinic import bfs_levels, blocking_flow, dinic
@@ -62,7 +63,7 @@ each test at most this many passes over the arcs (a test that succeeds needs abo
 _INF = np.iinfo(np.int64).max
 
 
-@njit(cache=True, nogil=True)
+@njit(**HELPER_OPTIONS)
 def dijkstra(
     start: np.ndarray,
     head: np.ndarray,
@@ -102,11 +103,12 @@ def dijkstra(
                     candidate = d + cost[a] + pot[u] - pot[v]
                     if candidate < dist[v]:
                         dist[v] = candidate
-                        size = heap_push(heap_keys, heap_nodes, size, candidate, v)
+                        # head holds int32: widen so heap_push keeps one int64 signature.
+                        size = heap_push(heap_keys, heap_nodes, size, candidate, np.int64(v))
     return False
 
 
-@njit(cache=True, nogil=True)
+@njit(**KERNEL_OPTIONS)
 def primal_dual_kernel(
     start: np.ndarray,
     head: np.ndarray,
@@ -292,8 +294,19 @@ def _cost_scaling(edges: EdgeArrays, need: np.ndarray) -> tuple[ResidualNetwork,
     terminal = net.arc_of_edge[len(edges.tails):]
     net.cap[terminal] = 0
     net.cap[net.rev[terminal]] = 0
-    factor = n + 3
-    prices = np.zeros(n + 2, dtype=np.int64)
+    pot = optimal_potentials(net)
+    if pot is None:
+        return None
+    return net, pot[:n].copy()
+
+
+def optimal_potentials(net: ResidualNetwork) -> np.ndarray | None:
+    """Make the circulation in `net` optimal by cost scaling; its exact potentials, or None.
+
+    None means scaled prices would leave int64 (the caller falls back to the primal-dual method).
+    """
+    factor = net.n + 1
+    prices = np.zeros(net.n, dtype=np.int64)
     # The kernel is bound by reading arcs: 4-byte residuals, where every value fits, cut the
     # bytes read per arc. Costs stay int64: a re-plan's keep tier needs that range, and 4-byte
     # costs only where they fit would compile (and warm up) a second copy of the kernel for a
@@ -316,7 +329,7 @@ def _cost_scaling(edges: EdgeArrays, need: np.ndarray) -> tuple[ResidualNetwork,
     pot = np.floor_divide(prices, factor)
     if not exact_potentials(net.start, net.head, cap, net.cost, pot):
         return None
-    return net, pot[:n].copy()
+    return pot
 
 
 def min_cost_flow(

@@ -5,8 +5,10 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
+from review_alloc.flow._cache import HELPER_OPTIONS
 
-@njit(cache=True, nogil=True)
+
+@njit(**HELPER_OPTIONS)
 def heap_push(keys: np.ndarray, nodes: np.ndarray, size: int, key: int, node: int) -> int:
     """Push (key, node) on the binary min-heap of `size` entries; return the new size."""
     i = size
@@ -22,7 +24,7 @@ def heap_push(keys: np.ndarray, nodes: np.ndarray, size: int, key: int, node: in
     return size + 1
 
 
-@njit(cache=True, nogil=True)
+@njit(**HELPER_OPTIONS)
 def heap_pop(keys: np.ndarray, nodes: np.ndarray, size: int) -> tuple[int, int, int]:
     """Pop the smallest (key, node); return key, node and the new size."""
     top_key, top_node = keys[0], nodes[0]

@@ -5,10 +5,11 @@ run, and a lock keeps two warm-ups from compiling at once). After a warm-up that
 small marker file in the cache folder lets `solver_cache_ready()` tell, without importing or
 compiling anything, whether the next process will load the kernels from disk.
 
-numba compiles one kernel at a time under a process-wide lock, so on a cold cache the two groups
-of kernels (max flow with the primal-dual method; lower bounds with cost scaling) are compiled by
-two child processes side by side, which fill the on-disk cache; this process then loads them.
-Should the children fail (no second CPU, no way to start a process), it compiles them itself.
+numba compiles one kernel at a time under a process-wide lock, so on a cold cache one child
+process compiles the kernels of cost scaling (the largest group, sharing no callee with the rest)
+into the on-disk cache while this process compiles the others; this process then loads the
+child's kernels from the cache. Should the child fail (no second CPU, no way to start a process),
+this process compiles them itself.
 """
 
 from __future__ import annotations
@@ -28,8 +29,8 @@ from review_alloc import __version__
 from review_alloc.flow.costscaling import cost_scaling_kernel, exact_potentials
 from review_alloc.flow.dinic import dinic_kernel, max_flow_kernel, reachable_kernel
 from review_alloc.flow.maxflow import max_flow
-from review_alloc.flow.mincost import min_cost_flow, primal_dual_kernel
-from review_alloc.flow.network import _csr_kernel
+from review_alloc.flow.mincost import min_cost_flow, optimal_potentials, primal_dual_kernel
+from review_alloc.flow.network import ResidualNetwork, _csr_kernel
 
 _KERNELS = (
     _csr_kernel,
@@ -68,8 +69,12 @@ def solver_cache_ready() -> bool:
         return False
 
 
-_GROUPS = ("max flow, primal-dual", "lower bounds, cost scaling")
-"""Kernel groups of about equal compile time; a group's kernels share few callees."""
+_GROUPS = ("max flow", "lower bounds, primal-dual", "cost scaling")
+"""Kernel groups that share no callee across groups, so that two processes compiling different
+groups never compile the same function twice."""
+
+_CHILD_GROUPS = ("cost scaling",)
+"""The groups the child process compiles while this process compiles the others."""
 
 _CHILD = "import sys; from review_alloc.flow.warm import exercise; exercise(sys.argv[1])"
 
@@ -85,44 +90,69 @@ _CIRCULATION = (
 )
 
 
+def _two_node_circulation() -> ResidualNetwork:
+    """Edge 0 -> 1 (capacity 1, cost 1) without flow, built without `_csr_kernel`.
+
+    The arrays have the dtypes of `build_residual`'s output, so the cost-scaling kernels compile
+    the very signature a real solve loads; the warm-up tests catch any drift.
+    """
+    return ResidualNetwork(
+        n=2,
+        start=np.array([0, 1, 2], dtype=np.int64),
+        head=np.array([1, 0], dtype=np.int32),
+        cap=np.array([1, 0], dtype=np.int64),
+        rev=np.array([1, 0], dtype=np.int32),
+        arc_of_edge=np.array([0], dtype=np.int64),
+        cost=np.array([1, -1], dtype=np.int64),
+    )
+
+
 def exercise(group: str) -> None:
     """Run the solvers of one kernel group on a tiny graph, compiling or loading its kernels."""
     if group == _GROUPS[0]:
         max_flow(3, _TAILS, _HEADS, _CAPACITIES, 0, 2)
-        min_cost_flow(3, *_CIRCULATION, method="primal-dual")
     elif group == _GROUPS[1]:
         max_flow(3, _TAILS, _HEADS, _CAPACITIES, 0, 2, lower=np.array([1, 0, 0], np.int64))
-        min_cost_flow(3, *_CIRCULATION, method="cost-scaling")
+        min_cost_flow(3, *_CIRCULATION, method="primal-dual")
+    elif group == _GROUPS[2]:
+        # Straight to the kernels: the routing stage before them belongs to the group above.
+        optimal_potentials(_two_node_circulation())
     else:
         raise ValueError(f"unknown kernel group {group!r}; choose from {_GROUPS}")
 
 
-def _compile_in_children() -> bool:
-    """Compile the kernel groups in parallel child processes; whether all of them succeeded."""
+def _start_children(groups: tuple[str, ...]) -> list[subprocess.Popen[bytes]]:
+    """Start one child process per group compiling it into the cache; [] if none can start."""
     if (os.cpu_count() or 1) < 2 or not sys.executable:
-        return False
+        return []
     env = dict(os.environ)
     # The children must import this very copy of the package and write the same cache.
     package_root = str(Path(__file__).resolve().parents[2])
     env["PYTHONPATH"] = os.pathsep.join(p for p in (package_root, env.get("PYTHONPATH")) if p)
     if numba.config.CACHE_DIR:
         env["NUMBA_CACHE_DIR"] = numba.config.CACHE_DIR
-    try:
-        children = [
-            subprocess.Popen(
+    children = []
+    for group in groups:
+        try:
+            children.append(subprocess.Popen(
                 [sys.executable, "-c", _CHILD, group], env=env,
                 stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
-            )
-            for group in _GROUPS
-        ]
-    except OSError:
-        return False
+            ))
+        except OSError:
+            # Whatever no child compiles, this process compiles after its own groups.
+            break
+    return children
+
+
+def _wait(children: list[subprocess.Popen[bytes]]) -> bool:
+    """Wait for the children; whether every one of them succeeded."""
     ok = True
     for child in children:
         try:
             ok = child.wait(timeout=600) == 0 and ok
         except subprocess.TimeoutExpired:
             child.kill()
+            child.wait()
             ok = False
     return ok
 
@@ -130,14 +160,20 @@ def _compile_in_children() -> bool:
 def warm_up(parallel: bool = True) -> None:
     """Compile or load every kernel so that later calls start at full speed.
 
-    With `parallel` and an empty cache, child processes compile the kernel groups side by side
-    first; the kernels are then loaded (or, if a child failed, compiled) in this process.
+    With `parallel` and an empty cache, a child process compiles the cost-scaling kernels while
+    this one compiles the rest; this process then loads the child's kernels (or, if the child
+    failed, compiles them).
     """
     with _lock:
+        children: list[subprocess.Popen[bytes]] = []
         if parallel and not kernels_ready() and not solver_cache_ready():
-            # A failure only means this process compiles what the children did not.
-            _compile_in_children()
+            children = _start_children(_CHILD_GROUPS)
         for group in _GROUPS:
+            if group not in _CHILD_GROUPS:
+                exercise(group)
+        # A failed child only means this process compiles what it did not; otherwise it loads.
+        _wait(children)
+        for group in _CHILD_GROUPS:
             exercise(group)
         if kernels_ready() and not solver_cache_ready():
             try:
