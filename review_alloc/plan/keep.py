@@ -12,6 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 from review_alloc.model import Plan, Session
+from review_alloc.plan.pairkeys import contains, pair_keys
 
 
 def earlier_pair_mask(
@@ -33,5 +34,4 @@ def earlier_pair_mask(
     ]
     if not known:
         return mask
-    keys = reviewer.astype(np.int64) * n_p + paper.astype(np.int64)
-    return np.isin(keys, np.array(known, dtype=np.int64))
+    return contains(pair_keys(reviewer, paper, n_p), np.array(known, dtype=np.int64))
