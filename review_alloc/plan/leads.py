@@ -158,7 +158,11 @@ def _leads_by_flow(
     lower[-1] = led
     costs = np.zeros(len(tails), dtype=np.int64)
     costs[0] = -1
-    seniors = min_cost_flow(n, tails, heads, upper, costs, lower=lower).flow[0]
+    if senior.all() or not senior.any():
+        # Every lead is senior, or none can be: the count needs no solve.
+        seniors = led if senior.all() else 0
+    else:
+        seniors = min_cost_flow(n, tails, heads, upper, costs, lower=lower).flow[0]
 
     lower[0] = upper[0] = seniors
     costs[0] = 0

@@ -25,7 +25,8 @@ from datetime import UTC, datetime
 import numpy as np
 
 from review_alloc.flow import CostFlowResult, InfeasibleError, min_cost_flow
-from review_alloc.model import Assignment, Plan, Session
+from review_alloc.model import Plan, Session
+from review_alloc.model.plans import trusted_assignments, trusted_plan
 from review_alloc.plan.checker import check_plan
 from review_alloc.plan.conflicts import ConflictSet, conflict_pairs
 from review_alloc.plan.errors import PlanInputError
@@ -330,25 +331,15 @@ def _decode(
     if session.policy.max_leads > 0:
         lead = lead_mask(session, reviewer, paper, score)
         leads = lead_choice(session, reviewer, paper, lead)
-    # The ids come from the validated session and the scores from its validated table, so
-    # re-validating thousands of rows would only slow every re-plan down.
     paper_ids = [p.id for p in session.papers]
     reviewer_ids = [r.id for r in session.reviewers]
-    assignments = [
-        Assignment.model_construct(
-            paper=paper_ids[i], reviewer=reviewer_ids[j], score=float(s), lead=k
-        )
-        for j, i, s, k in zip(
-            reviewer.tolist(), paper.tolist(), score.tolist(), lead.tolist(), strict=True
-        )
-    ]
-    plan = Plan(
-        assignments=assignments,
-        figures=plan_figures(session, reviewer, paper, score),
-        created_at=now,
-        checked=False,
-        method=METHOD,
+    assignments = trusted_assignments(
+        [paper_ids[i] for i in paper.tolist()],
+        [reviewer_ids[j] for j in reviewer.tolist()],
+        score.tolist(),
+        lead.tolist(),
     )
+    plan = trusted_plan(assignments, plan_figures(session, reviewer, paper, score), now, METHOD)
     return plan, leads
 
 

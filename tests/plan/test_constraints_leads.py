@@ -223,3 +223,21 @@ def test_sparse_flow_path_needs_no_slow_fallback(
     dense = value(session, plan, pick_leads(session, plan).lead_of)
     assert sparse[:2] == dense[:2]
     assert sparse[2] == pytest.approx(dense[2], abs=1e-9)
+
+
+@pytest.mark.parametrize(("seed", "senior"), [(0, True), (1, False), (2, True), (3, False)])
+def test_sparse_flow_path_with_all_or_no_seniors(
+    seed: int, senior: bool, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # With every reviewer senior, or none, the sparse path skips its senior-count solve.
+    session, plan = _larger_lead_case(seed)
+    session = session.model_copy(
+        update={"reviewers": [r.model_copy(update={"senior": senior}) for r in session.reviewers]}
+    )
+    monkeypatch.setattr(leads, "DENSE_LIMIT", 0)
+    sparse = value(session, plan, pick_leads(session, plan).lead_of)
+    monkeypatch.undo()
+    # Reference: scipy's linear_sum_assignment on the dense slot matrix.
+    dense = value(session, plan, pick_leads(session, plan).lead_of)
+    assert sparse[:2] == dense[:2]
+    assert sparse[2] == pytest.approx(dense[2], abs=1e-9)
