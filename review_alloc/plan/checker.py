@@ -22,7 +22,7 @@ from review_alloc.plan.figures import (
 )
 from review_alloc.plan.network import PlanNetwork, build_network, paper_senior_need
 from review_alloc.plan.overload import overload_allowances
-from review_alloc.plan.pairkeys import contains, pair_keys, positions_in
+from review_alloc.plan.pairkeys import contains, key_order, pair_keys, positions_in
 
 _MAX_LISTED = 20
 
@@ -142,9 +142,7 @@ def _hard_rule_problems(
             problems.append(f"pinned pair ({pin.reviewer}, {pin.paper}) is missing")
 
     table = session.scores
-    s_keys = table.reviewer.astype(np.int64) * n_p + table.paper
-    order = np.argsort(s_keys)
-    s_keys, s_values = s_keys[order], table.value[order]
+    s_keys, s_values = key_order(pair_keys(table.reviewer, table.paper, n_p), table.value)
     pos = np.clip(np.searchsorted(s_keys, keys), 0, max(len(s_keys) - 1, 0))
     has_score = (s_keys[pos] == keys) if len(s_keys) else np.zeros(len(keys), dtype=bool)
     expected = np.where(has_score, s_values[pos] if len(s_keys) else 0.0, 0.0)

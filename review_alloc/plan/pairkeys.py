@@ -26,6 +26,16 @@ def sorted_keys(keys: np.ndarray) -> np.ndarray:
     return np.sort(keys)
 
 
+def key_order(keys: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(keys, values) stably sorted by key; as given when the keys already are, as a score
+    table's are (its rows are kept in (reviewer, paper) order)."""
+    keys = np.asarray(keys, dtype=np.int64)
+    if len(keys) < 2 or bool(np.all(keys[1:] >= keys[:-1])):
+        return keys, values
+    order = np.argsort(keys, kind="stable")
+    return keys[order], values[order]
+
+
 def positions_in(keys: np.ndarray, table: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """(found, position): for each key, whether the sorted `table` holds it, and where."""
     keys = np.asarray(keys, dtype=np.int64)

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from review_alloc.plan.pairkeys import contains, pair_keys, positions_in, sorted_keys
+from review_alloc.plan.pairkeys import contains, key_order, pair_keys, positions_in, sorted_keys
 
 
 @pytest.mark.parametrize("seed", range(20))
@@ -47,3 +47,17 @@ def test_pair_keys_order_is_reviewer_then_paper() -> None:
     # Reference: numpy.lexsort, the documented (last key primary) sort order.
     assert np.array_equal(np.argsort(keys), np.lexsort((paper, reviewer)))
     assert np.array_equal(sorted_keys(keys), np.sort(keys))
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_key_order_matches_a_stable_argsort(seed: int) -> None:
+    rng = np.random.default_rng(200 + seed)
+    keys = rng.integers(0, 50, int(rng.integers(0, 80)))
+    if seed % 2:
+        keys = np.sort(keys)
+    values = rng.random(len(keys))
+    got_keys, got_values = key_order(keys, values)
+    # Reference: numpy.argsort(kind="stable"), which keeps equal keys in their given order.
+    order = np.argsort(keys, kind="stable")
+    assert np.array_equal(got_keys, keys[order])
+    assert np.array_equal(got_values, values[order])
