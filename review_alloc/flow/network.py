@@ -38,26 +38,27 @@ def _csr_kernel(
     forward: np.ndarray,
     backward: np.ndarray,
     costs: np.ndarray,
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    start: np.ndarray,
+    head: np.ndarray,
+    cap: np.ndarray,
+    rev: np.ndarray,
+    arc_of_edge: np.ndarray,
+    cost: np.ndarray,
+) -> None:
     """Counting sort of the 2m arcs by tail: forward arcs in edge order, then reverse arcs.
 
-    An empty `costs` means a network without costs (one array type for both keeps numba to a
-    single compiled copy); its `cost` is then empty too.
+    Fills the arrays given: `start` (n + 1 zeros), `head`, `cap`, `rev`, `cost` (2m each) and
+    `arc_of_edge` (m). An empty `costs` means a network without costs (one array type for both
+    keeps numba to a single compiled copy); `cost` is then empty too.
     """
     m = tails.size
     costed = costs.size > 0
-    start = np.zeros(n + 1, dtype=np.int64)
     for e in range(m):
         start[tails[e] + 1] += 1
         start[heads[e] + 1] += 1
     for v in range(n):
         start[v + 1] += start[v]
     fill = start[:n].copy()
-    head = np.empty(2 * m, dtype=np.int32)
-    cap = np.empty(2 * m, dtype=np.int64)
-    rev = np.empty(2 * m, dtype=np.int32)
-    cost = np.zeros(2 * m if costed else 0, dtype=np.int64)
-    arc_of_edge = np.empty(m, dtype=np.int64)
     # Forward arcs are placed before any reverse arc at the same tail, as a stable sort would.
     for e in range(m):
         a = fill[tails[e]]
@@ -77,7 +78,6 @@ def _csr_kernel(
         rev[f] = a
         if costed:
             cost[a] = -costs[e]
-    return start, head, cap, rev, arc_of_edge, cost
 
 
 def build_residual(
@@ -90,13 +90,41 @@ def build_residual(
     costs: np.ndarray | None = None,
 ) -> ResidualNetwork:
     """Build the residual network of `flow` (lower <= flow <= upper) on the given edges."""
-    start, head, cap, rev, arc_of_edge, cost = _csr_kernel(
+    return _residual(n, tails, heads, upper - flow, flow - lower, costs)
+
+
+def _residual(
+    n: int,
+    tails: np.ndarray,
+    heads: np.ndarray,
+    forward: np.ndarray,
+    backward: np.ndarray,
+    costs: np.ndarray | None,
+) -> ResidualNetwork:
+    """The residual network with the given forward and reverse residuals per edge."""
+    m = len(tails)
+    costed = costs is not None
+    # numpy allocates the big arrays: its large allocations fault in far fewer pages than
+    # numba's, which on a 3 M edge network was a good part of the build.
+    start = np.zeros(n + 1, dtype=np.int64)
+    head = np.empty(2 * m, dtype=np.int32)
+    cap = np.empty(2 * m, dtype=np.int64)
+    rev = np.empty(2 * m, dtype=np.int32)
+    arc_of_edge = np.empty(m, dtype=np.int64)
+    cost = np.empty(2 * m if costed else 0, dtype=np.int64)
+    _csr_kernel(
         np.int64(n),
         np.ascontiguousarray(tails, dtype=np.int64),
         np.ascontiguousarray(heads, dtype=np.int64),
-        np.ascontiguousarray(upper - flow, dtype=np.int64),
-        np.ascontiguousarray(flow - lower, dtype=np.int64),
-        np.zeros(0, np.int64) if costs is None else np.ascontiguousarray(costs, dtype=np.int64),
+        np.ascontiguousarray(forward, dtype=np.int64),
+        np.ascontiguousarray(backward, dtype=np.int64),
+        np.ascontiguousarray(costs, dtype=np.int64) if costed else np.zeros(0, np.int64),
+        start,
+        head,
+        cap,
+        rev,
+        arc_of_edge,
+        cost,
     )
     return ResidualNetwork(
         n=n, start=start, head=head, cap=cap, rev=rev, arc_of_edge=arc_of_edge, cost=cost
@@ -130,16 +158,14 @@ def build_with_terminals(
     senders = np.flatnonzero(excess > 0)
     receivers = np.flatnonzero(excess < 0)
     n_extra = len(senders) + len(receivers)
-    zeros = np.zeros(n_extra, dtype=np.int64)
-    extra_upper = np.concatenate([excess[senders], -excess[receivers]])
-    net = build_residual(
+    # The residuals are formed once, on the concatenated arrays: no copy of upper, lower or flow.
+    net = _residual(
         n + 2,
         np.concatenate([tails, np.full(len(senders), n), receivers]),
         np.concatenate([heads, senders, np.full(len(receivers), n + 1)]),
-        np.concatenate([upper, extra_upper]),
-        np.concatenate([lower, zeros]),
-        np.concatenate([flow, zeros]),
-        None if costs is None else np.concatenate([costs, zeros]),
+        np.concatenate([upper - flow, excess[senders], -excess[receivers]]),
+        np.concatenate([flow - lower, np.zeros(n_extra, dtype=np.int64)]),
+        None if costs is None else np.concatenate([costs, np.zeros(n_extra, dtype=np.int64)]),
     )
     return net, int(excess[senders].sum())
 

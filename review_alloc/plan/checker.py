@@ -6,6 +6,8 @@ rebuilds the arc flows from the plan's assignments alone and checks the reduced-
 
 from __future__ import annotations
 
+from itertools import repeat
+
 import numpy as np
 
 from review_alloc.flow import FlowCheckError, check_cost_certificate
@@ -15,12 +17,12 @@ from review_alloc.plan.eligibility import rule_failures
 from review_alloc.plan.errors import PlanCheckError
 from review_alloc.plan.figures import (
     active_demands,
-    assignment_indices,
     loads_and_counts,
     plan_figures,
 )
 from review_alloc.plan.network import PlanNetwork, build_network, paper_senior_need
 from review_alloc.plan.overload import overload_allowances
+from review_alloc.plan.pairkeys import contains, key_order, pair_keys, positions_in
 
 _MAX_LISTED = 20
 
@@ -37,30 +39,66 @@ def check_plan(
 
     A re-plan's certificate is checked against the network with `earlier`'s keep tier.
     """
-    problems = _hard_rule_problems(session, plan)
+    arrays = _assignment_arrays(session, plan.assignments)
+    problems = _hard_rule_problems(session, plan, *arrays)
     if not problems and potentials is not None:
         if network is None:
             network = build_network(session, earlier=earlier)
-        problems = _certificate_problems(session, plan, potentials, network)
+        problems = _certificate_problems(arrays[0], arrays[1], potentials, network)
     if problems:
         raise PlanCheckError(problems[:_MAX_LISTED])
 
 
-def _hard_rule_problems(session: Session, plan: Plan) -> list[str]:
+def _assignment_arrays(
+    session: Session, assignments: list
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(reviewer, paper, score) index arrays of the assignments, -1 for an unknown id."""
     paper_at = session.paper_index()
     reviewer_at = session.reviewer_index()
+    n = len(assignments)
+    reviewer = np.fromiter(
+        map(reviewer_at.get, [a.reviewer for a in assignments], repeat(-1, n)),
+        dtype=np.int64,
+        count=n,
+    )
+    paper = np.fromiter(
+        map(paper_at.get, [a.paper for a in assignments], repeat(-1, n)), dtype=np.int64, count=n
+    )
+    score = np.fromiter((a.score for a in assignments), dtype=np.float64, count=n)
+    return reviewer, paper, score
+
+
+def _rule_keys(session: Session, rows: list, n_p: int) -> np.ndarray:
+    """Pair keys of pin or block rows whose ids the session knows (others cannot match)."""
+    paper_at = session.paper_index()
+    reviewer_at = session.reviewer_index()
+    known = [
+        (reviewer_at[r.reviewer], paper_at[r.paper])
+        for r in rows
+        if r.reviewer in reviewer_at and r.paper in paper_at
+    ]
+    if not known:
+        return np.zeros(0, dtype=np.int64)
+    j, i = np.array(known, dtype=np.int64).T
+    return pair_keys(j, i, n_p)
+
+
+def _hard_rule_problems(
+    session: Session, plan: Plan, reviewer: np.ndarray, paper: np.ndarray, score: np.ndarray
+) -> list[str]:
     problems: list[str] = []
-    for k, a in enumerate(plan.assignments):
-        if a.paper not in paper_at:
+    # Every test below is on whole arrays: a large plan has tens of thousands of assignments.
+    for k in np.flatnonzero((paper < 0) | (reviewer < 0)).tolist():
+        a = plan.assignments[k]
+        if paper[k] < 0:
             problems.append(f"assignment {k}: unknown paper {a.paper!r}")
-        if a.reviewer not in reviewer_at:
+        if reviewer[k] < 0:
             problems.append(f"assignment {k}: unknown reviewer {a.reviewer!r}")
     if problems:
         return problems
 
-    reviewer, paper, score = assignment_indices(session, plan.assignments)
     n_p = max(len(session.papers), 1)
-    keys = reviewer * n_p + paper
+    keys = pair_keys(reviewer, paper, n_p)
     unique, seen = np.unique(keys, return_counts=True)
     for key in unique[seen > 1]:
         problems.append(
@@ -68,44 +106,56 @@ def _hard_rule_problems(session: Session, plan: Plan) -> list[str]:
         )
 
     conflicts = conflict_pairs(session)
-    reasons = conflicts.reason_of()
-    for j, i in zip(reviewer.tolist(), paper.tolist(), strict=True):
-        if (j, i) in reasons:
-            problems.append(
-                f"conflicted pair ({session.reviewers[j].id}, {session.papers[i].id}) is "
-                f"assigned: {reasons[(j, i)]}"
-            )
-        if session.reviewers[j].withdrawn:
-            problems.append(f"withdrawn reviewer {session.reviewers[j].id} is assigned")
-        if session.papers[i].withdrawn:
-            problems.append(f"withdrawn paper {session.papers[i].id} is assigned")
-    blocked = {(b.reviewer, b.paper) for b in session.blocks}
-    assigned = {(a.reviewer, a.paper) for a in plan.assignments}
-    for a in plan.assignments:
-        if (a.reviewer, a.paper) in blocked:
-            problems.append(f"blocked pair ({a.reviewer}, {a.paper}) is assigned")
-    for pin in session.pins:
-        if (pin.reviewer, pin.paper) not in assigned:
+    conflicted = contains(keys, conflicts.keys(n_p))
+    gone_r = np.array([r.withdrawn for r in session.reviewers], dtype=bool)
+    gone_p = np.array([p.withdrawn for p in session.papers], dtype=bool)
+    flagged = conflicted | gone_r[reviewer] | gone_p[paper]
+    if flagged.any():
+        reasons = conflicts.reason_of()
+        for k in np.flatnonzero(flagged).tolist():
+            j, i = int(reviewer[k]), int(paper[k])
+            if conflicted[k]:
+                problems.append(
+                    f"conflicted pair ({session.reviewers[j].id}, {session.papers[i].id}) is "
+                    f"assigned: {reasons[(j, i)]}"
+                )
+            if gone_r[j]:
+                problems.append(f"withdrawn reviewer {session.reviewers[j].id} is assigned")
+            if gone_p[i]:
+                problems.append(f"withdrawn paper {session.papers[i].id} is assigned")
+    for k in np.flatnonzero(contains(keys, _rule_keys(session, session.blocks, n_p))).tolist():
+        a = plan.assignments[k]
+        problems.append(f"blocked pair ({a.reviewer}, {a.paper}) is assigned")
+    if session.pins:
+        paper_at, reviewer_at = session.paper_index(), session.reviewer_index()
+        pin_keys = np.array(
+            [
+                reviewer_at[p.reviewer] * n_p + paper_at[p.paper]
+                if p.reviewer in reviewer_at and p.paper in paper_at
+                else -1
+                for p in session.pins
+            ],
+            dtype=np.int64,
+        )
+        for k in np.flatnonzero(~contains(pin_keys, keys)).tolist():
+            pin = session.pins[k]
             problems.append(f"pinned pair ({pin.reviewer}, {pin.paper}) is missing")
 
     table = session.scores
-    s_keys = table.reviewer.astype(np.int64) * n_p + table.paper
-    order = np.argsort(s_keys)
-    s_keys, s_values = s_keys[order], table.value[order]
+    s_keys, s_values = key_order(pair_keys(table.reviewer, table.paper, n_p), table.value)
     pos = np.clip(np.searchsorted(s_keys, keys), 0, max(len(s_keys) - 1, 0))
     has_score = (s_keys[pos] == keys) if len(s_keys) else np.zeros(len(keys), dtype=bool)
     expected = np.where(has_score, s_values[pos] if len(s_keys) else 0.0, 0.0)
-    pinned = {(p.reviewer, p.paper) for p in session.pins}
     for k in np.flatnonzero(~np.isclose(expected, score, rtol=0, atol=1e-9)):
         a = plan.assignments[k]
         problems.append(
             f"pair ({a.reviewer}, {a.paper}) has score {a.score}, session says {expected[k]}"
         )
+    pinned = contains(keys, _rule_keys(session, session.pins, n_p))
     if session.policy.unscored == "exclude":
-        for k in np.flatnonzero(~has_score):
+        for k in np.flatnonzero(~has_score & ~pinned):
             a = plan.assignments[k]
-            if (a.reviewer, a.paper) not in pinned:
-                problems.append(f"unscored pair ({a.reviewer}, {a.paper}) is assigned")
+            problems.append(f"unscored pair ({a.reviewer}, {a.paper}) is assigned")
 
     loads, counts = loads_and_counts(session, reviewer, paper)
     reviews, _, cap, _ = active_demands(session)
@@ -118,7 +168,7 @@ def _hard_rule_problems(session: Session, plan: Plan) -> list[str]:
     for i in np.flatnonzero(counts > reviews):
         problems.append(f"paper {session.papers[i].id} has {counts[i]} reviews, above {reviews[i]}")
 
-    problems += _constraint_problems(session, plan, reviewer, paper, score)
+    problems += _constraint_problems(session, plan, reviewer, paper, score, ~pinned)
     figures = plan_figures(session, reviewer, paper, score)
     if figures != plan.figures:
         problems.append(f"plan figures {plan.figures} differ from recomputed {figures}")
@@ -126,13 +176,16 @@ def _hard_rule_problems(session: Session, plan: Plan) -> list[str]:
 
 
 def _constraint_problems(
-    session: Session, plan: Plan, reviewer: np.ndarray, paper: np.ndarray, score: np.ndarray
+    session: Session,
+    plan: Plan,
+    reviewer: np.ndarray,
+    paper: np.ndarray,
+    score: np.ndarray,
+    unpinned: np.ndarray,
 ) -> list[str]:
     """The policy's optional rules, read from the session's rows, not from the network."""
     policy = session.policy
     problems: list[str] = []
-    pinned = {(p.reviewer, p.paper) for p in session.pins}
-    unpinned = np.array([(a.reviewer, a.paper) not in pinned for a in plan.assignments], dtype=bool)
     low, no_topic = rule_failures(session, reviewer, paper, score)
     for k in np.flatnonzero(low & unpinned):
         a = plan.assignments[k]
@@ -145,15 +198,20 @@ def _constraint_problems(
         problems.append(f"pair ({a.reviewer}, {a.paper}) shares no topic")
     if policy.max_per_institution is not None:
         names = [normalise_institution(r.institution) for r in session.reviewers]
-        per: dict[tuple[int, str], int] = {}
-        for j, i in zip(reviewer.tolist(), paper.tolist(), strict=True):
-            if names[j]:
-                per[(i, names[j])] = per.get((i, names[j]), 0) + 1
-        for (i, name), c in sorted(per.items()):
+        known = sorted(set(names) - {""})
+        code_of = {name: k for k, name in enumerate(known)}
+        code = np.array([code_of.get(name, -1) for name in names], dtype=np.int64)
+        mine = code[reviewer] >= 0
+        groups, per = np.unique(
+            paper[mine] * max(len(known), 1) + code[reviewer[mine]], return_counts=True
+        )
+        # Sorted by (paper, institution name), as the codes follow the names' order.
+        for group, c in zip(groups.tolist(), per.tolist(), strict=True):
             if c > policy.max_per_institution:
+                i, name = divmod(group, max(len(known), 1))
                 problems.append(
-                    f"paper {session.papers[i].id} has {c} reviewers from {name!r}, above "
-                    f"max_per_institution {policy.max_per_institution}"
+                    f"paper {session.papers[i].id} has {c} reviewers from {known[name]!r}, "
+                    f"above max_per_institution {policy.max_per_institution}"
                 )
     if policy.senior_hard:
         need = paper_senior_need(session)
@@ -164,7 +222,7 @@ def _constraint_problems(
                 f"paper {session.papers[i].id} has {have[i]} senior reviewers, the hard rule "
                 f"needs {need[i]}"
             )
-    leads = np.array([a.lead for a in plan.assignments], dtype=bool)
+    leads = np.fromiter((a.lead for a in plan.assignments), dtype=bool, count=len(paper))
     if leads.any():
         per_lead = np.bincount(reviewer[leads], minlength=len(session.reviewers))
         for j in np.flatnonzero(per_lead > policy.max_leads):
@@ -179,16 +237,15 @@ def _constraint_problems(
 
 
 def _certificate_problems(
-    session: Session, plan: Plan, potentials: np.ndarray, network: PlanNetwork | None
+    reviewer: np.ndarray, paper: np.ndarray, potentials: np.ndarray, net: PlanNetwork
 ) -> list[str]:
-    net = network if network is not None else build_network(session)
-    reviewer, paper, _ = assignment_indices(session, plan.assignments)
     n_p = max(net.n_papers, 1)
-    net_keys = net.pair_reviewer * n_p + net.pair_paper
-    order = np.argsort(net_keys)
-    keys = reviewer * n_p + paper
-    pos = np.clip(np.searchsorted(net_keys[order], keys), 0, max(len(net_keys) - 1, 0))
-    if len(keys) and (len(net_keys) == 0 or np.any(net_keys[order][pos] != keys)):
+    net_keys = pair_keys(net.pair_reviewer, net.pair_paper, n_p)
+    # The builder emits pairs in key order; sort only a network that was built otherwise.
+    increasing = len(net_keys) < 2 or bool(np.all(net_keys[1:] > net_keys[:-1]))
+    order = np.arange(len(net_keys)) if increasing else np.argsort(net_keys)
+    found, pos = positions_in(pair_keys(reviewer, paper, n_p), net_keys[order])
+    if not found.all():
         return ["the plan uses a pair that is not eligible in the session's network"]
 
     pair_flow = np.zeros(len(net_keys), dtype=np.int64)

@@ -9,9 +9,12 @@ above it (see `plan.network.constraint_weights` and `fitting_weights`).
 
 from __future__ import annotations
 
+from itertools import repeat
+
 import numpy as np
 
 from review_alloc.model import Plan, Session
+from review_alloc.plan.pairkeys import contains, pair_keys
 
 
 def earlier_pair_mask(
@@ -26,12 +29,15 @@ def earlier_pair_mask(
         return mask
     rid, pid = session.reviewer_index(), session.paper_index()
     n_p = max(len(session.papers), 1)
-    known = [
-        rid[a.reviewer] * n_p + pid[a.paper]
-        for a in earlier.assignments
-        if a.reviewer in rid and a.paper in pid
-    ]
-    if not known:
+    n = len(earlier.assignments)
+    # Whole-array lookups: an earlier plan of a large venue has tens of thousands of rows.
+    j = np.fromiter(
+        map(rid.get, [a.reviewer for a in earlier.assignments], repeat(-1, n)), np.int64, n
+    )
+    i = np.fromiter(
+        map(pid.get, [a.paper for a in earlier.assignments], repeat(-1, n)), np.int64, n
+    )
+    known = (j >= 0) & (i >= 0)
+    if not known.any():
         return mask
-    keys = reviewer.astype(np.int64) * n_p + paper.astype(np.int64)
-    return np.isin(keys, np.array(known, dtype=np.int64))
+    return contains(pair_keys(reviewer, paper, n_p), pair_keys(j[known], i[known], n_p))

@@ -13,11 +13,16 @@ the lead pairs is highest.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from review_alloc.model import Plan, Session
 from review_alloc.plan.figures import assignment_indices
+from review_alloc.plan.pairkeys import positions_in, sorted_keys
+
+if TYPE_CHECKING:
+    from review_alloc.flow import WarmStart
 
 _RESOLUTION = 10_000
 DENSE_LIMIT = 4_000_000
@@ -41,6 +46,25 @@ def lead_costs(score_int: np.ndarray, n_papers: int) -> tuple[int, int]:
     return per_lead, per_senior
 
 
+@dataclass(frozen=True, eq=False)
+class LeadState:
+    """The solved score tier of a sparse lead choice, kept so that the next choice (after a
+    re-plan moved a few reviews) can restart from it instead of solving cold.
+
+    Nodes are recorded by role, so they map onto a network with other assigned pairs: the three
+    fixed nodes (source and the two hubs), every reviewer, every paper of the session, the sink.
+    """
+
+    pair_keys: np.ndarray
+    """reviewer * papers + paper of each assigned pair, in the network's pair order."""
+    lead: np.ndarray
+    """Per pair: chosen as its paper's lead."""
+    fixed_potentials: np.ndarray
+    reviewer_potentials: np.ndarray
+    paper_potentials: np.ndarray
+    sink_potential: int
+
+
 def pick_leads(session: Session, plan: Plan) -> LeadChoice:
     """Choose the leads of a plan: most papers led, then most senior leads, then best score."""
     reviewer, paper, score = assignment_indices(session, plan.assignments)
@@ -51,20 +75,40 @@ def lead_mask(
     session: Session, reviewer: np.ndarray, paper: np.ndarray, score: np.ndarray
 ) -> np.ndarray:
     """Which of the assigned pairs (index arrays) lead their paper, chosen as `pick_leads` does."""
+    return lead_mask_warm(session, reviewer, paper, score)[0]
+
+
+def lead_mask_warm(
+    session: Session,
+    reviewer: np.ndarray,
+    paper: np.ndarray,
+    score: np.ndarray,
+    warm: LeadState | None = None,
+) -> tuple[np.ndarray, LeadState | None]:
+    """`lead_mask`, restarting a large venue's choice from `warm`; also returns the new state
+    (None when the choice did not go through the sparse flow)."""
     limit = session.policy.max_leads
     mask = np.zeros(len(paper), dtype=bool)
     if limit == 0 or len(paper) == 0:
-        return mask
+        return mask, None
     papers_with = np.unique(paper)
     senior = session.reviewer_senior_array()[reviewer]
     score_int = np.rint(score * _RESOLUTION).astype(np.int64)
     loads = np.bincount(reviewer, minlength=len(session.reviewers))
     slots = np.minimum(loads, limit)
     if len(papers_with) * int(slots.sum()) > DENSE_LIMIT:
-        mask[_leads_by_flow(reviewer, paper, senior, score_int, limit, len(session.reviewers))] = (
-            True
+        chosen, state = _leads_by_flow(
+            reviewer,
+            paper,
+            senior,
+            score_int,
+            limit,
+            len(session.reviewers),
+            len(session.papers),
+            warm,
         )
-        return mask
+        mask[chosen] = True
+        return mask, state
     per_lead, per_senior = lead_costs(score_int, len(papers_with))
     gain = per_lead + per_senior * senior.astype(np.int64) + score_int
     people = np.flatnonzero(slots > 0)
@@ -88,7 +132,7 @@ def lead_mask(
     rows, cols = linear_sum_assignment(cost)
     picked = cost[rows, cols] < 0
     mask[pair_at[rows[picked], cols[picked]]] = True
-    return mask
+    return mask, None
 
 
 def lead_choice(
@@ -112,10 +156,17 @@ def lead_choice(
 
 
 def _leads_by_flow(
-    reviewer: np.ndarray, paper: np.ndarray, senior: np.ndarray, score_int: np.ndarray,
-    limit: int, n_reviewers: int,
-) -> np.ndarray:
-    """Indices of the assigned pairs chosen as leads, by three small exact flow solves.
+    reviewer: np.ndarray,
+    paper: np.ndarray,
+    senior: np.ndarray,
+    score_int: np.ndarray,
+    limit: int,
+    n_reviewers: int,
+    n_papers: int = 0,
+    warm: LeadState | None = None,
+) -> tuple[np.ndarray, LeadState]:
+    """Indices of the assigned pairs chosen as leads, by three small exact flow solves, and the
+    state of the last one (`warm` restarts it; the choice stays exact either way).
 
     One combined cost would need weights of about papers**2 times the score range, beyond what
     cost scaling can price in int64 on a large venue (the slow fallback took seconds). Fixing
@@ -158,13 +209,79 @@ def _leads_by_flow(
     lower[-1] = led
     costs = np.zeros(len(tails), dtype=np.int64)
     costs[0] = -1
-    seniors = min_cost_flow(n, tails, heads, upper, costs, lower=lower).flow[0]
+    if senior.all() or not senior.any():
+        # Every lead is senior, or none can be: the count needs no solve.
+        seniors = led if senior.all() else 0
+    else:
+        seniors = min_cost_flow(n, tails, heads, upper, costs, lower=lower).flow[0]
 
     lower[0] = upper[0] = seniors
     costs[0] = 0
     costs[pairs] = -score_int
-    flow = min_cost_flow(n, tails, heads, upper, costs, lower=lower).flow
-    return np.flatnonzero(flow[pairs] > 0)
+    n_papers = max(n_papers, int(paper.max(initial=-1)) + 1)
+    keys = reviewer.astype(np.int64) * n_papers + paper
+    start = None
+    if (
+        warm is not None
+        and len(warm.reviewer_potentials) == n_reviewers
+        and len(warm.paper_potentials) == n_papers
+    ):
+        start = _warm_leads(warm, keys, reviewer, local, papers, hub, n)
+    result = min_cost_flow(n, tails, heads, upper, costs, lower=lower, warm=start)
+    chosen = result.flow[pairs] > 0
+    pot = result.potentials
+    paper_pot = np.zeros(n_papers, dtype=np.int64)
+    paper_pot[papers] = pot[first_paper : first_paper + n_p]
+    state = LeadState(
+        pair_keys=keys,
+        lead=chosen,
+        fixed_potentials=pot[:3].copy(),
+        reviewer_potentials=pot[first_reviewer:first_paper].copy(),
+        paper_potentials=paper_pot,
+        sink_potential=int(pot[sink]),
+    )
+    return np.flatnonzero(chosen), state
+
+
+def _warm_leads(
+    warm: LeadState,
+    keys: np.ndarray,
+    reviewer: np.ndarray,
+    local: np.ndarray,
+    papers: np.ndarray,
+    hub: np.ndarray,
+    n: int,
+) -> WarmStart:
+    """The earlier choice's leads and potentials on this network's nodes and arcs.
+
+    Pairs still assigned keep their lead flag; the arcs above and below them carry what those
+    leads imply. Whatever no longer fits is repaired by the warm solve.
+    """
+    from review_alloc.flow import WarmStart
+
+    n_r, n_p = len(warm.reviewer_potentials), len(papers)
+    first_reviewer, first_paper, sink = 3, 3 + n_r, 3 + n_r + n_p
+    found, at = positions_in(keys, sorted_keys(warm.pair_keys))
+    order = np.argsort(warm.pair_keys, kind="stable")
+    led_pair = found & warm.lead[order[at]] if len(warm.pair_keys) else found
+    per_reviewer = np.bincount(reviewer[led_pair], minlength=n_r)
+    per_paper = np.minimum(np.bincount(local[led_pair], minlength=n_p), 1)
+    led = int(per_paper.sum())
+    flow = np.concatenate(
+        [
+            [np.sum(per_reviewer[hub == 1]), np.sum(per_reviewer[hub == 2])],
+            per_reviewer,
+            led_pair.astype(np.int64),
+            per_paper,
+            [led],
+        ]
+    ).astype(np.int64)
+    pot = np.zeros(n, dtype=np.int64)
+    pot[:3] = warm.fixed_potentials
+    pot[first_reviewer:first_paper] = warm.reviewer_potentials
+    pot[first_paper:sink] = warm.paper_potentials[papers]
+    pot[sink] = warm.sink_potential
+    return WarmStart(flow=flow, potentials=pot)
 
 
 def with_leads(plan: Plan, choice: LeadChoice) -> Plan:

@@ -14,6 +14,7 @@ from review_alloc.plan.errors import PlanInputError
 from review_alloc.plan.figures import active_demands
 from review_alloc.plan.keep import earlier_pair_mask
 from review_alloc.plan.overload import add_overload_arcs, overload_allowances
+from review_alloc.plan.pairkeys import contains, key_order
 
 SCORE_RESOLUTION = 10_000
 """Integer cost steps per score unit: a score of 0.8532 becomes 8532 (ties closer than 1e-4 are
@@ -178,9 +179,7 @@ def candidate_pairs(session: Session) -> tuple[np.ndarray, np.ndarray, np.ndarra
     active_r = np.flatnonzero(~np.array([r.withdrawn for r in session.reviewers], dtype=bool))
     active_p = np.flatnonzero(~np.array([p.withdrawn for p in session.papers], dtype=bool))
     table = session.scores
-    s_keys = _pair_keys(table.reviewer, table.paper, n_p)
-    order = np.argsort(s_keys, kind="stable")
-    s_keys, s_values = s_keys[order], table.value[order]
+    s_keys, s_values = key_order(_pair_keys(table.reviewer, table.paper, n_p), table.value)
 
     if session.policy.unscored == "zero":
         count = len(active_r) * len(active_p)
@@ -282,12 +281,12 @@ def _eligible_pairs(
     if session.blocks:
         br, bp = _rule_pairs(session, session.blocks)
         banned = np.union1d(banned, _pair_keys(br, bp, n_p))
-    keep = ~np.isin(keys, banned)
+    keep = ~contains(keys, banned)
     reviewer, paper, score, keys = reviewer[keep], paper[keep], score[keep], keys[keep]
     pinned = np.zeros(len(keys), dtype=bool)
     if session.pins:
         pr, pp = _rule_pairs(session, session.pins)
-        pinned = np.isin(keys, _pair_keys(pr, pp, n_p))
+        pinned = contains(keys, _pair_keys(pr, pp, n_p))
     low, no_topic = rule_failures(session, reviewer, paper, score)
     keep = ~(low | no_topic) | pinned
     if threshold is not None:

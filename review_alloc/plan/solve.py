@@ -25,13 +25,14 @@ from datetime import UTC, datetime
 import numpy as np
 
 from review_alloc.flow import CostFlowResult, InfeasibleError, min_cost_flow
-from review_alloc.model import Assignment, Plan, Session
+from review_alloc.model import Plan, Session
+from review_alloc.model.plans import trusted_assignments, trusted_plan
 from review_alloc.plan.checker import check_plan
 from review_alloc.plan.conflicts import ConflictSet, conflict_pairs
 from review_alloc.plan.errors import PlanInputError
 from review_alloc.plan.fairness import coverage_flows, highest_threshold, score_thresholds
 from review_alloc.plan.figures import plan_figures
-from review_alloc.plan.leads import LeadChoice, lead_choice, lead_mask
+from review_alloc.plan.leads import LeadChoice, LeadState, lead_choice, lead_mask_warm
 from review_alloc.plan.network import SCORE_RESOLUTION, PlanNetwork, build_network
 from review_alloc.plan.warm import same_cost_scale, warm_start_for
 
@@ -60,6 +61,8 @@ class PlanOutcome:
     """Per-reviewer loads of the same session planned with balance off (only when balancing)."""
     tiers: dict[str, float] = field(default_factory=dict)
     """The plan's tier values (see `tier_values`)."""
+    lead_state: LeadState | None = None
+    """The lead choice's solved state on a large venue, so that the next plan's starts warm."""
 
     @property
     def proven_optimal(self) -> bool:
@@ -316,8 +319,12 @@ def _bottleneck(
 
 
 def _decode(
-    session: Session, net: PlanNetwork, result: CostFlowResult, now: datetime
-) -> tuple[Plan, LeadChoice | None]:
+    session: Session,
+    net: PlanNetwork,
+    result: CostFlowResult,
+    now: datetime,
+    warm_leads: LeadState | None = None,
+) -> tuple[Plan, LeadChoice | None, LeadState | None]:
     """The plan of an optimal flow, its leads chosen when the policy asks for them."""
     chosen = np.flatnonzero(result.flow[net.pair_arcs] > 0)
     reviewer = net.pair_reviewer[chosen]
@@ -326,30 +333,21 @@ def _decode(
     order = np.lexsort((reviewer, paper))
     reviewer, paper, score = reviewer[order], paper[order], score[order]
     leads = None
+    state = None
     lead = np.zeros(len(paper), dtype=bool)
     if session.policy.max_leads > 0:
-        lead = lead_mask(session, reviewer, paper, score)
+        lead, state = lead_mask_warm(session, reviewer, paper, score, warm_leads)
         leads = lead_choice(session, reviewer, paper, lead)
-    # The ids come from the validated session and the scores from its validated table, so
-    # re-validating thousands of rows would only slow every re-plan down.
     paper_ids = [p.id for p in session.papers]
     reviewer_ids = [r.id for r in session.reviewers]
-    assignments = [
-        Assignment.model_construct(
-            paper=paper_ids[i], reviewer=reviewer_ids[j], score=float(s), lead=k
-        )
-        for j, i, s, k in zip(
-            reviewer.tolist(), paper.tolist(), score.tolist(), lead.tolist(), strict=True
-        )
-    ]
-    plan = Plan(
-        assignments=assignments,
-        figures=plan_figures(session, reviewer, paper, score),
-        created_at=now,
-        checked=False,
-        method=METHOD,
+    assignments = trusted_assignments(
+        [paper_ids[i] for i in paper.tolist()],
+        [reviewer_ids[j] for j in reviewer.tolist()],
+        score.tolist(),
+        lead.tolist(),
     )
-    return plan, leads
+    plan = trusted_plan(assignments, plan_figures(session, reviewer, paper, score), now, METHOD)
+    return plan, leads, state
 
 
 def make_plan(
@@ -379,7 +377,9 @@ def make_plan(
     used = result.flow[net.pair_arcs] > 0
     final = tier_values(net, used)
     relaxed = bound if bound != final else {}
-    plan, leads = _decode(session, net, result, now or datetime.now(UTC))
+    plan, leads, lead_state = _decode(
+        session, net, result, now or datetime.now(UTC), warm.lead_state if warm else None
+    )
     if net.kept is not None or net.resolution != SCORE_RESOLUTION:
         plan = plan.model_copy(
             update={
@@ -419,4 +419,5 @@ def make_plan(
         relaxed_bound=relaxed,
         loads_before_balance=before,
         tiers=final,
+        lead_state=lead_state,
     )

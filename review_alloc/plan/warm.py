@@ -66,6 +66,17 @@ def _pair_keys(net: PlanNetwork, n_papers: int) -> np.ndarray:
     return net.pair_reviewer * n_papers + net.pair_paper
 
 
+def _split_arcs(net: PlanNetwork) -> tuple[np.ndarray, np.ndarray]:
+    """(pair arcs, every other arc) of `net`; the pair arcs are one contiguous block, so no set
+    difference (a sort of every arc) is needed."""
+    block = range(len(net.tails))[net.pair_arcs]
+    pairs = np.arange(block.start, block.stop, block.step, dtype=np.int64)
+    rest = np.r_[np.arange(block.start), np.arange(block.stop, len(net.tails))]
+    if block.step != 1:
+        rest = np.setdiff1d(np.arange(len(net.tails)), pairs, assume_unique=True)
+    return pairs, rest.astype(np.int64)
+
+
 def same_cost_scale(old: PlanNetwork, new: PlanNetwork) -> bool:
     """Whether both networks weigh the tiers alike, so that old potentials mean something.
 
@@ -90,15 +101,13 @@ def warm_start_for(
     # Pair arcs, most of the network, are matched by (reviewer, paper), which the builder
     # emits in increasing order: no sort is needed.
     n_papers = max(old.n_papers, new.n_papers)
-    old_pairs = np.arange(len(old.tails))[old.pair_arcs]
-    new_pairs = np.arange(len(new.tails))[new.pair_arcs]
+    old_pairs, old_rest = _split_arcs(old)
+    new_pairs, new_rest = _split_arcs(new)
     new_at, old_at = _match(_pair_keys(old, n_papers), _pair_keys(new, n_papers))
     new_at, old_at = new_pairs[new_at], old_pairs[old_at]
     carried[new_at] = np.minimum(flow[old_at], new.capacities[new_at])
 
     # The other arcs by their end nodes' roles and their rank among parallel arcs.
-    old_rest = np.setdiff1d(np.arange(len(old.tails)), old_pairs, assume_unique=True)
-    new_rest = np.setdiff1d(np.arange(len(new.tails)), new_pairs, assume_unique=True)
     # Labels are small (about three per paper or reviewer), so (tail, head, rank) fits in int64.
     size = int(max(old_labels.max(initial=0), new_labels.max(initial=0))) + 1
     ranks = max(1, min(1 << 20, (1 << 62) // (size * size)))

@@ -223,3 +223,62 @@ def test_sparse_flow_path_needs_no_slow_fallback(
     dense = value(session, plan, pick_leads(session, plan).lead_of)
     assert sparse[:2] == dense[:2]
     assert sparse[2] == pytest.approx(dense[2], abs=1e-9)
+
+
+@pytest.mark.parametrize(("seed", "senior"), [(0, True), (1, False), (2, True), (3, False)])
+def test_sparse_flow_path_with_all_or_no_seniors(
+    seed: int, senior: bool, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # With every reviewer senior, or none, the sparse path skips its senior-count solve.
+    session, plan = _larger_lead_case(seed)
+    session = session.model_copy(
+        update={"reviewers": [r.model_copy(update={"senior": senior}) for r in session.reviewers]}
+    )
+    monkeypatch.setattr(leads, "DENSE_LIMIT", 0)
+    sparse = value(session, plan, pick_leads(session, plan).lead_of)
+    monkeypatch.undo()
+    # Reference: scipy's linear_sum_assignment on the dense slot matrix.
+    dense = value(session, plan, pick_leads(session, plan).lead_of)
+    assert sparse[:2] == dense[:2]
+    assert sparse[2] == pytest.approx(dense[2], abs=1e-9)
+
+
+def _choice(session: Session, plan: Plan, warm: leads.LeadState | None) -> tuple:
+    """(lead_of, state) of the sparse choice restarted from `warm`."""
+    reviewer, paper, score = assignment_indices(session, plan.assignments)
+    mask, state = leads.lead_mask_warm(session, reviewer, paper, score, warm)
+    return leads.lead_choice(session, reviewer, paper, mask).lead_of, state
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_warm_lead_choice_after_moved_reviews_matches_dense(
+    seed: int, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # A re-plan moves a few reviews; the sparse choice then restarts from the earlier one.
+    rng = np.random.default_rng(seed)
+    session, plan = _larger_lead_case(seed)
+    monkeypatch.setattr(leads, "DENSE_LIMIT", 0)
+    _, state = _choice(session, plan, None)
+    assert state is not None
+    for _ in range(3):
+        rows = [(a.reviewer, a.paper, a.score) for a in plan.assignments]
+        drop = set(rng.choice(len(rows), size=8, replace=False).tolist())
+        taken = {(r, p) for r, p, _ in rows}
+        # Each dropped review moves to another reviewer of the same paper.
+        for k in sorted(drop):
+            paper = rows[k][1]
+            while (reviewer := f"r{int(rng.integers(60))}", paper) in taken:
+                pass
+            taken.add((reviewer, paper))
+            rows[k] = (reviewer, paper, float(np.round(rng.uniform(0, 1), 2)))
+        session = with_scores(session, rows)
+        plan = plan_of(session, rows)
+        monkeypatch.setattr(leads, "DENSE_LIMIT", 0)
+        lead_of, state = _choice(session, plan, state)
+        warm = value(session, plan, lead_of)
+        monkeypatch.undo()
+        # Reference: scipy's linear_sum_assignment on the dense slot matrix, from scratch.
+        dense = value(session, plan, pick_leads(session, plan).lead_of)
+        assert warm[:2] == dense[:2]
+        assert warm[2] == pytest.approx(dense[2], abs=1e-9)
+        check_plan(session, with_leads(plan, leads.LeadChoice(lead_of, (), ())), None)
