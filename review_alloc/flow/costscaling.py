@@ -19,6 +19,8 @@ import numpy as np
 from numba import njit
 from numba.cpython.unsafe.numbers import trailing_zeros
 
+from review_alloc.flow._cache import HELPER_OPTIONS, KERNEL_OPTIONS
+
 PRICE_LIMIT = 2**61
 """A price beyond this aborts the kernel, which then reports failure instead of overflowing."""
 
@@ -26,7 +28,7 @@ PRICE_LIMIT = 2**61
 _ONE = np.uint64(1)
 
 
-@njit(cache=True, nogil=True)
+@njit(**KERNEL_OPTIONS)
 def _live_bits(cap: np.ndarray) -> np.ndarray:
     """One bit per arc, set where the arc has residual capacity (64 arcs to a word)."""
     live = np.zeros((cap.size + 63) // 64 + 1, dtype=np.uint64)
@@ -36,7 +38,7 @@ def _live_bits(cap: np.ndarray) -> np.ndarray:
     return live
 
 
-@njit(cache=True, nogil=True)
+@njit(**KERNEL_OPTIONS)
 def _next_live(live: np.ndarray, a: int, end: int) -> int:
     """The first arc in `a:end` with residual capacity, or `end`.
 
@@ -51,7 +53,7 @@ def _next_live(live: np.ndarray, a: int, end: int) -> int:
     return end
 
 
-@njit(cache=True, nogil=True)
+@njit(**HELPER_OPTIONS)
 def _relabel(
     u: int,
     start: np.ndarray,
@@ -86,7 +88,7 @@ def _relabel(
     return best - eps
 
 
-@njit(cache=True, nogil=True)
+@njit(**HELPER_OPTIONS)
 def _has_admissible(
     v: int,
     start: np.ndarray,
@@ -110,7 +112,7 @@ def _has_admissible(
     return False
 
 
-@njit(cache=True, nogil=True)
+@njit(**KERNEL_OPTIONS)
 def cost_scaling_kernel(
     start: np.ndarray,
     head: np.ndarray,
@@ -275,7 +277,7 @@ def cost_scaling_kernel(
     return True, phases, relabels
 
 
-@njit(cache=True, nogil=True)
+@njit(**HELPER_OPTIONS)
 def _bellman_ford(
     start: np.ndarray,
     head: np.ndarray,
@@ -329,7 +331,7 @@ def _bellman_ford(
     return True
 
 
-@njit(cache=True, nogil=True)
+@njit(**KERNEL_OPTIONS)
 def exact_potentials(
     start: np.ndarray, head: np.ndarray, cap: np.ndarray, cost: np.ndarray, pot: np.ndarray
 ) -> bool:

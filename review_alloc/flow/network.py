@@ -12,6 +12,8 @@ from dataclasses import dataclass
 import numpy as np
 from numba import njit
 
+from review_alloc.flow._cache import HELPER_OPTIONS, KERNEL_OPTIONS
+
 
 @dataclass(eq=False)
 class ResidualNetwork:
@@ -30,7 +32,7 @@ class ResidualNetwork:
         return lower + self.cap[self.rev[self.arc_of_edge[: len(lower)]]]
 
 
-@njit(cache=True, nogil=True)
+@njit(**KERNEL_OPTIONS)
 def _csr_kernel(
     n: int,
     tails: np.ndarray,
@@ -170,7 +172,7 @@ def build_with_terminals(
     return net, int(excess[senders].sum())
 
 
-@njit(cache=True, nogil=True)
+@njit(**HELPER_OPTIONS)
 def scan_and_index_edges(
     n: int,
     tails: np.ndarray,
