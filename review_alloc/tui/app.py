@@ -187,8 +187,15 @@ class ReviewAllocApp(App[None]):
     @work(thread=True, group="warm-up", exit_on_error=False)
     def _warm_up(self) -> None:
         """Compile or load the flow kernels so that the first plan starts at full speed."""
-        from review_alloc.flow import warm_up
+        from review_alloc.flow import solver_cache_ready, warm_up
 
+        if not solver_cache_ready():
+            # Only a cold cache compiles (seconds, once per machine); say so, or a first plan
+            # that waits on it looks stuck.
+            self.call_from_thread(
+                self.notify,
+                "Preparing the solver (first run on this machine; later runs start at once)...",
+            )
         warm_up()
 
     # -- drawing --------------------------------------------------------------------------

@@ -515,3 +515,27 @@ async def test_gaps_and_raising_a_full_cap_from_one(new_app: Factory) -> None:
         assert ws.session.reviewers[ws.session.reviewer_index()[reviewer]].cap == 9
         await plan(app, pilot)
         assert ws.session.plan.figures.coverage > placed
+
+
+async def test_a_cold_solver_cache_is_announced_once(
+    new_app: Factory, monkeypatch
+) -> None:
+    import review_alloc.flow as flow
+
+    ready = {"value": False}
+    warmed: list[bool] = []
+
+    def fake_warm_up(parallel: bool = True) -> None:
+        warmed.append(parallel)
+        ready["value"] = True
+
+    monkeypatch.setattr(flow, "solver_cache_ready", lambda: ready["value"])
+    monkeypatch.setattr(flow, "warm_up", fake_warm_up)
+    for expected in (1, 0):
+        app = new_app()
+        async with app.run_test(size=SIZE) as pilot:
+            await app.workers.wait_for_complete()
+            await pilot.pause()
+            shown = [n.message for n in app._notifications if "Preparing the solver" in n.message]
+            assert len(shown) == expected
+    assert len(warmed) == 2
