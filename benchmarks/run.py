@@ -507,7 +507,8 @@ def markdown(report: dict[str, Any]) -> str:
     if report.get("compile"):
         c = report["compile"]
         lines += ["", f"Kernels: {c['compile_cold_s']:.2f} s to compile with an empty cache "
-                  f"(two child processes; {c['compile_cold_one_process_s']:.2f} s in one), "
+                  "(one child process beside this one; "
+                  f"{c['compile_cold_one_process_s']:.2f} s in one), "
                   f"{c['load_from_cache_s']:.2f} s to load from the cache "
                   f"(package import {c['import_cached_s']:.2f} s)."]
     return "\n".join(lines) + "\n"
