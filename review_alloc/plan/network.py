@@ -14,7 +14,7 @@ from review_alloc.plan.errors import PlanInputError
 from review_alloc.plan.figures import active_demands
 from review_alloc.plan.keep import earlier_pair_mask
 from review_alloc.plan.overload import add_overload_arcs, overload_allowances
-from review_alloc.plan.pairkeys import contains, key_order
+from review_alloc.plan.pairkeys import contains, key_order, pair_keys
 
 SCORE_RESOLUTION = 10_000
 """Integer cost steps per score unit: a score of 0.8532 becomes 8532 (ties closer than 1e-4 are
@@ -157,10 +157,6 @@ class PlanNetwork:
         return 1 + self.n_reviewers + i
 
 
-def _pair_keys(reviewer: np.ndarray, paper: np.ndarray, n_papers: int) -> np.ndarray:
-    return reviewer.astype(np.int64) * n_papers + paper.astype(np.int64)
-
-
 def _rule_pairs(session: Session, rows: list) -> tuple[np.ndarray, np.ndarray]:
     paper_at = session.paper_index()
     reviewer_at = session.reviewer_index()
@@ -179,7 +175,7 @@ def candidate_pairs(session: Session) -> tuple[np.ndarray, np.ndarray, np.ndarra
     active_r = np.flatnonzero(~np.array([r.withdrawn for r in session.reviewers], dtype=bool))
     active_p = np.flatnonzero(~np.array([p.withdrawn for p in session.papers], dtype=bool))
     table = session.scores
-    s_keys, s_values = key_order(_pair_keys(table.reviewer, table.paper, n_p), table.value)
+    s_keys, s_values = key_order(pair_keys(table.reviewer, table.paper, n_p), table.value)
 
     if session.policy.unscored == "zero":
         count = len(active_r) * len(active_p)
@@ -202,7 +198,7 @@ def candidate_pairs(session: Session) -> tuple[np.ndarray, np.ndarray, np.ndarra
 
     if session.pins:
         pr, pp = _rule_pairs(session, session.pins)
-        keys = np.union1d(keys, _pair_keys(pr, pp, n_p))
+        keys = np.union1d(keys, pair_keys(pr, pp, n_p))
 
     pos = np.searchsorted(s_keys, keys)
     pos_clip = np.minimum(pos, max(len(s_keys) - 1, 0))
@@ -276,17 +272,17 @@ def _eligible_pairs(
     """(reviewer, paper, score, keys, pinned) of the pairs the plan may use."""
     n_p = len(session.papers)
     reviewer, paper, score = candidate_pairs(session)
-    keys = _pair_keys(reviewer, paper, n_p)
+    keys = pair_keys(reviewer, paper, n_p)
     banned = conflicts.keys(n_p)
     if session.blocks:
         br, bp = _rule_pairs(session, session.blocks)
-        banned = np.union1d(banned, _pair_keys(br, bp, n_p))
+        banned = np.union1d(banned, pair_keys(br, bp, n_p))
     keep = ~contains(keys, banned)
     reviewer, paper, score, keys = reviewer[keep], paper[keep], score[keep], keys[keep]
     pinned = np.zeros(len(keys), dtype=bool)
     if session.pins:
         pr, pp = _rule_pairs(session, session.pins)
-        pinned = contains(keys, _pair_keys(pr, pp, n_p))
+        pinned = contains(keys, pair_keys(pr, pp, n_p))
     low, no_topic = rule_failures(session, reviewer, paper, score)
     keep = ~(low | no_topic) | pinned
     if threshold is not None:
