@@ -6,8 +6,6 @@ rebuilds the arc flows from the plan's assignments alone and checks the reduced-
 
 from __future__ import annotations
 
-from itertools import repeat
-
 import numpy as np
 
 from review_alloc.flow import FlowCheckError, check_cost_certificate
@@ -17,6 +15,7 @@ from review_alloc.plan.eligibility import rule_failures
 from review_alloc.plan.errors import PlanCheckError
 from review_alloc.plan.figures import (
     active_demands,
+    assignment_arrays,
     loads_and_counts,
     plan_figures,
 )
@@ -39,7 +38,7 @@ def check_plan(
 
     A re-plan's certificate is checked against the network with `earlier`'s keep tier.
     """
-    arrays = _assignment_arrays(session, plan.assignments)
+    arrays = assignment_arrays(session, plan.assignments)
     problems = _hard_rule_problems(session, plan, *arrays)
     if not problems and potentials is not None:
         if network is None:
@@ -47,25 +46,6 @@ def check_plan(
         problems = _certificate_problems(arrays[0], arrays[1], potentials, network)
     if problems:
         raise PlanCheckError(problems[:_MAX_LISTED])
-
-
-def _assignment_arrays(
-    session: Session, assignments: list
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """(reviewer, paper, score) index arrays of the assignments, -1 for an unknown id."""
-    paper_at = session.paper_index()
-    reviewer_at = session.reviewer_index()
-    n = len(assignments)
-    reviewer = np.fromiter(
-        map(reviewer_at.get, [a.reviewer for a in assignments], repeat(-1, n)),
-        dtype=np.int64,
-        count=n,
-    )
-    paper = np.fromiter(
-        map(paper_at.get, [a.paper for a in assignments], repeat(-1, n)), dtype=np.int64, count=n
-    )
-    score = np.fromiter((a.score for a in assignments), dtype=np.float64, count=n)
-    return reviewer, paper, score
 
 
 def _rule_keys(session: Session, rows: list, n_p: int) -> np.ndarray:

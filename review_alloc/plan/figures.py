@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from itertools import repeat
+
 import numpy as np
 
 from review_alloc.model import PlanFigures, Session
@@ -49,11 +51,32 @@ def plan_figures(
     )
 
 
-def assignment_indices(session: Session, plan_assignments: list) -> tuple[np.ndarray, ...]:
-    """(reviewer, paper, score) index arrays of a plan's assignments; unknown ids raise KeyError."""
+def assignment_arrays(
+    session: Session, plan_assignments: list
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(reviewer, paper, score) index arrays of a plan's assignments; -1 for an unknown id."""
     paper_at = session.paper_index()
     reviewer_at = session.reviewer_index()
-    reviewer = np.array([reviewer_at[a.reviewer] for a in plan_assignments], dtype=np.int64)
-    paper = np.array([paper_at[a.paper] for a in plan_assignments], dtype=np.int64)
-    score = np.array([a.score for a in plan_assignments], dtype=np.float64)
+    n = len(plan_assignments)
+    # map() with a default beats a comprehension over tens of thousands of rows.
+    reviewer = np.fromiter(
+        map(reviewer_at.get, [a.reviewer for a in plan_assignments], repeat(-1, n)),
+        dtype=np.int64,
+        count=n,
+    )
+    paper = np.fromiter(
+        map(paper_at.get, [a.paper for a in plan_assignments], repeat(-1, n)),
+        dtype=np.int64,
+        count=n,
+    )
+    score = np.fromiter((a.score for a in plan_assignments), dtype=np.float64, count=n)
+    return reviewer, paper, score
+
+
+def assignment_indices(session: Session, plan_assignments: list) -> tuple[np.ndarray, ...]:
+    """(reviewer, paper, score) index arrays of a plan's assignments; unknown ids raise KeyError."""
+    reviewer, paper, score = assignment_arrays(session, plan_assignments)
+    for k in np.flatnonzero((reviewer < 0) | (paper < 0)).tolist():
+        a = plan_assignments[k]
+        raise KeyError(a.reviewer if reviewer[k] < 0 else a.paper)
     return reviewer, paper, score

@@ -9,11 +9,10 @@ above it (see `plan.network.constraint_weights` and `fitting_weights`).
 
 from __future__ import annotations
 
-from itertools import repeat
-
 import numpy as np
 
 from review_alloc.model import Plan, Session
+from review_alloc.plan.figures import assignment_arrays
 from review_alloc.plan.pairkeys import contains, pair_keys
 
 
@@ -27,16 +26,8 @@ def earlier_pair_mask(
     mask = np.zeros(len(reviewer), dtype=bool)
     if earlier is None or not earlier.assignments or not len(reviewer):
         return mask
-    rid, pid = session.reviewer_index(), session.paper_index()
     n_p = max(len(session.papers), 1)
-    n = len(earlier.assignments)
-    # Whole-array lookups: an earlier plan of a large venue has tens of thousands of rows.
-    j = np.fromiter(
-        map(rid.get, [a.reviewer for a in earlier.assignments], repeat(-1, n)), np.int64, n
-    )
-    i = np.fromiter(
-        map(pid.get, [a.paper for a in earlier.assignments], repeat(-1, n)), np.int64, n
-    )
+    j, i, _ = assignment_arrays(session, earlier.assignments)
     known = (j >= 0) & (i >= 0)
     if not known.any():
         return mask
