@@ -333,13 +333,18 @@ def _bellman_ford(
 
 @njit(**KERNEL_OPTIONS)
 def exact_potentials(
-    start: np.ndarray, head: np.ndarray, cap: np.ndarray, cost: np.ndarray, pot: np.ndarray
+    start: np.ndarray,
+    head: np.ndarray,
+    cap: np.ndarray,
+    cost: np.ndarray,
+    pot: np.ndarray,
+    budget: int,
 ) -> bool:
     """Lower `pot` to shortest-path potentials of the residual graph (queue-based Bellman-Ford).
 
     Starting from nearly valid potentials, only the few arcs still at negative reduced cost set
-    corrections off. Returns False if some node is lowered more than n times: a negative
-    residual cycle, so the flow was not optimal.
+    corrections off. Returns False if some node is lowered more than n times (a negative
+    residual cycle, so the flow was not optimal) or, when `budget` > 0, once more than `budget`
+    arcs were scanned.
     """
-    # A typed zero: a literal would compile a second copy of _bellman_ford.
-    return _bellman_ford(start, head, cap, cost, pot, np.int64(0))
+    return _bellman_ford(start, head, cap, cost, pot, budget)

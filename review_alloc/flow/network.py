@@ -150,26 +150,35 @@ def build_with_terminals(
     flow: np.ndarray,
     excess: np.ndarray,
     costs: np.ndarray | None = None,
+    every_node: bool = False,
 ) -> tuple[ResidualNetwork, int]:
     """Residual network of `flow` plus a super source n and a super sink n + 1.
 
     The super source feeds every node with `excess > 0` (flow it still has to send out) and every
     node with `excess < 0` drains into the super sink; terminal arcs cost 0. Edge e < len(tails)
-    keeps its index. Returns the network and the total excess to route.
+    keeps its index. With `every_node`, edge len(tails) + v runs from the super source to v and
+    edge len(tails) + n + v from v to the super sink for every node v (capacity 0 where v has
+    nothing to send or receive), so later stages can route new excesses on the same network.
+    Returns the network and the total excess to route.
     """
-    senders = np.flatnonzero(excess > 0)
-    receivers = np.flatnonzero(excess < 0)
+    if every_node:
+        senders = receivers = np.arange(n)
+        excess_out, excess_in = np.maximum(excess, 0), np.maximum(-excess, 0)
+    else:
+        senders = np.flatnonzero(excess > 0)
+        receivers = np.flatnonzero(excess < 0)
+        excess_out, excess_in = excess[senders], -excess[receivers]
     n_extra = len(senders) + len(receivers)
     # The residuals are formed once, on the concatenated arrays: no copy of upper, lower or flow.
     net = _residual(
         n + 2,
         np.concatenate([tails, np.full(len(senders), n), receivers]),
         np.concatenate([heads, senders, np.full(len(receivers), n + 1)]),
-        np.concatenate([upper - flow, excess[senders], -excess[receivers]]),
+        np.concatenate([upper - flow, excess_out, excess_in]),
         np.concatenate([flow - lower, np.zeros(n_extra, dtype=np.int64)]),
         None if costs is None else np.concatenate([costs, np.zeros(n_extra, dtype=np.int64)]),
     )
-    return net, int(excess[senders].sum())
+    return net, int(excess_out.sum())
 
 
 @njit(**HELPER_OPTIONS)

@@ -82,7 +82,7 @@ def run_kernel(
     assert ok
     net.cap[:] = cap
     pot = np.floor_divide(prices, factor)
-    assert exact_potentials(net.start, net.head, net.cap, net.cost, pot)
+    assert exact_potentials(net.start, net.head, net.cap, net.cost, pot, np.int64(0))
     flow = net.edge_flow(lower)
     return check_cost_certificate(n, tails, heads, caps, costs, flow, pot[:n]), phases
 
