@@ -27,6 +27,9 @@ PRICE_LIMIT = 2**61
 
 _ONE = np.uint64(1)
 
+NO_FLOOR = np.int64(np.iinfo(np.int64).min)
+"""The `floor` of a shortest-path pass that needs none."""
+
 
 @njit(**KERNEL_OPTIONS)
 def _live_bits(cap: np.ndarray) -> np.ndarray:
@@ -137,8 +140,9 @@ def cost_scaling_kernel(
     most `factor`, a shortest-path pass of at most `test_budget` arc scans (0: none) tries to
     prove the flow optimal already; if it does,
     `price` becomes those exact potentials times `factor` and the kernel stops. `ok` is False
-    only if a price left the safe range (the flow is then still feasible, but not known to be
-    optimal). `cap` and `cost` may be int32 or int64 arrays.
+    only if a price left the safe range; the residuals then hold a pseudoflow (a phase stopped
+    half way may leave excesses), which the caller must discard. `cap` and `cost` may be int32
+    or int64 arrays.
     """
     n = start.size - 1
     eps = eps_start
@@ -270,7 +274,7 @@ def cost_scaling_kernel(
         if test_budget > 0 and 1 < eps <= factor:
             for v in range(n):
                 trial[v] = price[v] // factor
-            if _bellman_ford(start, head, cap, cost, trial, test_budget):
+            if _bellman_ford(start, head, cap, cost, trial, test_budget, NO_FLOOR):
                 for v in range(n):
                     price[v] = trial[v] * factor
                 return True, phases, relabels
@@ -285,10 +289,12 @@ def _bellman_ford(
     cost: np.ndarray,
     pot: np.ndarray,
     budget: int,
+    floor: int,
 ) -> bool:
     """Queue-based Bellman-Ford lowering `pot`; False on a negative cycle or past `budget` arcs.
 
-    `budget` <= 0 means no limit on the arcs scanned.
+    `budget` <= 0 means no limit on the arcs scanned. Also False once a potential would drop
+    below `floor`, which bounds every value (a walk around a negative cycle cannot overflow).
     """
     n = start.size - 1
     queue = np.empty(n, dtype=np.int64)
@@ -317,6 +323,8 @@ def _bellman_ford(
                 v = head[a]
                 reach = pu + cost[a]
                 if reach < pot[v]:
+                    if reach < floor:
+                        return False
                     pot[v] = reach
                     lowered[v] += 1
                     if lowered[v] > n:
@@ -339,12 +347,13 @@ def exact_potentials(
     cost: np.ndarray,
     pot: np.ndarray,
     budget: int,
+    floor: int,
 ) -> bool:
     """Lower `pot` to shortest-path potentials of the residual graph (queue-based Bellman-Ford).
 
     Starting from nearly valid potentials, only the few arcs still at negative reduced cost set
     corrections off. Returns False if some node is lowered more than n times (a negative
-    residual cycle, so the flow was not optimal) or, when `budget` > 0, once more than `budget`
-    arcs were scanned.
+    residual cycle, so the flow was not optimal), below `floor`, or, when `budget` > 0, once
+    more than `budget` arcs were scanned.
     """
-    return _bellman_ford(start, head, cap, cost, pot, budget)
+    return _bellman_ford(start, head, cap, cost, pot, budget, floor)

@@ -3,9 +3,9 @@
 `min_cost_flow` solves cold by cost scaling (see `costscaling.py`): Dinic routes the supplies to
 a feasible flow, fills the tiers of very negative cost (lexicographic weights) one after another,
 push-relabel phases make the flow optimal from prices at the scale of the remaining costs, and a
-shortest-path pass turns the scaled prices into exact integer potentials. The primal-dual method below serves warm starts (a few
-units to re-route from near-optimal potentials) and is the fallback where scaled prices could
-overflow:
+shortest-path pass turns the scaled prices into exact integer potentials. The primal-dual
+method below serves warm starts (a few units to re-route from near-optimal potentials) and is
+the fallback where scaled prices could overflow:
 
 1. Lower bounds move into the supplies: every edge starts at its lower bound.
 2. Every negative-cost edge starts saturated instead, so every residual arc costs >= 0 and zero
@@ -30,7 +30,12 @@ from numba import njit
 
 from review_alloc.flow._cache import HELPER_OPTIONS, KERNEL_OPTIONS
 from review_alloc.flow.circulation import violated_cut
-from review_alloc.flow.costscaling import PRICE_LIMIT, cost_scaling_kernel, exact_potentials
+from review_alloc.flow.costscaling import (
+    NO_FLOOR,
+    PRICE_LIMIT,
+    cost_scaling_kernel,
+    exact_potentials,
+)
 from review_alloc.flow.dinic import bfs_levels, blocking_flow, dinic
 from review_alloc.flow.mincost_heap import heap_pop, heap_push
 from review_alloc.flow.network import ResidualNetwork, build_with_terminals, net_outflow
@@ -306,14 +311,16 @@ def _cost_scaling(edges: EdgeArrays, need: np.ndarray) -> tuple[ResidualNetwork,
     net.cap[terminal] = 0
     net.cap[net.rev[terminal]] = 0
     scale = max(1, int(costs.max(initial=0)))
-    tiered = _saturate_tiers(net, n, m, scale)
-    pot = optimal_potentials(net, scale if tiered else 0)
+    lightest = _saturate_tiers(net, n, m, scale)
+    # Where the tiers interact (a lighter tier gains by swapping which items a heavier one
+    # serves), the flow is only within the lightest tier's weight of optimal: the second try.
+    pot = optimal_potentials(net, (scale, lightest) if lightest else ())
     if pot is None:
         return None
     return net, pot[:n].copy()
 
 
-def _saturate_tiers(net: ResidualNetwork, n: int, m: int, scale: int) -> bool:
+def _saturate_tiers(net: ResidualNetwork, n: int, m: int, scale: int) -> int:
     """Fill the edges of very negative cost, tier by tier, before cost scaling starts.
 
     A tier is a run of edge costs below -`scale` (the largest positive cost) with gaps of at
@@ -323,16 +330,17 @@ def _saturate_tiers(net: ResidualNetwork, n: int, m: int, scale: int) -> bool:
     closed) and then, for what could not go another way, along them too. Earlier tiers stay
     closed while later ones are routed, so no tier's flow is traded for a lighter one's. What
     remains for cost scaling is then imbalance of the order of `scale` instead of the tier
-    weights: on the planner's networks about half the phases. Returns False (network untouched)
-    when no edge or more than MAX_TIERS tiers lie below -`scale`.
+    weights: on the planner's networks about half the phases. Returns the weight of the
+    lightest tier (minus its highest cost), or 0 (network untouched) when no edge or more than
+    MAX_TIERS tiers lie below -`scale`.
     """
     tier_arcs = net.arc_of_edge[:m][net.cost[net.arc_of_edge[:m]] < -scale]
     if tier_arcs.size == 0:
-        return False
+        return 0
     values = np.unique(net.cost[tier_arcs])
     breaks = np.flatnonzero(np.diff(values) > scale)
     if breaks.size + 1 > MAX_TIERS:
-        return False
+        return 0
     lows = np.concatenate([values[:1], values[breaks + 1]])
     highs = np.concatenate([values[breaks], values[-1:]])
     feed = net.arc_of_edge[m : m + n]
@@ -370,16 +378,18 @@ def _saturate_tiers(net: ResidualNetwork, n: int, m: int, scale: int) -> bool:
         net.cap[back] = 0
     for back, residual in closed:
         net.cap[back] = residual
-    return True
+    return -int(values[-1])
 
 
-def optimal_potentials(net: ResidualNetwork, scale: int = 0) -> np.ndarray | None:
+def optimal_potentials(
+    net: ResidualNetwork, tolerances: tuple[int, ...] = ()
+) -> np.ndarray | None:
     """Make the circulation in `net` optimal by cost scaling; its exact potentials, or None.
 
-    With `scale` > 0, cost scaling starts at tolerance `scale` (in cost units) from potentials
-    that a budgeted shortest-path pass finds for it, if the flow is that close to optimal
-    already; otherwise from zero potentials at the largest cost. None means scaled prices would
-    leave int64 (the caller falls back to the primal-dual method).
+    Cost scaling starts at the first of `tolerances` (in cost units) for which a budgeted
+    shortest-path pass finds prices, that is, where the flow is that close to optimal already;
+    failing all, from zero potentials at the largest cost. None means scaled prices would leave
+    int64 (the caller falls back to the primal-dual method).
     """
     factor = net.n + 1
     # The kernel is bound by reading arcs: 4-byte residuals, where every value fits, cut the
@@ -388,14 +398,21 @@ def optimal_potentials(net: ResidualNetwork, scale: int = 0) -> np.ndarray | Non
     # gain lost in the noise on the L instances.
     cap = _narrow(net.cap, net.cap + net.cap[net.rev])
     cost = net.cost
-    prices, eps = _starting_prices(net, cap, scale, factor)
+    prices, eps = np.zeros(net.n, dtype=np.int64), 0
+    for tolerance in tolerances:
+        prices, eps = _starting_prices(net, cap, tolerance, factor)
+        if eps:
+            break
+    # A kernel stopped by its price limit leaves a pseudoflow: keep the flow to retry from.
+    saved = cap.copy() if eps else cap
     ok, _, _ = cost_scaling_kernel(
         net.start, net.head, cap, net.rev, cost, prices,
         np.int64(factor), np.int64(SCALING_ALPHA), np.int64(eps), True,
         np.int64(OPTIMALITY_TEST_SCANS * net.head.size),
     )
     if not ok and eps > 0:
-        # Prices from a start can be larger than the cold ones; the flow is still feasible.
+        # Prices from a start can grow past the limit where cold ones would not.
+        cap[:] = saved
         prices = np.zeros(net.n, dtype=np.int64)
         ok, _, _ = cost_scaling_kernel(
             net.start, net.head, cap, net.rev, cost, prices,
@@ -411,7 +428,7 @@ def optimal_potentials(net: ResidualNetwork, scale: int = 0) -> np.ndarray | Non
     # the kernel's residuals: the same array type as the kernel's own optimality test, so the
     # shortest-path code is compiled (and warmed up) once instead of twice.
     pot = np.floor_divide(prices, factor)
-    if not exact_potentials(net.start, net.head, cap, net.cost, pot, np.int64(0)):
+    if not exact_potentials(net.start, net.head, cap, net.cost, pot, np.int64(0), NO_FLOOR):
         return None
     return pot
 
@@ -422,20 +439,21 @@ def _starting_prices(
     """Scaled prices and a tolerance cost scaling may start from; (zeros, 0) if none found.
 
     Shortest paths with every arc lengthened by `scale` exist exactly when no residual cycle
-    averages below -`scale` per arc; their distances are then prices at which every residual
-    arc's reduced cost is at least -`scale` (all times `factor`).
+    averages below -`scale` per arc; their distances, times `factor`, are then prices at which
+    every residual arc's scaled reduced cost is at least -`scale` * `factor`.
     """
-    prices = np.zeros(net.n, dtype=np.int64)
+    zeros = np.zeros(net.n, dtype=np.int64)
     if scale <= 0 or net.cost.size == 0:
-        return prices, 0
-    widest = max(abs(int(net.cost.min())), abs(int(net.cost.max()))) + scale
-    if widest * factor * net.n >= PRICE_LIMIT:
-        return prices, 0
-    lengths = net.cost * factor + scale * factor
-    budget = STARTING_PRICE_SCANS * net.head.size
-    if not exact_potentials(net.start, net.head, cap, lengths, prices, np.int64(budget)):
-        return np.zeros(net.n, dtype=np.int64), 0
-    return prices, scale * factor
+        return zeros, 0
+    lengths = net.cost + scale
+    # Distances below this floor would make prices outside the kernel's range (and keep a walk
+    # around a negative cycle from overflowing): the pass then reports no start.
+    floor = np.int64(-(PRICE_LIMIT // factor))
+    distances = zeros.copy()
+    budget = np.int64(STARTING_PRICE_SCANS * net.head.size)
+    if not exact_potentials(net.start, net.head, cap, lengths, distances, budget, floor):
+        return zeros, 0
+    return distances * factor, scale * factor
 
 
 def min_cost_flow(

@@ -14,6 +14,7 @@ from flow_helpers import ortools_cost
 
 from review_alloc.flow import check_cost_certificate, min_cost_flow
 from review_alloc.flow.costscaling import (
+    NO_FLOOR,
     _live_bits,
     _next_live,
     cost_scaling_kernel,
@@ -82,7 +83,7 @@ def run_kernel(
     assert ok
     net.cap[:] = cap
     pot = np.floor_divide(prices, factor)
-    assert exact_potentials(net.start, net.head, net.cap, net.cost, pot, np.int64(0))
+    assert exact_potentials(net.start, net.head, net.cap, net.cost, pot, np.int64(0), NO_FLOOR)
     flow = net.edge_flow(lower)
     return check_cost_certificate(n, tails, heads, caps, costs, flow, pot[:n]), phases
 

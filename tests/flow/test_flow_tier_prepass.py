@@ -109,7 +109,7 @@ def test_pre_pass_keeps_a_feasible_flow_and_finds_a_close_start(supply: float) -
     )
     net = routed_network(n, tails, heads, caps, costs, lower)
     scale = int(costs.max())
-    assert _saturate_tiers(net, n, len(tails), scale)
+    assert _saturate_tiers(net, n, len(tails), scale) == 2_000_000
     flow = net.edge_flow(lower)[: len(tails)]
     assert (flow >= lower).all() and (flow <= caps).all()
     assert not net_outflow(n, tails, heads, flow).any()
@@ -129,7 +129,7 @@ def test_too_many_tiers_skip_the_pre_pass_and_still_solve() -> None:
     n, tails, heads, caps, costs, lower = tiered_circulation(rng, 12, 8, 4, tiers, 0.7)
     net = routed_network(n, tails, heads, caps, costs, lower)
     before = net.cap.copy()
-    assert not _saturate_tiers(net, n, len(tails), int(costs.max()))
+    assert _saturate_tiers(net, n, len(tails), int(costs.max())) == 0
     assert (net.cap == before).all()
     result = min_cost_flow(n, tails, heads, caps, costs, lower=lower)
     # OR-Tools SimpleMinCostFlow on the same network.
@@ -141,7 +141,19 @@ def test_networks_without_tiers_are_left_alone() -> None:
     n, tails, heads, caps, costs, lower = tiered_circulation(rng, 20, 10, 4, [500], 0.9)
     net = routed_network(n, tails, heads, caps, costs, lower)
     # Item edges cost -500, above minus the largest pair cost: no tier to fill.
-    assert not _saturate_tiers(net, n, len(tails), int(costs.max()))
+    assert _saturate_tiers(net, n, len(tails), int(costs.max())) == 0
     result = min_cost_flow(n, tails, heads, caps, costs, lower=lower)
     # OR-Tools SimpleMinCostFlow on the same network.
     assert result.cost == ortools_cost(n, tails, heads, caps, costs, lower=lower)
+
+
+def test_no_start_is_claimed_for_a_flow_far_from_optimal() -> None:
+    rng = np.random.default_rng(11)
+    n, tails, heads, caps, costs, lower = tiered_circulation(
+        rng, 30, 15, 5, [4_000_000, 2_000_000], 1.2
+    )
+    # Without the pre-pass the tiers are empty: residual cycles through them cost millions,
+    # far below -scale per arc, so the shortest-path pass must find a negative cycle.
+    net = routed_network(n, tails, heads, caps, costs, lower)
+    prices, eps = _starting_prices(net, net.cap, int(costs.max()), net.n + 1)
+    assert eps == 0 and not prices.any()
