@@ -115,7 +115,7 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
     p.add_argument("--since", required=True, type=positive, metavar="REV")
     p.add_argument("--to", required=True, type=Path, dest="target", metavar="FILE.csv")
     p.add_argument("--json", action="store_true", help="print one JSON object")
-    return {
+    handlers: dict[str, Handler] = {
         "withdraw": _cmd_withdraw,
         "reinstate": _cmd_reinstate,
         "pin": _pair_command("pin"),
@@ -131,6 +131,22 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
         "undo": _cmd_undo,
         "notify": _cmd_notify,
     }
+    return {name: _naming_session(handler) for name, handler in handlers.items()}
+
+
+def _naming_session(handler: Handler) -> Handler:
+    """The handler, with every refused change's lines naming the session file it concerns."""
+
+    def run(args: argparse.Namespace) -> int:
+        try:
+            return handler(args)
+        except InputError as error:
+            where = str(args.session)
+            lines = [line if line.startswith(where) else f"{where}: {line}" for line in error.lines]
+            raise InputError(lines) from None
+
+    run.__doc__ = handler.__doc__
+    return run
 
 
 def _finish(ws: Workspace, args: argparse.Namespace, before: int | None) -> int:

@@ -131,7 +131,10 @@ def test_bad_changes_exit_1_with_a_message_and_leave_the_file(
 ) -> None:
     before = small.read_bytes()
     assert main([argv[0], str(small), *argv[1:]]) == 1
-    assert message in capsys.readouterr().err
+    err = capsys.readouterr().err
+    assert message in err
+    # Every line names the session file the refused change was meant for.
+    assert all(line.startswith(f"error: {small}: ") for line in err.splitlines())
     assert small.read_bytes() == before
 
 
