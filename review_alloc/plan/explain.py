@@ -30,6 +30,7 @@ from review_alloc.model import Session
 from review_alloc.plan.figures import active_demands
 from review_alloc.plan.network import PlanNetwork, build_network, candidate_pairs
 from review_alloc.plan.overload import overload_allowances
+from review_alloc.plan.pairkeys import contains
 
 TIERS = ("min_reviews", "reviews")
 """The two coverage tiers a group can explain, in objective order."""
@@ -282,7 +283,7 @@ def _with_cause(
     keep = in_group[cand_p]
     cand_r, cand_p, cand_keys = cand_r[keep], cand_p[keep], cand_keys[keep]
     conflict_keys = cov.plan_net.conflicts.keys(n_p)
-    conflicted = np.isin(cand_keys, conflict_keys)
+    conflicted = contains(cand_keys, conflict_keys)
     blocked = np.zeros(len(cand_keys), dtype=bool)
     if session.blocks:
         paper_at, reviewer_at = session.paper_index(), session.reviewer_index()
@@ -290,7 +291,7 @@ def _with_cause(
             [reviewer_at[b.reviewer] * n_p + paper_at[b.paper] for b in session.blocks],
             dtype=np.int64,
         )
-        blocked = np.isin(cand_keys, block_keys) & ~conflicted
+        blocked = contains(cand_keys, block_keys) & ~conflicted
 
     unscored_r, unscored_p = _unscored_topic_pairs(session, g_papers, conflict_keys)
     group_topics = set(group.topics)
@@ -299,7 +300,7 @@ def _with_cause(
     )
     inside = in_group[net.pair_paper]
     used_elsewhere = int(
-        cov.flow[cov.pair_arcs][np.isin(net.pair_reviewer, eligible) & ~inside].sum()
+        cov.flow[cov.pair_arcs][contains(net.pair_reviewer, eligible) & ~inside].sum()
     )
     eligible_capacity = int(cov.capacity[eligible].sum()) if len(eligible) else 0
     degree = np.bincount(net.pair_paper[inside], minlength=n_p)[g_papers]
@@ -369,7 +370,7 @@ def _unscored_topic_pairs(
     r_arr = np.array(rows_r, dtype=np.int64)
     p_arr = np.array(rows_p, dtype=np.int64)
     keys = r_arr * n_p + p_arr
-    keep = ~np.isin(keys, scored) & ~np.isin(keys, conflict_keys)
+    keep = ~contains(keys, scored) & ~contains(keys, conflict_keys)
     return r_arr[keep], p_arr[keep]
 
 

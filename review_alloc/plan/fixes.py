@@ -36,6 +36,7 @@ from review_alloc.plan.explain import (
 )
 from review_alloc.plan.figures import active_demands
 from review_alloc.plan.network import candidate_pairs
+from review_alloc.plan.pairkeys import contains
 from review_alloc.plan.report import find_gaps, load_issues
 from review_alloc.plan.solve import make_plan
 
@@ -503,7 +504,7 @@ def pair_losses(cov: CoverageNetwork) -> tuple[PairLoss, ...]:
     cand_r, cand_p, _ = candidate_pairs(session)
     keys = cand_r * n_p + cand_p
     reasons = net.conflicts.reason_of()
-    conflicted = np.isin(keys, net.conflicts.keys(n_p))
+    conflicted = contains(keys, net.conflicts.keys(n_p))
     block_reason: dict[tuple[int, int], str] = {}
     if session.blocks:
         paper_at, reviewer_at = session.paper_index(), session.reviewer_index()

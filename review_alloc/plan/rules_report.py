@@ -16,6 +16,7 @@ from review_alloc.plan.conflicts import conflict_pairs, normalise_institution
 from review_alloc.plan.eligibility import rule_failures
 from review_alloc.plan.figures import active_demands, assignment_indices, loads_and_counts
 from review_alloc.plan.network import candidate_pairs, paper_senior_need
+from review_alloc.plan.pairkeys import contains
 
 
 def load_distribution(session: Session, loads: np.ndarray) -> dict[str, Any]:
@@ -68,7 +69,7 @@ def _eligible_by_paper(session: Session) -> dict[int, np.ndarray]:
     r_at, p_at = session.reviewer_index(), session.paper_index()
     blocked = [r_at[b.reviewer] * n_p + p_at[b.paper] for b in session.blocks]
     low, no_topic = rule_failures(session, reviewer, paper, score)
-    keep = ~np.isin(keys, banned) & ~np.isin(keys, blocked) & ~low & ~no_topic
+    keep = ~contains(keys, banned) & ~contains(keys, blocked) & ~low & ~no_topic
     out: dict[int, np.ndarray] = {}
     order = np.argsort(paper[keep], kind="stable")
     rr, pp = reviewer[keep][order], paper[keep][order]
