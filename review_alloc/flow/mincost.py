@@ -348,8 +348,8 @@ def _saturate_tiers(net: ResidualNetwork, n: int, m: int, scale: int) -> int:
     feed = net.arc_of_edge[m : m + n]
     drain = net.arc_of_edge[m + n :]
     closed: list[tuple[np.ndarray, np.ndarray]] = []
+    tier_cost = net.cost[tier_arcs]
     for low, high in zip(lows, highs, strict=True):
-        tier_cost = net.cost[tier_arcs]
         band = tier_arcs[(tier_cost >= low) & (tier_cost <= high)]
         # Every arc of the tier is undone only through its reverse arc, also those the lower
         # bounds' routing filled already: all of them stay closed until the last tier is done.
@@ -405,22 +405,23 @@ def optimal_potentials(
         prices, eps = _starting_prices(net, cap, tolerance, factor)
         if eps:
             break
+
+    def scale_costs(prices: np.ndarray, eps: int) -> bool:
+        ok, _, _ = cost_scaling_kernel(
+            net.start, net.head, cap, net.rev, cost, prices,
+            np.int64(factor), np.int64(SCALING_ALPHA), np.int64(eps), True,
+            np.int64(OPTIMALITY_TEST_SCANS * net.head.size),
+        )
+        return bool(ok)
+
     # A kernel stopped by its price limit leaves a pseudoflow: keep the flow to retry from.
     saved = cap.copy() if eps else cap
-    ok, _, _ = cost_scaling_kernel(
-        net.start, net.head, cap, net.rev, cost, prices,
-        np.int64(factor), np.int64(SCALING_ALPHA), np.int64(eps), True,
-        np.int64(OPTIMALITY_TEST_SCANS * net.head.size),
-    )
+    ok = scale_costs(prices, eps)
     if not ok and eps > 0:
         # Prices from a start can grow past the limit where cold ones would not.
         cap[:] = saved
         prices = np.zeros(net.n, dtype=np.int64)
-        ok, _, _ = cost_scaling_kernel(
-            net.start, net.head, cap, net.rev, cost, prices,
-            np.int64(factor), np.int64(SCALING_ALPHA), np.int64(0), True,
-            np.int64(OPTIMALITY_TEST_SCANS * net.head.size),
-        )
+        ok = scale_costs(prices, 0)
     if cap is not net.cap:
         net.cap[:] = cap
     if not ok:
