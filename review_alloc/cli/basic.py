@@ -9,15 +9,13 @@ from pathlib import Path
 from review_alloc.cli.common import (
     EXIT_OK,
     emit_json,
-    noun,
     positive,
     prepare_solver,
-    solve,
     summary_lines,
     validation_message,
     whole,
 )
-from review_alloc.model import InputError, Policy, Session, load_session, save_session
+from review_alloc.model import InputError, Policy, Session
 
 Handler = Callable[[argparse.Namespace], int]
 
@@ -192,7 +190,7 @@ def rule_lines(summary: dict[str, object]) -> list[str]:
 
 
 def _cmd_import(args: argparse.Namespace) -> int:
-    from review_alloc.io import import_csv
+    from review_alloc.workspace import Workspace
 
     if args.output.exists() and not args.force:
         raise InputError([f"{args.output}: already exists; add --force to replace it"])
@@ -206,19 +204,20 @@ def _cmd_import(args: argparse.Namespace) -> int:
         policy = Policy(**overrides)
     except ValueError as error:
         raise InputError([f"options: {validation_message(error)}"]) from None
-    session = import_csv(
+    session = Workspace.import_csv(
+        args.output,
         args.papers,
         args.reviewers,
         args.conflicts,
         args.scores,
         policy=policy,
         ignore_extra=args.ignore_extra,
-        name=args.name or args.output.stem,
+        name=args.name,
         kind="panel" if args.panel else "conference",
-    )
-    save_session(session, args.output)
+        replace=args.force,
+    ).session
     print(
-        f"{args.output}: {len(session.papers)} {noun(session)}s, {len(session.reviewers)} "
+        f"{args.output}: {len(session.papers)} {session.noun}s, {len(session.reviewers)} "
         f"reviewers, {len(session.conflicts)} declared conflicts, {len(session.scores)} scores"
     )
     return EXIT_OK
@@ -258,9 +257,12 @@ def _cmd_plan(args: argparse.Namespace) -> int:
 
 def _cmd_demo(args: argparse.Namespace) -> int:
     from review_alloc.plan import plan_summary
-    from review_alloc.samples import workshop
+    from review_alloc.workspace import Workspace
 
-    session = solve(workshop())
+    ws = Workspace.demo()
+    prepare_solver()
+    ws.solve(fresh=True)
+    session = ws.session
     summary = plan_summary(session, session.plan)
     if getattr(args, "json", False):
         emit_json(summary)
@@ -270,10 +272,9 @@ def _cmd_demo(args: argparse.Namespace) -> int:
 
 
 def _cmd_export(args: argparse.Namespace) -> int:
-    from review_alloc.io import export_plan_csv
+    from review_alloc.workspace import Workspace
 
-    session = load_session(args.session)
-    rows = export_plan_csv(session, args.target, by=args.by)
+    rows = Workspace.open(args.session).export(args.target, by=args.by)
     print(f"{args.target}: {rows} assignments, one row each, by {args.by}")
     return EXIT_OK
 

@@ -41,27 +41,11 @@ def emit_json(payload: dict[str, Any]) -> None:
     sys.stdout.write(json.dumps(payload, indent=2, ensure_ascii=False) + "\n")
 
 
-def noun(session: Session) -> str:
-    """'proposal' for a grant panel, 'paper' otherwise."""
-    return "proposal" if session.kind == "panel" else "paper"
-
-
 def prepare_solver() -> None:
-    """Compile the kernels on a cold machine, saying so once; instant when the cache is warm."""
-    from review_alloc.flow import solver_cache_ready, warm_up
+    """Compile the kernels on a cold machine, saying so once on standard error."""
+    from review_alloc.workspace import prepare_solver as prepare
 
-    if not solver_cache_ready():
-        print("Preparing the solver (first run on this machine)...", file=sys.stderr)
-        warm_up()
-
-
-def solve(session: Session) -> Session:
-    """Plan the session and return it with the new, checked plan in place."""
-    from review_alloc.plan import make_plan
-
-    prepare_solver()
-    outcome = make_plan(session)
-    return session.model_copy(update={"plan": outcome.plan})
+    prepare(lambda line: print(line, file=sys.stderr))
 
 
 def _verdict(summary: dict[str, Any]) -> str:
@@ -74,7 +58,7 @@ def _verdict(summary: dict[str, Any]) -> str:
 
 def summary_lines(session: Session, summary: dict[str, Any], source: str) -> list[str]:
     """The short plain-text report of a plan summary."""
-    word = noun(session)
+    word = session.noun
     pct = 100.0 * summary["required_coverage"] / max(summary["required_demand"], 1)
     lines = [
         f"{session.name}: plan {_verdict(summary)}",

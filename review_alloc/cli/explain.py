@@ -8,8 +8,8 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from review_alloc.cli.common import CAUTION, EXIT_OK, EXIT_USAGE, emit_json, noun, whole
-from review_alloc.model import Session, load_session, save_session
+from review_alloc.cli.common import CAUTION, EXIT_OK, EXIT_USAGE, emit_json, whole
+from review_alloc.model import Session
 
 if TYPE_CHECKING:
     from review_alloc.plan.whatif import WhatIf
@@ -83,10 +83,11 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
 
 
 def _cmd_explain(args: argparse.Namespace) -> int:
-    from review_alloc.plan.fixes import explain_session
+    from review_alloc.workspace import Workspace
 
-    session = load_session(args.session)
-    report = explain_session(session)
+    ws = Workspace.open(args.session)
+    session = ws.session
+    report = ws.explain_report()
     if args.json:
         emit_json(report)
     else:
@@ -96,7 +97,7 @@ def _cmd_explain(args: argparse.Namespace) -> int:
 
 def explain_lines(session: Session, report: dict[str, Any], source: str) -> list[str]:
     """The short plain-text explanation."""
-    word = noun(session)
+    word = session.noun
     gaps = report["gaps"]
     lines: list[str] = []
     if not gaps:
@@ -201,58 +202,33 @@ def _listed(ids: list[str] | tuple[str, ...]) -> str:
 
 
 def _cmd_whatif(args: argparse.Namespace) -> int:
-    from review_alloc.plan.explain import coverage_network
-    from review_alloc.plan.fixes import raise_caps_fix, recruit_fix
-    from review_alloc.plan.whatif import (
-        add_recruits,
-        allow_overload,
-        apply_cap_fix,
-        apply_recruit_fix,
-        raise_caps,
-        what_if,
-    )
+    from review_alloc.workspace import ChangeSet, Workspace
 
-    if not (args.raise_cap or args.add_reviewers or args.apply_fix) and args.allow_overload is None:
+    changes = ChangeSet(
+        fixes=tuple(args.apply_fix),
+        raise_caps=_summed(args.raise_cap),
+        add_reviewers=_summed(args.add_reviewers),
+        allow_overload=args.allow_overload,
+        labels={"raise_caps": "--raise-cap", "add_reviewers": "--add-reviewers"},
+    )
+    if changes.is_empty():
         print(
             "error: whatif: give at least one change (--raise-cap, --add-reviewers, "
             "--allow-overload or --apply-fix)",
             file=sys.stderr,
         )
         return EXIT_USAGE
-    original = load_session(args.session)
-    changed = original
-    changes: list[str] = []
-    for fix_name in dict.fromkeys(args.apply_fix):
-        cov = coverage_network(changed, "reviews")
-        if fix_name == "raise-caps":
-            fix = raise_caps_fix(cov)
-            changed = apply_cap_fix(changed, fix)
-            changes += [f"raise cap of {r.reviewer} by {r.raise_by}" for r in fix.raises]
-        else:
-            recruits = recruit_fix(cov)
-            changed = apply_recruit_fix(changed, recruits)
-            changes += [f"add {n.recruits} reviewers in '{n.topic}'" for n in recruits.needs]
-    if args.raise_cap:
-        raises: dict[str, int] = {}
-        for rid, n in args.raise_cap:
-            raises[rid] = raises.get(rid, 0) + n
-        changed = raise_caps(changed, raises, label="--raise-cap")
-        changes += [f"raise cap of {rid} by {n}" for rid, n in raises.items()]
-    if args.add_reviewers:
-        counts: dict[str, int] = {}
-        for topic, n in args.add_reviewers:
-            counts[topic] = counts.get(topic, 0) + n
-        changed = add_recruits(changed, counts, label="--add-reviewers")
-        changes += [f"add {n} reviewers in '{topic}'" for topic, n in counts.items()]
-    if args.allow_overload is not None:
-        changed = allow_overload(changed, args.allow_overload)
-        changes.append(f"allow up to {args.allow_overload} papers above cap for everyone")
-    result = what_if(original, changed, tuple(changes))
+    ws = Workspace.open(args.session)
+    original = ws.session
+    result = ws.what_if(changes)
+    revision = None
     if args.accept:
-        save_session(result.session, args.session)
+        # One recorded change and one revision; `undo` takes both back.
+        revision = ws.accept(result, reason="whatif --accept", action="accept-whatif")
+        ws.save()
     known = {r.id for r in original.reviewers}
     added = [r.id for r in result.session.reviewers if r.id not in known]
-    payload = whatif_payload(result, added=added, accepted=args.accept)
+    payload = whatif_payload(result, added=added, accepted=args.accept, revision=revision)
     if args.json:
         emit_json(payload)
     else:
@@ -260,7 +236,17 @@ def _cmd_whatif(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-def whatif_payload(result: WhatIf, *, added: list[str], accepted: bool) -> dict[str, Any]:
+def _summed(pairs: list[tuple[str, int]]) -> dict[str, int]:
+    """NAME=N options added up by name, in the order first given."""
+    out: dict[str, int] = {}
+    for name, n in pairs:
+        out[name] = out.get(name, 0) + n
+    return out
+
+
+def whatif_payload(
+    result: WhatIf, *, added: list[str], accepted: bool, revision: int | None = None
+) -> dict[str, Any]:
     """The JSON object of `whatif`."""
     from dataclasses import asdict
 
@@ -278,12 +264,13 @@ def whatif_payload(result: WhatIf, *, added: list[str], accepted: bool) -> dict[
         "underloads": [asdict(x) for x in under],
         "new_reviewers": added,
         "accepted": accepted,
+        "revision": revision,
     }
 
 
 def whatif_lines(session: Session, payload: dict[str, Any], source: str) -> list[str]:
     """The short plain-text what-if report."""
-    word = noun(session)
+    word = session.noun
     b, a = payload["before"], payload["after"]
     lines = [f"{session.name}: what if"]
     lines += [f"  - {c}" for c in payload["changes"]] or ["  (no change)"]
@@ -298,7 +285,10 @@ def whatif_lines(session: Session, payload: dict[str, Any], source: str) -> list
     if payload["overloads"]:
         lines.append(f"  reviewers above cap: {len(payload['overloads'])}")
     if payload["accepted"]:
-        lines.append(f"  saved to {source} with its new plan")
+        lines.append(
+            f"  saved to {source} as revision {payload['revision']} with its new plan "
+            f"(review-alloc undo {source} takes it back)"
+        )
     else:
         lines.append(f"  {source} is unchanged; add --accept to save this change and its plan")
     lines.append(CAUTION)

@@ -26,6 +26,7 @@ Action = Literal[
     "plan",
     "undo",
     "accept-fix",
+    "accept-whatif",
     "set-policy",
 ]
 

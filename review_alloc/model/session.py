@@ -218,6 +218,11 @@ class Session(DocumentModel):
                 first[pair] = k
         return first
 
+    @property
+    def noun(self) -> str:
+        """What a submission is called: 'proposal' for a grant panel, 'paper' otherwise."""
+        return "proposal" if self.kind == "panel" else "paper"
+
     # Effective values: the entity's override, else the policy's. They do not look at
     # `withdrawn`; the planner leaves withdrawn papers and reviewers out.
 

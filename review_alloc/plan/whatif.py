@@ -16,7 +16,7 @@ from review_alloc.model import Plan, Reviewer, Session
 from review_alloc.plan.errors import PlanInputError
 from review_alloc.plan.fixes import CapRaiseFix, RecruitFix
 from review_alloc.plan.report import Gap, find_gaps
-from review_alloc.plan.solve import make_plan
+from review_alloc.plan.solve import PlanOutcome, make_plan
 
 RECRUIT_SCORE = 0.0
 """Score given to a recruit's pairs with their topic's papers: the fit is unknown until they bid."""
@@ -27,11 +27,16 @@ class WhatIf:
     """A changed copy of a session with its new plan, beside the plan of the session as it is."""
 
     session: Session
+    """The changed copy, carrying its new plan."""
     changes: tuple[str, ...]
     before: Plan
     after: Plan
     gaps_before: tuple[Gap, ...]
     gaps_after: tuple[Gap, ...]
+    base: Session | None = None
+    """The session object the copy was made from (a what-if of an older state is refused)."""
+    outcome: PlanOutcome | None = None
+    """The checked outcome of the changed copy's plan, so that accepting needs no new solve."""
 
 
 def raise_caps(session: Session, raises: Mapping[str, int], *, label: str = "raise cap") -> Session:
@@ -137,16 +142,31 @@ def apply_recruit_fix(session: Session, fix: RecruitFix) -> Session:
     return add_recruits(session, counts) if counts else session.model_copy(update={"plan": None})
 
 
-def what_if(session: Session, changed: Session, changes: tuple[str, ...]) -> WhatIf:
-    """Plan the session as it is and as changed; the changed copy carries its new plan."""
-    before = make_plan(session).plan
-    after = make_plan(changed).plan
-    planned = changed.model_copy(update={"plan": after})
+def what_if(
+    session: Session,
+    changed: Session,
+    changes: tuple[str, ...],
+    *,
+    before: Plan | None = None,
+    earlier: Plan | None = None,
+    warm: PlanOutcome | None = None,
+) -> WhatIf:
+    """Plan the session as it is (unless `before` is its current plan) and as changed.
+
+    The changed copy is planned as a re-plan of `earlier` (the pairs a chair already sent
+    keep their place where coverage allows) and carries its new plan.
+    """
+    if before is None:
+        before = make_plan(session, earlier=earlier, fresh=earlier is None, warm=warm).plan
+    outcome = make_plan(changed, earlier=earlier, fresh=earlier is None, warm=warm)
+    planned = changed.model_copy(update={"plan": outcome.plan})
     return WhatIf(
         session=planned,
         changes=changes,
         before=before,
-        after=after,
+        after=outcome.plan,
         gaps_before=tuple(find_gaps(session, before)),
-        gaps_after=tuple(find_gaps(planned, after)),
+        gaps_after=tuple(find_gaps(planned, outcome.plan)),
+        base=session,
+        outcome=outcome,
     )

@@ -1,8 +1,9 @@
 """The terminal app: one screen of tabs over an open Workspace.
 
-The app owns a `Workspace` and nothing else of the domain: every change goes through it, plans
-are made by the planner in a worker thread and installed with `Workspace.install_plan`, and
-the views only get `Facts` (attributes down) and post requests (messages up).
+The app owns a `Workspace` and nothing else of the domain: every change, plan, explanation,
+preview and acceptance goes through it (slow ones run its request objects in worker threads
+and hand the result back to it on the main thread), and the views only get `Facts`
+(attributes down) and post requests (messages up).
 """
 
 from __future__ import annotations
@@ -29,24 +30,26 @@ from textual.widgets import (
     TabPane,
 )
 
-from review_alloc.model import InputError, Plan, Session
+from review_alloc.model import InputError, Session
 from review_alloc.plan import PlanCheckError, PlanOutcome
+from review_alloc.plan.explanation import Explanation
 from review_alloc.plan.whatif import WhatIf
-from review_alloc.tui.dialogs import Confirm, Field, Form, HelpScreen, ImportForm, whole_or_default
-from review_alloc.tui.facts import Facts
-from review_alloc.tui.gapfix import (
-    ExplainView,
-    Explanation,
-    PaneHint,
-    accept_fix,
-    explain,
-    preview_fix,
+from review_alloc.tui.dialogs import (
+    Confirm,
+    Field,
+    Form,
+    HelpScreen,
+    ImportFiles,
+    ImportForm,
+    whole_or_default,
 )
+from review_alloc.tui.facts import Facts
+from review_alloc.tui.gapfix import ExplainView, PaneHint
 from review_alloc.tui.grid import RowTable
 from review_alloc.tui.overview import Overview
 from review_alloc.tui.records import ConflictView, HistoryView
 from review_alloc.tui.tables import EntityView, GapView, PaperView, ReviewerView
-from review_alloc.workspace import Workspace
+from review_alloc.workspace import ChangeSet, PlanRequest, Workspace, prepare_solver
 
 TABS = ("overview", "papers", "reviewers", "conflicts", "gaps", "history")
 
@@ -105,7 +108,7 @@ class ReviewAllocApp(App[None]):
         """A plan finished in the worker (`generation` tells stale results apart)."""
 
         generation: int
-        planned: Session
+        request: PlanRequest
         outcome: PlanOutcome
 
     @dataclass
@@ -130,6 +133,9 @@ class ReviewAllocApp(App[None]):
         explanation: Explanation
         preview: WhatIf | None
         lines: list[str]
+        kind: str = ""
+        accept: bool = False
+        """Accept the fix as soon as its preview is ready (the chair pressed `a`)."""
 
     def __init__(self, workspace: Workspace, *, clock: Callable[[], datetime] = _utc_now) -> None:
         super().__init__()
@@ -187,16 +193,9 @@ class ReviewAllocApp(App[None]):
     @work(thread=True, group="warm-up", exit_on_error=False)
     def _warm_up(self) -> None:
         """Compile or load the flow kernels so that the first plan starts at full speed."""
-        from review_alloc.flow import solver_cache_ready, warm_up
-
-        if not solver_cache_ready():
-            # Only a cold cache compiles (seconds, once per machine); say so, or a first plan
-            # that waits on it looks stuck.
-            self.call_from_thread(
-                self.notify,
-                "Preparing the solver (first run on this machine; later runs start at once)...",
-            )
-        warm_up()
+        # Only a cold cache compiles (seconds, once per machine); say so, or a first plan
+        # that waits on it looks stuck.
+        prepare_solver(lambda line: self.call_from_thread(self.notify, line))
 
     # -- drawing --------------------------------------------------------------------------
 
@@ -279,16 +278,14 @@ class ReviewAllocApp(App[None]):
         self.query_one("#planning-label", Label).update(
             f"planning {papers} {self.noun}s exactly... escape cancels "
         )
-        earlier = None if fresh else self.workspace.earlier_plan()
-        self._solve(snapshot, earlier, fresh, self._generation)
+        # Warm from the last outcome, keeping the current revision's pairs unless fresh.
+        self._solve(self.workspace.plan_request(fresh), self._generation)
 
     @work(thread=True, exclusive=True, group="plan", exit_on_error=False)
-    def _solve(self, snapshot: Session, earlier: Plan | None, fresh: bool, generation: int) -> None:
-        """Run the planner on a snapshot and post the outcome back to the app."""
-        from review_alloc.plan import make_plan
-
+    def _solve(self, request: PlanRequest, generation: int) -> None:
+        """Run the Workspace's plan request on its snapshot and post the outcome back."""
         try:
-            outcome = make_plan(snapshot, fresh=fresh, earlier=earlier, now=self.clock())
+            outcome = request.run(now=self.clock())
         except InputError as error:
             self.post_message(self.PlanFailed(generation, list(error.lines)))
             return
@@ -297,7 +294,7 @@ class ReviewAllocApp(App[None]):
                 self.PlanFailed(generation, [f"plan withheld by the checker: {error}"])
             )
             return
-        self.post_message(self.PlanReady(generation, snapshot, outcome))
+        self.post_message(self.PlanReady(generation, request, outcome))
 
     def _end_planning(self) -> None:
         self._planning_since = None
@@ -327,7 +324,7 @@ class ReviewAllocApp(App[None]):
         self._end_planning()
         ws = self.workspace
         try:
-            ws.install_plan(message.outcome, message.planned)
+            ws.install_plan(message.outcome, message.request.session)
         except InputError as error:
             self.notify("\n".join(error.lines), title="Plan not installed", severity="warning")
             return
@@ -337,7 +334,7 @@ class ReviewAllocApp(App[None]):
         change = "the first revision"
         entry = ws.history()[-1]
         if entry.parent is not None:
-            d = ws.diff(entry.parent, number)
+            d = ws.diff_from_parent(entry.number)
             change = (
                 f"against revision {entry.parent}: +{len(d.added)} / -{len(d.removed)} pairs, "
                 f"{d.kept} kept, {len(d.by_reviewer)} reviewer(s) to tell"
@@ -389,7 +386,7 @@ class ReviewAllocApp(App[None]):
     def _explain(self, session: Session) -> None:
         """Compute the groups and fixes of a session snapshot and post them back."""
         try:
-            result = explain(session)
+            result = self.workspace.explain(session)
         except (InputError, PlanCheckError, OverflowError) as error:
             lines = list(error.lines) if isinstance(error, InputError) else [str(error)]
             self.post_message(self.ExplainReady(session, None, lines))
@@ -424,37 +421,31 @@ class ReviewAllocApp(App[None]):
             self.notify("the explanation is being brought up to date; try again in a moment")
             self._maybe_explain()
             return
-        if message.action == "preview":
-            view.state = f"previewing the {message.kind} fix on a copy… (planning twice)"
-            self._preview(explanation, message.kind)
-            return
-        if self.planning:
+        accept = message.action == "accept"
+        if accept and self.planning:
             self.notify("wait for the plan or cancel it (escape) before accepting a fix")
             return
-        try:
-            done = accept_fix(self.workspace, explanation, message.kind)
-        except InputError as error:
-            self._refresh_all()
-            self.notify("\n".join(error.lines[:8]), title="Fix refused", severity="warning")
+        shown = view.preview
+        if accept and shown is not None and shown.base is self.workspace.session:
+            # What the chair previewed is exactly what is accepted: no second solve.
+            self._accept(message.kind, shown)
             return
-        self._refresh_all()
-        self.notify(
-            "\n".join(done[:6] + ([f"… {len(done) - 6} more"] if len(done) > 6 else []))
-            + "\nRecorded under History; planning again.",
-            title=f"Accepted the {message.kind} fix",
+        view.state = (
+            f"{'accepting' if accept else 'previewing'} the {message.kind} fix… "
+            "(planning the session as it is and as changed)"
         )
-        self.action_plan()
+        self._preview(explanation, message.kind, accept)
 
     @work(thread=True, exclusive=True, group="whatif", exit_on_error=False)
-    def _preview(self, explanation: Explanation, kind: str) -> None:
-        """Plan the session and its changed copy; the workspace is never touched."""
+    def _preview(self, explanation: Explanation, kind: str, accept: bool) -> None:
+        """Plan the session and its changed copy; the session is never touched here."""
         try:
-            result = preview_fix(explanation, kind)
+            result = self.workspace.what_if(ChangeSet(fixes=(kind,)), explanation)
         except (InputError, PlanCheckError) as error:
             lines = list(error.lines) if isinstance(error, InputError) else [str(error)]
             self.post_message(self.PreviewReady(explanation, None, lines))
             return
-        self.post_message(self.PreviewReady(explanation, result, []))
+        self.post_message(self.PreviewReady(explanation, result, [], kind, accept))
 
     @on(PreviewReady)
     def _preview_ready(self, message: PreviewReady) -> None:
@@ -466,6 +457,26 @@ class ReviewAllocApp(App[None]):
             return
         view.preview = message.preview
         view.state = f"preview ready: {len(message.preview.gaps_after)} {self.noun}s short after it"
+        if message.accept:
+            self._accept(message.kind, message.preview)
+
+    def _accept(self, kind: str, preview: WhatIf) -> None:
+        """Record a previewed fix as one change and install its plan as one revision."""
+        try:
+            number = self.workspace.accept(preview, reason=f"Gaps tab: accepted the {kind} fix")
+        except InputError as error:
+            self._refresh_all()
+            self.notify("\n".join(error.lines[:8]), title="Fix refused", severity="warning")
+            return
+        self._refresh_all()
+        done = list(preview.changes)
+        f = preview.after.figures
+        self.notify(
+            "\n".join(done[:6] + ([f"… {len(done) - 6} more"] if len(done) > 6 else []))
+            + f"\nrevision {number}: {f.coverage}/{f.demand} reviews, score "
+            f"{f.total_score:.2f}. History lists the change; ctrl+z takes it back.",
+            title=f"Accepted the {kind} fix",
+        )
 
     # -- changes --------------------------------------------------------------------------
 
@@ -659,16 +670,12 @@ class ReviewAllocApp(App[None]):
 
     @on(HistoryView.DiffWanted)
     def _diff_wanted(self, message: HistoryView.DiffWanted) -> None:
-        from review_alloc.plan.diff import diff_plans
-
         ws = self.workspace
-        entry = next(e for e in ws.history() if e.number == message.target)
-        base = message.base if message.base is not None else entry.parent
         view = self.query_one(HistoryView)
-        if base is None:
-            view.diff = diff_plans(None, ws.plan_of(message.target), new_number=message.target)
+        if message.base is None:
+            view.diff = ws.diff_from_parent(message.target)
         else:
-            view.diff = ws.diff(base, message.target)
+            view.diff = ws.diff(message.base, message.target)
 
     # -- files ----------------------------------------------------------------------------
 
@@ -693,13 +700,25 @@ class ReviewAllocApp(App[None]):
             return
         self.push_screen(ImportForm(self._open_imported))
 
-    def _open_imported(self, session: Session, target: Path) -> None:
-        workspace = Workspace(session, None)
-        workspace.save(target)
+    def _open_imported(self, files: ImportFiles) -> list[str]:
+        """Import through the Workspace and show the new session; problems stay in the form."""
+        try:
+            workspace = Workspace.import_csv(
+                files.target,
+                files.papers,
+                files.reviewers,
+                files.conflicts,
+                files.scores,
+                kind="panel" if files.panel else "conference",
+            )
+        except InputError as error:
+            return list(error.lines)
         self.workspace = workspace
         self._history_mark = None
         self._refresh_all()
-        self.notify(f"imported {len(session.papers)} {self.noun}s into {target}")
+        session = workspace.session
+        self.notify(f"imported {len(session.papers)} {self.noun}s into {files.target}")
+        return []
 
     async def action_quit(self) -> None:
         """Quit, asking first when there are unsaved changes."""
@@ -809,7 +828,8 @@ def make_app(
 
     Raises `InputError` (file, field, problem) when the file cannot be read.
     """
-    from review_alloc.tui.start import demo_session_path
-
-    path = Path(session_path) if session_path is not None else demo_session_path()
-    return ReviewAllocApp(Workspace.open(path), clock=clock or _utc_now)
+    if session_path is None:
+        workspace = Workspace.open_demo()
+    else:
+        workspace = Workspace.open(Path(session_path))
+    return ReviewAllocApp(workspace, clock=clock or _utc_now)

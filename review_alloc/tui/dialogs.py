@@ -14,8 +14,6 @@ from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Button, Checkbox, Input, Label, Static
 
-from review_alloc.model import InputError, Session
-
 
 class Confirm(ModalScreen[bool]):
     """A yes/no question; escape answers no."""
@@ -135,10 +133,22 @@ def whole_or_default(text: str, name: str) -> tuple[int | None, list[str]]:
     return value, []
 
 
+@dataclass(frozen=True)
+class ImportFiles:
+    """What the import form asks for: the CSV files, where to save, and the session's kind."""
+
+    papers: Path
+    reviewers: Path
+    conflicts: Path | None
+    scores: Path | None
+    target: Path
+    panel: bool
+
+
 class ImportForm(Form):
     """Build a session from CSV files, with the same row-level errors as the command line."""
 
-    def __init__(self, opened: Callable[[Session, Path], None]) -> None:
+    def __init__(self, importer: Callable[[ImportFiles], list[str]]) -> None:
         fields = [
             Field("papers", "papers CSV (paper_id,title,topics,reviews,min_reviews)"),
             Field("reviewers", "reviewers CSV (reviewer_id,name,email,institution,...)"),
@@ -147,7 +157,7 @@ class ImportForm(Form):
             Field("target", "save the new session as (a .json file)"),
         ]
         super().__init__("Import a session from CSV files", fields, self._import)
-        self.opened = opened
+        self.importer = importer
 
     def on_mount(self) -> None:
         """Add the panel switch above the problems line."""
@@ -157,25 +167,17 @@ class ImportForm(Form):
         )
 
     def _import(self, values: dict[str, str]) -> list[str]:
-        from review_alloc.io import import_csv
-
-        target = Path(values["target"]).expanduser()
-        if target.exists():
-            return [f"{target}: already exists; choose another name"]
-        panel = self.query_one("#panel", Checkbox).value
-        try:
-            session = import_csv(
-                Path(values["papers"]).expanduser(),
-                Path(values["reviewers"]).expanduser(),
-                Path(values["conflicts"]).expanduser() if values["conflicts"] else None,
-                Path(values["scores"]).expanduser() if values["scores"] else None,
-                name=target.stem,
-                kind="panel" if panel else "conference",
+        """Hand the files to the app's importer; its problem lines stay in the form."""
+        return self.importer(
+            ImportFiles(
+                papers=Path(values["papers"]).expanduser(),
+                reviewers=Path(values["reviewers"]).expanduser(),
+                conflicts=Path(values["conflicts"]).expanduser() if values["conflicts"] else None,
+                scores=Path(values["scores"]).expanduser() if values["scores"] else None,
+                target=Path(values["target"]).expanduser(),
+                panel=self.query_one("#panel", Checkbox).value,
             )
-        except InputError as error:
-            return list(error.lines)
-        self.opened(session, target)
-        return []
+        )
 
 
 class HelpScreen(ModalScreen[None]):

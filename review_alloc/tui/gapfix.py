@@ -1,7 +1,8 @@
 """The Gaps tab's second pane: why papers are short (shortfall groups) and the computed fixes.
 
-The app computes an `Explanation` in a worker thread and hands it down; the view shows it and
-asks for a what-if preview or for accepting a fix by posting `FixRequest` (messages up). Only
+The app asks the Workspace for an `Explanation` in a worker thread and hands it down; the view
+shows it and asks for a what-if preview or for accepting a fix by posting `FixRequest`
+(messages up). Only
 cap raises and recruits are fixes; conflicts and blocks are listed as information and can be
 neither previewed nor accepted.
 """
@@ -20,106 +21,14 @@ from textual.reactive import reactive
 from textual.widget import Widget
 from textual.widgets import Static
 
-from review_alloc.model import Reviewer, Session
-from review_alloc.plan.explain import TIERS, ShortfallGroup, coverage_network, shortfall_groups
-from review_alloc.plan.fixes import (
-    CAUTIONS,
-    CapRaiseFix,
-    PairLoss,
-    RecruitFix,
-    best_fixes,
-)
-from review_alloc.plan.network import build_network
-from review_alloc.plan.whatif import WhatIf, apply_cap_fix, apply_recruit_fix, what_if
+from review_alloc.plan.explain import ShortfallGroup
+from review_alloc.plan.explanation import Explanation
+from review_alloc.plan.fixes import CAUTIONS
+from review_alloc.plan.whatif import WhatIf
 from review_alloc.tui.grid import RowTable
-from review_alloc.workspace import Workspace
-
-FIX_KINDS = ("raise-caps", "recruit")
-"""The two kinds of fix the pane can preview and accept, in the order shown."""
 
 _TIER_WORDS = {"min_reviews": "required", "reviews": "all"}
 """Group labels by tier: 'required 1' is the CLI's min_reviews-1, 'all 1' its reviews-1."""
-
-
-@dataclass(frozen=True)
-class Explanation:
-    """The shortfall groups of both tiers and the fixes, computed for one session object."""
-
-    session: Session
-    groups: tuple[ShortfallGroup, ...]
-    caps: CapRaiseFix
-    recruits: RecruitFix
-    losses: tuple[PairLoss, ...]
-    shortfall: dict[str, int]
-
-
-def explain(session: Session) -> Explanation:
-    """Groups for both tiers and the best fixes, with one shared network (no plan is made)."""
-    net = build_network(session)
-    covs = {tier: coverage_network(session, tier, plan_net=net) for tier in TIERS}
-    groups = tuple(g for tier in TIERS for g in shortfall_groups(covs[tier]))
-    caps, recruits, losses = best_fixes(session, covs["reviews"])
-    return Explanation(
-        session=session,
-        groups=groups,
-        caps=caps,
-        recruits=recruits,
-        losses=losses,
-        shortfall={tier: cov.shortfall for tier, cov in covs.items()},
-    )
-
-
-def fix_changes(explanation: Explanation, kind: str) -> tuple[Session, tuple[str, ...]]:
-    """The changed copy of a fix (by the plan layer's own functions) and its change lines."""
-    s = explanation.session
-    if kind == "raise-caps":
-        fix = explanation.caps
-        lines = tuple(
-            f"raise cap of {r.reviewer} by {r.raise_by} ({r.cap} -> {r.new_cap})"
-            for r in fix.raises
-        )
-        return apply_cap_fix(s, fix), lines
-    if kind == "recruit":
-        rec = explanation.recruits
-        lines = tuple(f"add {n.recruits} reviewers in '{n.topic}'" for n in rec.needs)
-        return apply_recruit_fix(s, rec), lines
-    raise ValueError(f"fix {kind!r} must be one of {FIX_KINDS}")
-
-
-def preview_fix(explanation: Explanation, kind: str) -> WhatIf:
-    """Plan the session as it is and with the fix, both on copies; nothing is installed."""
-    changed, lines = fix_changes(explanation, kind)
-    return what_if(explanation.session, changed, lines)
-
-
-def accept_fix(workspace: Workspace, explanation: Explanation, kind: str) -> list[str]:
-    """Apply a fix through the Workspace (recorded as events); return what was done.
-
-    The changed copy comes from the same plan-layer function the `whatif` command uses; its
-    differences from the session become Workspace changes: raised caps and added reviewers.
-    """
-    if workspace.session is not explanation.session:
-        raise ValueError("the session changed since this explanation; wait for the new one")
-    before = explanation.session
-    changed, _ = fix_changes(explanation, kind)
-    reason = f"Gaps tab: accepted the {kind} fix"
-    done: list[str] = []
-    for j, old in enumerate(before.reviewers):
-        new_cap = changed.reviewers[j].cap
-        if new_cap is not None and new_cap != before.reviewer_cap(j):
-            workspace.set_reviewer(old.id, cap=new_cap, reason=reason)
-            done.append(f"cap of {old.id}: {before.reviewer_cap(j)} -> {new_cap}")
-    table = changed.scores
-    for j in range(len(before.reviewers), len(changed.reviewers)):
-        recruit: Reviewer = changed.reviewers[j]
-        rows = table.reviewer == j
-        scores = {
-            changed.papers[int(i)].id: float(v)
-            for i, v in zip(table.paper[rows], table.value[rows], strict=True)
-        }
-        workspace.add_reviewer(recruit, reason=reason, scores=scores)
-        done.append(f"added {recruit.id} ({recruit.name})")
-    return done
 
 
 class PaneHint(Static):
@@ -295,7 +204,7 @@ class ExplainView(Widget):
     def _noun(self) -> str:
         """'proposal' for a grant panel, 'paper' otherwise."""
         e = self.explanation
-        return "proposal" if e is not None and e.session.kind == "panel" else "paper"
+        return e.session.noun if e is not None else "paper"
 
     def _group_detail(self, out: Text, g: ShortfallGroup) -> None:
         noun = self._noun()

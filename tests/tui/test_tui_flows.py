@@ -17,8 +17,8 @@ from review_alloc.tui import ReviewAllocApp, make_app
 from review_alloc.tui.dialogs import Confirm, Form, HelpScreen
 from review_alloc.tui.grid import RowTable
 from review_alloc.tui.records import ConflictView, HistoryView
-from review_alloc.tui.start import DEMO_FILE, demo_session_path
 from review_alloc.tui.tables import PaperView, ReviewerView
+from review_alloc.workspace.files import DEMO_FILE, demo_session_path
 
 SIZE = (120, 40)
 REPO = Path(__file__).resolve().parents[2]

@@ -74,24 +74,35 @@ async def test_groups_preview_and_accept_the_cap_raise(new_app: Factory, tmp_pat
         assert f"cap {cap_fix.raises[0].cap} -> {cap_fix.raises[0].new_cap}" in view.detail_text()
         assert "papers short: " in view.detail_text()
 
-        # Accepting goes through the Workspace (events, unsaved mark) and plans again.
+        # Accepting goes through the Workspace: one recorded change (however many caps it
+        # raises) and one revision whose plan is the one previewed; one undo takes both back.
         events = len(planned.events)
+        revisions = len(app.workspace.revisions)
+        previewed = view.preview.after.figures
         await pilot.press("a")
         await settle(app, pilot)
         ws = app.workspace
         s = ws.session
         assert ws.dirty
-        raised = [e for e in s.events[events:] if e.action == "set-reviewer"]
-        assert {e.subject for e in raised} == {r.reviewer for r in cap_fix.raises}
+        assert [e.action for e in s.events[events:]] == ["accept-fix", "plan"]
+        accepted = s.events[events]
         for r in cap_fix.raises:
+            assert f"raise cap of {r.reviewer} by {r.raise_by}" in accepted.detail
             assert s.reviewer_cap(s.reviewer_index()[r.reviewer]) == r.new_cap
-        assert s.events[-1].action == "plan" and not ws.data_changed_since_plan()
+        assert len(ws.revisions) == revisions + 1 and s.plan.figures == previewed
+        assert not ws.data_changed_since_plan()
         assert not find_gaps(s, s.plan)
         assert s.plan.figures.coverage == cap_fix.demand
         # The new plan is explained again: nothing short now.
         await settle(app, pilot)
         assert view.explanation is not None and view.explanation.session is s
         assert not view.explanation.groups
+        await pilot.press("ctrl+z")
+        await settle(app, pilot)
+        back = ws.session
+        assert back.revision == planned.revision
+        assert [r.cap for r in back.reviewers] == [r.cap for r in planned.reviewers]
+        assert back.plan == planned.plan
     assert shipped.read_bytes() == before_bytes
 
 
@@ -136,8 +147,10 @@ async def test_conflicts_are_information_only_and_recruits_are_added(new_app: Fa
         await pilot.press("a")
         await settle(app, pilot)
         s = ws.session
-        added = [e.subject for e in s.events if e.action == "add-reviewer"]
+        assert [e.action for e in s.events[-2:]] == ["accept-fix", "plan"]
+        added = [r.id for r in s.reviewers if r.id not in session.reviewer_index()]
         assert added and all(rid.startswith("NEW-") for rid in added)
+        assert "reviewers in '" in s.events[-2].detail
         # The conflict stands: the new plan never pairs the conflicted reviewer with the paper.
         assert (conflicted, first) not in {(a.reviewer, a.paper) for a in s.plan.assignments}
         assert not find_gaps(s, s.plan)

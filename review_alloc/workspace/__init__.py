@@ -1,0 +1,29 @@
+"""The Workspace: the one door to an open session for the command line and the terminal app.
+
+It owns the session and its file (open, import, save, export), every change (validated,
+refused with reasons from the planner's rule module, recorded as one event each), the history
+(revisions, undo, diff, notices), and the services both faces call: plan (warm whenever there
+is a previous outcome), explain, preview a fix or a what-if, and accept it as one change.
+The faces format and display; they never save, solve or decide a rule around it.
+"""
+
+from review_alloc.workspace.base import ChangeRefused
+from review_alloc.workspace.files import FilesMixin, data_folder, demo_session_path
+from review_alloc.workspace.history import HistoryEntry
+from review_alloc.workspace.planning import ChangeSet, PlanningMixin, PlanRequest, prepare_solver
+
+
+class Workspace(FilesMixin, PlanningMixin):
+    """An open session with its file path, its unsaved-changes mark, its changes and services."""
+
+
+__all__ = [
+    "ChangeRefused",
+    "ChangeSet",
+    "HistoryEntry",
+    "PlanRequest",
+    "Workspace",
+    "data_folder",
+    "demo_session_path",
+    "prepare_solver",
+]

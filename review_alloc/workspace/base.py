@@ -1,0 +1,175 @@
+"""The state every part of the Workspace shares: the open session, its file, and the event log.
+
+Every change is validated as a whole, recorded as one `Event`, and applied to the current plan
+at once: pairs the rules now forbid leave it, and the plan is marked stale (not checked) until
+the next plan, so that no plan on screen or on disk ever holds a forbidden pair.
+"""
+
+from __future__ import annotations
+
+from datetime import UTC, datetime
+from pathlib import Path
+
+import numpy as np
+
+from review_alloc.model import Action, Event, InputError, Paper, Plan, Reviewer, Session
+from review_alloc.model.history import SessionData, rebase_root_scores
+from review_alloc.plan import PlanOutcome
+from review_alloc.plan.figures import assignment_indices, plan_figures
+from review_alloc.plan.rules import PairRules
+
+MARKS = ("plan", "undo")
+"""Events after which the plan and the data agree again."""
+
+STALE_NOTE = " (stale: the data changed since it was made; plan again)"
+"""Appended to a plan's method when a change leaves it standing but no longer checked."""
+
+
+class ChangeRefused(InputError):
+    """A change that a hard rule forbids (a conflicted pin, an unknown id, a cap below pins)."""
+
+
+class WorkspaceBase:
+    """An open session with its file path and its unsaved-changes mark."""
+
+    def __init__(self, session: Session, path: Path | None = None) -> None:
+        self.session = session
+        self.path = path
+        self.dirty = False
+        # Rebuilt revision data by number; revisions never change, so this never goes stale.
+        self._data: dict[int, SessionData] = {}
+        self.last_outcome: PlanOutcome | None = None
+        """The latest plan's outcome: its flow and potentials warm-start the next solve."""
+
+    @property
+    def noun(self) -> str:
+        """'proposal' for a grant panel, 'paper' otherwise."""
+        return self.session.noun
+
+    def data_changed_since_plan(self) -> bool:
+        """True when a change was recorded after the current plan was made or restored."""
+        events = self.session.events
+        return bool(events) and events[-1].action not in MARKS
+
+    def plan_is_current(self) -> bool:
+        """True when there is a plan and no change was recorded after it."""
+        return self.session.plan is not None and not self.data_changed_since_plan()
+
+    # -- ids ------------------------------------------------------------------------------
+
+    def _reviewer(self, reviewer_id: str) -> int:
+        index = self.session.reviewer_index()
+        if reviewer_id not in index:
+            raise ChangeRefused([f"unknown reviewer {reviewer_id!r}"])
+        return index[reviewer_id]
+
+    def _paper(self, paper_id: str) -> int:
+        index = self.session.paper_index()
+        if paper_id not in index:
+            raise ChangeRefused([f"unknown {self.noun} {paper_id!r}"])
+        return index[paper_id]
+
+    # -- recording ------------------------------------------------------------------------
+
+    def _apply(
+        self, action: Action, subject: str, detail: str, reason: str, **fields: object
+    ) -> None:
+        """Validate the changed session as a whole, prune the plan, record the event."""
+        candidate = self.session.model_copy(update=fields)
+        problems = candidate.validation_problems()
+        if problems:
+            raise ChangeRefused(problems)
+        if "scores" in fields:
+            # The first revision's scores are kept relative to the session's: retake them.
+            candidate = candidate.model_copy(
+                update={
+                    "revisions": rebase_root_scores(
+                        candidate.revisions, self.session.scores, candidate.scores
+                    )
+                }
+            )
+        self.session = candidate
+        self._record(action, subject, detail, reason=reason, plan=self._pruned_plan())
+
+    def _record(
+        self,
+        action: Action,
+        subject: str,
+        detail: str,
+        *,
+        reason: str = "",
+        plan: Plan | None = None,
+        **fields: object,
+    ) -> None:
+        event = Event(
+            at=datetime.now(UTC), action=action, subject=subject, detail=detail, reason=reason
+        )
+        self.session = self.session.model_copy(
+            update={"events": [*self.session.events, event], "plan": plan, **fields}
+        )
+        self.dirty = True
+
+    def _pruned_plan(self) -> Plan | None:
+        """The current plan without the pairs the rules now forbid, marked stale (unchecked)."""
+        s = self.session
+        plan = s.plan
+        if plan is None:
+            return None
+        method = plan.method if plan.method.endswith(STALE_NOTE) else plan.method + STALE_NOTE
+        if not plan.assignments:
+            return plan.model_copy(update={"checked": False, "method": method})
+        reviewer, paper, score = assignment_indices(s, plan.assignments)
+        pinned = {(p.reviewer, p.paper) for p in s.pins}
+        is_pin = np.fromiter(
+            ((a.reviewer, a.paper) in pinned for a in plan.assignments),
+            dtype=bool,
+            count=len(plan.assignments),
+        )
+        keep = PairRules(s).plan_keep(reviewer, paper, score, is_pin)
+        kept = (
+            plan.assignments
+            if keep.all()
+            else [a for a, ok in zip(plan.assignments, keep, strict=True) if ok]
+        )
+        return plan.model_copy(
+            update={
+                "assignments": kept,
+                "figures": plan_figures(s, reviewer[keep], paper[keep], score[keep]),
+                "checked": False,
+                "method": method,
+            }
+        )
+
+    # -- copies of entity lists -----------------------------------------------------------
+
+    def _with_reviewer(self, j: int, **changes: object) -> list[Reviewer]:
+        reviewers = list(self.session.reviewers)
+        reviewers[j] = reviewers[j].model_copy(update=changes)
+        return reviewers
+
+    def _with_paper(self, i: int, **changes: object) -> list[Paper]:
+        papers = list(self.session.papers)
+        papers[i] = papers[i].model_copy(update=changes)
+        return papers
+
+
+def data_of(session: Session) -> SessionData:
+    """The session's changeable data, sharing its lists (they are replaced, never edited)."""
+    return SessionData(
+        policy=session.policy,
+        papers=session.papers,
+        reviewers=session.reviewers,
+        conflicts=session.conflicts,
+        pins=session.pins,
+        blocks=session.blocks,
+        scores=session.scores,
+    )
+
+
+DATA_FIELDS = ("policy", "papers", "reviewers", "conflicts", "pins", "blocks", "scores")
+"""The session fields a change may replace; plans, events and revisions are the record."""
+
+
+def same_data(a: Session, b: Session) -> bool:
+    """Whether two session objects hold the very same data lists (so one plan fits both)."""
+    return all(getattr(a, name) is getattr(b, name) for name in DATA_FIELDS)

@@ -1,0 +1,166 @@
+"""The record of an open session: revisions, their data and plans, undo, diffs and notices."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from datetime import datetime
+
+from review_alloc.model import Plan
+from review_alloc.model.history import Revision, SessionData, rebase_root_scores, restore_data
+from review_alloc.model.plans import PlanFigures
+from review_alloc.plan.diff import NotifyRow, PlanDiff, diff_plans, notify_rows
+from review_alloc.workspace.base import ChangeRefused, WorkspaceBase
+
+
+@dataclass(frozen=True)
+class HistoryEntry:
+    """One revision as a history view shows it."""
+
+    number: int
+    parent: int | None
+    created_at: datetime
+    current: bool
+    fresh: bool
+    kept: int | None
+    parent_pairs: int | None
+    figures: PlanFigures
+    changes: tuple[str, ...]
+    """The changes made since the revision before, one line each."""
+
+    def to_json(self) -> dict[str, object]:
+        """Plain JSON form."""
+        return {
+            "number": self.number,
+            "parent": self.parent,
+            "created_at": self.created_at.isoformat(),
+            "current": self.current,
+            "fresh": self.fresh,
+            "kept": self.kept,
+            "parent_pairs": self.parent_pairs,
+            "figures": self.figures.model_dump(),
+            "changes": list(self.changes),
+        }
+
+
+
+
+class HistoryMixin(WorkspaceBase):
+    """Revisions, undo, diffs and notices of a Workspace."""
+
+
+    @property
+    def revisions(self) -> list[Revision]:
+        """Every revision, oldest first."""
+        return self.session.revisions
+
+    def history(self) -> list[HistoryEntry]:
+        """The revisions with the changes made before each, oldest first."""
+        s = self.session
+        return [
+            HistoryEntry(
+                number=r.number,
+                parent=r.parent,
+                created_at=r.created_at,
+                current=r.number == s.revision,
+                fresh=r.fresh,
+                kept=r.kept,
+                parent_pairs=r.parent_pairs,
+                figures=r.figures,
+                changes=tuple(e.describe() for e in s.events[r.changes_from : r.event]),
+            )
+            for r in s.revisions
+        ]
+
+    def _revision(self, number: int) -> Revision:
+        for r in self.session.revisions:
+            if r.number == number:
+                return r
+        known = ", ".join(str(r.number) for r in self.session.revisions) or "none yet"
+        raise ChangeRefused([f"unknown revision {number} (revisions: {known})"])
+
+    def data_of(self, number: int) -> SessionData:
+        """The data revision `number` was planned from."""
+        self._revision(number)
+        if number not in self._data:
+            try:
+                self._data[number] = restore_data(
+                    self.session.revisions, number, self.session.scores
+                )
+            except ValueError as error:
+                raise ChangeRefused([f"revision {number}: {error}"]) from None
+        return self._data[number]
+
+    def plan_of(self, number: int) -> Plan:
+        """The plan of revision `number`, exactly as it was made."""
+        return self._revision(number).plan(self.data_of(number))
+
+    def undo(self, reason: str = "") -> int:
+        """Go back one step: its plan and the data it had.
+
+        With changes made since the current revision, that step is the current revision
+        itself (the changes are dropped, and stay listed as events); otherwise it is the
+        revision the current one was planned from.
+        """
+        s = self.session
+        if s.revision is None:
+            raise ChangeRefused(["there is no plan in the history to go back from"])
+        current = self._revision(s.revision)
+        if self.data_changed_since_plan():
+            target = current.number
+        elif current.parent is None:
+            raise ChangeRefused([f"revision {current.number} is the first; nothing to go back to"])
+        else:
+            target = current.parent
+        data = self.data_of(target)
+        self.session = s.model_copy(
+            update={
+                **data.fields(),
+                "revisions": rebase_root_scores(s.revisions, s.scores, data.scores),
+            }
+        )
+        self._record(
+            "undo",
+            str(target),
+            f"back to revision {target}"
+            + (f" from {current.number}" if target != current.number else ", changes dropped"),
+            reason=reason,
+            plan=self.plan_of(target),
+            revision=target,
+        )
+        return target
+
+    def diff_from_parent(self, number: int) -> PlanDiff:
+        """What revision `number` changed against the revision it was planned from."""
+        parent = self._revision(number).parent
+        if parent is None:
+            return diff_plans(None, self.plan_of(number), new_number=number)
+        return self.diff(parent, number)
+
+    def diff(self, a: int | None = None, b: int | None = None) -> PlanDiff:
+        """Pairs added and removed from revision `a` to `b` (default: the last two)."""
+        numbers = [r.number for r in self.session.revisions]
+        if not numbers:
+            raise ChangeRefused(["there are no revisions yet; make a plan first"])
+        if b is None:
+            b = numbers[-1] if a is None or a != numbers[-1] else a
+        if a is None:
+            earlier = [n for n in numbers if n < b]
+            if not earlier:
+                raise ChangeRefused([f"revision {b} is the first; name two revisions to compare"])
+            a = earlier[-1]
+        return diff_plans(self.plan_of(a), self.plan_of(b), old_number=a, new_number=b)
+
+    def notify_rows(self, since: int) -> list[NotifyRow]:
+        """Reviewers whose list changed from revision `since` to the current revision."""
+        current = self.session.revision
+        if current is None:
+            raise ChangeRefused(["the current plan is not a revision; make a plan first"])
+        change = self.diff(since, current)
+        return notify_rows(
+            change,
+            self.plan_of(since),
+            self.plan_of(current),
+            self.data_of(since),
+            self.data_of(current),
+        )
+

@@ -1,0 +1,257 @@
+"""Plans, explanations and what-ifs of the open session: the services both faces call.
+
+Every plan is made by `plan.make_plan` from a snapshot of the session, warm-started from the
+previous outcome whenever there is one, checked, and installed as a new revision. Slow work
+(a plan, an explanation, a preview) can run in a worker thread: the request objects hold an
+immutable snapshot, and installing refuses a result whose session changed meanwhile.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field
+from datetime import datetime
+
+from review_alloc.model import Action, Plan, Session
+from review_alloc.model.history import DataDelta, Revision, assignment_table
+from review_alloc.plan import PlanOutcome, make_plan
+from review_alloc.plan.explanation import FIX_KINDS, Explanation, explain, report
+from review_alloc.plan.whatif import WhatIf, add_recruits, allow_overload, raise_caps, what_if
+from review_alloc.workspace.base import MARKS, ChangeRefused, data_of, same_data
+from review_alloc.workspace.changes import ChangesMixin
+from review_alloc.workspace.history import HistoryMixin
+
+
+def prepare_solver(say: Callable[[str], None] | None = None) -> None:
+    """Compile the flow kernels on a cold machine (saying so once through `say`), else load them."""
+    from review_alloc.flow import solver_cache_ready, warm_up
+
+    if not solver_cache_ready() and say is not None:
+        say("Preparing the solver (first run on this machine; later runs start at once)...")
+    warm_up()
+
+
+@dataclass(frozen=True)
+class PlanRequest:
+    """What one plan needs, taken from the session at one moment; `run` may go in a thread."""
+
+    session: Session
+    fresh: bool
+    earlier: Plan | None
+    warm: PlanOutcome | None
+
+    def run(self, now: datetime | None = None) -> PlanOutcome:
+        """Make the optimal, checked plan of the snapshot (nothing is installed)."""
+        return make_plan(
+            self.session, fresh=self.fresh, earlier=self.earlier, now=now, warm=self.warm
+        )
+
+
+@dataclass(frozen=True)
+class ChangeSet:
+    """The changes of a what-if: computed fixes, cap raises, recruits, an overload allowance."""
+
+    fixes: tuple[str, ...] = ()
+    """Fix kinds (`FIX_KINDS`) taken from the explanation of the session as it is."""
+    raise_caps: Mapping[str, int] = field(default_factory=dict)
+    """Reviewer id -> papers added to their cap."""
+    add_reviewers: Mapping[str, int] = field(default_factory=dict)
+    """Topic -> number of new reviewers in it."""
+    allow_overload: int | None = None
+    labels: Mapping[str, str] = field(default_factory=dict)
+    """How the chair named each kind of change ('raise_caps', 'add_reviewers'), for messages:
+    the command line passes its option names."""
+
+    def is_empty(self) -> bool:
+        """Whether it changes nothing."""
+        return not (self.fixes or self.raise_caps or self.add_reviewers) and (
+            self.allow_overload is None
+        )
+
+
+class PlanningMixin(HistoryMixin, ChangesMixin):
+    """Planning, explaining, previewing and accepting changes for a Workspace."""
+
+    # -- plans ----------------------------------------------------------------------------
+
+    def earlier_plan(self) -> Plan | None:
+        """The plan a re-plan keeps pairs of: the current revision's, else the session's."""
+        if self.session.revision is not None:
+            return self.plan_of(self.session.revision)
+        return self.session.plan
+
+    def plan_request(self, fresh: bool = False) -> PlanRequest:
+        """A snapshot for one plan: a re-plan keeps the current revision's pairs unless `fresh`;
+        the last outcome warm-starts it."""
+        return PlanRequest(
+            session=self.session,
+            fresh=fresh,
+            earlier=None if fresh else self.earlier_plan(),
+            warm=self.last_outcome,
+        )
+
+    def solve(
+        self,
+        fresh: bool = False,
+        *,
+        now: datetime | None = None,
+        progress: Callable[[str], None] | None = None,
+    ) -> PlanOutcome:
+        """Make the optimal, checked plan of the session as it is now and install it."""
+        request = self.plan_request(fresh)
+        if progress:
+            progress("building the network and solving")
+        outcome = request.run(now)
+        self.install_plan(outcome, request.session)
+        return outcome
+
+    def install_plan(self, outcome: PlanOutcome, planned: Session) -> None:
+        """Install a plan made from `planned` as a new revision; refused if the data changed."""
+        if planned is not self.session and not same_data(planned, self.session):
+            raise ChangeRefused(["the session changed while the plan was being made; plan again"])
+        self.last_outcome = outcome
+        s = self.session
+        plan = outcome.plan
+        data = data_of(s)
+        parent = s.revision
+        earlier = self.plan_of(parent) if parent is not None else None
+        kept = None
+        if earlier is not None:
+            before = {(a.reviewer, a.paper) for a in earlier.assignments}
+            kept = sum((a.reviewer, a.paper) in before for a in plan.assignments)
+        number = max((r.number for r in s.revisions), default=0) + 1
+        event_at = len(s.events)
+        # The changes since the data last agreed with a plan; an undo that set it counts.
+        marks = [k for k, e in enumerate(s.events) if e.action in MARKS]
+        if marks and s.events[marks[-1]].action == "undo":
+            marks[-1] -= 1
+        revision = Revision(
+            number=number,
+            parent=parent,
+            created_at=plan.created_at,
+            changes_from=marks[-1] + 1 if marks else 0,
+            event=event_at,
+            fresh=outcome.network.kept is None and earlier is not None,
+            kept=kept,
+            parent_pairs=len(earlier.assignments) if earlier is not None else None,
+            figures=plan.figures,
+            method=plan.method,
+            checked=plan.checked,
+            assignments=assignment_table(plan, data),
+            bottleneck=plan.bottleneck,
+            bound=plan.bound,
+            loads_before_balance=plan.loads_before_balance,
+            data=DataDelta.between(
+                self.data_of(parent) if parent is not None else None, data, s.scores
+            ),
+        )
+        self._data[number] = data
+        f = plan.figures
+        detail = (
+            f"revision {number}: coverage {f.coverage}/{f.demand}, required "
+            f"{f.required_coverage}/{f.required_demand}, score {f.total_score:.2f}"
+        )
+        if kept is not None:
+            detail += f", kept {kept}/{revision.parent_pairs} of revision {parent}"
+        self._record(
+            "plan",
+            str(number),
+            detail,
+            plan=plan,
+            revisions=[*s.revisions, revision],
+            revision=number,
+        )
+
+    def current_plan(self) -> Plan:
+        """The session's plan when it is current and checked, else a new plan (not installed)."""
+        plan = self.session.plan
+        if plan is not None and plan.checked and self.plan_is_current():
+            return plan
+        return self.plan_request().run().plan
+
+    # -- explanations ---------------------------------------------------------------------
+
+    def explain(self, session: Session | None = None) -> Explanation:
+        """Shortfall groups and fixes of the session (or of a snapshot of it, in a thread)."""
+        return explain(session if session is not None else self.session)
+
+    def explain_report(self) -> dict[str, object]:
+        """The explanation as one JSON-ready object, beside the current optimal plan.
+
+        Plans first, on a snapshot, when the stored plan is missing, stale or unchecked;
+        nothing is recorded.
+        """
+        plan = self.current_plan()
+        return report(self.explain(), plan)
+
+    # -- what-ifs and fixes ---------------------------------------------------------------
+
+    def changed_copy(
+        self, changes: ChangeSet, explanation: Explanation | None = None
+    ) -> tuple[Session, tuple[str, ...]]:
+        """The session changed as asked (a copy; nothing is recorded) and the changes in words."""
+        changed = self.session
+        lines: list[str] = []
+        for kind in dict.fromkeys(changes.fixes):
+            if kind not in FIX_KINDS:
+                raise ChangeRefused([f"fix {kind!r}: choose one of {', '.join(FIX_KINDS)}"])
+            if explanation is None or explanation.session is not changed:
+                explanation = explain(changed)
+            changed, words = explanation.fix_copy(kind)
+            lines += words
+            explanation = None
+        if changes.raise_caps:
+            label = changes.labels.get("raise_caps", "raise cap")
+            changed = raise_caps(changed, changes.raise_caps, label=label)
+            lines += [f"raise cap of {rid} by {n}" for rid, n in changes.raise_caps.items()]
+        if changes.add_reviewers:
+            label = changes.labels.get("add_reviewers", "add reviewers")
+            changed = add_recruits(changed, changes.add_reviewers, label=label)
+            lines += [f"add {n} reviewers in '{t}'" for t, n in changes.add_reviewers.items()]
+        if changes.allow_overload is not None:
+            changed = allow_overload(changed, changes.allow_overload)
+            lines.append(
+                f"allow up to {changes.allow_overload} {self.noun}s above cap for everyone"
+            )
+        return changed, tuple(lines)
+
+    def what_if(self, changes: ChangeSet, explanation: Explanation | None = None) -> WhatIf:
+        """Plan the session as it is and as changed, both on copies; nothing is recorded.
+
+        The changed copy is planned as the re-plan that accepting would install, so what the
+        preview shows is what the session gets.
+        """
+        if changes.is_empty():
+            raise ChangeRefused(["a what-if needs at least one change"])
+        base = self.session
+        changed, lines = self.changed_copy(changes, explanation)
+        current = base.plan if base.plan is not None and self.plan_is_current() else None
+        earlier = self.earlier_plan()
+        return what_if(
+            base,
+            changed.model_copy(update={"plan": None}),
+            lines,
+            before=current if current is not None and current.checked else None,
+            earlier=earlier,
+            warm=self.last_outcome,
+        )
+
+    def accept(self, preview: WhatIf, reason: str = "", *, action: Action = "accept-fix") -> int:
+        """Record a previewed what-if as one change and install its plan as one revision.
+
+        Refused when the session changed since the preview was made. Returns the new revision
+        number; one undo goes back to the revision before, its plan and its data.
+        """
+        if preview.base is not self.session or preview.outcome is None:
+            raise ChangeRefused(["the session changed since this preview; preview it again"])
+        self.take_over(
+            preview.session,
+            action=action,
+            subject="what-if" if action == "accept-whatif" else "fix",
+            changes=preview.changes,
+            reason=reason,
+        )
+        self.install_plan(preview.outcome, preview.session)
+        revision = self.session.revision
+        assert revision is not None
+        return revision

@@ -1,0 +1,138 @@
+"""The Workspace as the one door: what-ifs and fixes are recorded changes, plans start warm,
+and a policy change leaves no forbidden pair in the plan."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+
+from review_alloc.cli import main
+from review_alloc.model import load_session, save_session
+from review_alloc.plan import check_plan
+from review_alloc.samples import workshop
+from review_alloc.workspace import ChangeRefused, ChangeSet, Workspace
+from review_alloc.workspace import planning as planning_module
+from tests.plan.test_explain_groups import topic_session
+
+SCARCE = "quantum sensing"
+
+
+def _short_venue() -> Workspace:
+    """A small venue whose scarce topic has gaps that cap raises close."""
+    ws = Workspace(topic_session({SCARCE: (8, 3, 4), "soil chemistry": (10, 8, 6)}))
+    ws.solve()
+    return ws
+
+
+def test_accepting_a_fix_is_one_change_and_one_revision_and_undo_takes_it_back() -> None:
+    ws = _short_venue()
+    before = ws.session
+    explanation = ws.explain()
+    assert explanation.caps.raises, "the scarce topic's reviewers are at cap"
+    preview = ws.what_if(ChangeSet(fixes=("raise-caps",)), explanation)
+    assert ws.session is before, "a preview changes nothing"
+    number = ws.accept(preview, reason="agreed with the reviewers")
+    s = ws.session
+    assert [e.action for e in s.events[len(before.events) :]] == ["accept-fix", "plan"]
+    for r in explanation.caps.raises:
+        assert s.reviewer_cap(s.reviewer_index()[r.reviewer]) == r.new_cap
+    assert number == before.revision + 1 and len(ws.revisions) == len(before.revisions) + 1
+    assert s.plan == preview.after
+    check_plan(s, s.plan, None)
+    assert ws.history()[-1].changes[0].startswith("accept-fix fix (raise cap of ")
+
+    assert ws.undo() == before.revision
+    back = ws.session
+    assert [r.cap for r in back.reviewers] == [r.cap for r in before.reviewers]
+    assert back.plan == before.plan
+
+
+def test_an_old_preview_cannot_be_accepted() -> None:
+    ws = _short_venue()
+    preview = ws.what_if(ChangeSet(raise_caps={ws.session.reviewers[0].id: 1}))
+    ws.set_reviewer(ws.session.reviewers[1].id, cap=9)
+    with pytest.raises(ChangeRefused, match="changed since this preview"):
+        ws.accept(preview)
+
+
+def test_whatif_accept_on_the_command_line_is_recorded_and_undone(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    path = tmp_path / "venue.json"
+    save_session(topic_session({SCARCE: (2, 3, 4)}), path)
+    assert main(["plan", str(path)]) == 0
+    planned = load_session(path)
+    rid = planned.reviewers[0].id
+    capsys.readouterr()
+    assert main(["whatif", str(path), "--raise-cap", f"{rid}=2", "--accept", "--json"]) == 0
+    payload = json.loads(capsys.readouterr().out)
+    after = load_session(path)
+    assert payload["accepted"] and payload["revision"] == planned.revision + 1
+    assert [e.action for e in after.events[len(planned.events) :]] == ["accept-whatif", "plan"]
+    assert after.revision == payload["revision"]
+    assert after.reviewer_cap(0) == planned.reviewer_cap(0) + 2
+    assert after.plan.figures.model_dump() == payload["after"]
+
+    assert main(["history", str(path), "--json"]) == 0
+    history = json.loads(capsys.readouterr().out)
+    last = history["revisions"][-1] if "revisions" in history else history["history"][-1]
+    assert any(c.startswith("accept-whatif") for c in last["changes"])
+
+    assert main(["undo", str(path)]) == 0
+    back = load_session(path)
+    assert back.revision == planned.revision
+    assert back.reviewer_cap(0) == planned.reviewer_cap(0)
+    assert back.plan == planned.plan
+
+
+def test_a_policy_change_prunes_the_plan_and_marks_it_stale() -> None:
+    ws = Workspace(workshop())
+    ws.solve()
+    scores = sorted(a.score for a in ws.session.plan.assignments)
+    limit = scores[len(scores) // 2]
+    ws.set_policy({"min_score": limit, "require_shared_topic": True})
+    plan = ws.session.plan
+    assert plan is not None and not plan.checked and "stale" in plan.method
+    assert not ws.plan_is_current()
+    topics = {r.id: set(r.topics) for r in ws.session.reviewers}
+    paper_topics = {p.id: set(p.topics) for p in ws.session.papers}
+    pinned = {(p.reviewer, p.paper) for p in ws.session.pins}
+    for a in plan.assignments:
+        if (a.reviewer, a.paper) in pinned:
+            continue
+        # The rules, read straight from the policy: no pair below the limit or without a topic.
+        assert a.score >= limit - 1e-12
+        assert topics[a.reviewer] & paper_topics[a.paper]
+    assert len(plan.assignments) < len(scores)
+    check_plan(ws.session, plan, None)
+    ws.solve()
+    assert ws.session.plan.checked and ws.plan_is_current()
+
+
+def test_any_change_marks_the_plan_stale_even_when_no_pair_leaves() -> None:
+    ws = Workspace(workshop())
+    ws.solve()
+    before = ws.session.plan
+    r = ws.session.reviewers[0]
+    ws.set_reviewer(r.id, cap=ws.session.reviewer_cap(0) + 1)
+    after = ws.session.plan
+    assert after.assignments == before.assignments
+    assert not after.checked and not ws.plan_is_current()
+
+
+def test_every_plan_after_the_first_starts_warm(monkeypatch: pytest.MonkeyPatch) -> None:
+    seen: list[object] = []
+    real = planning_module.make_plan
+
+    def recording(session, **kwargs):  # type: ignore[no-untyped-def]
+        seen.append(kwargs.get("warm"))
+        return real(session, **kwargs)
+
+    monkeypatch.setattr(planning_module, "make_plan", recording)
+    ws = Workspace(workshop())
+    first = ws.solve()
+    ws.withdraw_reviewer(ws.session.plan.assignments[0].reviewer, "illness")
+    ws.solve()
+    assert seen == [None, first]
