@@ -224,7 +224,6 @@ def _cmd_import(args: argparse.Namespace) -> int:
 
 
 def _cmd_plan(args: argparse.Namespace) -> int:
-    from review_alloc.plan import plan_summary
     from review_alloc.workspace import Workspace
 
     # Through the Workspace so that the plan keeps earlier pairs and becomes a revision.
@@ -236,10 +235,8 @@ def _cmd_plan(args: argparse.Namespace) -> int:
     ws.solve(fresh=args.fresh)
     ws.save()
     session = ws.session
-    summary = plan_summary(session, session.plan)
+    summary = ws.summary()
     revision = ws.revisions[-1]
-    summary["revision"] = revision.number
-    summary["kept"] = revision.kept
     if args.json:
         emit_json(summary)
     else:
@@ -256,14 +253,13 @@ def _cmd_plan(args: argparse.Namespace) -> int:
 
 
 def _cmd_demo(args: argparse.Namespace) -> int:
-    from review_alloc.plan import plan_summary
     from review_alloc.workspace import Workspace
 
     ws = Workspace.demo()
     prepare_solver()
     ws.solve(fresh=True)
     session = ws.session
-    summary = plan_summary(session, session.plan)
+    summary = ws.summary()
     if getattr(args, "json", False):
         emit_json(summary)
     else:

@@ -250,9 +250,7 @@ def whatif_payload(
     """The JSON object of `whatif`."""
     from dataclasses import asdict
 
-    from review_alloc.plan.report import load_issues
-
-    over, under = load_issues(result.session, result.after)
+    over, under = result.overloads, result.underloads
     return {
         "session": result.session.name,
         "changes": list(result.changes),

@@ -15,7 +15,7 @@ import numpy as np
 from review_alloc.model import Plan, Reviewer, Session
 from review_alloc.plan.errors import PlanInputError
 from review_alloc.plan.fixes import CapRaiseFix, RecruitFix
-from review_alloc.plan.report import Gap, find_gaps
+from review_alloc.plan.report import Gap, LoadIssue, find_gaps, load_issues
 from review_alloc.plan.solve import PlanOutcome, make_plan
 
 RECRUIT_SCORE = 0.0
@@ -37,6 +37,10 @@ class WhatIf:
     """The session object the copy was made from (a what-if of an older state is refused)."""
     outcome: PlanOutcome | None = None
     """The checked outcome of the changed copy's plan, so that accepting needs no new solve."""
+    overloads: tuple[LoadIssue, ...] = ()
+    """Reviewers above cap in the changed copy's plan."""
+    underloads: tuple[LoadIssue, ...] = ()
+    """Active reviewers below their floor in the changed copy's plan."""
 
 
 def raise_caps(session: Session, raises: Mapping[str, int], *, label: str = "raise cap") -> Session:
@@ -160,6 +164,7 @@ def what_if(
         before = make_plan(session, earlier=earlier, fresh=earlier is None, warm=warm).plan
     outcome = make_plan(changed, earlier=earlier, fresh=earlier is None, warm=warm)
     planned = changed.model_copy(update={"plan": outcome.plan})
+    over, under = load_issues(planned, outcome.plan)
     return WhatIf(
         session=planned,
         changes=changes,
@@ -169,4 +174,6 @@ def what_if(
         gaps_after=tuple(find_gaps(planned, outcome.plan)),
         base=session,
         outcome=outcome,
+        overloads=tuple(over),
+        underloads=tuple(under),
     )

@@ -11,10 +11,11 @@ from __future__ import annotations
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from datetime import datetime
+from typing import Any
 
 from review_alloc.model import Action, Plan, Session
 from review_alloc.model.history import DataDelta, Revision, assignment_table
-from review_alloc.plan import PlanOutcome, make_plan
+from review_alloc.plan import PlanOutcome, make_plan, plan_summary
 from review_alloc.plan.explanation import FIX_KINDS, Explanation, explain, report
 from review_alloc.plan.whatif import WhatIf, add_recruits, allow_overload, raise_caps, what_if
 from review_alloc.workspace.base import MARKS, ChangeRefused, data_of, same_data
@@ -168,6 +169,19 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
         if plan is not None and plan.checked and self.plan_is_current():
             return plan
         return self.plan_request().run().plan
+
+    def summary(self) -> dict[str, Any]:
+        """The JSON object of the current plan (`plan --json`), with its revision and kept pairs."""
+        plan = self.session.plan
+        if plan is None:
+            raise ChangeRefused([f"{self.session.name}: no plan yet; make a plan first"])
+        summary = plan_summary(self.session, plan)
+        summary["current"] = self.plan_is_current()
+        if self.session.revision is not None:
+            revision = self._revision(self.session.revision)
+            summary["revision"] = revision.number
+            summary["kept"] = revision.kept
+        return summary
 
     # -- explanations ---------------------------------------------------------------------
 
