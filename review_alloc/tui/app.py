@@ -43,12 +43,12 @@ from review_alloc.tui.dialogs import (
     ImportForm,
     whole_or_default,
 )
+from review_alloc.tui.entity_views import EntityView, GapView, PaperView, ReviewerView
 from review_alloc.tui.facts import Facts
 from review_alloc.tui.gapfix import ExplainView, PaneHint
 from review_alloc.tui.grid import RowTable
 from review_alloc.tui.overview import Overview
 from review_alloc.tui.records import ConflictView, HistoryView
-from review_alloc.tui.tables import EntityView, GapView, PaperView, ReviewerView
 from review_alloc.workspace import ChangeSet, PlanRequest, Workspace, prepare_solver
 
 TABS = ("overview", "papers", "reviewers", "conflicts", "gaps", "history")

@@ -15,9 +15,9 @@ from review_alloc.model import load_session
 from review_alloc.plan import conflict_pairs, find_gaps, make_plan, plan_summary
 from review_alloc.tui import ReviewAllocApp, make_app
 from review_alloc.tui.dialogs import Confirm, Form, HelpScreen
+from review_alloc.tui.entity_views import PaperView, ReviewerView
 from review_alloc.tui.grid import RowTable
 from review_alloc.tui.records import ConflictView, HistoryView
-from review_alloc.tui.tables import PaperView, ReviewerView
 from review_alloc.workspace.files import DEMO_FILE, demo_session_path
 
 SIZE = (120, 40)
