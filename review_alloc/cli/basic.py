@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 from collections.abc import Callable
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from review_alloc.cli.common import (
     EXIT_OK,
@@ -16,6 +17,9 @@ from review_alloc.cli.common import (
     whole,
 )
 from review_alloc.model import InputError, Policy, Session
+
+if TYPE_CHECKING:
+    from review_alloc.workspace import Workspace
 
 Handler = Callable[[argparse.Namespace], int]
 
@@ -226,8 +230,13 @@ def _cmd_import(args: argparse.Namespace) -> int:
 def _cmd_plan(args: argparse.Namespace) -> int:
     from review_alloc.workspace import Workspace
 
-    # Through the Workspace so that the plan keeps earlier pairs and becomes a revision.
-    ws = Workspace.open(args.session)
+    # Through the Workspace so that the plan keeps earlier pairs and becomes a revision; the
+    # file stays locked while planning, so a change made meanwhile waits instead of being lost.
+    with Workspace.editing(args.session) as ws:
+        return _plan_and_report(ws, args)
+
+
+def _plan_and_report(ws: Workspace, args: argparse.Namespace) -> int:
     changes = rule_overrides(args)
     if changes:
         ws.set_policy(changes, reason="plan options")

@@ -18,7 +18,7 @@ from pathlib import Path
 from review_alloc.cli.common import EXIT_OK, emit_json, positive, whole
 from review_alloc.model import InputError, Paper, Reviewer, atomic_write_text
 from review_alloc.plan.diff import NotifyRow
-from review_alloc.workspace import Workspace
+from review_alloc.workspace import Workspace, session_lock
 
 Handler = Callable[[argparse.Namespace], int]
 
@@ -139,7 +139,9 @@ def _naming_session(handler: Handler) -> Handler:
 
     def run(args: argparse.Namespace) -> int:
         try:
-            return handler(args)
+            # Held from load to save: a second writer waits, then changes the newer file.
+            with session_lock(args.session, required=False):
+                return handler(args)
         except InputError as error:
             where = str(args.session)
             lines = [line if line.startswith(where) else f"{where}: {line}" for line in error.lines]

@@ -13,6 +13,7 @@ from review_alloc.model import Session
 
 if TYPE_CHECKING:
     from review_alloc.plan.whatif import WhatIf
+    from review_alloc.workspace import ChangeSet, Workspace
 
 Handler = Callable[[argparse.Namespace], int]
 
@@ -218,7 +219,11 @@ def _cmd_whatif(args: argparse.Namespace) -> int:
             file=sys.stderr,
         )
         return EXIT_USAGE
-    ws = Workspace.open(args.session)
+    with Workspace.editing(args.session) as ws:
+        return _whatif_in(ws, changes, args)
+
+
+def _whatif_in(ws: Workspace, changes: ChangeSet, args: argparse.Namespace) -> int:
     original = ws.session
     result = ws.what_if(changes)
     revision = None

@@ -41,6 +41,9 @@ class WhatIf:
     """Reviewers above cap in the changed copy's plan."""
     underloads: tuple[LoadIssue, ...] = ()
     """Active reviewers below their floor in the changed copy's plan."""
+    request: object = None
+    """What the caller asked for, in its own terms (the Workspace keeps its change set here,
+    so that an accepted what-if can be made again on a newer copy of the file)."""
 
 
 def raise_caps(session: Session, raises: Mapping[str, int], *, label: str = "raise cap") -> Session:

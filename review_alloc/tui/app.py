@@ -49,7 +49,13 @@ from review_alloc.tui.gapfix import ExplainView, PaneHint
 from review_alloc.tui.grid import RowTable
 from review_alloc.tui.overview import Overview
 from review_alloc.tui.records import ConflictView, HistoryView
-from review_alloc.workspace import ChangeSet, PlanRequest, Workspace, prepare_solver
+from review_alloc.workspace import (
+    ChangeSet,
+    FileChanged,
+    PlanRequest,
+    Workspace,
+    prepare_solver,
+)
 
 TABS = ("overview", "papers", "reviewers", "conflicts", "gaps", "history")
 
@@ -680,15 +686,88 @@ class ReviewAllocApp(App[None]):
     # -- files ----------------------------------------------------------------------------
 
     def action_save(self) -> None:
-        """Write the session atomically to its file."""
+        """Write the session atomically to its file; never over someone else's newer save."""
         try:
             path = self.workspace.save()
+        except FileChanged as error:
+            self._file_changed(error.lines)
+            return
         except (InputError, OSError) as error:
             lines = error.lines if isinstance(error, InputError) else [str(error)]
             self.notify("\n".join(lines), title="Not saved", severity="error")
             return
         self._draw_bar()
         self.notify(f"saved to {path}")
+
+    def _file_changed(self, lines: list[str]) -> None:
+        """Another program saved the file: reload and redo our steps, or save under a new name."""
+        steps = len(self.workspace.unsaved)
+
+        def answered(reload: bool | None) -> None:
+            if reload:
+                self.notify("reloading the file and making your changes again…")
+                self._reload_and_redo()
+            else:
+                self._save_as()
+
+        self.push_screen(
+            Confirm(
+                "\n".join(lines)
+                + f"\n\nReload the file and make your {steps} unsaved step(s) again on it? "
+                "(No: save your version under another name instead.)",
+                yes="Reload and redo",
+                no="Save as…",
+            ),
+            answered,
+        )
+
+    @work(thread=True, exclusive=True, group="plan", exit_on_error=False)
+    def _reload_and_redo(self) -> None:
+        """Read the newer file and redo the unsaved steps on it (plans are made anew)."""
+        try:
+            workspace, refused = self.workspace.reload_and_redo()
+        except (InputError, PlanCheckError) as error:
+            lines = list(error.lines) if isinstance(error, InputError) else [str(error)]
+            self.call_from_thread(
+                self.notify, "\n".join(lines[:8]), title="Not reloaded", severity="error"
+            )
+            return
+        self.call_from_thread(self._reloaded, workspace, refused)
+
+    def _reloaded(self, workspace: Workspace, refused: list[str]) -> None:
+        self.workspace = workspace
+        self._history_mark = None
+        self._refresh_all()
+        note = ("\nNot made again:\n" + "\n".join(refused[:6])) if refused else ""
+        self.notify(
+            "reloaded the newer file and made your changes again; ctrl+s saves" + note,
+            title="Reloaded",
+            severity="warning" if refused else "information",
+            timeout=12,
+        )
+
+    def _save_as(self) -> None:
+        """Ask for a new file name and save this version there."""
+        current = self.workspace.path
+
+        def apply(values: dict[str, str]) -> list[str]:
+            target = Path(values["target"]).expanduser()
+            try:
+                path = self.workspace.save(target)
+            except (InputError, OSError) as error:
+                return error.lines if isinstance(error, InputError) else [str(error)]
+            self._draw_bar()
+            self.notify(f"saved to {path}")
+            return []
+
+        suggestion = current.with_name(current.stem + "-mine.json") if current else ""
+        self.push_screen(
+            Form(
+                "Save this version under another name",
+                [Field("target", "new session file (.json)", str(suggestion))],
+                apply,
+            )
+        )
 
     def action_import(self) -> None:
         """Build a new session from CSV files and open it (after saving this one)."""

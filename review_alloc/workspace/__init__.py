@@ -8,7 +8,13 @@ The faces format and display; they never save, solve or decide a rule around it.
 """
 
 from review_alloc.workspace.base import ChangeRefused
-from review_alloc.workspace.files import FilesMixin, data_folder, demo_session_path
+from review_alloc.workspace.files import (
+    FileChanged,
+    FilesMixin,
+    data_folder,
+    demo_session_path,
+    session_lock,
+)
 from review_alloc.workspace.history import HistoryEntry
 from review_alloc.workspace.planning import ChangeSet, PlanningMixin, PlanRequest, prepare_solver
 
@@ -20,10 +26,12 @@ class Workspace(FilesMixin, PlanningMixin):
 __all__ = [
     "ChangeRefused",
     "ChangeSet",
+    "FileChanged",
     "HistoryEntry",
     "PlanRequest",
     "Workspace",
     "data_folder",
     "demo_session_path",
     "prepare_solver",
+    "session_lock",
 ]

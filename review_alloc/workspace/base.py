@@ -7,8 +7,12 @@ the next plan, so that no plan on screen or on disk ever holds a forbidden pair.
 
 from __future__ import annotations
 
+import functools
+from collections.abc import Callable
+from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
+from typing import Any, TypeVar
 
 import numpy as np
 
@@ -29,6 +33,36 @@ class ChangeRefused(InputError):
     """A change that a hard rule forbids (a conflicted pin, an unknown id, a cap below pins)."""
 
 
+@dataclass(frozen=True)
+class Step:
+    """One change, plan or undo made through the Workspace since its last save, as called."""
+
+    name: str
+    args: tuple[Any, ...]
+    kwargs: dict[str, Any]
+
+
+F = TypeVar("F", bound=Callable[..., Any])
+
+
+def redoable(method: F) -> F:
+    """Note a successful call in the workspace's unsaved steps (the outermost call only), so
+    that the same steps can be made again on a newer copy of the file."""
+
+    @functools.wraps(method)
+    def run(self: WorkspaceBase, *args: Any, **kwargs: Any) -> Any:
+        self._nesting += 1
+        try:
+            result = method(self, *args, **kwargs)
+        finally:
+            self._nesting -= 1
+        if self._nesting == 0:
+            self.unsaved.append(Step(method.__name__, args, kwargs))
+        return result
+
+    return run  # type: ignore[return-value]
+
+
 class WorkspaceBase:
     """An open session with its file path and its unsaved-changes mark."""
 
@@ -40,6 +74,11 @@ class WorkspaceBase:
         self._data: dict[int, SessionData] = {}
         self.last_outcome: PlanOutcome | None = None
         """The latest plan's outcome: its flow and potentials warm-start the next solve."""
+        self.disk_identity: tuple[int, int, int] | None = None
+        """The file as this workspace last read or wrote it (see `files.file_identity`)."""
+        self.unsaved: list[Step] = []
+        """The changes, plans and undos made since the file was read or written, in order."""
+        self._nesting = 0
 
     @property
     def noun(self) -> str:

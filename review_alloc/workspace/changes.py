@@ -22,12 +22,13 @@ from review_alloc.model import (
     Session,
 )
 from review_alloc.plan.rules import PairRules
-from review_alloc.workspace.base import DATA_FIELDS, ChangeRefused, WorkspaceBase
+from review_alloc.workspace.base import DATA_FIELDS, ChangeRefused, WorkspaceBase, redoable
 
 
 class ChangesMixin(WorkspaceBase):
     """The change operations of a Workspace."""
 
+    @redoable
     def withdraw_reviewer(self, reviewer_id: str, reason: str = "") -> None:
         """Withdraw a reviewer; their assignments leave the plan at once."""
         j = self._reviewer(reviewer_id)
@@ -43,6 +44,7 @@ class ChangesMixin(WorkspaceBase):
             pins=[p for p in self.session.pins if p.reviewer != reviewer_id],
         )
 
+    @redoable
     def reinstate_reviewer(self, reviewer_id: str, reason: str = "") -> None:
         """Bring a withdrawn reviewer back."""
         j = self._reviewer(reviewer_id)
@@ -56,6 +58,7 @@ class ChangesMixin(WorkspaceBase):
             reviewers=self._with_reviewer(j, withdrawn=False),
         )
 
+    @redoable
     def withdraw_paper(self, paper_id: str, reason: str = "") -> None:
         """Withdraw a paper; its reviews leave the plan at once."""
         i = self._paper(paper_id)
@@ -70,6 +73,7 @@ class ChangesMixin(WorkspaceBase):
             pins=[p for p in self.session.pins if p.paper != paper_id],
         )
 
+    @redoable
     def reinstate_paper(self, paper_id: str, reason: str = "") -> None:
         """Bring a withdrawn paper back."""
         i = self._paper(paper_id)
@@ -79,6 +83,7 @@ class ChangesMixin(WorkspaceBase):
             "reinstate-paper", paper_id, "", reason, papers=self._with_paper(i, withdrawn=False)
         )
 
+    @redoable
     def add_reviewer(
         self, reviewer: Reviewer, reason: str = "", *, scores: dict[str, float] | None = None
     ) -> None:
@@ -97,6 +102,7 @@ class ChangesMixin(WorkspaceBase):
             scores=self._scores_with(rows),
         )
 
+    @redoable
     def add_paper(
         self, paper: Paper, reason: str = "", *, scores: dict[str, float] | None = None
     ) -> None:
@@ -128,6 +134,7 @@ class ChangesMixin(WorkspaceBase):
             np.concatenate([table.value, np.array([r[2] for r in rows], dtype=np.float64)]),
         )
 
+    @redoable
     def set_reviewer(
         self,
         reviewer_id: str,
@@ -156,6 +163,7 @@ class ChangesMixin(WorkspaceBase):
         )
         self._apply("set-reviewer", reviewer_id, detail, reason, reviewers=reviewers)
 
+    @redoable
     def set_policy(self, changes: dict[str, object], reason: str = "") -> None:
         """Change policy fields (validated as a whole); recorded so that undo can restore them."""
         old = self.session.policy
@@ -172,6 +180,7 @@ class ChangesMixin(WorkspaceBase):
             return
         self._apply("set-policy", "policy", detail, reason, policy=policy)
 
+    @redoable
     def set_paper(
         self,
         paper_id: str,
@@ -210,6 +219,7 @@ class ChangesMixin(WorkspaceBase):
         )
         self._apply("set-paper", paper_id, detail, reason, papers=papers)
 
+    @redoable
     def declare_conflict(self, reviewer_id: str, paper_id: str, reason: str = "declared") -> None:
         """Declare a conflict; any assignment of the pair leaves the plan at once."""
         self._reviewer(reviewer_id)
@@ -232,6 +242,7 @@ class ChangesMixin(WorkspaceBase):
             ],
         )
 
+    @redoable
     def pin(self, reviewer_id: str, paper_id: str, reason: str = "") -> None:
         """Pin a pair so every later plan keeps it; refused where any planner rule forbids it."""
         self._reviewer(reviewer_id)
@@ -250,6 +261,7 @@ class ChangesMixin(WorkspaceBase):
             raise ChangeRefused(added)
         self._apply("pin", f"{reviewer_id}/{paper_id}", "", reason, pins=[*s.pins, pin])
 
+    @redoable
     def unpin(self, reviewer_id: str, paper_id: str, reason: str = "") -> None:
         """Release a pin (the pair may stay in the plan; it is no longer forced)."""
         rest = [
@@ -259,6 +271,7 @@ class ChangesMixin(WorkspaceBase):
             raise ChangeRefused([f"({reviewer_id}, {paper_id}) is not pinned"])
         self._apply("unpin", f"{reviewer_id}/{paper_id}", "", reason, pins=rest)
 
+    @redoable
     def block(self, reviewer_id: str, paper_id: str, reason: str = "") -> None:
         """Block a pair so no plan uses it; it leaves the current plan at once."""
         self._reviewer(reviewer_id)
@@ -277,6 +290,7 @@ class ChangesMixin(WorkspaceBase):
             blocks=[*s.blocks, PairRule(reviewer=reviewer_id, paper=paper_id, reason=reason)],
         )
 
+    @redoable
     def unblock(self, reviewer_id: str, paper_id: str, reason: str = "") -> None:
         """Allow a blocked pair again."""
         rest = [
@@ -300,7 +314,7 @@ class ChangesMixin(WorkspaceBase):
             raise ChangeRefused([f"{who}: floor {eff_floor} exceeds cap {eff_cap}"])
 
 
-    def take_over(
+    def _take_over(
         self,
         changed: Session,
         *,

@@ -1,15 +1,85 @@
-"""The open session's file: open, save, import from CSV, export, and the user's demo copy."""
+"""The open session's file: open, lock, save, import from CSV, export, and the demo copy.
+
+A session file is the chair's only record, so no writer may lose another's change: every
+command that changes a session holds its lock from load to save (a second one waits, then
+changes the newer file), and a save refuses to write over a file that changed on disk since
+this workspace read or wrote it.
+"""
 
 from __future__ import annotations
 
 import os
+from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
 from typing import Literal, Self
 
+from filelock import FileLock, Timeout
+
 from review_alloc.model import InputError, Policy, load_session, save_session
-from review_alloc.workspace.base import WorkspaceBase
+from review_alloc.workspace.base import Step, WorkspaceBase
 
 DEMO_FILE = "demo-workshop.json"
+
+LOCK_WAIT_SECONDS = 120.0
+"""How long a change waits for another program's change to the same session to finish."""
+
+
+class FileChanged(InputError):
+    """The session file changed on disk since this workspace read or wrote it."""
+
+
+def _lock_of(path: Path) -> FileLock:
+    """The one lock object of a session file in this process (re-entrant), beside the file.
+
+    The lock file is named after the file a symbolic link points to, so that a link and its
+    target share one lock; it is removed when released.
+    """
+    real = Path(os.path.realpath(path))
+    return FileLock(
+        real.parent / f".{real.name}.lock",
+        timeout=LOCK_WAIT_SECONDS,
+        thread_local=False,
+        is_singleton=True,
+    )
+
+
+@contextmanager
+def session_lock(path: Path, *, required: bool = True) -> Iterator[None]:
+    """Hold the session file's lock; another program's change is waited for, up to a limit.
+
+    A reader (`required=False`) of a file in a folder it cannot write goes on without it.
+    """
+    lock = _lock_of(path)
+    try:
+        lock.acquire()
+    except Timeout:
+        raise InputError(
+            [
+                f"{path}: another program has been changing this session for over "
+                f"{LOCK_WAIT_SECONDS:.0f} s; try again when it has finished "
+                f"(lock file {lock.lock_file})"
+            ]
+        ) from None
+    except OSError as error:
+        if not required:
+            yield
+            return
+        raise InputError([f"{path}: cannot lock it ({error.strerror or error})"]) from None
+    try:
+        yield
+    finally:
+        lock.release()
+
+
+def file_identity(path: Path) -> tuple[int, int, int] | None:
+    """(inode, size, modification time) of the file, None when there is none: every save
+    replaces the file, so a save by anyone else changes it."""
+    try:
+        st = os.stat(path)
+    except OSError:
+        return None
+    return (st.st_ino, st.st_size, st.st_mtime_ns)
 
 
 def data_folder() -> Path:
@@ -38,7 +108,24 @@ class FilesMixin(WorkspaceBase):
     @classmethod
     def open(cls, path: Path) -> Self:
         """Load a session file (InputError with file and field on bad input)."""
-        return cls(load_session(path), path)
+        with session_lock(path, required=False):
+            workspace = cls(load_session(path), path)
+            workspace.disk_identity = file_identity(path)
+        return workspace
+
+    @classmethod
+    @contextmanager
+    def editing(cls, path: Path) -> Iterator[Self]:
+        """The session opened for one change: its file stays locked from load to save, so a
+        second writer waits and then changes the newer file (both changes land)."""
+        with session_lock(path):
+            yield cls.open(path)
+
+    def changed_on_disk(self) -> bool:
+        """Whether the file was written by someone else since this workspace read or wrote it."""
+        if self.path is None:
+            return False
+        return file_identity(self.path) != self.disk_identity
 
     @classmethod
     def open_demo(cls) -> Self:
@@ -84,18 +171,59 @@ class FilesMixin(WorkspaceBase):
             kind=kind,
         )
         workspace = cls(session, None)
-        workspace.save(target)
+        workspace.save(target, replace=replace)
         return workspace
 
-    def save(self, path: Path | None = None) -> Path:
-        """Write the session atomically to `path` (or where it came from) and clear the mark."""
+    def save(self, path: Path | None = None, *, replace: bool = False) -> Path:
+        """Write the session atomically to `path` (or where it came from) and clear the mark.
+
+        Refused with `FileChanged` when the file changed on disk since this workspace read or
+        wrote it (another program's change would be lost), unless `replace`; saving to a new
+        path refuses an existing file unless `replace`.
+        """
         target = path or self.path
         if target is None:
             raise InputError(["this session has no file yet; choose where to save it"])
-        save_session(self.session, target)
+        with session_lock(target):
+            if not replace:
+                self._refuse_overwrite(target)
+            save_session(self.session, target)
+            self.disk_identity = file_identity(target)
         self.path = target
         self.dirty = False
+        self.unsaved = []
         return target
+
+    def reload_and_redo(self) -> tuple[Self, list[str]]:
+        """The file as it is on disk now, with this workspace's unsaved steps made again on it.
+
+        Returns the new workspace (unsaved) and a line for each step the newer file refused
+        (for example a reviewer that someone else withdrew already); those are left out.
+        """
+        if self.path is None:
+            raise InputError(["this session has no file to reload"])
+        other = type(self).open(self.path)
+        refused: list[str] = []
+        for step in self.unsaved:
+            try:
+                _redo(other, step)
+            except InputError as error:
+                refused += [f"{step.name.replace('_', ' ')}: {line}" for line in error.lines]
+        return other, refused
+
+    def _refuse_overwrite(self, target: Path) -> None:
+        found = file_identity(target)
+        if target == self.path:
+            if found is not None and found != self.disk_identity:
+                raise FileChanged(
+                    [
+                        f"{target}: the file changed on disk since it was opened here (another "
+                        "program saved it); reload it and make the changes again, or save under "
+                        "another name"
+                    ]
+                )
+        elif found is not None:
+            raise InputError([f"{target}: already exists; choose another file name"])
 
     def export(self, target: Path, by: Literal["paper", "reviewer"] = "paper") -> int:
         """Write the current plan as CSV, one row per assignment; returns the rows written."""
@@ -103,3 +231,15 @@ class FilesMixin(WorkspaceBase):
 
         return export_plan_csv(self.session, target, by=by)
 
+
+def _redo(workspace: WorkspaceBase, step: Step) -> None:
+    """Make one recorded step again on another workspace (plans are made anew there)."""
+    if step.name == "install_plan":
+        outcome = step.args[0]
+        workspace.solve(fresh=outcome.network.kept is None)  # type: ignore[attr-defined]
+    elif step.name == "accept":
+        preview, *rest = step.args
+        again = workspace.what_if(preview.request)  # type: ignore[attr-defined]
+        workspace.accept(again, *rest, **step.kwargs)  # type: ignore[attr-defined]
+    else:
+        getattr(workspace, step.name)(*step.args, **step.kwargs)

@@ -9,7 +9,7 @@ from review_alloc.model import Plan
 from review_alloc.model.history import Revision, SessionData, rebase_root_scores, restore_data
 from review_alloc.model.plans import PlanFigures
 from review_alloc.plan.diff import NotifyRow, PlanDiff, diff_plans, notify_rows
-from review_alloc.workspace.base import ChangeRefused, WorkspaceBase
+from review_alloc.workspace.base import ChangeRefused, WorkspaceBase, redoable
 
 
 @dataclass(frozen=True)
@@ -94,6 +94,7 @@ class HistoryMixin(WorkspaceBase):
         """The plan of revision `number`, exactly as it was made."""
         return self._revision(number).plan(self.data_of(number))
 
+    @redoable
     def undo(self, reason: str = "") -> int:
         """Go back one step: its plan and the data it had.
 

@@ -9,7 +9,7 @@ immutable snapshot, and installing refuses a result whose session changed meanwh
 from __future__ import annotations
 
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from datetime import datetime
 from typing import Any
 
@@ -18,7 +18,7 @@ from review_alloc.model.history import DataDelta, Revision, assignment_table
 from review_alloc.plan import PlanOutcome, make_plan, plan_summary
 from review_alloc.plan.explanation import FIX_KINDS, Explanation, explain, report
 from review_alloc.plan.whatif import WhatIf, add_recruits, allow_overload, raise_caps, what_if
-from review_alloc.workspace.base import MARKS, ChangeRefused, data_of, same_data
+from review_alloc.workspace.base import MARKS, ChangeRefused, data_of, redoable, same_data
 from review_alloc.workspace.changes import ChangesMixin
 from review_alloc.workspace.history import HistoryMixin
 
@@ -91,6 +91,7 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
             warm=self.last_outcome,
         )
 
+    @redoable
     def solve(
         self,
         fresh: bool = False,
@@ -106,6 +107,7 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
         self.install_plan(outcome, request.session)
         return outcome
 
+    @redoable
     def install_plan(self, outcome: PlanOutcome, planned: Session) -> None:
         """Install a plan made from `planned` as a new revision; refused if the data changed."""
         if planned is not self.session and not same_data(planned, self.session):
@@ -241,7 +243,7 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
         changed, lines = self.changed_copy(changes, explanation)
         current = base.plan if base.plan is not None and self.plan_is_current() else None
         earlier = self.earlier_plan()
-        return what_if(
+        result = what_if(
             base,
             changed.model_copy(update={"plan": None}),
             lines,
@@ -249,7 +251,9 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
             earlier=earlier,
             warm=self.last_outcome,
         )
+        return replace(result, request=changes)
 
+    @redoable
     def accept(self, preview: WhatIf, reason: str = "", *, action: Action = "accept-fix") -> int:
         """Record a previewed what-if as one change and install its plan as one revision.
 
@@ -258,7 +262,7 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
         """
         if preview.base is not self.session or preview.outcome is None:
             raise ChangeRefused(["the session changed since this preview; preview it again"])
-        self.take_over(
+        self._take_over(
             preview.session,
             action=action,
             subject="what-if" if action == "accept-whatif" else "fix",

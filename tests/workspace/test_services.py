@@ -4,6 +4,9 @@ and a policy change leaves no forbidden pair in the plan."""
 from __future__ import annotations
 
 import json
+import os
+import subprocess
+import sys
 from pathlib import Path
 
 import pytest
@@ -12,7 +15,7 @@ from review_alloc.cli import main
 from review_alloc.model import load_session, save_session
 from review_alloc.plan import check_plan
 from review_alloc.samples import workshop
-from review_alloc.workspace import ChangeRefused, ChangeSet, Workspace
+from review_alloc.workspace import ChangeRefused, ChangeSet, FileChanged, Workspace
 from review_alloc.workspace import planning as planning_module
 from tests.plan.test_explain_groups import topic_session
 
@@ -136,3 +139,49 @@ def test_every_plan_after_the_first_starts_warm(monkeypatch: pytest.MonkeyPatch)
     ws.withdraw_reviewer(ws.session.plan.assignments[0].reviewer, "illness")
     ws.solve()
     assert seen == [None, first]
+
+
+def test_two_writers_at_once_both_land(tmp_path: Path) -> None:
+    # Two change commands on one session at the same moment, 20 rounds: the lock makes the
+    # second wait for the first and then change the newer file, so no change is lost.
+    path = tmp_path / "venue.json"
+    save_session(workshop(), path)
+    ids = [r.id for r in load_session(path).reviewers]
+    root = Path(__file__).resolve().parents[2]
+    env = {**os.environ, "PYTHONPATH": str(root)}
+    code = "import sys; from review_alloc.cli import main; sys.exit(main(sys.argv[1:]))"
+    for round_ in range(10):
+        a, b = ids[2 * round_], ids[2 * round_ + 1]
+        runs = [
+            subprocess.Popen(
+                [sys.executable, "-c", code, "withdraw", str(path), "--reviewer", who],
+                env=env,
+                stdout=subprocess.DEVNULL,
+                stderr=subprocess.PIPE,
+            )
+            for who in (a, b)
+        ]
+        for run in runs:
+            assert run.wait(timeout=120) == 0, run.stderr.read() if run.stderr else ""
+    session = load_session(path)
+    gone = {r.id for r in session.reviewers if r.withdrawn}
+    assert gone == set(ids[:20])
+    assert sum(e.action == "withdraw-reviewer" for e in session.events) == 20
+
+
+def test_a_save_never_overwrites_a_file_changed_on_disk(tmp_path: Path) -> None:
+    path = tmp_path / "venue.json"
+    save_session(workshop(), path)
+    mine = Workspace.open(path)
+    theirs = Workspace.open(path)
+    theirs.withdraw_reviewer(theirs.session.reviewers[0].id, "their change")
+    theirs.save()
+    mine.withdraw_reviewer(mine.session.reviewers[1].id, "my change")
+    assert mine.changed_on_disk()
+    saved = path.read_bytes()
+    with pytest.raises(FileChanged, match="changed on disk"):
+        mine.save()
+    assert path.read_bytes() == saved
+    copy = mine.save(tmp_path / "mine.json")
+    assert load_session(copy).reviewers[1].withdrawn
+    assert not mine.changed_on_disk()
