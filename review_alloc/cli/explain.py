@@ -83,7 +83,7 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
 
 
 def _cmd_explain(args: argparse.Namespace) -> int:
-    from review_alloc.plan.fixes import explain_session
+    from review_alloc.plan.explain_report import explain_session
 
     session = load_session(args.session)
     report = explain_session(session)

@@ -285,6 +285,11 @@ class Session(DocumentModel):
         )
         return np.where(own < 0, np.minimum(self.policy.floor, cap), own)
 
+    @property
+    def noun(self) -> str:
+        """What the UI calls a paper: "proposal" for a grant panel, else "paper"."""
+        return "proposal" if self.kind == "panel" else "paper"
+
     def paper_index(self) -> dict[str, int]:
         """Map paper id to position (cached; do not modify the returned dict)."""
         cached = self._indexes.papers

@@ -21,14 +21,11 @@ from textual.widget import Widget
 from textual.widgets import Static
 
 from review_alloc.model import Reviewer, Session
-from review_alloc.plan.explain import TIERS, ShortfallGroup, coverage_network, shortfall_groups
-from review_alloc.plan.fixes import (
-    CAUTIONS,
-    CapRaiseFix,
-    PairLoss,
-    RecruitFix,
-    best_fixes,
-)
+from review_alloc.plan.cautions import FIX_CAUTIONS as CAUTIONS
+from review_alloc.plan.explain import COVERAGE_TIERS as TIERS
+from review_alloc.plan.explain import ShortfallGroup, coverage_network, shortfall_groups
+from review_alloc.plan.explain_report import best_fixes
+from review_alloc.plan.fixes import CapRaiseFix, PairLoss, RecruitFix
 from review_alloc.plan.network import build_network
 from review_alloc.plan.whatif import WhatIf, apply_cap_fix, apply_recruit_fix, what_if
 from review_alloc.tui.grid import RowTable
