@@ -47,7 +47,7 @@ from instances import (  # noqa: E402
 from review_alloc.flow import max_flow, min_cost_flow, warm_up  # noqa: E402
 from review_alloc.plan import build_network, make_plan  # noqa: E402
 from review_alloc.plan.network import PlanNetwork  # noqa: E402
-from review_alloc.plan.warm import warm_start_for  # noqa: E402
+from review_alloc.plan.warmstart import warm_start_for  # noqa: E402
 
 
 def median_time(

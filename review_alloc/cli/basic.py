@@ -16,7 +16,7 @@ from review_alloc.cli.common import (
     validation_message,
     whole,
 )
-from review_alloc.model import InputError, Policy, Session
+from review_alloc.model import InputError, Policy
 
 if TYPE_CHECKING:
     from review_alloc.workspace import Workspace
@@ -139,18 +139,6 @@ def rule_overrides(args: argparse.Namespace) -> dict[str, object]:
     if getattr(args, "balance", None) is not None:
         out["balance"] = max(args.balance, 0.0)
     return out
-
-
-def _with_rules(session: Session, args: argparse.Namespace) -> Session:
-    """The session with the options' rules written into its policy (validated)."""
-    changes = rule_overrides(args)
-    if not changes:
-        return session
-    try:
-        policy = Policy.model_validate({**session.policy.model_dump(), **changes})
-    except ValueError as error:
-        raise InputError([f"options: {validation_message(error)}"]) from None
-    return session.model_copy(update={"policy": policy})
 
 
 def rule_lines(summary: dict[str, object]) -> list[str]:

@@ -8,11 +8,7 @@ import sys
 from typing import Any
 
 from review_alloc.model import Session
-
-CAUTION = (
-    "A plan is advice to the chair: check it against the venue's conflict-of-interest policy "
-    "before any assignment goes out."
-)
+from review_alloc.plan.cautions import PLAN_CAUTION as CAUTION
 
 EXIT_OK, EXIT_INPUT, EXIT_USAGE, EXIT_CHECK = 0, 1, 2, 3
 

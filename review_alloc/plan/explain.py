@@ -32,7 +32,7 @@ from review_alloc.plan.network import PlanNetwork, build_network, candidate_pair
 from review_alloc.plan.overload import overload_allowances
 from review_alloc.plan.pairkeys import contains
 
-TIERS = ("min_reviews", "reviews")
+COVERAGE_TIERS = ("min_reviews", "reviews")
 """The two coverage tiers a group can explain, in objective order."""
 
 _GAIN_GROUPS = 25
@@ -103,8 +103,8 @@ def coverage_network(
     extra_pairs: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> CoverageNetwork:
     """Solve the tier's max-coverage network; `extra_pairs` adds (reviewer, paper) arcs."""
-    if tier not in TIERS:
-        raise ValueError(f"tier {tier!r} must be one of {TIERS}")
+    if tier not in COVERAGE_TIERS:
+        raise ValueError(f"tier {tier!r} must be one of {COVERAGE_TIERS}")
     net = plan_net if plan_net is not None else build_network(session)
     reviews, minimum, _, _ = active_demands(session)
     capacity = reviewer_capacity(session)
@@ -376,7 +376,7 @@ def _unscored_topic_pairs(
 
 def _cause_text(session: Session, group: ShortfallGroup, f: dict[str, int]) -> str:
     """The main cause in words, then the other factors that remove candidates."""
-    word = "proposal" if session.kind == "panel" else "paper"
+    word = session.noun
     n = len(group.papers)
     what = f"{n} {word}{'s' if n != 1 else ''}"
     topic = f" in '{group.topics[0]}'" if group.topics else ""

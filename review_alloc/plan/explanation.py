@@ -10,10 +10,19 @@ from dataclasses import asdict, dataclass
 from typing import Any
 
 from review_alloc.model import Plan, Session
+from review_alloc.plan.cautions import FIX_CAUTIONS
 from review_alloc.plan.errors import PlanCheckError
-from review_alloc.plan.explain import TIERS, CoverageNetwork, ShortfallGroup, coverage_network
+from review_alloc.plan.explain import COVERAGE_TIERS as TIERS
+from review_alloc.plan.explain import CoverageNetwork, ShortfallGroup, coverage_network
 from review_alloc.plan.explain import shortfall_groups as groups_of
-from review_alloc.plan.fixes import CAUTIONS, CapRaiseFix, PairLoss, RecruitFix, best_fixes
+from review_alloc.plan.fixes import (
+    CapRaiseFix,
+    PairLoss,
+    RecruitFix,
+    pair_losses,
+    raise_caps_fix,
+    recruit_fix,
+)
 from review_alloc.plan.network import PlanNetwork, build_network
 from review_alloc.plan.report import find_gaps, load_issues
 from review_alloc.plan.whatif import apply_cap_fix, apply_recruit_fix
@@ -68,7 +77,7 @@ def explain(session: Session, network: PlanNetwork | None = None) -> Explanation
         tier: coverage_network(session, tier, plan_net=net) for tier in TIERS
     }
     groups = tuple(g for tier in TIERS for g in groups_of(covs[tier]))
-    caps, recruits, losses = best_fixes(session, covs["reviews"])
+    caps, recruits, losses = best_fixes(covs["reviews"])
     return Explanation(
         session=session,
         groups=groups,
@@ -79,6 +88,11 @@ def explain(session: Session, network: PlanNetwork | None = None) -> Explanation
         best={tier: cov.value for tier, cov in covs.items()},
         demand={tier: int(cov.demand.sum()) for tier, cov in covs.items()},
     )
+
+
+def best_fixes(cov: CoverageNetwork) -> tuple[CapRaiseFix, RecruitFix, tuple[PairLoss, ...]]:
+    """The least cap raise, the fewest recruits and the conflict/block information, together."""
+    return raise_caps_fix(cov), recruit_fix(cov), pair_losses(cov)
 
 
 def report(explanation: Explanation, plan: Plan) -> dict[str, Any]:
@@ -137,7 +151,7 @@ def report(explanation: Explanation, plan: Plan) -> dict[str, Any]:
                 "pairs": [asdict(x) for x in explanation.losses],
             },
         },
-        "cautions": list(CAUTIONS),
+        "cautions": list(FIX_CAUTIONS),
     }
 
 

@@ -23,7 +23,8 @@ from collections.abc import Callable
 import numpy as np
 
 from review_alloc.flow import InfeasibleError, max_flow
-from review_alloc.plan.network import SCORE_RESOLUTION, PlanNetwork
+from review_alloc.plan.network import PlanNetwork
+from review_alloc.plan.weights import SCORE_RESOLUTION
 
 
 def score_thresholds(net: PlanNetwork) -> np.ndarray:

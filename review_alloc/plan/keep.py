@@ -4,7 +4,7 @@ much each is worth so that keeping one outranks any score but never any floor or
 A re-plan ranks required coverage, total coverage and floors first, then the number of pairs of
 the earlier plan it keeps, then total score. The tier is a bonus on the pair arcs of earlier
 pairs, so it only changes costs; `plan.network` adds it with one hook and widens the weights
-above it (see `plan.network.constraint_weights` and `fitting_weights`).
+above it (see `plan.weights.constraint_weights` and `fitting_weights`).
 """
 
 from __future__ import annotations

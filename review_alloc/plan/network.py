@@ -1,4 +1,9 @@
-"""Session → bounded flow network: the arrays the engine solves, and the maps back to papers."""
+"""Session → bounded flow network: the arrays the engine solves, and the maps back to papers.
+
+The builder collects the network block by block (`_ArcBlocks`); the rules that add nodes have
+their own modules: `plan.seniors` (senior nodes), `plan.institutions` (institution groups),
+`plan.overload` (allowances above cap); the tier weights come from `plan.weights`.
+"""
 
 from __future__ import annotations
 
@@ -8,77 +13,19 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from review_alloc.model import Plan, Session
-from review_alloc.plan.conflicts import ConflictSet, conflict_pairs, normalise_institution
+from review_alloc.plan.conflicts import ConflictSet, conflict_pairs
 from review_alloc.plan.eligibility import rule_failures
 from review_alloc.plan.errors import PlanInputError
 from review_alloc.plan.figures import active_demands
+from review_alloc.plan.institutions import institution_groups, reviewer_institutions
 from review_alloc.plan.keep import earlier_pair_mask
-from review_alloc.plan.overload import add_overload_arcs, overload_allowances
+from review_alloc.plan.overload import overload_allowances
 from review_alloc.plan.pairkeys import contains, key_order, pair_keys
-
-SCORE_RESOLUTION = 10_000
-"""Integer cost steps per score unit: a score of 0.8532 becomes 8532 (ties closer than 1e-4 are
-treated as equal)."""
+from review_alloc.plan.seniors import paper_senior_need, senior_arcs, senior_nodes
+from review_alloc.plan.weights import SCORE_RESOLUTION, fitting_weights
 
 MAX_CANDIDATE_PAIRS = 60_000_000
 """Above this many candidate pairs the network would not fit the memory budget."""
-
-_COST_LIMIT = 2**62
-
-
-@dataclass(frozen=True)
-class TierWeights:
-    """Cost weights of the tiers above the score, highest first (see `constraint_weights`)."""
-
-    required: int
-    seniors: int
-    coverage: int
-    overload: int
-    floors: int
-    keep: int = 0
-
-
-def constraint_weights(
-    max_pair_arcs_in_cycle: int,
-    max_score: int,
-    senior_nodes: int,
-    balance_spread: int,
-    *,
-    overload: bool = False,
-    keep: bool = False,
-) -> TierWeights:
-    """Weights for required > seniors > coverage > (least overload) > floors > (kept) > score.
-
-    Why one min-cost flow is then lexicographic: an optimal flow has no negative residual cycle,
-    and every flow difference splits into simple residual cycles. With each weight larger than
-    everything below it can move in one simple cycle, no cycle can trade a higher tier for lower
-    ones. A simple cycle holds at most `max_pair_arcs_in_cycle` pair arcs, so it changes the score
-    by at most that many times `max_score`; it passes the source and the sink once, so it moves
-    required coverage, coverage, overload and floors by at most one each,
-    and it changes the balance penalty by at most `balance_spread` (two source arcs). It may pass
-    many papers' senior nodes, but each one once and each beside a reviewer, moving the senior
-    tier by at most min(`senior_nodes`, pair arcs in the cycle); the required weight outweighs
-    all of that. The overload tier exists only when some reviewer may go above cap.
-
-    A re-plan (`keep`) adds the kept-earlier-pairs tier between floors and score: each kept
-    pair is worth more than a cycle can change score and balance together, and a cycle changes
-    the kept count by at most its pair arcs, so the floors weight covers that many kept pairs.
-    """
-    below = max_pair_arcs_in_cycle * max_score + balance_spread + 1
-    kept = below if keep else 0
-    floors = max_pair_arcs_in_cycle * kept + below
-    over = 2 * floors if overload else 0
-    coverage = 2 * (over or floors)
-    seniors = 2 * coverage
-    required = (min(senior_nodes, max_pair_arcs_in_cycle) + 1) * seniors
-    return TierWeights(
-        required=required,
-        seniors=seniors,
-        coverage=coverage,
-        overload=over,
-        floors=floors,
-        keep=kept,
-    )
 
 
 @dataclass(frozen=True)
@@ -89,7 +36,8 @@ class PlanNetwork:
     senior node per paper with a senior rule, then one node per (paper, institution) group.
     Arc blocks in order: floor, rest (source → reviewer; unit arcs when balancing), pair, required,
     extra (paper → sink), the return arc, senior required, senior rest (senior node → paper),
-    group (group node → senior node or paper).
+    group (group node → senior node or paper), overload (source → reviewer above cap; last, and
+    only when some reviewer may go above cap).
     """
 
     n_nodes: int
@@ -241,31 +189,6 @@ class _ArcBlocks:
         return tuple(np.concatenate([p[k] for p in self.parts]) for k in range(5))
 
 
-def paper_senior_need(session: Session) -> np.ndarray:
-    """Seniors wanted per paper: its own `senior_min`, else the policy's; clamped to its reviews,
-    0 for withdrawn papers."""
-    own = np.fromiter(
-        (-1 if p.senior_min is None else p.senior_min for p in session.papers),
-        dtype=np.int64,
-        count=len(session.papers),
-    )
-    need = np.where(own < 0, session.policy.senior_min, own)
-    need = np.minimum(need, session.paper_reviews_array())
-    need[np.array([p.withdrawn for p in session.papers], dtype=bool)] = 0
-    return need.astype(np.int64)
-
-
-def reviewer_institutions(session: Session) -> tuple[np.ndarray, list[str]]:
-    """(institution id per reviewer, -1 when none given; the normalised institution names)."""
-    names: dict[str, int] = {}
-    ids = np.full(len(session.reviewers), -1, dtype=np.int64)
-    for j, r in enumerate(session.reviewers):
-        key = normalise_institution(r.institution)
-        if key:
-            ids[j] = names.setdefault(key, len(names))
-    return ids, list(names)
-
-
 def _eligible_pairs(
     session: Session, conflicts: ConflictSet, threshold: float | None
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
@@ -319,154 +242,6 @@ def _source_arcs(
     return floors, rest, f_owner, r_owner
 
 
-def _senior_nodes(
-    session: Session, reviewer: np.ndarray, paper: np.ndarray
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """(senior papers, their need, per pair the senior node index or -1)."""
-    need = paper_senior_need(session)
-    senior_papers = np.flatnonzero(need > 0).astype(np.int64)
-    index_of = np.full(len(session.papers), -1, dtype=np.int64)
-    index_of[senior_papers] = np.arange(len(senior_papers))
-    is_senior = session.reviewer_senior_array()
-    pair_senior = np.where(is_senior[reviewer], index_of[paper], -1) if len(paper) else paper
-    return senior_papers, need[senior_papers], pair_senior.astype(np.int64)
-
-
-@dataclass(frozen=True)
-class GroupParts:
-    """Parts of crowded (paper, institution) groups: a whole group, or its senior or junior part.
-
-    Only parts with more candidates than their cap get a node in the network.
-    """
-
-    pair_part: np.ndarray
-    """Per pair: its part, or -1 outside crowded groups."""
-    paper: np.ndarray
-    senior: np.ndarray
-    """1 senior part, 0 junior part, -1 whole group."""
-    institution: tuple[str, ...]
-    cap: np.ndarray
-    relaxed: tuple[int, ...]
-    """Parts of mixed groups capped at m each (no split fixed): a relaxation."""
-
-
-def _institution_groups(
-    session: Session,
-    reviewer: np.ndarray,
-    paper: np.ndarray,
-    pair_senior: np.ndarray,
-    has_senior_node: np.ndarray,
-    split: Mapping[tuple[int, str], int] | None,
-) -> GroupParts:
-    """The (paper, institution) groups with more candidates than the cap allows, as parts.
-
-    Where a paper has a senior node
-    and a group mixes seniors and juniors, the group is split into a senior part (routed through
-    the senior node) and a junior part; `split[(paper, institution)] = k` caps the seniors at k
-    and the juniors at m - k (a restriction); without it each part is capped at m (a relaxation).
-    """
-    m = session.policy.max_per_institution
-    empty = np.zeros(0, np.int64)
-    none = np.full(len(paper), -1, dtype=np.int64)
-    if m is None or len(paper) == 0:
-        return GroupParts(none, empty, empty, (), empty, ())
-    inst, names = reviewer_institutions(session)
-    n_inst = max(len(names), 1)
-    g_inst = inst[reviewer]
-    member = g_inst >= 0
-    gkey = np.where(member, paper * n_inst + g_inst, -1)
-    uniq, inverse, counts = np.unique(gkey, return_inverse=True, return_counts=True)
-    big = (uniq >= 0) & (counts > m)
-    in_big = big[inverse]
-    senior = pair_senior >= 0
-    # Mixed: the group's paper has a senior node and the group holds both seniors and juniors.
-    any_senior = np.bincount(inverse, weights=senior, minlength=len(uniq)) > 0
-    any_junior = np.bincount(inverse, weights=~senior, minlength=len(uniq)) > 0
-    mixed = big & any_senior & any_junior & has_senior_node[np.maximum(uniq, 0) // n_inst]
-    part = np.where(mixed[inverse], senior.astype(np.int64), -1)
-    sub_key = np.where(in_big, inverse * 3 + (part + 1), -1)
-    sub_uniq, sub_inverse = np.unique(sub_key, return_inverse=True)
-    valid = sub_uniq >= 0
-    node_of_sub = np.cumsum(valid) - 1
-    pair_group = np.where(in_big, node_of_sub[sub_inverse], -1).astype(np.int64)
-    groups = sub_uniq[valid]
-    g_part = groups % 3 - 1
-    g_parent = uniq[groups // 3]
-    g_paper = (g_parent // n_inst).astype(np.int64)
-    g_name = tuple(names[int(x)] for x in g_parent % n_inst)
-    caps = np.full(len(groups), m, dtype=np.int64)
-    relaxed: list[int] = []
-    for k in np.flatnonzero(g_part >= 0).tolist():
-        chosen = None if split is None else split.get((int(g_paper[k]), g_name[k]))
-        if chosen is None:
-            relaxed.append(k)
-        else:
-            caps[k] = chosen if g_part[k] == 1 else m - chosen
-    return GroupParts(
-        pair_part=pair_group,
-        paper=g_paper,
-        senior=g_part.astype(np.int64),
-        institution=g_name,
-        cap=caps,
-        relaxed=tuple(relaxed),
-    )
-
-
-def fitting_weights(
-    top_score: float,
-    balance: float,
-    cycle_arcs: int,
-    senior_nodes: int,
-    max_cap: int,
-    total_demand: int,
-    n_nodes: int,
-    *,
-    overload: bool,
-    keep: bool,
-) -> tuple[int, TierWeights]:
-    """The finest score resolution (at most SCORE_RESOLUTION) whose tier weights fit int64.
-
-    Every cost sum and potential the engine forms stays below 2**62 when the heaviest path
-    cost times the total demand does. Large venues with a senior rule or a re-plan's keep tier
-    can pass that at 10,000 steps per unit; the score steps are then made coarser (ties finer
-    than a step count as equal) while every count tier stays exact, and the plan's method says
-    so. A session that does not fit even at one step per unit is refused.
-    """
-
-    def weights(steps: int) -> TierWeights:
-        step = int(round(balance * steps))
-        return constraint_weights(
-            cycle_arcs,
-            int(np.rint(top_score * steps)),
-            senior_nodes,
-            2 * step * max(max_cap - 1, 0),
-            overload=overload,
-            keep=keep,
-        )
-
-    per_arc = _COST_LIMIT // (4 * n_nodes + 8)  # the engine's bound, so potentials cannot overflow
-
-    def fits(steps: int) -> bool:
-        w = weights(steps)
-        heaviest = w.required + w.coverage + int(np.rint(top_score * steps)) + w.keep
-        return heaviest <= per_arc and heaviest * max(total_demand, 1) * 4 < _COST_LIMIT
-
-    if fits(SCORE_RESOLUTION):
-        return SCORE_RESOLUTION, weights(SCORE_RESOLUTION)
-    if not fits(1):
-        raise PlanInputError(
-            [
-                "scores: the objective's weights are too large to plan exactly (a wide score "
-                "range, or very many papers with a senior rule); rescale scores to 0..1"
-            ]
-        )
-    low, high = 1, SCORE_RESOLUTION  # fits(low), not fits(high): the weights grow with steps
-    while high - low > 1:
-        mid = (low + high) // 2
-        low, high = (mid, high) if fits(mid) else (low, mid)
-    return low, weights(low)
-
-
 def build_network(
     session: Session,
     *,
@@ -480,7 +255,8 @@ def build_network(
 
     `threshold` leaves out unpinned pairs scoring below it (the bottleneck search);
     `institution_split` fixes how mixed institution groups share their cap (see
-    `_institution_groups`); `conflicts` reuses the session's conflict set when already known.
+    `plan.institutions.institution_groups`); `conflicts` reuses the session's conflict set when
+    already known. Overload arcs, when a reviewer may go above cap, are the last block.
     """
     n_r, n_p = len(session.reviewers), len(session.papers)
     if conflicts is None:
@@ -491,10 +267,10 @@ def build_network(
         _check_pins(session, conflicts, keys, cap, reviews)
 
     sink = 1 + n_r + n_p
-    senior_papers, senior_need, pair_senior = _senior_nodes(session, reviewer, paper)
+    senior_papers, senior_need, pair_senior = senior_nodes(session, reviewer, paper)
     has_senior_node = np.zeros(n_p, dtype=bool)
     has_senior_node[senior_papers] = True
-    parts = _institution_groups(
+    parts = institution_groups(
         session, reviewer, paper, pair_senior, has_senior_node, institution_split
     )
     part_size = np.bincount(parts.pair_part[parts.pair_part >= 0], minlength=len(parts.paper))
@@ -509,6 +285,7 @@ def build_network(
     first_sen, first_grp = sink + 1, sink + 1 + n_sen
 
     kept = earlier_pair_mask(session, earlier, reviewer, paper) if earlier is not None else None
+    allowance = overload_allowances(session)
     total = int(reviews.sum())
     max_cap = int(cap.max()) if len(cap) else 0
     top = float(score.max()) if len(score) else 0.0
@@ -520,7 +297,7 @@ def build_network(
         max_cap,
         total,
         first_grp + n_grp,
-        overload=bool(overload_allowances(session).any()),
+        overload=bool(allowance.any()),
         keep=kept is not None,
     )
     score_int = np.rint(score * resolution).astype(np.int64)
@@ -558,8 +335,7 @@ def build_network(
     )
     return_arc = blocks.add(np.array([sink]), np.array([0]), np.array([total]), np.zeros(1)).start
 
-    senior_required_arcs, senior_rest_arcs = _senior_arcs(
-        blocks,
+    senior_required, senior_rest = senior_arcs(
         senior_papers,
         senior_need,
         reviews,
@@ -568,6 +344,8 @@ def build_network(
         tiers.seniors,
         session.policy.senior_hard,
     )
+    senior_required_arcs = blocks.add(*senior_required)
+    senior_rest_arcs = blocks.add(*senior_rest)
     group_head = np.where(
         (g_part == 1)
         | (
@@ -579,9 +357,23 @@ def build_network(
         1 + n_r + g_paper,
     )
     group_arcs = blocks.add(first_grp + np.arange(n_grp), group_head, g_cap, np.zeros(n_grp))
+    # Overload arcs come last, so that every other block keeps its place whether or not a
+    # reviewer may go above cap; each costs the overload tier's weight per paper above cap.
+    over_reviewers = np.flatnonzero(allowance > 0).astype(np.int64)
+    n_over = len(over_reviewers)
+    overload_arcs = (
+        blocks.add(
+            np.zeros(n_over),
+            1 + over_reviewers,
+            allowance[over_reviewers],
+            np.full(n_over, tiers.overload),
+        )
+        if n_over
+        else slice(0, 0)
+    )
 
     tails, heads, capacities, lower, costs = blocks.arrays()
-    net = PlanNetwork(
+    return PlanNetwork(
         n_nodes=first_grp + n_grp,
         source=0,
         sink=sink,
@@ -604,6 +396,8 @@ def build_network(
         conflicts=conflicts,
         n_reviewers=n_r,
         n_papers=n_p,
+        overload_arcs=overload_arcs,
+        overload_reviewers=over_reviewers,
         floor_arc_reviewer=floor_owner,
         rest_arc_reviewer=rest_owner,
         pair_pinned=pinned,
@@ -629,7 +423,6 @@ def build_network(
         keep_weight=tiers.keep,
         resolution=resolution,
     )
-    return add_overload_arcs(session, net, tiers.overload)
 
 
 def _all_senior(pair_group: np.ndarray, pair_senior: np.ndarray, n_groups: int) -> np.ndarray:
@@ -638,26 +431,6 @@ def _all_senior(pair_group: np.ndarray, pair_senior: np.ndarray, n_groups: int) 
     members = np.bincount(pair_group[inside], minlength=n_groups)
     seniors = np.bincount(pair_group[inside & (pair_senior >= 0)], minlength=n_groups)
     return (members > 0) & (members == seniors)
-
-
-def _senior_arcs(
-    blocks: _ArcBlocks,
-    senior_papers: np.ndarray,
-    need: np.ndarray,
-    reviews: np.ndarray,
-    first_node: int,
-    first_paper_node: int,
-    w_seniors: int,
-    hard: bool,
-) -> tuple[slice, slice]:
-    """Senior node → paper: [0, need] at -w_seniors (lower bound `need` when the rule is hard),
-    and [0, reviews] at 0 for seniors beyond the need."""
-    n = len(senior_papers)
-    nodes = first_node + np.arange(n, dtype=np.int64)
-    targets = first_paper_node + senior_papers
-    required = blocks.add(nodes, targets, need, np.full(n, -w_seniors), need if hard else None)
-    rest = blocks.add(nodes, targets, reviews[senior_papers], np.zeros(n))
-    return required, rest
 
 
 def _check_pins(

@@ -33,12 +33,13 @@ from review_alloc.plan.errors import PlanInputError
 from review_alloc.plan.fairness import coverage_flows, highest_threshold, score_thresholds
 from review_alloc.plan.figures import plan_figures
 from review_alloc.plan.leads import LeadChoice, LeadState, lead_choice, lead_mask_warm
-from review_alloc.plan.network import SCORE_RESOLUTION, PlanNetwork, build_network
-from review_alloc.plan.warm import same_cost_scale, warm_start_for
+from review_alloc.plan.network import PlanNetwork, build_network
+from review_alloc.plan.warmstart import same_cost_scale, warm_start_for
+from review_alloc.plan.weights import SCORE_RESOLUTION
 
 METHOD = "lexicographic min-cost flow (cost scaling; re-plans warm-started by primal-dual)"
 
-TIERS = ("required", "seniors", "coverage", "floors", "score")
+OBJECTIVE_TIERS = ("required", "seniors", "coverage", "floors", "score")
 """Names of the values `tier_values` returns, highest tier first."""
 
 

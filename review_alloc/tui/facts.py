@@ -15,11 +15,6 @@ from review_alloc.model import Session
 from review_alloc.plan import conflict_pairs
 from review_alloc.plan.figures import active_demands
 
-CAUTION = (
-    "A plan is advice to the chair, who follows the venue's conflict-of-interest policy: "
-    "check every pair before any assignment goes out."
-)
-
 
 @dataclass(frozen=True)
 class Candidate:
@@ -180,7 +175,7 @@ class Facts:
     @property
     def noun(self) -> str:
         """'proposal' for a panel, 'paper' otherwise."""
-        return "proposal" if self.session.kind == "panel" else "paper"
+        return self.session.noun
 
     def candidates_of_paper(self, paper: int, limit: int = 12) -> list[Candidate]:
         """The paper's assigned people, then the best-scored others with why each is unused."""

@@ -21,9 +21,9 @@ from textual.reactive import reactive
 from textual.widget import Widget
 from textual.widgets import Static
 
+from review_alloc.plan.cautions import FIX_CAUTIONS
 from review_alloc.plan.explain import ShortfallGroup
 from review_alloc.plan.explanation import Explanation
-from review_alloc.plan.fixes import CAUTIONS
 from review_alloc.plan.whatif import WhatIf
 from review_alloc.tui.grid import RowTable
 
@@ -197,7 +197,7 @@ class ExplainView(Widget):
         if self.preview is not None:
             self._preview_detail(out, self.preview)
         out.append("\nCautions\n", style="bold")
-        for line in CAUTIONS:
+        for line in FIX_CAUTIONS:
             out.append(f"• {line}\n", style="yellow")
         self.query_one(".explain-text", Static).update(out)
 

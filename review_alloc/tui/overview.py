@@ -11,7 +11,8 @@ from textual.reactive import reactive
 from textual.widgets import Static
 
 from review_alloc.plan import find_gaps, load_issues
-from review_alloc.tui.facts import CAUTION, Facts
+from review_alloc.plan.cautions import PLAN_CAUTION
+from review_alloc.tui.facts import Facts
 
 BAR_WIDTH = 8
 
@@ -47,7 +48,7 @@ class Overview(VerticalScroll):
     def compose(self) -> ComposeResult:
         """The figures block, the caution and a grid of three charts."""
         yield Static("", id="figures")
-        yield Static(Text(CAUTION, style="italic"), id="caution")
+        yield Static(Text(PLAN_CAUTION, style="italic"), id="caution")
         with Grid(id="charts"):
             yield Static("", id="chart-load", classes="chart")
             yield Static("", id="chart-score", classes="chart")

@@ -314,6 +314,6 @@ def test_an_unproven_plan_stays_within_its_reported_bound() -> None:
     # The panel's labs are large, so the split search runs out of budget: the plan is feasible
     # (checked) and each tier is at most the relaxation's.
     assert bound is not None and not outcome.proven_optimal
-    for name in solve.TIERS:
+    for name in solve.OBJECTIVE_TIERS:
         assert outcome.tiers[name] <= bound[name] + 1e-9
     assert plan_summary(session, outcome.plan)["institutions"]["over_limit"] == 0

@@ -5,10 +5,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-import review_alloc.plan.network as network
+import review_alloc.plan.weights as weights
 from review_alloc.model import load_session
 from review_alloc.plan import build_network
-from review_alloc.plan.network import SCORE_RESOLUTION, constraint_weights, fitting_weights
+from review_alloc.plan.weights import SCORE_RESOLUTION, constraint_weights, fitting_weights
 from review_alloc.workspace import Workspace
 from tests.plan.replan_reference import replan_instance, replan_optimum
 from tests.plan.test_planner import random_session
@@ -39,8 +39,8 @@ def test_the_largest_venue_fits_int64_with_a_coarser_score_step() -> None:
         w = constraint_weights(arcs, s, 0, 0, keep=True)
         return (w.required + w.coverage + s + w.keep) * demand * 4
 
-    assert worst(step) < network._COST_LIMIT <= worst(step + 1)
-    assert worst(SCORE_RESOLUTION) > network._COST_LIMIT
+    assert worst(step) < weights.COST_LIMIT <= worst(step + 1)
+    assert worst(SCORE_RESOLUTION) > weights.COST_LIMIT
     fresh_step, _ = fitting_weights(1.0, 0.0, arcs, 0, 8, demand, 2, overload=False, keep=False)
     assert fresh_step == SCORE_RESOLUTION
 
@@ -60,7 +60,7 @@ def test_a_coarser_score_step_keeps_every_count_tier_exact(
     seed: int, monkeypatch: pytest.MonkeyPatch
 ) -> None:
     # Shrink the headroom so that these small sessions take the large-venue path.
-    monkeypatch.setattr(network, "_COST_LIMIT", 2**24)
+    monkeypatch.setattr(weights, "COST_LIMIT", 2**24)
     rng = np.random.default_rng(seed)
     ws = Workspace(random_session(600 + seed))
     ws.solve(fresh=True)

@@ -1,0 +1,24 @@
+"""The cautions every face shows (CLI, TUI, JSON reports), written once so they say the same."""
+
+from __future__ import annotations
+
+PLAN_CAUTION = (
+    "A plan is advice to the chair, who follows the venue's conflict-of-interest policy: "
+    "check every pair before any assignment goes out."
+)
+"""Shown beside every plan."""
+
+RAISE_CAP_CAUTION = (
+    "Raising a cap asks more of a person: agree every raise with the reviewer before relying "
+    "on it, and prefer recruiting when the raises are large."
+)
+"""Shown beside a suggested cap raise."""
+
+CONFLICT_CAUTION = (
+    "Conflicts of interest are never overridden by this tool: the conflicts listed here are "
+    "information for the chair, not a suggested fix, and no fix lifts them."
+)
+"""Shown beside what conflicts and blocks cost."""
+
+FIX_CAUTIONS = (RAISE_CAP_CAUTION, CONFLICT_CAUTION)
+"""The cautions of an explanation's fixes, in the order shown."""

@@ -1,0 +1,316 @@
+"""The recruit fix: per topic, how many new reviewers close what raising caps cannot or should not.
+
+Each recruit is assumed to take up to the policy's cap, free of conflicts, eligible for that
+topic's papers. A small integer program (HiGHS through scipy) over the shortfall groups' side of
+the cut, solved to optimality: first the best coverage recruits can give, then the fewest
+recruits.
+"""
+
+from __future__ import annotations
+
+from collections import defaultdict
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.optimize import Bounds, LinearConstraint, milp
+from scipy.sparse import coo_matrix
+
+from review_alloc.flow import max_flow
+from review_alloc.plan.explain import CoverageNetwork
+from review_alloc.plan.fixes.common import Unclosable, paper_inflow
+
+RECRUIT_SECONDS = 10.0
+"""Time the integer program for several topics may take; past it the answer is flagged."""
+
+MAX_RECRUIT_PAIRS = 200_000
+"""Above this many pairs on the groups' side of the cut the recruit model is not attempted."""
+
+
+@dataclass(frozen=True)
+class RecruitNeed:
+    """New reviewers wanted in one topic, with the reviews they would give."""
+
+    topic: str
+    recruits: int
+    reviews: int
+    papers: tuple[str, ...]
+    profile: str
+
+
+@dataclass(frozen=True)
+class RecruitFix:
+    """The fewest recruits, per topic, that reach the best coverage recruits can give."""
+
+    total: int
+    needs: tuple[RecruitNeed, ...]
+    recruit_cap: int
+    coverage_before: int
+    coverage_after: int
+    demand: int
+    unclosable: tuple[Unclosable, ...]
+    note: str = ""
+    exact: bool = True
+    """False when the solver's time ran out: `total` is then an upper bound that works."""
+    lower_bound: int = 0
+    """No fewer recruits can reach `coverage_after` (equal to `total` when exact)."""
+
+
+def recruit_fix(cov: CoverageNetwork) -> RecruitFix:
+    """The fewest recruits per topic, exactly, for the `reviews` tier's network.
+
+    Recruits of one topic are alike, so they enter the network as one node per topic: source →
+    topic (n recruits × cap) → each paper of the topic (at most n: one review per recruit and
+    paper), which any integral flow splits back into n recruits round-robin. Only the numbers
+    n are integer variables of the program; the flow that proves the answer is then found by
+    the flow engine.
+    """
+    session, net = cov.session, cov.plan_net
+    n_r, n_p = net.n_reviewers, net.n_papers
+    recruit_cap = session.policy.cap
+    papers_t = cov.paper_nodes_on_sink_side() if cov.shortfall else np.zeros(0, np.int64)
+    empty = RecruitFix(0, (), recruit_cap, cov.value, cov.value, int(cov.demand.sum()), ())
+    if len(papers_t) == 0:
+        return empty
+    on_t = cov.sink_reach
+    pr, pp = net.pair_reviewer, net.pair_paper
+    inner = np.flatnonzero(on_t[1 + pr] & on_t[1 + n_r + pp])
+    if len(inner) > MAX_RECRUIT_PAIRS:
+        return _no_recruits(
+            cov,
+            f"the short papers' side of the cut has {len(inner):,} pairs, more than the "
+            f"{MAX_RECRUIT_PAIRS:,} the exact recruit model takes; raise caps first",
+        )
+    if recruit_cap == 0:
+        return _no_recruits(cov, "the policy's cap is 0, so a recruit could review nothing")
+
+    topics = sorted({t for i in papers_t for t in session.papers[i].topics})
+    topic_at = {t: k for k, t in enumerate(topics)}
+    y_topic = np.array(
+        [topic_at[t] for i in papers_t for t in session.papers[i].topics], dtype=np.int64
+    )
+    y_paper = np.array([int(i) for i in papers_t for _ in session.papers[i].topics], np.int64)
+    most = int(cov.demand[papers_t].sum())
+    unlimited = np.full(len(topics), most, dtype=np.int64)
+    best = _with_recruits(cov, y_topic, y_paper, unlimited, unlimited)[0]
+    outside = int(cov.demand.sum()) - int(cov.demand[papers_t].sum())
+    target = best - outside
+    if len(topics) == 1:
+        counts, bound, exact = _fewest_of_one_topic(cov, y_topic, y_paper, best), None, True
+    else:
+        found = _fewest_recruits(cov, papers_t, inner, y_topic, y_paper, len(topics), target)
+        if found is None:
+            return _no_recruits(
+                cov, f"the recruit model found no answer within {RECRUIT_SECONDS:g} s"
+            )
+        counts, bound, exact = found
+    note = (
+        ""
+        if exact
+        else f"the solver's {RECRUIT_SECONDS:g} s ran out: these recruits close the gaps, but "
+        f"as few as {bound} might"
+    )
+    value, given = _with_recruits(cov, y_topic, y_paper, counts * recruit_cap, counts)
+    if value != best:
+        return _no_recruits(cov, "the recruit model's answer did not check out; not shown")
+
+    reviews_by_topic: dict[int, int] = defaultdict(int)
+    papers_by_topic: dict[int, list[str]] = defaultdict(list)
+    for k in np.flatnonzero(given):
+        reviews_by_topic[int(y_topic[k])] += int(given[k])
+        papers_by_topic[int(y_topic[k])].append(session.papers[int(y_paper[k])].id)
+    word = session.noun
+    needs = tuple(
+        RecruitNeed(
+            topic=topics[t],
+            recruits=int(counts[t]),
+            reviews=reviews_by_topic[t],
+            papers=tuple(papers_by_topic[t]),
+            profile=(
+                f"{int(counts[t])} reviewer{'s' if counts[t] != 1 else ''} who work on "
+                f"'{topics[t]}', free of conflicts with the authors of these {word}s, able to "
+                f"take up to {recruit_cap} {word}s each (the policy's cap)"
+            ),
+        )
+        for t in np.flatnonzero(counts)
+    )
+    inflow = paper_inflow(cov)
+    gets = inflow + np.bincount(y_paper, weights=given, minlength=n_p).astype(np.int64)
+    unclosable = tuple(
+        Unclosable(
+            paper=session.papers[i].id,
+            missing=int(cov.demand[i] - min(gets[i], cov.demand[i])),
+            reason=f"the {word} has no topic, so no recruit profile fits it",
+        )
+        for i in papers_t
+        if not session.papers[i].topics and gets[i] < cov.demand[i]
+    )
+    return RecruitFix(
+        total=int(counts.sum()),
+        needs=needs,
+        recruit_cap=recruit_cap,
+        coverage_before=cov.value,
+        coverage_after=best,
+        demand=int(cov.demand.sum()),
+        unclosable=unclosable,
+        note=note,
+        exact=exact,
+        lower_bound=int(counts.sum()) if exact else int(bound),
+    )
+
+
+def _fewest_of_one_topic(
+    cov: CoverageNetwork, y_topic: np.ndarray, y_paper: np.ndarray, best: int
+) -> np.ndarray:
+    """One topic: the least n reaching `best`, by bisection on maximum flows (monotone in n)."""
+    cap = cov.session.policy.cap
+    low, high = 0, max(int(cov.demand.sum()), 1)
+    while low < high:
+        mid = (low + high) // 2
+        value = _with_recruits(cov, y_topic, y_paper, np.array([mid * cap]), np.array([mid]))[0]
+        if value >= best:
+            high = mid
+        else:
+            low = mid + 1
+    return np.array([low], dtype=np.int64)
+
+
+def _with_recruits(
+    cov: CoverageNetwork,
+    y_topic: np.ndarray,
+    y_paper: np.ndarray,
+    topic_capacity: np.ndarray,
+    per_paper: np.ndarray,
+) -> tuple[int, np.ndarray]:
+    """Max coverage with topic nodes added, and the flow on each topic → paper arc."""
+    net = cov.plan_net
+    n_topics = len(topic_capacity)
+    topic_node = cov.n_nodes + np.arange(n_topics, dtype=np.int64)
+    n_nodes = cov.n_nodes + n_topics
+    tails = np.concatenate([cov.tails, np.zeros(n_topics, np.int64), topic_node[y_topic]])
+    heads = np.concatenate([cov.heads, topic_node, 1 + net.n_reviewers + y_paper])
+    caps = np.concatenate(
+        [cov.capacities, np.asarray(topic_capacity, np.int64), np.asarray(per_paper)[y_topic]]
+    ).astype(np.int64)
+    lower = np.concatenate([cov.lower, np.zeros(n_topics + len(y_topic), np.int64)])
+    result = max_flow(
+        n_nodes,
+        tails,
+        heads,
+        caps,
+        0,
+        cov.n_nodes - 1,
+        lower=lower if lower.any() else None,
+    )
+    return int(result.value), np.asarray(result.flow)[len(cov.tails) + n_topics :]
+
+
+def _fewest_recruits(
+    cov: CoverageNetwork,
+    papers_t: np.ndarray,
+    inner: np.ndarray,
+    y_topic: np.ndarray,
+    y_paper: np.ndarray,
+    n_topics: int,
+    target: int,
+) -> tuple[np.ndarray, int, bool] | None:
+    """Fewest recruits per topic giving the sink-side papers `target` reviews (HiGHS MILP).
+
+    Returns (counts, lower bound, proved optimal), or None when no answer was found in time.
+
+    Everything outside the cut's sink side is fixed by the cut: the reviewers there give each
+    of these papers one review per eligible pair, and the sink-side reviewers keep their
+    capacity minus pins to papers outside. Only the recruit numbers are integer.
+    """
+    session, net = cov.session, cov.plan_net
+    n_r, n_p = net.n_reviewers, net.n_papers
+    on_t = cov.sink_reach
+    pr, pp = net.pair_reviewer, net.pair_paper
+    pinned = net.lower[net.pair_arcs]
+    recruit_cap = float(session.policy.cap)
+    reviewers_t = cov.reviewers_on_sink_side()
+    pinned_out = np.bincount(pr, weights=pinned * ~on_t[1 + n_r + pp], minlength=n_r)
+    room = cov.capacity - pinned_out.astype(np.int64)
+    from_outside = np.bincount(pp, weights=~on_t[1 + pr], minlength=n_p).astype(np.int64)
+
+    n_x, n_y, n_z, n_n = len(inner), len(y_topic), len(papers_t), n_topics
+    x0, y0, z0, n0 = 0, n_x, n_x + n_y, n_x + n_y + n_z
+    n_var = n0 + n_n
+    z_of = np.full(n_p, -1, dtype=np.int64)
+    z_of[papers_t] = np.arange(n_z)
+    r_row = np.full(n_r, -1, dtype=np.int64)
+    r_row[reviewers_t] = np.arange(len(reviewers_t))
+
+    rows: list[np.ndarray] = []
+    cols: list[np.ndarray] = []
+    vals: list[np.ndarray] = []
+    upper: list[np.ndarray] = []
+    row = 0
+    # Sink-side reviewers: the sum of x over a reviewer's arcs is at most their room.
+    rows.append(r_row[pr[inner]])
+    cols.append(x0 + np.arange(n_x))
+    vals.append(np.ones(n_x))
+    upper.append(room[reviewers_t].astype(float))
+    row += len(reviewers_t)
+    # Coverage: z_p - (x into p) - (y into p) <= reviews from the other side of the cut.
+    rows += [row + np.arange(n_z), row + z_of[pp[inner]], row + z_of[y_paper]]
+    cols += [z0 + np.arange(n_z), x0 + np.arange(n_x), y0 + np.arange(n_y)]
+    vals += [np.ones(n_z), -np.ones(n_x), -np.ones(n_y)]
+    upper.append(from_outside[papers_t].astype(float))
+    row += n_z
+    # A paper gets at most one review from each recruit: y_tp <= n_t.
+    rows += [row + np.arange(n_y), row + np.arange(n_y)]
+    cols += [y0 + np.arange(n_y), n0 + y_topic]
+    vals += [np.ones(n_y), -np.ones(n_y)]
+    upper.append(np.zeros(n_y))
+    row += n_y
+    # A recruit takes at most the cap: the sum over p of y_tp <= cap * n_t.
+    rows += [row + y_topic, row + np.arange(n_n)]
+    cols += [y0 + np.arange(n_y), n0 + np.arange(n_n)]
+    vals += [np.ones(n_y), -recruit_cap * np.ones(n_n)]
+    upper.append(np.zeros(n_n))
+    row += n_n
+    # Coverage target: the sum of z >= target.
+    rows.append(np.full(n_z, row))
+    cols.append(z0 + np.arange(n_z))
+    vals.append(-np.ones(n_z))
+    upper.append(np.array([-float(target)]))
+    row += 1
+    matrix = coo_matrix(
+        (np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))), shape=(row, n_var)
+    ).tocsr()
+    demand_t = cov.demand[papers_t].astype(float)
+    most = float(demand_t.sum())
+    lo = np.concatenate([pinned[inner].astype(float), np.zeros(n_y + n_z + n_n)])
+    hi = np.concatenate([np.ones(n_x), np.full(n_y, most), demand_t, np.full(n_n, most)])
+    objective = np.zeros(n_var)
+    objective[n0:] = 1.0
+    integral = np.zeros(n_var)
+    integral[n0:] = 1
+    found = milp(
+        objective,
+        constraints=[LinearConstraint(matrix, -np.inf, np.concatenate(upper))],
+        integrality=integral,
+        bounds=Bounds(lo, hi),
+        options={"time_limit": RECRUIT_SECONDS},
+    )
+    if found.x is None:
+        return None
+    counts = np.rint(found.x[n0:]).astype(np.int64)
+    if found.success:
+        return counts, int(counts.sum()), True
+    bound = getattr(found, "mip_dual_bound", None)
+    lower = int(np.ceil(bound - 1e-6)) if bound is not None and np.isfinite(bound) else 0
+    return counts, lower, False
+
+
+def _no_recruits(cov: CoverageNetwork, note: str) -> RecruitFix:
+    return RecruitFix(
+        0,
+        (),
+        cov.session.policy.cap,
+        cov.value,
+        cov.value,
+        int(cov.demand.sum()),
+        (),
+        note=note,
+    )
