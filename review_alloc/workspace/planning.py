@@ -265,7 +265,7 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
         self._take_over(
             preview.session,
             action=action,
-            subject="what-if" if action == "accept-whatif" else "fix",
+            subject=_subject(preview),
             changes=preview.changes,
             reason=reason,
         )
@@ -273,3 +273,13 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
         revision = self.session.revision
         assert revision is not None
         return revision
+
+
+def _subject(preview: WhatIf) -> str:
+    """What an accepted what-if is called in the history: its fixes, else 'what-if'."""
+    asked = preview.request
+    if isinstance(asked, ChangeSet) and asked.fixes and not (
+        asked.raise_caps or asked.add_reviewers or asked.allow_overload is not None
+    ):
+        return "+".join(dict.fromkeys(asked.fixes))
+    return "what-if"

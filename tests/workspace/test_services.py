@@ -44,7 +44,7 @@ def test_accepting_a_fix_is_one_change_and_one_revision_and_undo_takes_it_back()
     assert number == before.revision + 1 and len(ws.revisions) == len(before.revisions) + 1
     assert s.plan == preview.after
     check_plan(s, s.plan, None)
-    assert ws.history()[-1].changes[0].startswith("accept-fix fix (raise cap of ")
+    assert ws.history()[-1].changes[0].startswith("accept-fix raise-caps (raise cap of ")
 
     assert ws.undo() == before.revision
     back = ws.session
