@@ -35,9 +35,9 @@ from review_alloc.plan.explain import (
     shortfall_groups,
 )
 from review_alloc.plan.figures import active_demands
-from review_alloc.plan.network import candidate_pairs
 from review_alloc.plan.pairkeys import contains
 from review_alloc.plan.report import find_gaps, load_issues
+from review_alloc.plan.rules import candidate_pairs
 from review_alloc.plan.solve import make_plan
 
 PREFERENCE_STEPS = 100
