@@ -2,16 +2,19 @@
 
 It trusts nothing the engine returned except the dual potentials, and those it verifies: it
 rebuilds the arc flows from the plan's assignments alone and checks the reduced-cost conditions.
+It reads the chair's rules from the session's rows itself, never through `plan.rules`, so that
+a mistake there cannot pass unseen (the tests compare the two derivations).
 """
 
 from __future__ import annotations
+
+from dataclasses import dataclass
 
 import numpy as np
 
 from review_alloc.flow import FlowCheckError, check_cost_certificate
 from review_alloc.model import Plan, Session
-from review_alloc.plan.conflicts import conflict_pairs, normalise_institution
-from review_alloc.plan.eligibility import rule_failures
+from review_alloc.plan.conflicts import ConflictSet, conflict_pairs, normalise_institution
 from review_alloc.plan.errors import PlanCheckError
 from review_alloc.plan.figures import (
     active_demands,
@@ -19,9 +22,10 @@ from review_alloc.plan.figures import (
     loads_and_counts,
     plan_figures,
 )
-from review_alloc.plan.network import PlanNetwork, build_network, paper_senior_need
+from review_alloc.plan.network import PlanNetwork, build_network
 from review_alloc.plan.overload import overload_allowances
 from review_alloc.plan.pairkeys import contains, key_order, pair_keys, positions_in
+from review_alloc.plan.seniors import paper_senior_need
 
 _MAX_LISTED = 20
 
@@ -63,6 +67,106 @@ def _rule_keys(session: Session, rows: list, n_p: int) -> np.ndarray:
     return pair_keys(j, i, n_p)
 
 
+@dataclass(frozen=True)
+class PairFlags:
+    """Per assignment, each pair rule it breaks, as the checker reads the session's rows.
+
+    `unscored`, `below_min_score` and `no_shared_topic` already spare pinned pairs.
+    """
+
+    conflicted: np.ndarray
+    gone_reviewer: np.ndarray
+    gone_paper: np.ndarray
+    blocked: np.ndarray
+    unscored: np.ndarray
+    below_min_score: np.ndarray
+    no_shared_topic: np.ndarray
+    pinned: np.ndarray
+    expected_score: np.ndarray
+    """The session's score of each pair (0 where unscored)."""
+    conflicts: ConflictSet
+
+    def any(self) -> np.ndarray:
+        """Per pair: does it break any pair rule?"""
+        return (
+            self.conflicted
+            | self.gone_reviewer
+            | self.gone_paper
+            | self.blocked
+            | self.unscored
+            | self.below_min_score
+            | self.no_shared_topic
+        )
+
+
+def pair_flags(
+    session: Session, reviewer: np.ndarray, paper: np.ndarray, score: np.ndarray
+) -> PairFlags:
+    """The pair rules each (reviewer, paper, score) breaks, derived by the checker alone."""
+    reviewer = np.asarray(reviewer, dtype=np.int64)
+    paper = np.asarray(paper, dtype=np.int64)
+    score = np.asarray(score, dtype=np.float64)
+    n_p = max(len(session.papers), 1)
+    keys = pair_keys(reviewer, paper, n_p)
+    conflicts = conflict_pairs(session)
+    gone_r = np.array([r.withdrawn for r in session.reviewers], dtype=bool)
+    gone_p = np.array([p.withdrawn for p in session.papers], dtype=bool)
+    table = session.scores
+    s_keys, s_values = key_order(pair_keys(table.reviewer, table.paper, n_p), table.value)
+    has_score, pos = positions_in(keys, s_keys)
+    expected = np.where(has_score, s_values[pos] if len(s_keys) else 0.0, 0.0)
+    pinned = contains(keys, _rule_keys(session, session.pins, n_p))
+    policy = session.policy
+    low = np.zeros(len(keys), dtype=bool)
+    if policy.min_score is not None:
+        low = score < policy.min_score - 1e-12
+    no_topic = np.zeros(len(keys), dtype=bool)
+    if policy.require_shared_topic:
+        no_topic = ~_shares_topic(session, reviewer, paper)
+    return PairFlags(
+        conflicted=contains(keys, conflicts.keys(n_p)),
+        gone_reviewer=gone_r[reviewer],
+        gone_paper=gone_p[paper],
+        blocked=contains(keys, _rule_keys(session, session.blocks, n_p)),
+        unscored=~has_score & ~pinned & (policy.unscored == "exclude"),
+        below_min_score=low & ~pinned,
+        no_shared_topic=no_topic & ~pinned,
+        pinned=pinned,
+        expected_score=expected,
+        conflicts=conflicts,
+    )
+
+
+def _shares_topic(session: Session, reviewer: np.ndarray, paper: np.ndarray) -> np.ndarray:
+    """Per pair: does the paper have a topic the reviewer has (case and spaces folded)?
+
+    Whole-array work: one (reviewer, topic) key per reviewer topic, sorted; each pair is
+    repeated once per topic of its paper and looked up among those keys.
+    """
+    code: dict[str, int] = {}
+
+    def codes(topics: list[str]) -> list[int]:
+        return sorted({code.setdefault(" ".join(t.split()).casefold(), len(code)) for t in topics})
+
+    paper_codes = [codes(p.topics) for p in session.papers]
+    reviewer_codes = [codes(r.topics) for r in session.reviewers]
+    width = max(len(code), 1)
+    known = np.sort(
+        np.array(
+            [j * width + t for j, ts in enumerate(reviewer_codes) for t in ts], dtype=np.int64
+        )
+    )
+    sizes = np.array([len(ts) for ts in paper_codes], dtype=np.int64)
+    flat = np.array([t for ts in paper_codes for t in ts], dtype=np.int64)
+    starts = np.concatenate([[0], np.cumsum(sizes)])
+    per_pair = sizes[paper] if len(paper) else np.zeros(0, dtype=np.int64)
+    owner = np.repeat(np.arange(len(paper)), per_pair)
+    offset = np.arange(len(owner)) - np.repeat(np.cumsum(per_pair) - per_pair, per_pair)
+    topic = flat[starts[paper[owner]] + offset] if len(owner) else owner
+    hit = contains(reviewer[owner] * width + topic, known)
+    return np.bincount(owner[hit], minlength=len(paper)) > 0
+
+
 def _hard_rule_problems(
     session: Session, plan: Plan, reviewer: np.ndarray, paper: np.ndarray, score: np.ndarray
 ) -> list[str]:
@@ -85,25 +189,23 @@ def _hard_rule_problems(
             f"pair ({_rid(session, key, n_p)}, {_pid(session, key, n_p)}) is assigned twice"
         )
 
-    conflicts = conflict_pairs(session)
-    conflicted = contains(keys, conflicts.keys(n_p))
-    gone_r = np.array([r.withdrawn for r in session.reviewers], dtype=bool)
-    gone_p = np.array([p.withdrawn for p in session.papers], dtype=bool)
-    flagged = conflicted | gone_r[reviewer] | gone_p[paper]
-    if flagged.any():
-        reasons = conflicts.reason_of()
-        for k in np.flatnonzero(flagged).tolist():
+    flags = pair_flags(session, reviewer, paper, score)
+    if (flags.conflicted | flags.gone_reviewer | flags.gone_paper).any():
+        reasons = flags.conflicts.reason_of()
+        for k in np.flatnonzero(
+            flags.conflicted | flags.gone_reviewer | flags.gone_paper
+        ).tolist():
             j, i = int(reviewer[k]), int(paper[k])
-            if conflicted[k]:
+            if flags.conflicted[k]:
                 problems.append(
                     f"conflicted pair ({session.reviewers[j].id}, {session.papers[i].id}) is "
                     f"assigned: {reasons[(j, i)]}"
                 )
-            if gone_r[j]:
+            if flags.gone_reviewer[k]:
                 problems.append(f"withdrawn reviewer {session.reviewers[j].id} is assigned")
-            if gone_p[i]:
+            if flags.gone_paper[k]:
                 problems.append(f"withdrawn paper {session.papers[i].id} is assigned")
-    for k in np.flatnonzero(contains(keys, _rule_keys(session, session.blocks, n_p))).tolist():
+    for k in np.flatnonzero(flags.blocked).tolist():
         a = plan.assignments[k]
         problems.append(f"blocked pair ({a.reviewer}, {a.paper}) is assigned")
     if session.pins:
@@ -121,21 +223,15 @@ def _hard_rule_problems(
             pin = session.pins[k]
             problems.append(f"pinned pair ({pin.reviewer}, {pin.paper}) is missing")
 
-    table = session.scores
-    s_keys, s_values = key_order(pair_keys(table.reviewer, table.paper, n_p), table.value)
-    pos = np.clip(np.searchsorted(s_keys, keys), 0, max(len(s_keys) - 1, 0))
-    has_score = (s_keys[pos] == keys) if len(s_keys) else np.zeros(len(keys), dtype=bool)
-    expected = np.where(has_score, s_values[pos] if len(s_keys) else 0.0, 0.0)
+    expected = flags.expected_score
     for k in np.flatnonzero(~np.isclose(expected, score, rtol=0, atol=1e-9)):
         a = plan.assignments[k]
         problems.append(
             f"pair ({a.reviewer}, {a.paper}) has score {a.score}, session says {expected[k]}"
         )
-    pinned = contains(keys, _rule_keys(session, session.pins, n_p))
-    if session.policy.unscored == "exclude":
-        for k in np.flatnonzero(~has_score & ~pinned):
-            a = plan.assignments[k]
-            problems.append(f"unscored pair ({a.reviewer}, {a.paper}) is assigned")
+    for k in np.flatnonzero(flags.unscored):
+        a = plan.assignments[k]
+        problems.append(f"unscored pair ({a.reviewer}, {a.paper}) is assigned")
 
     loads, counts = loads_and_counts(session, reviewer, paper)
     reviews, _, cap, _ = active_demands(session)
@@ -148,7 +244,7 @@ def _hard_rule_problems(
     for i in np.flatnonzero(counts > reviews):
         problems.append(f"paper {session.papers[i].id} has {counts[i]} reviews, above {reviews[i]}")
 
-    problems += _constraint_problems(session, plan, reviewer, paper, score, ~pinned)
+    problems += _constraint_problems(session, plan, reviewer, paper, flags)
     figures = plan_figures(session, reviewer, paper, score)
     if figures != plan.figures:
         problems.append(f"plan figures {plan.figures} differ from recomputed {figures}")
@@ -160,20 +256,18 @@ def _constraint_problems(
     plan: Plan,
     reviewer: np.ndarray,
     paper: np.ndarray,
-    score: np.ndarray,
-    unpinned: np.ndarray,
+    flags: PairFlags,
 ) -> list[str]:
     """The policy's optional rules, read from the session's rows, not from the network."""
     policy = session.policy
     problems: list[str] = []
-    low, no_topic = rule_failures(session, reviewer, paper, score)
-    for k in np.flatnonzero(low & unpinned):
+    for k in np.flatnonzero(flags.below_min_score):
         a = plan.assignments[k]
         problems.append(
             f"pair ({a.reviewer}, {a.paper}) scores {a.score:g}, below min_score "
             f"{policy.min_score:g}"
         )
-    for k in np.flatnonzero(no_topic & unpinned):
+    for k in np.flatnonzero(flags.no_shared_topic):
         a = plan.assignments[k]
         problems.append(f"pair ({a.reviewer}, {a.paper}) shares no topic")
     if policy.max_per_institution is not None:

@@ -28,9 +28,10 @@ from scipy.sparse.csgraph import breadth_first_order, connected_components
 from review_alloc.flow import max_flow
 from review_alloc.model import Session
 from review_alloc.plan.figures import active_demands
-from review_alloc.plan.network import PlanNetwork, build_network, candidate_pairs
+from review_alloc.plan.network import PlanNetwork, build_network
 from review_alloc.plan.overload import overload_allowances
 from review_alloc.plan.pairkeys import contains
+from review_alloc.plan.rules import candidate_pairs
 
 COVERAGE_TIERS = ("min_reviews", "reviews")
 """The two coverage tiers a group can explain, in objective order."""

@@ -14,18 +14,13 @@ import numpy as np
 
 from review_alloc.model import Plan, Session
 from review_alloc.plan.conflicts import ConflictSet, conflict_pairs
-from review_alloc.plan.eligibility import rule_failures
-from review_alloc.plan.errors import PlanInputError
 from review_alloc.plan.figures import active_demands
-from review_alloc.plan.institutions import institution_groups, reviewer_institutions
+from review_alloc.plan.institutions import institution_groups
 from review_alloc.plan.keep import earlier_pair_mask
 from review_alloc.plan.overload import overload_allowances
-from review_alloc.plan.pairkeys import contains, key_order, pair_keys
-from review_alloc.plan.seniors import paper_senior_need, senior_arcs, senior_nodes
+from review_alloc.plan.rules import PairRules
+from review_alloc.plan.seniors import senior_arcs, senior_nodes
 from review_alloc.plan.weights import SCORE_RESOLUTION, fitting_weights
-
-MAX_CANDIDATE_PAIRS = 60_000_000
-"""Above this many candidate pairs the network would not fit the memory budget."""
 
 
 @dataclass(frozen=True)
@@ -105,61 +100,6 @@ class PlanNetwork:
         return 1 + self.n_reviewers + i
 
 
-def _rule_pairs(session: Session, rows: list) -> tuple[np.ndarray, np.ndarray]:
-    paper_at = session.paper_index()
-    reviewer_at = session.reviewer_index()
-    reviewer = np.array([reviewer_at[r.reviewer] for r in rows], dtype=np.int64)
-    paper = np.array([paper_at[r.paper] for r in rows], dtype=np.int64)
-    return reviewer, paper
-
-
-def candidate_pairs(session: Session) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Eligible (reviewer, paper, score) arrays before conflicts and blocks are removed.
-
-    Under `unscored = "zero"` every pair of active reviewer and active paper is a candidate and
-    missing scores count as 0; under `"exclude"` only scored pairs are. Pins are always candidates.
-    """
-    n_p = len(session.papers)
-    active_r = np.flatnonzero(~np.array([r.withdrawn for r in session.reviewers], dtype=bool))
-    active_p = np.flatnonzero(~np.array([p.withdrawn for p in session.papers], dtype=bool))
-    table = session.scores
-    s_keys, s_values = key_order(pair_keys(table.reviewer, table.paper, n_p), table.value)
-
-    if session.policy.unscored == "zero":
-        count = len(active_r) * len(active_p)
-        if count > MAX_CANDIDATE_PAIRS:
-            raise PlanInputError(
-                [
-                    f"policy.unscored: 'zero' makes every pair a candidate ({count:,} pairs, more "
-                    f"than the {MAX_CANDIDATE_PAIRS:,} this machine can plan); import with "
-                    "--unscored exclude so that only scored pairs are candidates"
-                ]
-            )
-        keys = (active_r[:, None].astype(np.int64) * n_p + active_p[None, :]).ravel()
-    else:
-        active_r_mask = np.zeros(len(session.reviewers), dtype=bool)
-        active_r_mask[active_r] = True
-        active_p_mask = np.zeros(n_p, dtype=bool)
-        active_p_mask[active_p] = True
-        keep = active_r_mask[s_keys // max(n_p, 1)] & active_p_mask[s_keys % max(n_p, 1)]
-        keys = s_keys[keep]
-
-    if session.pins:
-        pr, pp = _rule_pairs(session, session.pins)
-        keys = np.union1d(keys, pair_keys(pr, pp, n_p))
-
-    pos = np.searchsorted(s_keys, keys)
-    pos_clip = np.minimum(pos, max(len(s_keys) - 1, 0))
-    found = (
-        (pos < len(s_keys)) & (s_keys[pos_clip] == keys)
-        if len(s_keys)
-        else np.zeros(len(keys), dtype=bool)
-    )
-    scores = np.where(found, s_values[pos_clip] if len(s_keys) else 0.0, 0.0)
-    n = max(n_p, 1)
-    return keys // n, keys % n, scores
-
-
 class _ArcBlocks:
     """Collects named arc blocks in order, so each constraint adds its own contiguous slice."""
 
@@ -189,28 +129,6 @@ class _ArcBlocks:
         return tuple(np.concatenate([p[k] for p in self.parts]) for k in range(5))
 
 
-def _eligible_pairs(
-    session: Session, conflicts: ConflictSet, threshold: float | None
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """(reviewer, paper, score, keys, pinned) of the pairs the plan may use."""
-    n_p = len(session.papers)
-    reviewer, paper, score = candidate_pairs(session)
-    keys = pair_keys(reviewer, paper, n_p)
-    banned = conflicts.keys(n_p)
-    if session.blocks:
-        br, bp = _rule_pairs(session, session.blocks)
-        banned = np.union1d(banned, pair_keys(br, bp, n_p))
-    keep = ~contains(keys, banned)
-    reviewer, paper, score, keys = reviewer[keep], paper[keep], score[keep], keys[keep]
-    pinned = np.zeros(len(keys), dtype=bool)
-    if session.pins:
-        pr, pp = _rule_pairs(session, session.pins)
-        pinned = contains(keys, pair_keys(pr, pp, n_p))
-    low, no_topic = rule_failures(session, reviewer, paper, score)
-    keep = ~(low | no_topic) | pinned
-    if threshold is not None:
-        keep &= (score >= threshold - 0.5 / SCORE_RESOLUTION) | pinned
-    return reviewer[keep], paper[keep], score[keep], keys[keep], pinned[keep]
 
 
 def _source_arcs(
@@ -261,10 +179,12 @@ def build_network(
     n_r, n_p = len(session.reviewers), len(session.papers)
     if conflicts is None:
         conflicts = conflict_pairs(session)
-    reviewer, paper, score, keys, pinned = _eligible_pairs(session, conflicts, threshold)
+    rules = PairRules(session, conflicts)
+    reviewer, paper, score, keys, pinned = rules.eligible_pairs(
+        threshold, slack=0.5 / SCORE_RESOLUTION
+    )
     reviews, minimum, cap, floor = active_demands(session)
-    if session.pins:
-        _check_pins(session, conflicts, keys, cap, reviews)
+    rules.check_pins()
 
     sink = 1 + n_r + n_p
     senior_papers, senior_need, pair_senior = senior_nodes(session, reviewer, paper)
@@ -433,113 +353,3 @@ def _all_senior(pair_group: np.ndarray, pair_senior: np.ndarray, n_groups: int) 
     return (members > 0) & (members == seniors)
 
 
-def _check_pins(
-    session: Session,
-    conflicts: ConflictSet,
-    eligible_keys: np.ndarray,
-    cap: np.ndarray,
-    reviews: np.ndarray,
-) -> None:
-    """Refuse pins that a hard rule forbids, each with its reason."""
-    n_p = len(session.papers)
-    paper_at = session.paper_index()
-    reviewer_at = session.reviewer_index()
-    reasons = conflicts.reason_of()
-    problems: list[str] = []
-    per_reviewer: dict[int, int] = {}
-    per_paper: dict[int, int] = {}
-    pin_r, pin_p = _rule_pairs(session, session.pins)
-    pin_score = _pin_scores(session, pin_r, pin_p)
-    low, no_topic = rule_failures(session, pin_r, pin_p, pin_score)
-    for k, pin in enumerate(session.pins):
-        j, i = reviewer_at[pin.reviewer], paper_at[pin.paper]
-        where = f"pins.{k}: pin ({pin.reviewer}, {pin.paper})"
-        if (j, i) in reasons:
-            problems.append(f"{where} is a conflict of interest ({reasons[(j, i)]}); refused")
-        elif session.reviewers[j].withdrawn:
-            problems.append(f"{where}: reviewer {pin.reviewer} has withdrawn")
-        elif session.papers[i].withdrawn:
-            problems.append(f"{where}: paper {pin.paper} has been withdrawn")
-        elif not np.isin(j * n_p + i, eligible_keys):
-            problems.append(f"{where} is blocked")
-        elif low[k]:
-            problems.append(
-                f"{where} scores {pin_score[k]:g}, below the policy's min_score "
-                f"{session.policy.min_score:g}; refused"
-            )
-        elif no_topic[k]:
-            problems.append(
-                f"{where}: reviewer and paper share no topic and the policy requires one; refused"
-            )
-        per_reviewer[j] = per_reviewer.get(j, 0) + 1
-        per_paper[i] = per_paper.get(i, 0) + 1
-    for j, count in per_reviewer.items():
-        if count > cap[j]:
-            problems.append(
-                f"pins: reviewer {session.reviewers[j].id} has {count} pins but a cap of {cap[j]}"
-            )
-    for i, count in per_paper.items():
-        if count > reviews[i]:
-            problems.append(
-                f"pins: paper {session.papers[i].id} has {count} pins but needs only "
-                f"{reviews[i]} reviews"
-            )
-    problems += _pin_institution_problems(session, pin_r, pin_p)
-    problems += _pin_senior_problems(session, pin_r, pin_p, reviews)
-    if problems:
-        raise PlanInputError(problems)
-
-
-def _pin_scores(session: Session, reviewer: np.ndarray, paper: np.ndarray) -> np.ndarray:
-    n_p = max(len(session.papers), 1)
-    t = session.scores
-    lookup = dict(
-        zip(
-            (t.reviewer.astype(np.int64) * n_p + t.paper).tolist(),
-            t.value.tolist(),
-            strict=True,
-        )
-    )
-    return np.array(
-        [lookup.get(int(j) * n_p + int(i), 0.0) for j, i in zip(reviewer, paper, strict=True)],
-        dtype=np.float64,
-    )
-
-
-def _pin_institution_problems(
-    session: Session, reviewer: np.ndarray, paper: np.ndarray
-) -> list[str]:
-    """Pins that put more reviewers of one institution on a paper than the policy allows."""
-    m = session.policy.max_per_institution
-    if m is None:
-        return []
-    inst, names = reviewer_institutions(session)
-    counts: dict[tuple[int, int], int] = {}
-    for j, i in zip(reviewer.tolist(), paper.tolist(), strict=True):
-        if inst[j] >= 0:
-            counts[(i, int(inst[j]))] = counts.get((i, int(inst[j])), 0) + 1
-    return [
-        f"pins: paper {session.papers[i].id} has {c} pinned reviewers from {names[g]!r}, more "
-        f"than max_per_institution {m}; refused"
-        for (i, g), c in sorted(counts.items())
-        if c > m
-    ]
-
-
-def _pin_senior_problems(
-    session: Session, reviewer: np.ndarray, paper: np.ndarray, reviews: np.ndarray
-) -> list[str]:
-    """Under a hard senior rule: pins of non-seniors that leave too few seats for seniors."""
-    if not session.policy.senior_hard:
-        return []
-    need = paper_senior_need(session)
-    juniors: dict[int, int] = {}
-    for j, i in zip(reviewer.tolist(), paper.tolist(), strict=True):
-        if not session.reviewers[j].senior:
-            juniors[i] = juniors.get(i, 0) + 1
-    return [
-        f"pins: paper {session.papers[i].id} has {c} pinned non-senior reviewers, leaving "
-        f"{reviews[i] - c} of {reviews[i]} seats for the {need[i]} seniors it must have; refused"
-        for i, c in sorted(juniors.items())
-        if reviews[i] - c < need[i]
-    ]

@@ -12,11 +12,10 @@ from typing import Any
 import numpy as np
 
 from review_alloc.model import Plan, Session
-from review_alloc.plan.conflicts import conflict_pairs, normalise_institution
-from review_alloc.plan.eligibility import rule_failures
+from review_alloc.plan.conflicts import normalise_institution
 from review_alloc.plan.figures import active_demands, assignment_indices, loads_and_counts
-from review_alloc.plan.network import candidate_pairs, paper_senior_need
-from review_alloc.plan.pairkeys import contains
+from review_alloc.plan.rules import PairRules
+from review_alloc.plan.seniors import paper_senior_need
 
 
 def load_distribution(session: Session, loads: np.ndarray) -> dict[str, Any]:
@@ -61,18 +60,11 @@ def paper_details(session: Session, plan: Plan) -> list[dict[str, Any]]:
 
 
 def _eligible_by_paper(session: Session) -> dict[int, np.ndarray]:
-    """Reviewer indices of each paper's eligible candidates (conflicts, blocks, rules applied)."""
-    reviewer, paper, score = candidate_pairs(session)
-    n_p = max(len(session.papers), 1)
-    keys = reviewer * n_p + paper
-    banned = conflict_pairs(session).keys(n_p)
-    r_at, p_at = session.reviewer_index(), session.paper_index()
-    blocked = [r_at[b.reviewer] * n_p + p_at[b.paper] for b in session.blocks]
-    low, no_topic = rule_failures(session, reviewer, paper, score)
-    keep = ~contains(keys, banned) & ~contains(keys, blocked) & ~low & ~no_topic
+    """Reviewer indices of each paper's eligible candidates (every pair rule applied)."""
+    reviewer, paper, _, _, _ = PairRules(session).eligible_pairs()
     out: dict[int, np.ndarray] = {}
-    order = np.argsort(paper[keep], kind="stable")
-    rr, pp = reviewer[keep][order], paper[keep][order]
+    order = np.argsort(paper, kind="stable")
+    rr, pp = reviewer[order], paper[order]
     bounds = np.searchsorted(pp, np.arange(len(session.papers) + 1))
     for i in range(len(session.papers)):
         out[i] = rr[bounds[i] : bounds[i + 1]]

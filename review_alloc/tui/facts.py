@@ -12,8 +12,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from review_alloc.model import Session
-from review_alloc.plan import conflict_pairs
 from review_alloc.plan.figures import active_demands
+from review_alloc.plan.rules import PIN_REFUSED, PairRules, Rule, Verdict
 
 
 @dataclass(frozen=True)
@@ -25,11 +25,13 @@ class Candidate:
     score: float | None
     status: str
     """'assigned', 'pinned', or the reason the pair is not in the plan."""
+    rule: Rule = Rule.ELIGIBLE
+    """The rule that keeps the pair out of the plan (`ELIGIBLE` when none does)."""
 
     @property
     def usable(self) -> bool:
-        """Whether a pin could be placed on this pair (no hard rule forbids it)."""
-        return not self.status.startswith(("conflict", "blocked", "withdrawn", "not eligible"))
+        """Whether a pin could be placed on this pair (no pair rule refuses one)."""
+        return self.rule not in PIN_REFUSED
 
 
 @dataclass
@@ -50,14 +52,16 @@ class Facts:
     pinned: set[tuple[int, int]]
     pair_keys: np.ndarray = field(repr=False)
     pair_values: np.ndarray = field(repr=False)
+    rules: PairRules = field(repr=False)
+    """The session's rules, asked for every pair's standing."""
 
     @classmethod
     def of(cls, session: Session, previous: Facts | None = None) -> Facts:
         """Compute the facts of `session` as it is now.
 
-        Conflicts and the sorted score table are taken over from `previous` when the lists they
-        depend on are the very same objects (a pin, a block or a plan leaves them alone), which
-        spares a large session most of the work of a refresh.
+        Conflicts, the sorted score table and the other facts of the rules are taken over from
+        `previous` when the lists they depend on are the very same objects (a pin, a block or a
+        plan leaves them alone), which spares a large session most of the work of a refresh.
         """
         n_p, n_r = len(session.papers), len(session.reviewers)
         paper_at, reviewer_at = session.paper_index(), session.reviewer_index()
@@ -71,24 +75,8 @@ class Facts:
         loads = np.array([len(x) for x in by_reviewer], dtype=np.int64)
         counts = np.array([len(x) for x in by_paper], dtype=np.int64)
         reviews, minimum, cap, floor = active_demands(session)
-        table = session.scores
-        old = previous.session if previous is not None else None
-        if old is not None and old.scores is table and len(old.papers) == n_p:
-            assert previous is not None
-            pair_keys, pair_values = previous.pair_keys, previous.pair_values
-        else:
-            keys = table.reviewer.astype(np.int64) * max(n_p, 1) + table.paper
-            order = np.argsort(keys, kind="stable")
-            pair_keys, pair_values = keys[order], table.value[order]
-        same_people = old is not None and all(
-            getattr(old, name) is getattr(session, name)
-            for name in ("papers", "reviewers", "conflicts", "policy")
-        )
-        if same_people:
-            assert previous is not None
-            conflict_reason = previous.conflict_reason
-        else:
-            conflict_reason = conflict_pairs(session).reason_of()
+        rules = PairRules.renewed(session, previous.rules if previous is not None else None)
+        pair_keys, pair_values = rules.sorted_scores()
         return cls(
             session=session,
             loads=loads,
@@ -99,22 +87,19 @@ class Facts:
             floor=floor,
             assigned_of_paper=by_paper,
             assigned_of_reviewer=by_reviewer,
-            conflict_reason=conflict_reason,
-            blocked={(reviewer_at[b.reviewer], paper_at[b.paper]) for b in session.blocks},
-            pinned={(reviewer_at[p.reviewer], paper_at[p.paper]) for p in session.pins},
+            conflict_reason=rules.conflict_reasons,
+            blocked=rules.blocked_pairs(),
+            pinned=rules.pinned_pairs(),
             pair_keys=pair_keys,
             pair_values=pair_values,
+            rules=rules,
         )
 
     # -- single figures -------------------------------------------------------------------
 
     def score(self, reviewer: int, paper: int) -> float | None:
         """The score of a pair, or None when the table has no row for it."""
-        key = reviewer * max(len(self.session.papers), 1) + paper
-        at = int(np.searchsorted(self.pair_keys, key))
-        if at < len(self.pair_keys) and self.pair_keys[at] == key:
-            return float(self.pair_values[at])
-        return None
+        return self.rules.score(reviewer, paper)
 
     def paper_status(self, i: int) -> str:
         """A short word for a paper's coverage, readable without colour."""
@@ -144,33 +129,26 @@ class Facts:
 
     # -- pairs ----------------------------------------------------------------------------
 
+    def pair_verdict(self, reviewer: int, paper: int) -> Verdict:
+        """The rule that decides whether a pair is in the plan, and the chair's words for it."""
+        on_paper = [j for j, _ in self.assigned_of_paper[paper]]
+        return self.rules.verdict(
+            reviewer,
+            paper,
+            self.loads,
+            self.counts,
+            assigned=reviewer in on_paper,
+            pinned=(reviewer, paper) in self.pinned,
+            on_paper=on_paper,
+        )
+
     def pair_status(self, reviewer: int, paper: int) -> str:
         """Why a pair is or is not in the plan, in the chair's words."""
-        s = self.session
-        pair = (reviewer, paper)
-        in_plan = any(j == reviewer for j, _ in self.assigned_of_paper[paper])
-        if pair in self.pinned:
-            return "pinned" if in_plan else "pinned (plan again)"
-        if in_plan:
-            return "assigned"
-        if pair in self.conflict_reason:
-            return f"conflict: {self.conflict_reason[pair]}"
-        if pair in self.blocked:
-            return "blocked by the chair"
-        if s.reviewers[reviewer].withdrawn:
-            return "withdrawn reviewer"
-        if s.papers[paper].withdrawn:
-            return f"withdrawn {self.noun}"
-        score = self.score(reviewer, paper)
-        if score is None and s.policy.unscored == "exclude":
-            return "not eligible: unscored"
-        if self.loads[reviewer] >= self.cap[reviewer]:
-            return f"cap full ({int(self.loads[reviewer])}/{int(self.cap[reviewer])})"
-        if self.counts[paper] >= self.reviews[paper]:
-            return f"{self.noun} already has its reviews"
-        if score is None:
-            return "unscored (counts as 0)"
-        return "eligible, not chosen"
+        return self.pair_verdict(reviewer, paper).text
+
+    def _candidate(self, reviewer: int, paper: int, score: float | None) -> Candidate:
+        verdict = self.pair_verdict(reviewer, paper)
+        return Candidate(reviewer, paper, score, verdict.text, verdict.rule)
 
     @property
     def noun(self) -> str:
@@ -180,7 +158,7 @@ class Facts:
     def candidates_of_paper(self, paper: int, limit: int = 12) -> list[Candidate]:
         """The paper's assigned people, then the best-scored others with why each is unused."""
         out = [
-            Candidate(j, paper, score, self.pair_status(j, paper))
+            self._candidate(j, paper, score)
             for j, score in sorted(self.assigned_of_paper[paper], key=lambda x: -x[1])
         ]
         taken = {c.reviewer for c in out}
@@ -191,7 +169,7 @@ class Facts:
             j = int(self.pair_keys[k] // n_p)
             if j in taken:
                 continue
-            out.append(Candidate(j, paper, float(self.pair_values[k]), self.pair_status(j, paper)))
+            out.append(self._candidate(j, paper, float(self.pair_values[k])))
             taken.add(j)
             if len(out) >= len(self.assigned_of_paper[paper]) + limit:
                 return out
@@ -202,14 +180,14 @@ class Facts:
             if len(out) >= len(self.assigned_of_paper[paper]) + limit:
                 break
             if j not in taken:
-                out.append(Candidate(j, paper, None, self.pair_status(j, paper)))
+                out.append(self._candidate(j, paper, None))
                 taken.add(j)
         return out
 
     def candidates_of_reviewer(self, reviewer: int, limit: int = 12) -> list[Candidate]:
         """The reviewer's assigned papers, then their best-scored others and why each is unused."""
         out = [
-            Candidate(reviewer, i, score, self.pair_status(reviewer, i))
+            self._candidate(reviewer, i, score)
             for i, score in sorted(self.assigned_of_reviewer[reviewer], key=lambda x: -x[1])
         ]
         taken = {c.paper for c in out}
@@ -222,9 +200,7 @@ class Facts:
             i = int(self.pair_keys[k] % n_p)
             if i in taken:
                 continue
-            out.append(
-                Candidate(reviewer, i, float(self.pair_values[k]), self.pair_status(reviewer, i))
-            )
+            out.append(self._candidate(reviewer, i, float(self.pair_values[k])))
             taken.add(i)
             if len(out) >= len(self.assigned_of_reviewer[reviewer]) + limit:
                 break

@@ -23,7 +23,7 @@ from review_alloc.model import (
     load_session,
 )
 from review_alloc.plan import PlanCheckError, PlanInputError, check_plan, make_plan, plan_summary
-from review_alloc.plan.eligibility import ELIGIBLE, excluded_pairs, pair_status
+from review_alloc.plan.rules import PairRules, Rule
 from tests.plan.constraint_reference import lexicographic_rules_optimum, rule_instance
 from tests.plan.test_constraints_reference import NO_INFERENCE, rules_session
 
@@ -117,27 +117,35 @@ def small_session(**policy: object) -> Session:
     )
 
 
-def test_pair_status_names_each_reason() -> None:
+def why_not(session: Session, reviewer: str, paper: str) -> str | None:
+    """The rules' reason for a pair given by ids."""
+    j, i = session.reviewer_index()[reviewer], session.paper_index()[paper]
+    return PairRules(session).why_not(j, i)
+
+
+def test_why_not_names_each_reason() -> None:
     session = small_session(min_score=0.3, require_shared_topic=True)
-    assert pair_status(session, "a", "p") == ELIGIBLE
-    assert pair_status(session, "b", "p").startswith("below min score")
-    assert pair_status(session, "c", "q").startswith("conflict: declared: recent co-author")
-    assert pair_status(session, "b", "q") == "blocked"
-    assert pair_status(session, "d", "p") == "withdrawn"
-    assert pair_status(session, "c", "p") == ELIGIBLE
+    assert why_not(session, "a", "p") is None
+    assert why_not(session, "b", "p") == "below min score (0.2 < 0.3)"
+    assert why_not(session, "c", "q").startswith("conflict: declared: recent co-author")
+    assert why_not(session, "b", "q") == "blocked by the chair"
+    assert why_not(session, "d", "p") == "withdrawn reviewer"
+    assert why_not(session, "c", "p") is None
     session = small_session(require_shared_topic=True)
-    assert pair_status(session, "a", "q") == "no shared topic"
-    kinds = {(x.reviewer, x.paper): x.kind for x in excluded_pairs(session)}
+    assert why_not(session, "a", "q") == "no shared topic"
+    kinds = {(x.reviewer, x.paper): x.kind for x in PairRules(session).excluded_pairs()}
     assert kinds == {
-        ("a", "q"): "no shared topic",
-        ("b", "p"): "no shared topic",
-        ("b", "q"): "blocked",
-        ("d", "p"): "withdrawn",
+        ("a", "q"): Rule.NO_SHARED_TOPIC,
+        ("b", "p"): Rule.NO_SHARED_TOPIC,
+        ("b", "q"): Rule.BLOCKED,
+        ("d", "p"): Rule.WITHDRAWN,
     }
-    assert pair_status(small_session(), "c", "q").startswith("conflict")
+    assert why_not(small_session(), "c", "q").startswith("conflict")
     unscored = small_session()
-    assert pair_status(unscored, "c", "q").startswith("conflict")
-    assert pair_status(unscored.model_copy(update={"conflicts": []}), "c", "q") == "unscored"
+    assert why_not(unscored, "c", "q").startswith("conflict")
+    assert why_not(unscored.model_copy(update={"conflicts": []}), "c", "q") == (
+        "not eligible: unscored"
+    )
 
 
 def test_the_plan_keeps_the_eligibility_rules() -> None:

@@ -82,3 +82,37 @@ def test_facts_reuse_conflicts_only_when_people_are_unchanged(tight: Session) ->
     moved = tight.model_copy(update={"conflicts": []})
     again = Facts.of(moved, first)
     assert again.conflict_reason == conflict_pairs(moved).reason_of()
+
+
+def test_pair_list_follows_every_rule_of_the_planner() -> None:
+    s = workshop()
+    s = s.model_copy(
+        update={"policy": s.policy.model_copy(update={"require_shared_topic": True})}
+    )
+    s = s.model_copy(update={"plan": make_plan(s).plan})
+    facts = Facts.of(s)
+    reasons = conflict_pairs(s).reason_of()
+    assigned = {(a.reviewer, a.paper) for a in s.plan.assignments}
+    seen = 0
+    for i, p in enumerate(s.papers):
+        for c in facts.candidates_of_paper(i, limit=40):
+            r = s.reviewers[c.reviewer]
+            shared = {t.casefold() for t in r.topics} & {t.casefold() for t in p.topics}
+            if (r.id, p.id) in assigned:
+                # The plan keeps the rule, so every assigned pair shares a topic.
+                assert shared and c.status in ("assigned", "pinned")
+            elif (c.reviewer, i) in reasons or r.withdrawn or p.withdrawn:
+                assert not c.usable
+            elif not shared:
+                seen += 1
+                assert c.status == "no shared topic"
+                assert not c.usable
+    assert seen
+
+
+def test_facts_reuse_the_rules_across_a_pin() -> None:
+    first = Facts.of(workshop())
+    pinned = first.session.model_copy(update={"pins": []})
+    again = Facts.of(pinned, first)
+    assert again.rules is not first.rules
+    assert again.rules.sorted_scores()[0] is first.rules.sorted_scores()[0]

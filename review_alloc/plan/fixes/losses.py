@@ -11,8 +11,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from review_alloc.plan.explain import CoverageNetwork, coverage_network
-from review_alloc.plan.network import candidate_pairs
 from review_alloc.plan.pairkeys import contains
+from review_alloc.plan.rules import candidate_pairs
 
 _EVALUATED_REVIEWERS = 200
 """Reviewers (most pairs first) whose pairs are weighed together exactly; past them, gain 1."""
