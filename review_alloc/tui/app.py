@@ -44,7 +44,6 @@ from review_alloc.tui.dialogs import (
     whole_or_default,
 )
 from review_alloc.tui.entity_views import EntityView, GapView, PaperView, ReviewerView
-from review_alloc.tui.facts import Facts
 from review_alloc.tui.gapfix import ExplainView, PaneHint
 from review_alloc.tui.grid import RowTable
 from review_alloc.tui.overview import Overview
@@ -56,6 +55,7 @@ from review_alloc.workspace import (
     Workspace,
     prepare_solver,
 )
+from review_alloc.workspace.facts import Facts
 
 TABS = ("overview", "papers", "reviewers", "conflicts", "gaps", "history")
 

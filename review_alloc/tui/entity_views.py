@@ -19,9 +19,9 @@ from textual.timer import Timer
 from textual.widget import Widget
 from textual.widgets import Input, Static
 
-from review_alloc.tui.facts import Candidate, Facts
 from review_alloc.tui.grid import RowTable
 from review_alloc.tui.grid import cell_text as _cell_text
+from review_alloc.workspace.facts import Candidate, Facts
 
 Row = tuple[str, list[object]]
 """A table row: its key (the entity id) and its cells."""

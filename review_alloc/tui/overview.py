@@ -10,9 +10,8 @@ from textual.containers import Grid, VerticalScroll
 from textual.reactive import reactive
 from textual.widgets import Static
 
-from review_alloc.plan import find_gaps, load_issues
 from review_alloc.plan.cautions import PLAN_CAUTION
-from review_alloc.tui.facts import Facts
+from review_alloc.workspace.facts import Facts
 
 BAR_WIDTH = 8
 
@@ -77,8 +76,8 @@ class Overview(VerticalScroll):
             out.append("Press r to make one (it takes a moment on large sessions).")
             return out
         f = plan.figures
-        gaps = find_gaps(s, plan)
-        over, under = load_issues(s, plan)
+        gaps = facts.gaps()
+        over, under = facts.load_issues()
         below_min = sum(g.missing_required > 0 for g in gaps)
         rows = [
             (

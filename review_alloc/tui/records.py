@@ -16,9 +16,9 @@ from textual.widget import Widget
 from textual.widgets import Input, Static
 
 from review_alloc.plan.diff import PlanDiff
-from review_alloc.tui.facts import Facts
 from review_alloc.tui.grid import RowTable
 from review_alloc.workspace import HistoryEntry
+from review_alloc.workspace.facts import Facts
 
 CONFLICT_COLUMNS = ("Reviewer", "Name", "Paper", "Title", "Kind", "Reasons")
 REVISION_COLUMNS = ("No.", "From", "Made (UTC)", "Reviews", "Score", "Kept", "Changes")

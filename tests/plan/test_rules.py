@@ -28,7 +28,7 @@ from review_alloc.plan import PlanInputError, make_plan
 from review_alloc.plan.checker import _hard_rule_problems, pair_flags
 from review_alloc.plan.figures import assignment_indices, loads_and_counts, plan_figures
 from review_alloc.plan.rules import PAIR_RULES, PIN_REFUSED, PairRules, Rule, candidate_pairs
-from review_alloc.tui.facts import Facts
+from review_alloc.workspace.facts import Facts
 from tests.plan.test_constraints_reference import NO_INFERENCE
 
 TOPICS = ["alpha", "Beta", "gamma  rays", "delta"]

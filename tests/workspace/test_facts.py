@@ -7,7 +7,7 @@ import pytest
 from review_alloc.model import Session
 from review_alloc.plan import conflict_pairs, find_gaps, load_issues, make_plan
 from review_alloc.samples import workshop
-from review_alloc.tui.facts import Facts
+from review_alloc.workspace.facts import Facts
 
 
 @pytest.fixture(scope="module")
@@ -116,3 +116,36 @@ def test_facts_reuse_the_rules_across_a_pin() -> None:
     again = Facts.of(pinned, first)
     assert again.rules is not first.rules
     assert again.rules.sorted_scores()[0] is first.rules.sorted_scores()[0]
+
+
+@pytest.mark.parametrize("seed", range(25))
+def test_the_apps_pair_status_is_the_rule_modules_on_every_pair(seed: int) -> None:
+    # Every rule on (tests.plan.test_rules.every_rule_session); the reference for which pairs a
+    # rule forbids is the project's independent checker (`plan.checker.pair_flags`).
+    from review_alloc.plan import PlanInputError
+    from review_alloc.plan.checker import pair_flags
+    from review_alloc.plan.rules import PairRules
+    from tests.plan.test_rules import every_pair, every_rule_session, valid_pins
+
+    session = valid_pins(every_rule_session(seed, pins=0), 2, seed)
+    try:
+        session = session.model_copy(update={"plan": make_plan(session).plan})
+    except PlanInputError:
+        return  # a hard senior rule no plan can meet: no plan to show
+    facts = Facts.of(session)
+    rules = PairRules(session)
+    reviewer, paper = every_pair(session)
+    _, score = rules.scores_of(reviewer, paper)
+    flagged = pair_flags(session, reviewer, paper, score).any()
+    pinned = {(p.reviewer, p.paper) for p in session.pins}
+    for k, (j, i) in enumerate(zip(reviewer.tolist(), paper.tolist(), strict=True)):
+        status = facts.pair_status(j, i)
+        pair = (session.reviewers[j].id, session.papers[i].id)
+        if status in ("assigned", "pinned"):
+            assert not flagged[k] or pair in pinned
+        elif flagged[k]:
+            # The app says exactly what the rule module says, never "eligible, not chosen".
+            assert status == rules.why_not(j, i)
+        else:
+            assert rules.why_not(j, i) is None
+            assert not status.startswith(("conflict", "blocked", "withdrawn", "below min"))

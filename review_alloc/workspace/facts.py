@@ -13,6 +13,7 @@ import numpy as np
 
 from review_alloc.model import Session
 from review_alloc.plan.figures import active_demands
+from review_alloc.plan.report import Gap, LoadIssue, find_gaps, load_issues
 from review_alloc.plan.rules import PIN_REFUSED, PairRules, Rule, Verdict
 
 
@@ -205,6 +206,16 @@ class Facts:
             if len(out) >= len(self.assigned_of_reviewer[reviewer]) + limit:
                 break
         return out
+
+    def gaps(self) -> list[Gap]:
+        """The papers short of reviews in the current plan (none without a plan)."""
+        plan = self.session.plan
+        return find_gaps(self.session, plan) if plan is not None else []
+
+    def load_issues(self) -> tuple[list[LoadIssue], list[LoadIssue]]:
+        """(reviewers above cap, active reviewers below floor) in the current plan."""
+        plan = self.session.plan
+        return load_issues(self.session, plan) if plan is not None else ([], [])
 
     # -- charts ---------------------------------------------------------------------------
 
