@@ -76,6 +76,9 @@ class WorkspaceBase:
         """The latest plan's outcome: its flow and potentials warm-start the next solve."""
         self.disk_identity: tuple[int, int, int] | None = None
         """The file as this workspace last read or wrote it (see `files.file_identity`)."""
+        self.plan_problems: list[str] = []
+        """Pairs of the plan as stored in the file that the rules forbid (found when opened);
+        they are not shown and the plan is stale until the next plan."""
         self.unsaved: list[Step] = []
         """The changes, plans and undos made since the file was read or written, in order."""
         self._nesting = 0
@@ -93,6 +96,20 @@ class WorkspaceBase:
     def plan_is_current(self) -> bool:
         """True when there is a plan and no change was recorded after it."""
         return self.session.plan is not None and not self.data_changed_since_plan()
+
+    def refuse_broken_plan(self) -> None:
+        """Raise, naming the first offending pairs, when the stored plan broke a rule."""
+        if self.plan_problems:
+            shown = self.plan_problems[:10]
+            more = len(self.plan_problems) - len(shown)
+            raise InputError(
+                [
+                    *shown,
+                    *([f"... and {more} more"] if more else []),
+                    "the stored plan breaks the session's rules (the file was changed after the "
+                    "plan was made); plan again before exporting it",
+                ]
+            )
 
     # -- ids ------------------------------------------------------------------------------
 
@@ -148,23 +165,53 @@ class WorkspaceBase:
         )
         self.dirty = True
 
+    def _recheck_stored_plan(self) -> None:
+        """Hold a plan read from a file to the rules as they are: a pair they forbid (a conflict,
+        block, withdrawal or lower cap written into the file after the plan was made) leaves
+        it, is listed in `plan_problems`, and the plan is stale until the next plan."""
+        s = self.session
+        plan = s.plan
+        if plan is None or not plan.assignments:
+            return
+        rules = PairRules(s)
+        reviewer, paper, score = assignment_indices(s, plan.assignments)
+        keep = rules.plan_keep(reviewer, paper, score, self._pinned(plan))
+        if keep.all():
+            return
+        for k in np.flatnonzero(~keep).tolist():
+            j, i = int(reviewer[k]), int(paper[k])
+            why = rules.why_not(j, i) or "over a cap, a paper's reviews or the institution limit"
+            self.plan_problems.append(
+                f"({s.reviewers[j].id}, {s.papers[i].id}) is in the stored plan but {why}"
+            )
+        self.session = s.model_copy(update={"plan": self._stale(plan, keep)})
+
+    def _pinned(self, plan: Plan) -> np.ndarray:
+        pinned = {(p.reviewer, p.paper) for p in self.session.pins}
+        return np.fromiter(
+            ((a.reviewer, a.paper) in pinned for a in plan.assignments),
+            dtype=bool,
+            count=len(plan.assignments),
+        )
+
     def _pruned_plan(self) -> Plan | None:
         """The current plan without the pairs the rules now forbid, marked stale (unchecked)."""
         s = self.session
         plan = s.plan
         if plan is None:
             return None
+        if not plan.assignments:
+            return self._stale(plan, np.zeros(0, dtype=bool))
+        reviewer, paper, score = assignment_indices(s, plan.assignments)
+        return self._stale(plan, PairRules(s).plan_keep(reviewer, paper, score, self._pinned(plan)))
+
+    def _stale(self, plan: Plan, keep: np.ndarray) -> Plan:
+        """The plan with only the `keep` pairs, its figures recomputed, marked not checked."""
+        s = self.session
         method = plan.method if plan.method.endswith(STALE_NOTE) else plan.method + STALE_NOTE
         if not plan.assignments:
             return plan.model_copy(update={"checked": False, "method": method})
         reviewer, paper, score = assignment_indices(s, plan.assignments)
-        pinned = {(p.reviewer, p.paper) for p in s.pins}
-        is_pin = np.fromiter(
-            ((a.reviewer, a.paper) in pinned for a in plan.assignments),
-            dtype=bool,
-            count=len(plan.assignments),
-        )
-        keep = PairRules(s).plan_keep(reviewer, paper, score, is_pin)
         kept = (
             plan.assignments
             if keep.all()

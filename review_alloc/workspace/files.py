@@ -111,6 +111,7 @@ class FilesMixin(WorkspaceBase):
         with session_lock(path, required=False):
             workspace = cls(load_session(path), path)
             workspace.disk_identity = file_identity(path)
+        workspace._recheck_stored_plan()
         return workspace
 
     @classmethod
@@ -226,9 +227,12 @@ class FilesMixin(WorkspaceBase):
             raise InputError([f"{target}: already exists; choose another file name"])
 
     def export(self, target: Path, by: Literal["paper", "reviewer"] = "paper") -> int:
-        """Write the current plan as CSV, one row per assignment; returns the rows written."""
+        """Write the current plan as CSV, one row per assignment; returns the rows written.
+
+        Refused when the plan stored in the file broke a rule (it is never exported)."""
         from review_alloc.io import export_plan_csv
 
+        self.refuse_broken_plan()
         return export_plan_csv(self.session, target, by=by)
 
 

@@ -153,6 +153,7 @@ class HistoryMixin(WorkspaceBase):
 
     def notify_rows(self, since: int) -> list[NotifyRow]:
         """Reviewers whose list changed from revision `since` to the current revision."""
+        self.refuse_broken_plan()
         current = self.session.revision
         if current is None:
             raise ChangeRefused(["the current plan is not a revision; make a plan first"])
