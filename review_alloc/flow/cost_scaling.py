@@ -57,8 +57,9 @@ def _live_bits(cap: np.ndarray) -> np.ndarray:
 def _next_live(live: np.ndarray, a: int, end: int) -> int:
     """The first arc in `a:end` with residual capacity, or `end`.
 
-    A node's arcs are contiguous, so one word covers up to 64 of them: a paper's many reverse
-    arcs, almost all empty, are skipped a word at a time without reading their capacities.
+    A node's arcs are contiguous, so one word covers up to 64 of them: the many reverse arcs of
+    a node with a large in-degree, almost all empty, are skipped a word at a time without
+    reading their capacities.
     """
     while a < end:
         word = live[a >> 6] >> np.uint64(a & 63)
@@ -346,7 +347,7 @@ def optimal_potentials(
     """
     factor = net.n + 1
     # The kernel is bound by reading arcs: 4-byte residuals, where every value fits, cut the
-    # bytes read per arc. Costs stay int64: a re-plan's keep tier needs that range, and 4-byte
+    # bytes read per arc. Costs stay int64: the heaviest cost tiers need that range, and 4-byte
     # costs only where they fit would compile (and warm up) a second copy of the kernel for a
     # gain lost in the noise on the L instances.
     cap = _narrow(net.cap, net.cap + net.cap[net.rev])

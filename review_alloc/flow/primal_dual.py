@@ -33,8 +33,8 @@ from review_alloc.flow.validate import EdgeArrays
 WARM_WORK_LIMIT = 40
 """A warm start gives up (and the cold solver takes over) once its shortest-path searches have
 scanned this many times the arcs of the network: by then cost scaling would be done. At 20 the
-warm start of the scarce L benchmark re-plan gave up; at 40 it finishes in about a third of the
-cold solve, and the other families finish well inside either limit."""
+warm start of the scarce L benchmark (after a change of bounds) gave up; at 40 it finishes in
+about a third of the cold solve, and the other families finish well inside either limit."""
 
 _INF = np.iinfo(np.int64).max
 

@@ -25,21 +25,22 @@ scaling (each tier costs up to two Dinic runs)."""
 STARTING_PRICE_SCANS = 8
 """The shortest-path pass that looks for starting prices after the tier pre-pass gives up after
 this many passes over the arcs. On the L benchmarks a start that exists is found within three
-(one on loose and tight fresh plans); a re-plan's first try, at the largest positive cost, finds
-none and spends the whole budget (about 0.2 s) before the try at the lightest tier succeeds."""
+(one on the loose and tight families); where the tiers interact, the first try, at the largest
+positive cost, finds none and spends the whole budget (about 0.2 s) before the try at the
+lightest tier succeeds."""
 
 
 def saturate_tiers(net: ResidualNetwork, n: int, m: int, scale: int) -> int:
     """Fill the edges of very negative cost, tier by tier, before cost scaling starts.
 
     A tier is a run of edge costs below -`scale` (the largest positive cost) with gaps of at
-    most `scale` between them, as the planner's lexicographic weights make. From most to least
+    most `scale` between them, as lexicographic weights make. From most to least
     negative, each tier's edges are saturated and the excess this leaves at their heads is
     routed back to their tails by Dinic, at first without undoing the tier (its reverse arcs
     closed) and then, for what could not go another way, along them too. Earlier tiers stay
     closed while later ones are routed, so no tier's flow is traded for a lighter one's. What
     remains for cost scaling is then imbalance of the order of `scale` instead of the tier
-    weights: on the planner's networks about half the phases. Returns the weight of the
+    weights: on the layered benchmark networks about half the phases. Returns the weight of the
     lightest tier (minus its highest cost), or 0 (network untouched) when no edge or more than
     MAX_TIERS tiers lie below -`scale`.
     """
