@@ -23,10 +23,13 @@ import sys
 import threading
 from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from review_alloc import __version__
 from review_alloc.flow._cache import cache_folder
+
+if TYPE_CHECKING:
+    from review_alloc.flow.residual import ResidualNetwork
 
 _lock = threading.Lock()
 
@@ -117,7 +120,7 @@ _CAPACITIES = (2, 2, 1)
 _CIRCULATION = (_TAILS + (2,), _HEADS + (0,), _CAPACITIES + (3,), (1, 1, 3, -4))
 
 
-def _two_node_circulation() -> Any:
+def _two_node_circulation() -> ResidualNetwork:
     """Edge 0 -> 1 (capacity 1, cost 1) without flow, built without `_csr_kernel`.
 
     The arrays have the dtypes of `build_residual`'s output, so the cost-scaling kernels compile

@@ -102,6 +102,8 @@ def min_cost_flow(
     if solved is None and method != "primal-dual":
         solved = solve_cost_scaling(edges, need)
     if solved is None:
+        # Looked up in this module at call time, so a test can remove the fallback to prove
+        # that cost scaling solves a network alone.
         solved = _primal_dual(edges, need, edges.lower, np.zeros(n, dtype=np.int64))
     if solved is None:  # only a budget makes the primal-dual method give up, and none was set
         raise AssertionError("the primal-dual method gave up without a work budget")
