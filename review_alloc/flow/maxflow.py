@@ -100,7 +100,8 @@ def max_flow(
         flow=flow,
         source_side=reachable(net, source)[:n].copy(),
         phases=phases + more_phases,
-        # The super source and sink cannot carry reachability: their arcs are saturated.
+        # Every arc out of the super source and into the super sink is saturated, so no residual
+        # path between original nodes passes through them: both sides ignore those two nodes.
         sink_side=reaching(net, sink)[:n].copy(),
     )
 
