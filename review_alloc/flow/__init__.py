@@ -1,34 +1,66 @@
 """The flow engine: maximum flows, lower bounds, minimum cuts and min-cost flows on integer arrays.
 
 Nodes are 0..n-1 and edge e runs `tails[e] -> heads[e]`; capacities, lower bounds, supplies and
-costs are integers (int64 inside; scale fractional data to integers before calling). The engine
-knows nothing of papers or reviewers. Kernels are compiled by numba and cached per user; call
-`warm_up()` early (for example in a background thread) to pay the compile or cache load once.
+costs are integers (int64 inside; scale fractional data to integers before calling). Kernels are
+compiled by numba and cached per user; call `warm_up()` early (for example in a background
+thread) to pay the compile or cache load once.
+
+Importing this package has no side effects: the public names below load their modules on first
+use (PEP 562), so numba is imported, and pointed at the per-user cache folder, only when a solver
+or a check is first needed. The modules: `maxflow` and `mincost` are the front doors; `dinic`,
+`cost_scaling`, `primal_dual`, `tier_start` (the pre-pass of cost scaling) and `potentials`
+(Bellman-Ford) hold one algorithm each; `circulation` reduces lower bounds; `residual` builds the
+residual network the kernels share; `checks` holds the certificate checks; `compile` warms the
+kernels up.
 """
 
-from review_alloc.flow._cache import configure_numba_cache
+from __future__ import annotations
 
-configure_numba_cache()
+from importlib import import_module
+from typing import TYPE_CHECKING, Any
 
-# The numba-backed modules must be imported after the cache folder is configured.
-from review_alloc.flow.checks import (  # noqa: E402
-    check_cost_certificate,
-    check_cut,
-    check_flow,
-    check_violated_cut,
-)
-from review_alloc.flow.circulation import feasible_circulation  # noqa: E402
-from review_alloc.flow.maxflow import METHODS, max_flow  # noqa: E402
-from review_alloc.flow.mincost import COST_METHODS, WarmStart, min_cost_flow  # noqa: E402
-from review_alloc.flow.results import (  # noqa: E402
-    CostFlowResult,
-    FlowCheckError,
-    FlowError,
-    FlowInputError,
-    FlowResult,
-    InfeasibleError,
-)
-from review_alloc.flow.warm import kernels_ready, solver_cache_ready, warm_up  # noqa: E402
+if TYPE_CHECKING:
+    from review_alloc.flow.checks import (
+        check_cost_certificate,
+        check_cut,
+        check_flow,
+        check_violated_cut,
+    )
+    from review_alloc.flow.circulation import feasible_circulation
+    from review_alloc.flow.compile import kernels_ready, solver_cache_ready, warm_up
+    from review_alloc.flow.maxflow import METHODS, max_flow
+    from review_alloc.flow.mincost import COST_METHODS, WarmStart, min_cost_flow
+    from review_alloc.flow.results import (
+        CostFlowResult,
+        FlowCheckError,
+        FlowError,
+        FlowInputError,
+        FlowResult,
+        InfeasibleError,
+    )
+
+_HOMES = {
+    "COST_METHODS": "mincost",
+    "METHODS": "maxflow",
+    "CostFlowResult": "results",
+    "FlowCheckError": "results",
+    "FlowError": "results",
+    "FlowInputError": "results",
+    "FlowResult": "results",
+    "InfeasibleError": "results",
+    "WarmStart": "mincost",
+    "check_cost_certificate": "checks",
+    "check_cut": "checks",
+    "check_flow": "checks",
+    "check_violated_cut": "checks",
+    "feasible_circulation": "circulation",
+    "kernels_ready": "compile",
+    "max_flow": "maxflow",
+    "min_cost_flow": "mincost",
+    "solver_cache_ready": "compile",
+    "warm_up": "compile",
+}
+"""The module each public name lives in."""
 
 __all__ = [
     "COST_METHODS",
@@ -51,3 +83,19 @@ __all__ = [
     "solver_cache_ready",
     "warm_up",
 ]
+
+
+def __getattr__(name: str) -> Any:
+    """Load a public name from its module on first access (PEP 562)."""
+    home = _HOMES.get(name)
+    if home is None:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    value = getattr(import_module(f"{__name__}.{home}"), name)
+    # Later lookups find the name directly and no longer come through here.
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    """The module's names, public ones included before they are first loaded."""
+    return sorted(set(globals()) | set(__all__))

@@ -1,13 +1,14 @@
-"""Point numba's JIT cache at a per-user folder before numba is imported.
+"""Where numba keeps the engine's compiled kernels: a per-user folder, resolved without numba.
 
 Numba writes its cache beside the source file by default, which fails when the package sits in a
-read-only site-packages; a per-user cache also survives reinstalls of the same version.
+read-only site-packages; a per-user cache also survives reinstalls of the same version. Nothing
+here imports numba or changes the environment: `_jit.py` hands the folder to numba when the first
+kernel module is imported, and `compile.py` passes it to its child processes.
 """
 
 from __future__ import annotations
 
 import os
-import sys
 import tempfile
 from pathlib import Path
 
@@ -29,34 +30,24 @@ def numba_cache_dir() -> Path:
         return _temp_cache_dir()
 
 
-def configure_numba_cache() -> None:
-    """Set NUMBA_CACHE_DIR unless the user already chose one."""
-    if os.environ.get("NUMBA_CACHE_DIR"):
-        return
+def user_cache_dir() -> str:
+    """The cache folder the user chose with NUMBA_CACHE_DIR, or '' when they chose none."""
+    return os.environ.get("NUMBA_CACHE_DIR", "")
+
+
+def cache_folder() -> Path:
+    """The folder the kernels are cached in: the user's choice, else `numba_cache_dir()`.
+
+    The per-user folder is created here; where that fails (a read-only home), a per-user temp
+    folder is used instead.
+    """
+    chosen = user_cache_dir()
+    if chosen:
+        return Path(chosen)
     folder = numba_cache_dir()
     try:
         folder.mkdir(parents=True, exist_ok=True)
     except OSError:
         folder = _temp_cache_dir()
         folder.mkdir(parents=True, exist_ok=True)
-    os.environ["NUMBA_CACHE_DIR"] = str(folder)
-    if "numba" in sys.modules:
-        # numba reads its settings once at import; keep an earlier import consistent with ours.
-        from numba.core import config
-
-        if not config.CACHE_DIR:
-            config.CACHE_DIR = str(folder)
-
-
-KERNEL_OPTIONS: dict[str, bool] = {"cache": True, "nogil": True, "no_cfunc_wrapper": True}
-"""numba options of a kernel called from Python.
-
-`nogil` lets the TUI's worker thread solve while the screen keeps drawing. numba builds a C
-callback wrapper for every compiled function by default (for use as a first-class function
-value), which nothing here uses; `no_cfunc_wrapper` skips that part of every cold compile.
-"""
-
-HELPER_OPTIONS: dict[str, bool] = {**KERNEL_OPTIONS, "no_cpython_wrapper": True}
-"""numba options of a helper called only from other kernels: it needs no Python entry point
-either (the option numba's own `overload` helpers use), so none is compiled. Calling such a
-helper from Python raises; keep these for functions that only kernels call."""
+    return folder

@@ -14,7 +14,7 @@ from typing import Any
 import numpy as np
 
 from review_alloc.flow.dinic import dinic, reachable
-from review_alloc.flow.network import ResidualNetwork, build_with_terminals, net_outflow
+from review_alloc.flow.residual import ResidualNetwork, build_with_terminals, net_outflow
 from review_alloc.flow.results import InfeasibleError
 from review_alloc.flow.validate import EdgeArrays, check_edges, check_n
 
@@ -22,6 +22,17 @@ from review_alloc.flow.validate import EdgeArrays, check_edges, check_n
 def violated_cut(net: ResidualNetwork, n: int) -> np.ndarray:
     """Original nodes reachable from the super source (node n) once routing is stuck."""
     return reachable(net, n)[:n].copy()
+
+
+def unmet_supplies(net: ResidualNetwork, n: int, demand: int, routed: int) -> InfeasibleError:
+    """The error for supplies that routing from super source n could not meet, with its cut."""
+    side = violated_cut(net, n)
+    return InfeasibleError(
+        f"the supplies cannot be met: {int(side.sum())} nodes must send out {demand - routed} "
+        "more units than the upper bounds of their outgoing edges allow",
+        source_side=side,
+        deficit=demand - routed,
+    )
 
 
 def route_lower_bounds(edges: EdgeArrays) -> tuple[ResidualNetwork, int]:

@@ -12,8 +12,8 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from review_alloc.flow._cache import HELPER_OPTIONS, KERNEL_OPTIONS
-from review_alloc.flow.network import ResidualNetwork, scan_and_index_edges
+from review_alloc.flow._jit import HELPER_OPTIONS, KERNEL_OPTIONS
+from review_alloc.flow.residual import ResidualNetwork, scan_and_index_edges
 
 _INF = np.iinfo(np.int64).max
 
@@ -164,6 +164,33 @@ def reachable_kernel(
     return level >= 0
 
 
+@njit(**KERNEL_OPTIONS)
+def reaching_kernel(
+    start: np.ndarray, head: np.ndarray, cap: np.ndarray, rev: np.ndarray, sink: int
+) -> np.ndarray:
+    """Nodes that can reach sink along arcs with residual capacity (a BFS against the arcs).
+
+    The arcs into v are the partners `rev[a]` of v's own arcs a, so the walk needs no index of
+    arcs by head.
+    """
+    n = start.size - 1
+    seen = np.zeros(n, dtype=np.bool_)
+    queue = np.empty(n, dtype=np.int64)
+    seen[sink] = True
+    queue[0] = sink
+    q_head, q_tail = 0, 1
+    while q_head < q_tail:
+        v = queue[q_head]
+        q_head += 1
+        for a in range(start[v], start[v + 1]):
+            u = head[a]
+            if not seen[u] and cap[rev[a]] > 0:
+                seen[u] = True
+                queue[q_tail] = u
+                q_tail += 1
+    return seen
+
+
 def dinic(net: ResidualNetwork, source: int, sink: int) -> tuple[int, int]:
     """Augment `net` in place to a maximum source-sink flow; return (added value, phases)."""
     no_costs = np.empty(0, dtype=np.int64)
@@ -177,6 +204,11 @@ def dinic(net: ResidualNetwork, source: int, sink: int) -> tuple[int, int]:
 def reachable(net: ResidualNetwork, source: int) -> np.ndarray:
     """Boolean mask of the nodes reachable from source in the residual network."""
     return reachable_kernel(net.start, net.head, net.cap, np.int64(source))
+
+
+def reaching(net: ResidualNetwork, sink: int) -> np.ndarray:
+    """Boolean mask of the nodes that can reach sink in the residual network."""
+    return reaching_kernel(net.start, net.head, net.cap, net.rev, np.int64(sink))
 
 
 @njit(**HELPER_OPTIONS)
@@ -326,6 +358,48 @@ def _edge_blocking_flow(
             it_in[u] += 1
 
 
+@njit(**HELPER_OPTIONS)
+def _edge_reaching(
+    identity: bool,
+    out_start: np.ndarray,
+    out_edge: np.ndarray,
+    in_start: np.ndarray,
+    in_edge: np.ndarray,
+    tails: np.ndarray,
+    heads: np.ndarray,
+    caps: np.ndarray,
+    flow: np.ndarray,
+    sink: int,
+    seen: np.ndarray,
+    queue: np.ndarray,
+) -> None:
+    """Mark in `seen` the nodes that can reach sink in the residual graph of `flow`.
+
+    The residual arcs into v are its entering edges below capacity and the reverse arcs of its
+    leaving edges that carry flow (no lower bounds on this path).
+    """
+    seen[sink] = True
+    queue[0] = sink
+    q_head, q_tail = 0, 1
+    while q_head < q_tail:
+        v = queue[q_head]
+        q_head += 1
+        for p in range(in_start[v], in_start[v + 1]):
+            e = in_edge[p]
+            u = tails[e]
+            if not seen[u] and caps[e] > flow[e]:
+                seen[u] = True
+                queue[q_tail] = u
+                q_tail += 1
+        for p in range(out_start[v], out_start[v + 1]):
+            e = p if identity else out_edge[p]
+            u = heads[e]
+            if not seen[u] and flow[e] > 0:
+                seen[u] = True
+                queue[q_tail] = u
+                q_tail += 1
+
+
 @njit(**KERNEL_OPTIONS)
 def max_flow_kernel(
     n: int,
@@ -338,14 +412,16 @@ def max_flow_kernel(
     flow: np.ndarray,
     carried: np.ndarray,
     index: np.ndarray,
-) -> tuple[int, int, int, np.ndarray]:
+) -> tuple[int, int, int, np.ndarray, np.ndarray]:
     """Check, index and solve a max flow without lower bounds in one call.
 
     Takes zeroed `flow` (int64) and `carried` (bool) arrays with one entry per edge and an
     int32 scratch `index` of shape (3, edges), all allocated by the caller. Returns (status,
-    value, phases, source side) and leaves the flow in `flow`; a nonzero status is that of
-    `scan_and_index_edges` and nothing was solved. The source side comes from the last BFS, which
-    could not reach the sink and so labelled every node reachable in the final residual.
+    value, phases, source side, sink side) and leaves the flow in `flow`; a nonzero status is
+    that of `scan_and_index_edges` and nothing was solved. The source side comes from the last
+    BFS, which could not reach the sink and so labelled every node reachable in the final
+    residual; the sink side (the nodes that can still reach the sink) from a walk against the
+    residual arcs.
     """
     out_edge, in_edge, in_pos = index[0], index[1], index[2]
     status, identity, out_start, in_start = scan_and_index_edges(
@@ -353,7 +429,7 @@ def max_flow_kernel(
     )
     level = np.empty(n, dtype=np.int32)
     if status != 0:
-        return status, 0, 0, level >= 0
+        return status, 0, 0, level >= 0, level >= 0
     queue = np.empty(n, dtype=np.int32)
     it_out = np.empty(n, dtype=np.int64)
     it_in = np.empty(n, dtype=np.int64)
@@ -373,4 +449,9 @@ def max_flow_kernel(
             caps, flow, source, sink, level, it_out, it_in, stack, nodes,
         )
         phases += 1
-    return 0, value, phases, level >= 0
+    sink_side = np.zeros(n, dtype=np.bool_)
+    _edge_reaching(
+        identity, out_start, out_edge, in_start, in_edge, tails, heads, caps, flow, sink,
+        sink_side, queue,
+    )
+    return 0, value, phases, level >= 0, sink_side

@@ -7,7 +7,7 @@ from typing import Any
 import numpy as np
 
 from review_alloc.flow.circulation import route_lower_bounds
-from review_alloc.flow.dinic import dinic, max_flow_kernel, reachable
+from review_alloc.flow.dinic import dinic, max_flow_kernel, reachable, reaching
 from review_alloc.flow.results import FlowInputError, FlowResult
 from review_alloc.flow.validate import (
     EdgeArrays,
@@ -33,13 +33,20 @@ def max_flow(
     lower: Any = None,
     method: str = "dinic",
 ) -> FlowResult:
-    """A maximum source-sink flow on integer capacities, with a minimum cut.
+    """A maximum source-sink flow on integer capacities, with both sides of a minimum cut.
 
     Edges are `tails[e] -> heads[e]` with `lower[e] <= flow[e] <= capacities[e]` (lower bounds
     default to 0). Parallel edges, edges into the source and self-loops are allowed; a self-loop
     carries its lower bound. With lower bounds, raises `InfeasibleError` when no flow meets them
     (its cut holds the source and the sink together or neither); the value of a maximum flow is
     negative when the lower bounds force more flow from the sink back to the source.
+
+    In the residual graph of the flow returned (an edge's forward residual is `capacities -
+    flow`, its backward residual `flow - lower`), `source_side` marks the nodes the source can
+    reach and `sink_side` those that can reach the sink: the smallest source side and the
+    smallest sink side of a minimum cut. Both `source_side` and the complement of `sink_side`
+    are source sides of minimum cuts, and every minimum cut's source side contains the first
+    and avoids the second.
     """
     if method not in METHODS:
         choices = ", ".join(repr(m) for m in METHODS)
@@ -93,6 +100,9 @@ def max_flow(
         flow=flow,
         source_side=reachable(net, source)[:n].copy(),
         phases=phases + more_phases,
+        # Every arc out of the super source and into the super sink is saturated, so no residual
+        # path between original nodes passes through them: both sides ignore those two nodes.
+        sink_side=reaching(net, sink)[:n].copy(),
     )
 
 
@@ -108,7 +118,7 @@ def _solve_without_lower(
     """Solve in the fused kernel; None when its scan found something for the full checks."""
     m = len(tails)
     flow = np.zeros(m, dtype=np.int64)
-    status, value, phases, side = max_flow_kernel(
+    status, value, phases, source_side, sink_side = max_flow_kernel(
         np.int64(n),
         np.ascontiguousarray(tails),
         np.ascontiguousarray(heads),
@@ -123,4 +133,7 @@ def _solve_without_lower(
     if status != 0:
         return None
     # No path of a level graph re-enters the source, so the pushed total is the net outflow.
-    return FlowResult(value=int(value), flow=flow, source_side=side, phases=int(phases))
+    return FlowResult(
+        value=int(value), flow=flow, source_side=source_side, phases=int(phases),
+        sink_side=sink_side,
+    )

@@ -15,21 +15,26 @@ def _frozen(array: np.ndarray) -> np.ndarray:
 
 @dataclass(frozen=True, eq=False)
 class FlowResult:
-    """A maximum flow with its minimum cut.
+    """A maximum flow with both sides of a minimum cut.
 
     `flow` holds one int64 value per input edge; `source_side` is True for the nodes reachable
-    from the source in the final residual graph (the minimal source side of a minimum cut);
-    `phases` counts Dinic's BFS phases (with lower bounds, those of the feasibility stage too).
+    from the source in the final residual graph (the smallest source side of a minimum cut);
+    `phases` counts Dinic's BFS phases (with lower bounds, those of the feasibility stage too);
+    `sink_side` is True for the nodes that can still reach the sink in that residual graph (the
+    smallest sink side of a minimum cut). Residuals respect lower bounds: an edge's backward
+    residual is `flow - lower`.
     """
 
     value: int
     flow: np.ndarray
     source_side: np.ndarray
     phases: int
+    sink_side: np.ndarray
 
     def __post_init__(self) -> None:
         _frozen(self.flow)
         _frozen(self.source_side)
+        _frozen(self.sink_side)
 
 
 @dataclass(frozen=True, eq=False)

@@ -23,7 +23,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from scipy.sparse import coo_matrix
-from scipy.sparse.csgraph import breadth_first_order, connected_components
+from scipy.sparse.csgraph import connected_components
 
 from review_alloc.flow import max_flow
 from review_alloc.model import Session
@@ -151,30 +151,8 @@ def coverage_network(
         flow=flow,
         value=int(result.value),
         source_reach=np.asarray(result.source_side, dtype=bool),
-        sink_reach=_reaches(n_nodes, tails, heads, capacities, lower, flow, sink),
+        sink_reach=np.asarray(result.sink_side, dtype=bool),
     )
-
-
-def _reaches(
-    n: int,
-    tails: np.ndarray,
-    heads: np.ndarray,
-    upper: np.ndarray,
-    lower: np.ndarray,
-    flow: np.ndarray,
-    target: int,
-) -> np.ndarray:
-    """Nodes from which `target` is reachable in the residual graph of `flow`."""
-    forward = flow < upper
-    backward = flow > lower
-    # Walk the residual arcs backwards from the target: arc u→v becomes v→u.
-    rows = np.concatenate([heads[forward], tails[backward]])
-    cols = np.concatenate([tails[forward], heads[backward]])
-    graph = coo_matrix((np.ones(len(rows), np.int8), (rows, cols)), shape=(n, n)).tocsr()
-    order = breadth_first_order(graph, target, directed=True, return_predecessors=False)
-    reach = np.zeros(n, dtype=bool)
-    reach[order] = True
-    return reach
 
 
 @dataclass(frozen=True)

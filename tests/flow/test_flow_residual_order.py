@@ -9,7 +9,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from review_alloc.flow.network import build_residual
+from review_alloc.flow.residual import build_residual
 
 
 def _reference(

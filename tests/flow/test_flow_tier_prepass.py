@@ -13,9 +13,10 @@ import pytest
 from flow_helpers import ortools_cost
 
 from review_alloc.flow import check_cost_certificate, min_cost_flow
+from review_alloc.flow.cost_scaling import PRICE_LIMIT
 from review_alloc.flow.dinic import dinic
-from review_alloc.flow.mincost import MAX_TIERS, _saturate_tiers, _starting_prices
-from review_alloc.flow.network import ResidualNetwork, build_with_terminals, net_outflow
+from review_alloc.flow.residual import ResidualNetwork, build_with_terminals, net_outflow
+from review_alloc.flow.tier_start import MAX_TIERS, saturate_tiers, starting_prices
 
 
 def tiered_circulation(
@@ -109,14 +110,14 @@ def test_pre_pass_keeps_a_feasible_flow_and_finds_a_close_start(supply: float) -
     )
     net = routed_network(n, tails, heads, caps, costs, lower)
     scale = int(costs.max())
-    assert _saturate_tiers(net, n, len(tails), scale) == 2_000_000
+    assert saturate_tiers(net, n, len(tails), scale) == 2_000_000
     flow = net.edge_flow(lower)[: len(tails)]
     assert (flow >= lower).all() and (flow <= caps).all()
     assert not net_outflow(n, tails, heads, flow).any()
     # The tiers are filled as far as the capacities allow, every lighter tier never at the
     # expense of a heavier one, so the flow is within `scale` per arc of optimal: the budgeted
     # shortest-path pass finds prices for that tolerance.
-    prices, eps = _starting_prices(net, net.cap, scale, net.n + 1)
+    prices, eps = starting_prices(net, net.cap, scale, net.n + 1, PRICE_LIMIT)
     assert eps == scale * (net.n + 1)
     reduced = net.cost * (net.n + 1) + prices[net.head[net.rev]] - prices[net.head]
     assert (reduced[net.cap > 0] >= -eps).all()
@@ -129,7 +130,7 @@ def test_too_many_tiers_skip_the_pre_pass_and_still_solve() -> None:
     n, tails, heads, caps, costs, lower = tiered_circulation(rng, 12, 8, 4, tiers, 0.7)
     net = routed_network(n, tails, heads, caps, costs, lower)
     before = net.cap.copy()
-    assert _saturate_tiers(net, n, len(tails), int(costs.max())) == 0
+    assert saturate_tiers(net, n, len(tails), int(costs.max())) == 0
     assert (net.cap == before).all()
     result = min_cost_flow(n, tails, heads, caps, costs, lower=lower)
     # OR-Tools SimpleMinCostFlow on the same network.
@@ -141,7 +142,7 @@ def test_networks_without_tiers_are_left_alone() -> None:
     n, tails, heads, caps, costs, lower = tiered_circulation(rng, 20, 10, 4, [500], 0.9)
     net = routed_network(n, tails, heads, caps, costs, lower)
     # Item edges cost -500, above minus the largest pair cost: no tier to fill.
-    assert _saturate_tiers(net, n, len(tails), int(costs.max())) == 0
+    assert saturate_tiers(net, n, len(tails), int(costs.max())) == 0
     result = min_cost_flow(n, tails, heads, caps, costs, lower=lower)
     # OR-Tools SimpleMinCostFlow on the same network.
     assert result.cost == ortools_cost(n, tails, heads, caps, costs, lower=lower)
@@ -155,5 +156,5 @@ def test_no_start_is_claimed_for_a_flow_far_from_optimal() -> None:
     # Without the pre-pass the tiers are empty: residual cycles through them cost millions,
     # far below -scale per arc, so the shortest-path pass must find a negative cycle.
     net = routed_network(n, tails, heads, caps, costs, lower)
-    prices, eps = _starting_prices(net, net.cap, int(costs.max()), net.n + 1)
+    prices, eps = starting_prices(net, net.cap, int(costs.max()), net.n + 1, PRICE_LIMIT)
     assert eps == 0 and not prices.any()

@@ -16,13 +16,16 @@ _ROOT = Path(__file__).resolve().parents[2]
 
 _PROBE = """
 import json, os, sys
+environ = dict(os.environ)
 import review_alloc.flow as flow
 before = flow.kernels_ready()
 on_disk_before = flow.solver_cache_ready()
 if sys.argv[1] == "warm":
     flow.warm_up()
+import numba
 print(json.dumps({
-    "cache": os.environ.get("NUMBA_CACHE_DIR"),
+    "cache": numba.config.CACHE_DIR,
+    "environ_kept": dict(os.environ) == environ,
     "before": before,
     "after": flow.kernels_ready(),
     "on_disk_before": on_disk_before,
@@ -51,6 +54,7 @@ def test_warm_up_compiles_every_kernel_into_the_xdg_cache(tmp_path: Path) -> Non
     report = _probe({"XDG_CACHE_HOME": str(tmp_path), "NUMBA_CACHE_DIR": None}, "warm")
     folder = tmp_path / "review-alloc" / "numba"
     assert report["cache"] == str(folder)
+    assert report["environ_kept"] is True  # numba learns the folder from its config, not os.environ
     assert report["before"] is False and report["after"] is True
     assert any(folder.rglob("*.nbi")), "numba wrote no cache index"
     assert report["textual"] is False  # the engine imports without the UI toolkit
@@ -64,14 +68,61 @@ def test_a_chosen_numba_cache_dir_is_kept(tmp_path: Path) -> None:
     chosen = tmp_path / "mine"
     report = _probe({"NUMBA_CACHE_DIR": str(chosen), "XDG_CACHE_HOME": str(tmp_path)}, "cold")
     assert report["cache"] == str(chosen)
+    assert report["environ_kept"] is True
     assert report["before"] is False and report["after"] is False
+
+
+_IMPORT_ONLY = """
+import json, os, sys
+environ = dict(os.environ)
+import review_alloc.flow as flow
+from review_alloc.flow import solver_cache_ready, warm_up
+imported = {"numba": "numba" in sys.modules, "environ_kept": dict(os.environ) == environ}
+solver_cache_ready()
+checked = {"numba": "numba" in sys.modules, "environ_kept": dict(os.environ) == environ}
+value = flow.max_flow(3, [0, 1], [1, 2], [4, 3], 0, 2).value
+import numba
+print(json.dumps({
+    "imported": imported,
+    "checked": checked,
+    "value": value,
+    "environ_kept": dict(os.environ) == environ,
+    "cache": numba.config.CACHE_DIR,
+    "all": sorted(flow.__all__) == sorted(name for name in flow.__all__ if hasattr(flow, name)),
+}))
+"""
+
+
+def test_importing_the_engine_changes_nothing_until_a_solve(tmp_path: Path) -> None:
+    # Importing the package (and asking whether the cache is ready) neither touches the
+    # environment nor imports numba; the first solve compiles into the per-user folder.
+    env = dict(os.environ, XDG_CACHE_HOME=str(tmp_path), PYTHONPATH=str(_ROOT))
+    env.pop("NUMBA_CACHE_DIR", None)
+    done = subprocess.run(
+        [sys.executable, "-c", _IMPORT_ONLY], env=env, capture_output=True, text=True,
+        timeout=300, check=True,
+    )
+    report = json.loads(done.stdout.strip().splitlines()[-1])
+    assert report["imported"] == {"numba": False, "environ_kept": True}
+    assert report["checked"] == {"numba": False, "environ_kept": True}
+    assert report["value"] == 3 and report["environ_kept"] is True and report["all"] is True
+    folder = tmp_path / "review-alloc" / "numba"
+    assert report["cache"] == str(folder)
+    assert any(folder.rglob("dinic*.nbi")), "the solve cached no kernel in the per-user folder"
+
+
+def test_an_unknown_engine_name_is_an_attribute_error() -> None:
+    import review_alloc.flow as flow
+
+    with pytest.raises(AttributeError, match="has no attribute 'no_such_solver'"):
+        flow.no_such_solver  # noqa: B018
 
 
 def test_every_kernel_releases_the_gil() -> None:
     # The TUI solves in a worker thread; a kernel holding the GIL would freeze the screen.
-    from review_alloc.flow.warm import _KERNELS
+    from review_alloc.flow.compile import _kernels
 
-    assert all(kernel.targetoptions.get("nogil") for kernel in _KERNELS)
+    assert all(kernel.targetoptions.get("nogil") for kernel in _kernels())
 
 
 def test_warm_up_in_process() -> None:
@@ -82,7 +133,7 @@ def test_warm_up_in_process() -> None:
 
 
 _CHILD_ONLY = """
-from review_alloc.flow.warm import _CHILD_GROUPS, _start_children, _wait
+from review_alloc.flow.compile import _CHILD_GROUPS, _start_children, _wait
 children = _start_children(_CHILD_GROUPS)
 assert len(children) == len(_CHILD_GROUPS) and _wait(children)
 """
@@ -90,10 +141,10 @@ assert len(children) == len(_CHILD_GROUPS) and _wait(children)
 _LOADS_ONLY = """
 import json
 import review_alloc.flow as flow
-from review_alloc.flow.warm import _KERNELS
+from review_alloc.flow.compile import _kernels
 flow.warm_up(parallel=False)
 print(json.dumps({k.__name__: [sum(k.stats.cache_hits.values()), sum(k.stats.cache_misses.values())]
-                  for k in _KERNELS}))
+                  for k in _kernels()}))
 """
 
 
@@ -181,12 +232,16 @@ def test_every_kernel_compiles_exactly_one_signature(tmp_path: Path) -> None:
         timeout=600, check=True,
     )
     counts = json.loads(done.stdout.strip().splitlines()[-1])
-    assert {"dinic.bfs_levels", "mincost_heap.heap_push", "network._csr_kernel"} <= counts.keys()
+    expected = {
+        "dinic.bfs_levels", "dinic.reaching_kernel", "dinic._edge_reaching",
+        "primal_dual.heap_push", "residual._csr_kernel", "potentials.bellman_ford",
+    }
+    assert expected <= counts.keys()
     assert {name: count for name, count in counts.items() if count != 1} == {}
 
 
 def test_an_unknown_kernel_group_is_refused() -> None:
-    from review_alloc.flow.warm import exercise
+    from review_alloc.flow.compile import exercise
 
     with pytest.raises(ValueError, match="no such group"):
         exercise("no such group")

@@ -19,7 +19,7 @@ from review_alloc.model import (
     Session,
 )
 from review_alloc.plan import find_gaps, make_plan
-from review_alloc.plan.explain import _reaches, coverage_network, shortfall_groups
+from review_alloc.plan.explain import coverage_network, shortfall_groups
 from tests.plan.test_planner import random_session, reference_instance
 
 NO_INFERENCE = ConflictRules(author_email=False, institution=False, email_domain=False)
@@ -189,7 +189,7 @@ def test_lemon_circulation_cut_counts_lower_bounds() -> None:
     for source, sink, expected in ((0, 5, 13), (5, 0, -7)):
         result = max_flow(6, tails, heads, upper, source, sink, lower=lower)
         assert result.value == expected
-        sink_side = _reaches(6, tails, heads, upper, lower, np.asarray(result.flow), sink)
+        sink_side = result.sink_side
         assert not sink_side[source]
         out = ~sink_side[tails] & sink_side[heads]
         back = sink_side[tails] & ~sink_side[heads]

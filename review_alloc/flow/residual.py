@@ -12,7 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 from numba import njit
 
-from review_alloc.flow._cache import HELPER_OPTIONS, KERNEL_OPTIONS
+from review_alloc.flow._jit import HELPER_OPTIONS, KERNEL_OPTIONS
 
 
 @dataclass(eq=False)

@@ -13,16 +13,10 @@ import pytest
 from flow_helpers import ortools_cost
 
 from review_alloc.flow import check_cost_certificate, min_cost_flow
-from review_alloc.flow.costscaling import (
-    NO_FLOOR,
-    _live_bits,
-    _next_live,
-    cost_scaling_kernel,
-    exact_potentials,
-)
+from review_alloc.flow.cost_scaling import _live_bits, _narrow, _next_live, cost_scaling_kernel
 from review_alloc.flow.dinic import dinic
-from review_alloc.flow.mincost import _narrow
-from review_alloc.flow.network import build_with_terminals, net_outflow
+from review_alloc.flow.potentials import NO_FLOOR, exact_potentials
+from review_alloc.flow.residual import build_with_terminals, net_outflow
 
 
 def assignment_circulation(

@@ -1,4 +1,9 @@
-"""Cost-scaling push-relabel for min-cost circulations (Goldberg and Tarjan), as numba kernels.
+"""Minimum-cost flow by cost scaling: push-relabel (Goldberg and Tarjan) as numba kernels.
+
+`solve_cost_scaling` is the cold method of `min_cost_flow`: Dinic routes the supplies to a
+feasible flow, the tier pre-pass (`tier_start.py`) fills the bands of very negative cost and may
+find starting prices, push-relabel phases make the circulation optimal, and a shortest-path pass
+(`potentials.py`) turns the scaled prices into exact integer potentials.
 
 Costs are multiplied by `factor` (more than the number of nodes), so that prices with every
 residual arc at reduced cost >= -1 make the flow exactly optimal: a residual cycle of at most
@@ -6,29 +11,36 @@ residual arc at reduced cost >= -1 make the flow exactly optimal: a residual cyc
 tolerance epsilon by `alpha`: it saturates every residual arc of negative reduced cost, then
 discharges the nodes left with excess (last in, first out), pushing along admissible arcs
 (reduced cost < 0) and relabelling a node to the largest price that makes one of its arcs
-admissible.
-
-The kernels only change flow and prices, so they need a feasible flow to start from (the front
-door routes the supplies with Dinic first); afterwards `exact_potentials` turns the scaled prices
-into integer potentials that meet the reduced-cost conditions on the original costs exactly.
+admissible. The kernels only change flow and prices, so they need a feasible flow to start from.
 """
 
 from __future__ import annotations
+
+from typing import cast
 
 import numpy as np
 from numba import njit
 from numba.cpython.unsafe.numbers import trailing_zeros
 
-from review_alloc.flow._cache import HELPER_OPTIONS, KERNEL_OPTIONS
+from review_alloc.flow._jit import HELPER_OPTIONS, KERNEL_OPTIONS
+from review_alloc.flow.circulation import unmet_supplies
+from review_alloc.flow.dinic import dinic
+from review_alloc.flow.potentials import NO_FLOOR, bellman_ford, exact_potentials
+from review_alloc.flow.residual import ResidualNetwork, build_with_terminals, net_outflow
+from review_alloc.flow.tier_start import saturate_tiers, starting_prices
+from review_alloc.flow.validate import EdgeArrays
 
 PRICE_LIMIT = 2**61
 """A price beyond this aborts the kernel, which then reports failure instead of overflowing."""
 
+SCALING_ALPHA = 8
+"""Cost scaling divides its tolerance by this much per phase (chosen by the benchmarks)."""
+
+OPTIMALITY_TEST_SCANS = 2
+"""Cost scaling tests for early optimality after each phase with eps below one cost unit, giving
+each test at most this many passes over the arcs (a test that succeeds needs about one)."""
 
 _ONE = np.uint64(1)
-
-NO_FLOOR = np.int64(np.iinfo(np.int64).min)
-"""The `floor` of a shortest-path pass that needs none."""
 
 
 @njit(**KERNEL_OPTIONS)
@@ -45,8 +57,9 @@ def _live_bits(cap: np.ndarray) -> np.ndarray:
 def _next_live(live: np.ndarray, a: int, end: int) -> int:
     """The first arc in `a:end` with residual capacity, or `end`.
 
-    A node's arcs are contiguous, so one word covers up to 64 of them: a paper's many reverse
-    arcs, almost all empty, are skipped a word at a time without reading their capacities.
+    A node's arcs are contiguous, so one word covers up to 64 of them: the many reverse arcs of
+    a node with a large in-degree, almost all empty, are skipped a word at a time without
+    reading their capacities.
     """
     while a < end:
         word = live[a >> 6] >> np.uint64(a & 63)
@@ -274,86 +287,102 @@ def cost_scaling_kernel(
         if test_budget > 0 and 1 < eps <= factor:
             for v in range(n):
                 trial[v] = price[v] // factor
-            if _bellman_ford(start, head, cap, cost, trial, test_budget, NO_FLOOR):
+            if bellman_ford(start, head, cap, cost, trial, test_budget, NO_FLOOR):
                 for v in range(n):
                     price[v] = trial[v] * factor
                 return True, phases, relabels
     return True, phases, relabels
 
 
-@njit(**HELPER_OPTIONS)
-def _bellman_ford(
-    start: np.ndarray,
-    head: np.ndarray,
-    cap: np.ndarray,
-    cost: np.ndarray,
-    pot: np.ndarray,
-    budget: int,
-    floor: int,
-) -> bool:
-    """Queue-based Bellman-Ford lowering `pot`; False on a negative cycle or past `budget` arcs.
+def _narrow(values: np.ndarray, reach: np.ndarray) -> np.ndarray:
+    """An int32 copy of `values` if every value in `reach` fits in int32, else `values` itself."""
+    info = np.iinfo(np.int32)
+    if reach.size == 0 or (int(reach.min()) >= info.min and int(reach.max()) <= info.max):
+        return values.astype(np.int32)
+    return values
 
-    `budget` <= 0 means no limit on the arcs scanned. Also False once a potential would drop
-    below `floor`, which bounds every value (a walk around a negative cycle cannot overflow).
+
+def solve_cost_scaling(
+    edges: EdgeArrays, need: np.ndarray
+) -> tuple[ResidualNetwork, np.ndarray] | None:
+    """Cost scaling from a Dinic-routed feasible flow; None if prices would leave int64.
+
+    Returns the residual network of an optimal flow and its potentials; raises
+    `InfeasibleError` with a cut when the supplies `need` cannot be met.
     """
-    n = start.size - 1
-    queue = np.empty(n, dtype=np.int64)
-    queued = np.ones(n, dtype=np.bool_)
-    lowered = np.zeros(n, dtype=np.int64)
-    for v in range(n):
-        queue[v] = v
-    q_head = 0
-    q_tail = 0
-    size = n
-    work = 0
-    while size > 0:
-        u = queue[q_head]
-        q_head += 1
-        if q_head == n:
-            q_head = 0
-        size -= 1
-        queued[u] = False
-        pu = pot[u]
-        if budget > 0:
-            work += start[u + 1] - start[u]
-            if work > budget:
-                return False
-        for a in range(start[u], start[u + 1]):
-            if cap[a] > 0:
-                v = head[a]
-                reach = pu + cost[a]
-                if reach < pot[v]:
-                    if reach < floor:
-                        return False
-                    pot[v] = reach
-                    lowered[v] += 1
-                    if lowered[v] > n:
-                        return False
-                    if not queued[v]:
-                        queue[q_tail] = v
-                        q_tail += 1
-                        if q_tail == n:
-                            q_tail = 0
-                        size += 1
-                        queued[v] = True
-    return True
+    n = edges.n
+    m = len(edges.tails)
+    costs = cast(np.ndarray, edges.costs)
+    excess = need - net_outflow(n, edges.tails, edges.heads, edges.lower)
+    net, demand = build_with_terminals(
+        n, edges.tails, edges.heads, edges.upper, edges.lower, edges.lower, excess, costs,
+        every_node=True,
+    )
+    routed, _ = dinic(net, n, n + 1)
+    if routed < demand:
+        raise unmet_supplies(net, n, demand, routed)
+    # The terminal arcs have done their job; closing them leaves a circulation problem.
+    terminal = net.arc_of_edge[m:]
+    net.cap[terminal] = 0
+    net.cap[net.rev[terminal]] = 0
+    scale = max(1, int(costs.max(initial=0)))
+    lightest = saturate_tiers(net, n, m, scale)
+    # Where the tiers interact (a lighter tier gains by swapping which nodes a heavier one
+    # feeds), the flow is only within the lightest tier's weight of optimal: the second try.
+    pot = optimal_potentials(net, (scale, lightest) if lightest else ())
+    if pot is None:
+        return None
+    return net, pot[:n].copy()
 
 
-@njit(**KERNEL_OPTIONS)
-def exact_potentials(
-    start: np.ndarray,
-    head: np.ndarray,
-    cap: np.ndarray,
-    cost: np.ndarray,
-    pot: np.ndarray,
-    budget: int,
-    floor: int,
-) -> bool:
-    """Lower `pot` to shortest-path potentials of the residual graph (queue-based Bellman-Ford).
+def optimal_potentials(
+    net: ResidualNetwork, tolerances: tuple[int, ...] = ()
+) -> np.ndarray | None:
+    """Make the circulation in `net` optimal by cost scaling; its exact potentials, or None.
 
-    Starting from nearly valid potentials, only the few arcs still at negative reduced cost set
-    corrections off. Returns False if some node is lowered more than n times (a negative
-    residual cycle, so the flow was not optimal), below `floor`, or, when `budget` > 0, once
-    more than `budget` arcs were scanned.
+    Cost scaling starts at the first of `tolerances` (in cost units) for which a budgeted
+    shortest-path pass finds prices, that is, where the flow is that close to optimal already;
+    failing all, from zero potentials at the largest cost. None means scaled prices would leave
+    int64 (the caller falls back to the primal-dual method).
     """
-    return _bellman_ford(start, head, cap, cost, pot, budget, floor)
+    factor = net.n + 1
+    # The kernel is bound by reading arcs: 4-byte residuals, where every value fits, cut the
+    # bytes read per arc. Costs stay int64: the heaviest cost tiers need that range, and 4-byte
+    # costs only where they fit would compile (and warm up) a second copy of the kernel for a
+    # gain lost in the noise on the L instances.
+    cap = _narrow(net.cap, net.cap + net.cap[net.rev])
+    cost = net.cost
+    prices, eps = np.zeros(net.n, dtype=np.int64), 0
+    for tolerance in tolerances:
+        prices, eps = starting_prices(net, cap, tolerance, factor, PRICE_LIMIT)
+        if eps:
+            break
+
+    def scale_costs(prices: np.ndarray, eps: int) -> bool:
+        ok, _, _ = cost_scaling_kernel(
+            net.start, net.head, cap, net.rev, cost, prices,
+            np.int64(factor), np.int64(SCALING_ALPHA), np.int64(eps), True,
+            np.int64(OPTIMALITY_TEST_SCANS * net.head.size),
+        )
+        return bool(ok)
+
+    # A kernel stopped by its price limit leaves a pseudoflow: keep the flow to retry from.
+    saved = cap.copy() if eps else cap
+    ok = scale_costs(prices, eps)
+    if not ok and eps > 0:
+        # Prices from a start can grow past the limit where cold ones would not.
+        cap[:] = saved
+        prices = np.zeros(net.n, dtype=np.int64)
+        ok = scale_costs(prices, 0)
+    if cap is not net.cap:
+        net.cap[:] = cap
+    if not ok:
+        return None
+    # Every residual arc has scaled reduced cost >= -1, so floor(prices / factor) misses the
+    # exact conditions by at most 1 per arc; a shortest-path pass repairs that exactly. It reads
+    # the kernel's residuals: the same array type as the kernel's own optimality test, so the
+    # shortest-path code is compiled (and warmed up) once instead of twice.
+    pot = np.floor_divide(prices, factor)
+    if not exact_potentials(net.start, net.head, cap, net.cost, pot, np.int64(0), NO_FLOOR):
+        return None
+    return pot

@@ -2,8 +2,9 @@
 
 `warm_up()` is safe to call from a background thread (the kernels release the GIL while they
 run, and a lock keeps two warm-ups from compiling at once). After a warm-up that succeeded, a
-small marker file in the cache folder lets `solver_cache_ready()` tell, without importing or
-compiling anything, whether the next process will load the kernels from disk.
+small marker file in the cache folder lets `solver_cache_ready()` tell, without importing numba
+or compiling anything, whether the next process will load the kernels from disk. The kernel
+modules are imported on first need only, so importing this module stays cheap.
 
 numba compiles one kernel at a time under a process-wide lock, so on a cold cache one child
 process compiles the kernels of cost scaling (the largest group, sharing no callee with the rest)
@@ -20,45 +21,76 @@ import platform
 import subprocess
 import sys
 import threading
+from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
-
-import numba
-import numpy as np
+from typing import TYPE_CHECKING, Any
 
 from review_alloc import __version__
-from review_alloc.flow.costscaling import cost_scaling_kernel, exact_potentials
-from review_alloc.flow.dinic import dinic_kernel, max_flow_kernel, reachable_kernel
-from review_alloc.flow.maxflow import max_flow
-from review_alloc.flow.mincost import min_cost_flow, optimal_potentials, primal_dual_kernel
-from review_alloc.flow.network import ResidualNetwork, _csr_kernel
+from review_alloc.flow._cache import cache_folder
 
-_KERNELS = (
-    _csr_kernel,
-    max_flow_kernel,
-    dinic_kernel,
-    reachable_kernel,
-    primal_dual_kernel,
-    cost_scaling_kernel,
-    exact_potentials,
-)
+if TYPE_CHECKING:
+    from review_alloc.flow.residual import ResidualNetwork
+
 _lock = threading.Lock()
+
+
+def _kernels() -> tuple[Any, ...]:
+    """Every kernel that Python calls (importing the kernel modules, which configures numba)."""
+    from review_alloc.flow.cost_scaling import cost_scaling_kernel
+    from review_alloc.flow.dinic import (
+        dinic_kernel,
+        max_flow_kernel,
+        reachable_kernel,
+        reaching_kernel,
+    )
+    from review_alloc.flow.potentials import exact_potentials
+    from review_alloc.flow.primal_dual import primal_dual_kernel
+    from review_alloc.flow.residual import _csr_kernel
+
+    return (
+        _csr_kernel,
+        max_flow_kernel,
+        dinic_kernel,
+        reachable_kernel,
+        reaching_kernel,
+        primal_dual_kernel,
+        cost_scaling_kernel,
+        exact_potentials,
+    )
 
 
 def kernels_ready() -> bool:
     """Whether every kernel is already compiled or loaded in this process."""
-    return all(kernel.signatures for kernel in _KERNELS)
+    return all(kernel.signatures for kernel in _kernels())
+
+
+def _numba_version() -> str:
+    """numba's version, read from its installed metadata rather than by importing it."""
+    try:
+        return version("numba")
+    except PackageNotFoundError:
+        import numba
+
+        return str(numba.__version__)
+
+
+def _cache_in_force() -> Path:
+    """The folder numba caches the kernels in: its config if set, else the one `_jit` will set."""
+    numba = sys.modules.get("numba")
+    if numba is not None and numba.config.CACHE_DIR:
+        return Path(numba.config.CACHE_DIR)
+    return cache_folder()
 
 
 def _marker() -> Path:
     """The marker file for this package version, numba, Python and kernel sources."""
     key = hashlib.sha256()
-    key.update(f"{__version__}|{numba.__version__}|{platform.python_version()}".encode())
+    key.update(f"{__version__}|{_numba_version()}|{platform.python_version()}".encode())
     # numba drops a cached kernel when its source file changes, so the marker follows them too.
     for source in sorted(Path(__file__).parent.glob("*.py")):
         stat = source.stat()
         key.update(f"|{source.name}:{stat.st_size}:{stat.st_mtime_ns}".encode())
-    folder = Path(os.environ.get("NUMBA_CACHE_DIR") or numba.config.CACHE_DIR or ".")
-    return folder / f"review-alloc-ready-{key.hexdigest()[:16]}"
+    return _cache_in_force() / f"review-alloc-ready-{key.hexdigest()[:16]}"
 
 
 def solver_cache_ready() -> bool:
@@ -71,23 +103,21 @@ def solver_cache_ready() -> bool:
 
 _GROUPS = ("max flow", "lower bounds, primal-dual", "cost scaling")
 """Kernel groups that share no callee across groups, so that two processes compiling different
-groups never compile the same function twice."""
+groups never compile the same function twice. "max flow": the fused kernel and its helpers
+(`dinic.max_flow_kernel`, `residual.scan_and_index_edges`); "lower bounds, primal-dual": the
+residual CSR, Dinic, both reachability walks and the primal-dual kernel with its Dijkstra and
+heap; "cost scaling": the push-relabel kernel and Bellman-Ford (`potentials.py`)."""
 
 _CHILD_GROUPS = ("cost scaling",)
 """The groups the child process compiles while this process compiles the others."""
 
-_CHILD = "import sys; from review_alloc.flow.warm import exercise; exercise(sys.argv[1])"
+_CHILD = "import sys; from review_alloc.flow.compile import exercise; exercise(sys.argv[1])"
 
 # Path 0 -> 1 -> 2 plus a direct edge; the lower bound exercises the circulation stage.
-_TAILS = np.array([0, 1, 0], dtype=np.int64)
-_HEADS = np.array([1, 2, 2], dtype=np.int64)
-_CAPACITIES = np.array([2, 2, 1], dtype=np.int64)
-_CIRCULATION = (
-    np.append(_TAILS, 2),
-    np.append(_HEADS, 0),
-    np.append(_CAPACITIES, 3),
-    np.array([1, 1, 3, -4], dtype=np.int64),
-)
+_TAILS = (0, 1, 0)
+_HEADS = (1, 2, 2)
+_CAPACITIES = (2, 2, 1)
+_CIRCULATION = (_TAILS + (2,), _HEADS + (0,), _CAPACITIES + (3,), (1, 1, 3, -4))
 
 
 def _two_node_circulation() -> ResidualNetwork:
@@ -96,6 +126,10 @@ def _two_node_circulation() -> ResidualNetwork:
     The arrays have the dtypes of `build_residual`'s output, so the cost-scaling kernels compile
     the very signature a real solve loads; the warm-up tests catch any drift.
     """
+    import numpy as np
+
+    from review_alloc.flow.residual import ResidualNetwork
+
     return ResidualNetwork(
         n=2,
         start=np.array([0, 1, 2], dtype=np.int64),
@@ -109,16 +143,23 @@ def _two_node_circulation() -> ResidualNetwork:
 
 def exercise(group: str) -> None:
     """Run the solvers of one kernel group on a tiny graph, compiling or loading its kernels."""
+    if group not in _GROUPS:
+        raise ValueError(f"unknown kernel group {group!r}; choose from {_GROUPS}")
+    import numpy as np
+
+    from review_alloc.flow.cost_scaling import optimal_potentials
+    from review_alloc.flow.maxflow import max_flow
+    from review_alloc.flow.mincost import min_cost_flow
+
+    tails, heads, capacities = (np.array(a, np.int64) for a in (_TAILS, _HEADS, _CAPACITIES))
     if group == _GROUPS[0]:
-        max_flow(3, _TAILS, _HEADS, _CAPACITIES, 0, 2)
+        max_flow(3, tails, heads, capacities, 0, 2)
     elif group == _GROUPS[1]:
-        max_flow(3, _TAILS, _HEADS, _CAPACITIES, 0, 2, lower=np.array([1, 0, 0], np.int64))
-        min_cost_flow(3, *_CIRCULATION, method="primal-dual")
-    elif group == _GROUPS[2]:
+        max_flow(3, tails, heads, capacities, 0, 2, lower=np.array([1, 0, 0], np.int64))
+        min_cost_flow(3, *(np.array(a, np.int64) for a in _CIRCULATION), method="primal-dual")
+    else:
         # Straight to the kernels: the routing stage before them belongs to the group above.
         optimal_potentials(_two_node_circulation())
-    else:
-        raise ValueError(f"unknown kernel group {group!r}; choose from {_GROUPS}")
 
 
 def _start_children(groups: tuple[str, ...]) -> list[subprocess.Popen[bytes]]:
@@ -126,11 +167,11 @@ def _start_children(groups: tuple[str, ...]) -> list[subprocess.Popen[bytes]]:
     if (os.cpu_count() or 1) < 2 or not sys.executable:
         return []
     env = dict(os.environ)
-    # The children must import this very copy of the package and write the same cache.
+    # The children must import this very copy of the package and write the same cache; they
+    # get the folder through their environment, this process keeps its own untouched.
     package_root = str(Path(__file__).resolve().parents[2])
     env["PYTHONPATH"] = os.pathsep.join(p for p in (package_root, env.get("PYTHONPATH")) if p)
-    if numba.config.CACHE_DIR:
-        env["NUMBA_CACHE_DIR"] = numba.config.CACHE_DIR
+    env["NUMBA_CACHE_DIR"] = str(_cache_in_force())
     children = []
     for group in groups:
         try:
