@@ -119,6 +119,7 @@ class HistoryMixin(WorkspaceBase):
                 "revisions": rebase_root_scores(s.revisions, s.scores, data.scores),
             }
         )
+        self.plan_problems = []
         self._record(
             "undo",
             str(target),

@@ -113,6 +113,7 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
         if planned is not self.session and not same_data(planned, self.session):
             raise ChangeRefused(["the session changed while the plan was being made; plan again"])
         self.last_outcome = outcome
+        self.plan_problems = []
         s = self.session
         plan = outcome.plan
         data = data_of(s)

@@ -12,7 +12,7 @@ from pathlib import Path
 import pytest
 
 from review_alloc.cli import main
-from review_alloc.model import load_session, save_session
+from review_alloc.model import Conflict, InputError, load_session, save_session
 from review_alloc.plan import check_plan
 from review_alloc.samples import workshop
 from review_alloc.workspace import ChangeRefused, ChangeSet, FileChanged, Workspace
@@ -185,3 +185,42 @@ def test_a_save_never_overwrites_a_file_changed_on_disk(tmp_path: Path) -> None:
     copy = mine.save(tmp_path / "mine.json")
     assert load_session(copy).reviewers[1].withdrawn
     assert not mine.changed_on_disk()
+
+
+def _tampered(tmp_path: Path) -> tuple[Path, tuple[str, str]]:
+    """A planned session file into which a conflict on a planned pair was written by hand."""
+    ws = Workspace(workshop())
+    ws.solve()
+    a = ws.session.plan.assignments[0]
+    s = ws.session
+    conflicts = [*s.conflicts, Conflict(reviewer=a.reviewer, paper=a.paper, reason="hand edit")]
+    path = tmp_path / "tampered.json"
+    save_session(s.model_copy(update={"conflicts": conflicts}), path)
+    return path, (a.reviewer, a.paper)
+
+
+def test_a_stored_plan_is_held_to_the_rules_when_opened(tmp_path: Path) -> None:
+    path, pair = _tampered(tmp_path)
+    ws = Workspace.open(path)
+    plan = ws.session.plan
+    assert pair not in {(a.reviewer, a.paper) for a in plan.assignments}
+    assert not plan.checked and ws.plan_problems
+    assert ws.plan_problems[0].startswith(f"({pair[0]}, {pair[1]}) is in the stored plan but")
+    # Everything left keeps the hard rules (the independent checker, no certificate).
+    check_plan(ws.session, plan, None)
+    with pytest.raises(InputError, match="plan again"):
+        ws.export(tmp_path / "out.csv")
+    assert not (tmp_path / "out.csv").exists()
+    ws.solve()
+    assert ws.export(tmp_path / "out.csv") == len(ws.session.plan.assignments)
+
+
+def test_export_of_a_tampered_file_is_refused_on_the_command_line(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    path, pair = _tampered(tmp_path)
+    before = path.read_bytes()
+    assert main(["export", str(path), "--to", str(tmp_path / "out.csv")]) == 1
+    err = capsys.readouterr().err
+    assert f"({pair[0]}, {pair[1]})" in err and "plan again" in err
+    assert path.read_bytes() == before and not (tmp_path / "out.csv").exists()
