@@ -11,6 +11,8 @@ from review_alloc.model import Session
 from review_alloc.plan.cautions import PLAN_CAUTION as CAUTION
 
 EXIT_OK, EXIT_INPUT, EXIT_USAGE, EXIT_CHECK = 0, 1, 2, 3
+EXIT_INTERRUPTED = 130
+"""The shell's convention for a command stopped by Ctrl-C (128 + SIGINT)."""
 
 
 def positive(text: str) -> int:

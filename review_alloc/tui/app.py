@@ -195,6 +195,16 @@ class ReviewAllocApp(App[None]):
         self.query_one(ExplainView).display = False
         self._refresh_all()
         self._warm_up()
+        problems = self.workspace.plan_problems
+        if problems:
+            self.notify(
+                "\n".join(problems[:5])
+                + (f"\n… and {len(problems) - 5} more" if len(problems) > 5 else "")
+                + "\nThose pairs are not shown; press r to plan again.",
+                title="The stored plan breaks the session's rules",
+                severity="warning",
+                timeout=20,
+            )
 
     @work(thread=True, group="warm-up", exit_on_error=False)
     def _warm_up(self) -> None:
@@ -248,6 +258,11 @@ class ReviewAllocApp(App[None]):
             text.append(" saved ", style="green")
         if s.plan is None:
             text.append(" no plan yet: press r ", style="yellow")
+        elif ws.plan_problems:
+            text.append(
+                f" plan STALE: {len(ws.plan_problems)} stored pair(s) broke a rule, press r ",
+                style="bold yellow",
+            )
         elif ws.data_changed_since_plan():
             text.append(" plan STALE: data changed, press r ", style="bold yellow")
         else:

@@ -13,6 +13,7 @@ from review_alloc.workspace.files import (
     FilesMixin,
     data_folder,
     demo_session_path,
+    files_written,
     session_lock,
 )
 from review_alloc.workspace.history import HistoryEntry
@@ -32,6 +33,7 @@ __all__ = [
     "Workspace",
     "data_folder",
     "demo_session_path",
+    "files_written",
     "prepare_solver",
     "session_lock",
 ]

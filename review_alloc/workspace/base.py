@@ -94,8 +94,13 @@ class WorkspaceBase:
         return bool(events) and events[-1].action not in MARKS
 
     def plan_is_current(self) -> bool:
-        """True when there is a plan and no change was recorded after it."""
-        return self.session.plan is not None and not self.data_changed_since_plan()
+        """True when there is a plan, no change was recorded after it, and it kept every rule
+        when the file was opened."""
+        return (
+            self.session.plan is not None
+            and not self.data_changed_since_plan()
+            and not self.plan_problems
+        )
 
     def refuse_broken_plan(self) -> None:
         """Raise, naming the first offending pairs, when the stored plan broke a rule."""

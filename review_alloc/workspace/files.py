@@ -25,6 +25,15 @@ LOCK_WAIT_SECONDS = 120.0
 """How long a change waits for another program's change to the same session to finish."""
 
 
+_WRITTEN: list[Path] = []
+"""Session files this process has saved, in order (what an interrupted command reports)."""
+
+
+def files_written() -> list[Path]:
+    """The session files saved by this process so far."""
+    return list(_WRITTEN)
+
+
 class FileChanged(InputError):
     """The session file changed on disk since this workspace read or wrote it."""
 
@@ -190,6 +199,7 @@ class FilesMixin(WorkspaceBase):
                 self._refuse_overwrite(target)
             save_session(self.session, target)
             self.disk_identity = file_identity(target)
+            _WRITTEN.append(target)
         self.path = target
         self.dirty = False
         self.unsaved = []

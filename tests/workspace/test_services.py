@@ -224,3 +224,35 @@ def test_export_of_a_tampered_file_is_refused_on_the_command_line(
     err = capsys.readouterr().err
     assert f"({pair[0]}, {pair[1]})" in err and "plan again" in err
     assert path.read_bytes() == before and not (tmp_path / "out.csv").exists()
+
+
+def test_ctrl_c_says_the_file_is_unchanged_and_exits_130(tmp_path: Path) -> None:
+    import shutil
+    import signal
+    import time
+
+    root = Path(__file__).resolve().parents[2]
+    path = tmp_path / "conference.json"
+    shutil.copyfile(root / "sample_sessions" / "conference.json", path)
+    before = path.read_bytes()
+    code = "import sys; from review_alloc.cli import main; sys.exit(main(sys.argv[1:]))"
+    run = subprocess.Popen(
+        [sys.executable, "-c", code, "plan", str(path)],
+        env={**os.environ, "PYTHONPATH": str(root)},
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+    )
+    # The lock file appears once `plan` holds the session: it is then loading or planning
+    # 1,500 papers (about 2 s), well before it saves.
+    lock = tmp_path / ".conference.json.lock"
+    deadline = time.monotonic() + 60
+    while not lock.exists() and run.poll() is None and time.monotonic() < deadline:
+        time.sleep(0.02)
+    time.sleep(0.3)
+    run.send_signal(signal.SIGINT)
+    out, err = run.communicate(timeout=60)
+    # 130 = 128 + SIGINT, the shell's convention (common practice).
+    assert run.returncode == 130, err
+    assert "interrupted: no file was changed" in err and "Traceback" not in err
+    assert path.read_bytes() == before
