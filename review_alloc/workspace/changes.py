@@ -226,10 +226,12 @@ class ChangesMixin(WorkspaceBase):
         self._paper(paper_id)
         if any(c.reviewer == reviewer_id and c.paper == paper_id for c in self.session.conflicts):
             raise ChangeRefused([f"({reviewer_id}, {paper_id}) is already a declared conflict"])
+        pinned = any(p.reviewer == reviewer_id and p.paper == paper_id for p in self.session.pins)
         self._apply(
             "declare-conflict",
             f"{reviewer_id}/{paper_id}",
-            "",
+            # A conflict outranks a pin: the pin goes, and the record says so.
+            "its pin released" if pinned else "",
             reason,
             conflicts=[
                 *self.session.conflicts,

@@ -112,3 +112,13 @@ def test_save_is_atomic_and_clears_the_mark(planned: Workspace, tmp_path: Path) 
     again = load_session(target)
     assert again.events == planned.session.events
     assert again.papers[0].withdrawn
+
+
+def test_a_conflict_on_a_pinned_pair_releases_the_pin_and_says_so(planned: Workspace) -> None:
+    a = planned.session.plan.assignments[0]
+    planned.pin(a.reviewer, a.paper, "agreed")
+    planned.declare_conflict(a.reviewer, a.paper, "recent co-author")
+    event = planned.session.events[-1]
+    assert event.action == "declare-conflict" and "pin released" in event.describe()
+    assert (a.reviewer, a.paper) not in {(p.reviewer, p.paper) for p in planned.session.pins}
+    assert (a.reviewer, a.paper) not in _pairs(planned)
