@@ -344,8 +344,9 @@ def history_problems(revisions: list[Revision]) -> list[str]:
 
     Follows each revision's list lengths from its parent (which must come earlier; the session
     checks that) and refuses positions that do not fit: a changed entry beyond its list, a new
-    position left empty, an assignment or score row naming a paper or reviewer the revision
-    does not have, a first revision without its policy. Score digests are checked on rebuild.
+    position left empty, an assignment or added score row naming a paper or reviewer the
+    revision does not have, a first revision without its policy. Score digests are checked on
+    rebuild.
     """
     problems: list[str] = []
     lengths: dict[int, dict[str, int]] = {}
@@ -387,13 +388,12 @@ def history_problems(revisions: list[Revision]) -> list[str]:
             )
         ]
         if data.scores is not None:
-            for part in ("added", "removed"):
-                problems += [
-                    f"{where}.data.scores.{line}"
-                    for line in _position_problems(
-                        part, getattr(data.scores, part), n_reviewers, n_papers
-                    )
-                ]
+            # Removed rows name pairs of the table the delta is taken against (for a root, the
+            # session's current one); removing a pair that is not there is harmless.
+            problems += [
+                f"{where}.data.scores.{line}"
+                for line in _position_problems("added", data.scores.added, n_reviewers, n_papers)
+            ]
     return problems
 
 
