@@ -1,5 +1,6 @@
 """CSV import with row-level errors, and exports of a plan. Nothing here plans anything."""
 
+from review_alloc.io.cells import csv_text, safe_cell, write_csv
 from review_alloc.io.export import export_plan_csv
 from review_alloc.io.importer import import_csv
 from review_alloc.io.reading import FileSpec
@@ -12,6 +13,9 @@ __all__ = [
     "REVIEWERS",
     "SCORES",
     "FileSpec",
+    "csv_text",
     "export_plan_csv",
     "import_csv",
+    "safe_cell",
+    "write_csv",
 ]

@@ -1,13 +1,12 @@
-"""Exports of a session's plan as CSV, one row per assignment."""
+"""Exports of a session's plan as CSV, one row per assignment (spreadsheet-safe cells)."""
 
 from __future__ import annotations
 
-import csv
-import io
 import os
 from typing import Literal
 
-from review_alloc.model import InputError, Session, atomic_write_text
+from review_alloc.io.cells import Cell, write_csv
+from review_alloc.model import InputError, Session
 
 _PAPER_COLUMNS = ("paper_id", "title", "reviewer_id", "reviewer_name", "reviewer_email", "score")
 _REVIEWER_COLUMNS = ("reviewer_id", "reviewer_name", "reviewer_email", "paper_id", "title", "score")
@@ -17,11 +16,15 @@ def export_plan_csv(
     session: Session,
     path: str | os.PathLike[str],
     by: Literal["paper", "reviewer"] = "paper",
+    *,
+    bom: bool = False,
 ) -> int:
     """Write the session's plan to `path` (atomically), sorted by paper or by reviewer id.
 
-    Returns the number of rows written, not counting the header. Raises `InputError` when the
-    session has no plan or the file cannot be written.
+    Text cells go through `io.cells.safe_cell` (no cell starts a formula), scores are written
+    as numbers; `bom` starts the file with a UTF-8 byte-order mark for spreadsheets that need
+    one. Returns the number of rows written, not counting the header. Raises `InputError` when
+    the session has no plan or the file cannot be written.
     """
     if by not in ("paper", "reviewer"):
         raise ValueError(f"by must be 'paper' or 'reviewer', not {by!r}")
@@ -29,23 +32,20 @@ def export_plan_csv(
         raise InputError([f"{session.name}: plan: the session has no plan to export; plan first"])
     papers = {p.id: p for p in session.papers}
     reviewers = {r.id: r for r in session.reviewers}
-    rows = []
+    rows: list[tuple[tuple[str, str], tuple[Cell, ...]]] = []
     for a in session.plan.assignments:
         paper, reviewer = papers[a.paper], reviewers[a.reviewer]
         p_cells = (paper.id, paper.title)
         r_cells = (reviewer.id, reviewer.name, reviewer.email)
-        score = repr(float(a.score))
+        score = float(a.score)
         if by == "paper":
             rows.append(((paper.id, reviewer.id), (*p_cells, *r_cells, score)))
         else:
             rows.append(((reviewer.id, paper.id), (*r_cells, *p_cells, score)))
     rows.sort(key=lambda item: item[0])
-    out = io.StringIO()
-    writer = csv.writer(out, lineterminator="\n")
-    writer.writerow(_PAPER_COLUMNS if by == "paper" else _REVIEWER_COLUMNS)
-    writer.writerows(cells for _, cells in rows)
+    header = _PAPER_COLUMNS if by == "paper" else _REVIEWER_COLUMNS
     try:
-        atomic_write_text(path, out.getvalue())
+        write_csv(path, header, [cells for _, cells in rows], bom=bom)
     except OSError as error:
         raise InputError([f"{path}: cannot write ({error.strerror or error})"]) from None
     return len(rows)

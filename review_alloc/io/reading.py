@@ -2,6 +2,13 @@
 
 Every problem is reported as `"<file>: line N: column 'c': <what is wrong>"` (the header is
 line 1); a file keeps at most `MAX_LINES_PER_FILE` messages and counts the rest.
+
+Text is read as the session stores it (`model.text`): the whole file is NFC-normalised, so ids
+match across files whatever form an editor wrote; the cells of matched columns (ids, e-mail
+addresses, institutions, topics) are refused when they hold an invisible or control
+character; free text (titles, names, reasons) is cleaned by the document models. Counts are
+whole numbers up to `MAX_COUNT`, scores finite numbers up to `MAX_SCORE`. A cell that
+`io.cells.safe_cell` marked with a leading quote is read back without it.
 """
 
 from __future__ import annotations
@@ -15,8 +22,14 @@ from collections.abc import Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from review_alloc.model import MAX_LINES_PER_FILE
+from review_alloc.io.cells import unmarked_cell
+from review_alloc.model import (
+    MAX_COUNT,
+    MAX_LINES_PER_FILE,
+    MAX_SCORE,
+)
 from review_alloc.model.base import check_email
+from review_alloc.model.text import nfc
 
 _WHOLE = re.compile(r"\+?[0-9]+")
 _TRUE = frozenset({"yes", "y", "true", "1"})
@@ -69,6 +82,9 @@ class FileSpec:
     kind: str
     required: tuple[str, ...]
     optional: tuple[str, ...]
+    matched: frozenset[str] = frozenset()
+    """Columns whose text rules compare (ids, e-mail, institutions, topics): invisible and
+    control characters are refused there (see `model.text`)."""
 
     @property
     def columns(self) -> tuple[str, ...]:
@@ -84,9 +100,15 @@ class Header:
     width: int
 
     def cell(self, row: list[str], column: str) -> str:
-        """The stripped cell of `column`, or "" when the file has no such column."""
+        """The stripped cell of `column` (without a `safe_cell` quote), or "" when the file has
+        no such column."""
         at = self.position.get(column)
-        return "" if at is None else row[at].strip()
+        return "" if at is None else unmarked_cell(row[at].strip())
+
+
+def shown(text: str, limit: int = 40) -> str:
+    """`repr(text)`, cut short for a message when the cell is long."""
+    return repr(text) if len(text) <= limit else f"{text[:limit]!r}... ({len(text)} characters)"
 
 
 def read_text(path: str | os.PathLike[str], problems: FileProblems) -> str | None:
@@ -105,7 +127,7 @@ def read_text(path: str | os.PathLike[str], problems: FileProblems) -> str | Non
     if data.startswith(b"\xef\xbb\xbf"):
         data = data[3:]
     try:
-        return data.decode("utf-8")
+        return nfc(data.decode("utf-8"))
     except UnicodeDecodeError as error:
         line = data.count(b"\n", 0, error.start) + 1
         problems.add(
@@ -199,13 +221,19 @@ def read_header(
     return Header(position, len(row)) if usable else None
 
 
-def whole_number(text: str, minimum: int) -> int | None:
-    """An optional whole number >= minimum; "" gives None."""
+def whole_number(text: str, minimum: int, maximum: int = MAX_COUNT) -> int | None:
+    """An optional whole number from `minimum` to `maximum`; "" gives None."""
     if not text:
         return None
-    if not _WHOLE.fullmatch(text) or int(text) < minimum:
+    if not _WHOLE.fullmatch(text):
+        raise CellError(f"{shown(text)} is not a whole number >= {minimum}")
+    # Compared as digits first: Python refuses to convert very long digit strings at all.
+    digits = text.lstrip("+").lstrip("0") or "0"
+    if len(digits) > len(str(maximum)) or int(digits) > maximum:
+        raise CellError(f"{shown(text)} is above {maximum}, the most a count may be")
+    if int(digits) < minimum:
         raise CellError(f"{text!r} is not a whole number >= {minimum}")
-    return int(text)
+    return int(digits)
 
 
 def yes_no(text: str) -> bool | None:
@@ -217,7 +245,7 @@ def yes_no(text: str) -> bool | None:
         return True
     if folded in _FALSE:
         return False
-    raise CellError(f"{text!r} is not yes or no (true/false, y/n and 1/0 work too)")
+    raise CellError(f"{shown(text)} is not yes or no (true/false, y/n and 1/0 work too)")
 
 
 def listing(text: str) -> list[str]:
@@ -241,17 +269,19 @@ def email(text: str) -> str:
 
 
 def score(text: str) -> float:
-    """A score: a finite number >= 0."""
+    """A score: a finite number from 0 to `MAX_SCORE`."""
     try:
         value = float(text)
     except ValueError:
         raise CellError(
-            f"{text!r} is not a number >= 0" if text else "empty; every row needs a score"
+            f"{shown(text)} is not a number >= 0" if text else "empty; every row needs a score"
         ) from None
     if not math.isfinite(value):
         raise CellError(f"{text!r} is not a finite number")
     if value < 0:
         raise CellError(f"{text!r} is not a number >= 0")
+    if value > MAX_SCORE:
+        raise CellError(f"{shown(text)} is above {MAX_SCORE:g}, the highest score allowed")
     return value
 
 

@@ -25,9 +25,11 @@ from review_alloc.io.reading import (
     records,
     score,
 )
-from review_alloc.model import ScoreTable
+from review_alloc.model import MAX_SCORE, ScoreTable, matched_text_problem
 
-SCORES = FileSpec("scores", ("reviewer_id", "paper_id", "score"), ())
+SCORES = FileSpec(
+    "scores", ("reviewer_id", "paper_id", "score"), (), frozenset({"reviewer_id", "paper_id"})
+)
 
 
 class _NeedsDiagnosis(Exception):
@@ -87,7 +89,7 @@ def _fast(
     v = np.frombuffer(values, dtype=np.float64).copy()
     if len(v) == 0:
         return r, p, v
-    if r.min() < 0 or p.min() < 0 or not np.isfinite(v).all() or v.min() < 0:
+    if r.min() < 0 or p.min() < 0 or not np.isfinite(v).all() or v.min() < 0 or v.max() > MAX_SCORE:
         return None
     # The key order is the score table's own row order, so the table need not sort again.
     keys = r.astype(np.int64) * max(len(papers), 1) + p
@@ -124,7 +126,11 @@ def _diagnose(
             ("reviewer_id", reviewer, reviewers, "reviewer"),
             ("paper_id", paper, papers, "paper"),
         ):
-            if not key:
+            problem = matched_text_problem(key)
+            if problem is not None:
+                problems.add(problem, line=line, column=column)
+                good = False
+            elif not key:
                 problems.add(f"empty; every row needs a {noun} id", line=line, column=column)
                 good = False
             elif index is not None and key not in index:

@@ -1,30 +1,26 @@
-"""Write a session's data back out as the four CSV files that `import_csv` reads."""
+"""Write a session's data back out as the four CSV files that `import_csv` reads.
+
+Cells are spreadsheet-safe (`io.cells`); the importer removes the quote `safe_cell` adds, so
+the files read back to the same session.
+"""
 
 from __future__ import annotations
 
-import csv
-import io
 from pathlib import Path
 
+from review_alloc.io.cells import csv_text
 from review_alloc.model import Session, atomic_write_text
-
-
-def _table(header: list[str], rows: list[list[object]]) -> str:
-    buffer = io.StringIO()
-    writer = csv.writer(buffer, lineterminator="\n")
-    writer.writerow(header)
-    writer.writerows(rows)
-    return buffer.getvalue()
 
 
 def _number(value: int | None) -> str:
     return "" if value is None else str(value)
 
 
-def write_session_csv(session: Session, folder: Path) -> list[Path]:
-    """Write papers.csv, reviewers.csv, conflicts.csv and scores.csv into `folder`."""
+def write_session_csv(session: Session, folder: Path, *, bom: bool = False) -> list[Path]:
+    """Write papers.csv, reviewers.csv, conflicts.csv and scores.csv into `folder` (with a
+    UTF-8 byte-order mark each when `bom`)."""
     folder.mkdir(parents=True, exist_ok=True)
-    papers = _table(
+    papers = csv_text(
         ["paper_id", "title", "topics", "reviews", "min_reviews", "authors", "institutions"],
         [
             [
@@ -38,8 +34,9 @@ def write_session_csv(session: Session, folder: Path) -> list[Path]:
             ]
             for p in session.papers
         ],
+        bom=bom,
     )
-    reviewers = _table(
+    reviewers = csv_text(
         ["reviewer_id", "name", "email", "institution", "topics", "cap", "floor", "senior"],
         [
             [
@@ -54,20 +51,23 @@ def write_session_csv(session: Session, folder: Path) -> list[Path]:
             ]
             for r in session.reviewers
         ],
+        bom=bom,
     )
-    conflicts = _table(
+    conflicts = csv_text(
         ["reviewer_id", "paper_id", "reason"],
         [[c.reviewer, c.paper, c.reason] for c in session.conflicts],
+        bom=bom,
     )
     table = session.scores
-    scores = _table(
+    scores = csv_text(
         ["reviewer_id", "paper_id", "score"],
         [
-            [session.reviewers[j].id, session.papers[i].id, repr(float(v))]
+            [session.reviewers[j].id, session.papers[i].id, float(v)]
             for j, i, v in zip(
                 table.reviewer.tolist(), table.paper.tolist(), table.value.tolist(), strict=True
             )
         ],
+        bom=bom,
     )
     written = []
     for stem, text in (

@@ -22,19 +22,23 @@ from review_alloc.io.reading import (
     whole_number,
     yes_no,
 )
-from review_alloc.model import Conflict, Paper, Policy, Reviewer
+from review_alloc.model import Conflict, Paper, Policy, Reviewer, matched_text_problem
 
 PAPERS = FileSpec(
     "papers",
     ("paper_id",),
     ("title", "topics", "reviews", "min_reviews", "authors", "institutions"),
+    frozenset({"paper_id", "topics", "authors", "institutions"}),
 )
 REVIEWERS = FileSpec(
     "reviewers",
     ("reviewer_id",),
     ("name", "email", "institution", "topics", "cap", "floor", "senior"),
+    frozenset({"reviewer_id", "email", "institution", "topics"}),
 )
-CONFLICTS = FileSpec("conflicts", ("reviewer_id", "paper_id"), ("reason",))
+CONFLICTS = FileSpec(
+    "conflicts", ("reviewer_id", "paper_id"), ("reason",), frozenset({"reviewer_id", "paper_id"})
+)
 
 _PAPER_COLUMN = {"id": "paper_id"}
 _REVIEWER_COLUMN = {"id": "reviewer_id"}
@@ -60,14 +64,26 @@ class _Row:
     cells: list[str]
     line: int
     problems: FileProblems
+    matched: frozenset[str]
     good: bool = True
+    refused: set[str] = field(default_factory=set)
 
     def text(self, column: str) -> str:
-        return self.header.cell(self.cells, column)
+        """The cell; one of a matched column is refused (once) for an invisible character."""
+        text = self.header.cell(self.cells, column)
+        if column in self.matched and column not in self.refused:
+            problem = matched_text_problem(text)
+            if problem is not None:
+                self.refused.add(column)
+                self.fail(column, problem)
+        return text
 
     def read(self, column: str, parse: Callable[[str], T]) -> T | None:
+        text = self.text(column)
+        if column in self.refused:
+            return None
         try:
-            return parse(self.text(column))
+            return parse(text)
         except CellError as error:
             self.problems.add(str(error), line=self.line, column=column)
             self.good = False
@@ -140,7 +156,7 @@ def read_papers(
     header, rows, _ = opened
     found = Entities()
     for line, cells in data_rows(rows, header, problems):
-        row = _Row(header, cells, line, problems)
+        row = _Row(header, cells, line, problems, PAPERS.matched)
         key = _register(row, found, "paper_id", "paper")
         reviews, reviews_read = _read_counted(row, problems, "reviews", 1)
         minimum = row.read("min_reviews", lambda t: whole_number(t, 0))
@@ -174,7 +190,7 @@ def read_reviewers(
     header, rows, _ = opened
     found = Entities()
     for line, cells in data_rows(rows, header, problems):
-        row = _Row(header, cells, line, problems)
+        row = _Row(header, cells, line, problems, REVIEWERS.matched)
         key = _register(row, found, "reviewer_id", "reviewer")
         cap, cap_read = _read_counted(row, problems, "cap", 0)
         floor = row.read("floor", lambda t: whole_number(t, 0))
@@ -201,6 +217,8 @@ def read_reviewers(
 
 def _known(row: _Row, column: str, noun: str, index: dict[str, int] | None) -> str | None:
     key = row.text(column)
+    if column in row.refused:
+        return None
     if not key:
         row.fail(column, f"empty; every row needs a {noun} id")
         return None
@@ -233,7 +251,7 @@ def read_conflicts(
     header, rows, _ = opened
     first: dict[tuple[str, str], int] = {}
     for line, cells in data_rows(rows, header, problems):
-        row = _Row(header, cells, line, problems)
+        row = _Row(header, cells, line, problems, CONFLICTS.matched)
         reviewer = _known(row, "reviewer_id", "reviewer", reviewers)
         paper = _known(row, "paper_id", "paper", papers)
         if reviewer is None or paper is None:

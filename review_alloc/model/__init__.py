@@ -11,6 +11,8 @@ from review_alloc.model.errors import (
     validation_error_lines,
 )
 from review_alloc.model.events import Action, Event
+from review_alloc.model.history import HistoryError
+from review_alloc.model.limits import MAX_COUNT, MAX_SCORE
 from review_alloc.model.plans import Assignment, Plan, PlanFigures
 from review_alloc.model.policy import DEFAULT_PUBLIC_MAIL_DOMAINS, ConflictRules, Policy
 from review_alloc.model.scores import ENCODING as SCORE_ENCODING
@@ -20,21 +22,26 @@ from review_alloc.model.storage import (
     atomic_write_bytes,
     atomic_write_text,
     load_session,
+    remove_leftovers,
     save_session,
     session_bytes,
     session_json_schema,
 )
+from review_alloc.model.text import free_text, matched_text, matched_text_problem
 
 __all__ = [
     "DEFAULT_PUBLIC_MAIL_DOMAINS",
     "FORMAT_VERSION",
+    "MAX_COUNT",
     "MAX_LINES_PER_FILE",
+    "MAX_SCORE",
     "SCORE_ENCODING",
     "Action",
     "Assignment",
     "Conflict",
     "ConflictRules",
     "Event",
+    "HistoryError",
     "InputError",
     "PairRule",
     "Paper",
@@ -47,7 +54,11 @@ __all__ = [
     "atomic_write_bytes",
     "atomic_write_text",
     "capped_lines",
+    "free_text",
     "load_session",
+    "matched_text",
+    "matched_text_problem",
+    "remove_leftovers",
     "save_session",
     "session_bytes",
     "session_json_schema",

@@ -8,7 +8,16 @@ from __future__ import annotations
 
 from pydantic import Field
 
-from review_alloc.model.base import DocumentModel, Email, EmailList, Identifier, Text, TextList
+from review_alloc.model.base import (
+    DocumentModel,
+    Email,
+    EmailList,
+    Identifier,
+    MatchedText,
+    Text,
+    TextList,
+)
+from review_alloc.model.limits import MAX_COUNT
 
 
 class Paper(DocumentModel):
@@ -17,14 +26,14 @@ class Paper(DocumentModel):
     id: Identifier
     title: Text = ""
     topics: TextList = Field(default_factory=list)
-    reviews: int | None = Field(default=None, ge=1)
+    reviews: int | None = Field(default=None, ge=1, le=MAX_COUNT)
     """Reviews wanted; `None` means the policy's."""
-    min_reviews: int | None = Field(default=None, ge=0)
+    min_reviews: int | None = Field(default=None, ge=0, le=MAX_COUNT)
     """Reviews required; `None` means the policy's, clamped to this paper's `reviews`."""
     authors: EmailList = Field(default_factory=list)
     """Authors' e-mail addresses, lower-cased; used to infer conflicts."""
     institutions: TextList = Field(default_factory=list)
-    senior_min: int | None = Field(default=None, ge=0)
+    senior_min: int | None = Field(default=None, ge=0, le=MAX_COUNT)
     """Senior reviewers wanted; `None` means the policy's, clamped to this paper's reviews."""
     withdrawn: bool = False
 
@@ -35,13 +44,13 @@ class Reviewer(DocumentModel):
     id: Identifier
     name: Text = ""
     email: Email = ""
-    institution: Text = ""
+    institution: MatchedText = ""
     topics: TextList = Field(default_factory=list)
-    cap: int | None = Field(default=None, ge=0)
+    cap: int | None = Field(default=None, ge=0, le=MAX_COUNT)
     """Most papers; `None` means the policy's."""
-    floor: int | None = Field(default=None, ge=0)
+    floor: int | None = Field(default=None, ge=0, le=MAX_COUNT)
     """Fewest papers; `None` means the policy's, clamped to this reviewer's cap."""
-    overload: int | None = Field(default=None, ge=0)
+    overload: int | None = Field(default=None, ge=0, le=MAX_COUNT)
     """Papers above cap this reviewer accepts when coverage needs them; `None`: the policy's
     `overload_allowance`."""
     senior: bool = False

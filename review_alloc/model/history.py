@@ -16,6 +16,9 @@ rather than held whole, since a large venue has millions of score rows and they 
 after import; whoever changes `Session.scores` rebases the root (`rebase_root_scores`).
 
 A revision's data is rebuilt by applying the deltas along its parent chain, from the root.
+A hand-edited or damaged history is refused at load where a cheap check can tell
+(`history_problems`: positions and lengths that do not fit), and a rebuild that still fails
+raises `HistoryError`, an `InputError` whose lines name the revision, never an IndexError.
 """
 
 from __future__ import annotations
@@ -23,25 +26,36 @@ from __future__ import annotations
 import zlib
 from dataclasses import dataclass, replace
 from datetime import datetime
-from typing import Generic, TypeVar
+from typing import Annotated, Generic, TypeVar
 
 import numpy as np
 from pydantic import Field, field_validator
 
 from review_alloc.model.base import DocumentModel
 from review_alloc.model.entities import Conflict, PairRule, Paper, Reviewer
+from review_alloc.model.errors import InputError
 from review_alloc.model.plans import Assignment, Plan, PlanFigures
 from review_alloc.model.policy import Policy
 from review_alloc.model.scores import ScoreTable
 
 Item = TypeVar("Item", Paper, Reviewer, Conflict, PairRule)
 
+_LIST_FIELDS = ("papers", "reviewers", "conflicts", "pins", "blocks")
+
+
+class HistoryError(InputError, ValueError):
+    """A revision's plan or data cannot be rebuilt from the stored history.
+
+    An `InputError` (its lines name the revision and the part that is broken) and, for callers
+    that catch the ValueError a rebuild raised before, a `ValueError` too.
+    """
+
 
 class ListDelta(DocumentModel, Generic[Item]):
     """A list as the one before it cut or grown to `length`, with the entries at `changed` new."""
 
     length: int = Field(ge=0)
-    changed: list[tuple[int, Item]] = Field(default_factory=list)
+    changed: list[tuple[Annotated[int, Field(ge=0)], Item]] = Field(default_factory=list)
 
     @classmethod
     def between(cls, old: list[Item], new: list[Item]) -> ListDelta[Item] | None:
@@ -59,6 +73,9 @@ class ListDelta(DocumentModel, Generic[Item]):
         """The list this delta describes, given the list it was taken against."""
         if any(k >= self.length for k, _ in self.changed):
             raise ValueError("a changed position lies beyond the list's length")
+        if self.length > len(old) + len(self.changed):
+            # Checked before the list is built: a damaged length must not allocate the memory.
+            raise ValueError("the delta leaves a position of the list empty")
         out: list[Item | None] = [*old[: self.length], *[None] * max(self.length - len(old), 0)]
         for k, item in self.changed:
             out[k] = item
@@ -241,7 +258,13 @@ class Revision(DocumentModel):
         return value
 
     def plan(self, data: SessionData) -> Plan:
-        """The revision's plan, given its own data (see `restore_data`)."""
+        """The revision's plan, given its own data (see `restore_data`); HistoryError when the
+        stored assignments do not fit that data."""
+        problems = _position_problems(
+            "assignments", self.assignments, len(data.reviewers), len(data.papers)
+        )
+        if problems:
+            raise HistoryError([f"revision {self.number}: {line}" for line in problems])
         reviewer = self.assignments.reviewer.astype(np.int64)
         paper = self.assignments.paper.astype(np.int64)
         value = pair_scores(data.scores, reviewer, paper)
@@ -272,22 +295,106 @@ class Revision(DocumentModel):
 
 
 def restore_data(revisions: list[Revision], number: int, current_scores: ScoreTable) -> SessionData:
-    """Rebuild the data of revision `number` from the deltas along its parent chain."""
-    by_number = {r.number: r for r in revisions}
-    chain: list[Revision] = []
+    """Rebuild the data of revision `number` from the deltas along its parent chain.
+
+    Raises `HistoryError` naming the revision when the history cannot give it back.
+    """
+    position = {r.number: k for k, r in enumerate(revisions)}
+    chain: list[int] = []
     at: int | None = number
     while at is not None:
-        if at not in by_number:
-            raise KeyError(f"revision {at} is not in the history")
-        if len(chain) > len(by_number):
-            raise ValueError("the revision parents form a loop")
-        chain.append(by_number[at])
-        at = by_number[at].parent
+        if at not in position:
+            raise HistoryError([f"revision {at} is not in the history"])
+        if len(chain) > len(position):
+            raise HistoryError([f"revision {number}: the revision parents form a loop"])
+        chain.append(position[at])
+        at = revisions[position[at]].parent
     data: SessionData | None = None
-    for revision in reversed(chain):
-        data = revision.data.apply(data, current_scores)
-    assert data is not None
+    for k in reversed(chain):
+        try:
+            data = revisions[k].data.apply(data, current_scores)
+        except ValueError as error:
+            raise HistoryError([f"revisions.{k}.data: {error}"]) from None
+        problems = _position_problems("scores", data.scores, len(data.reviewers), len(data.papers))
+        if problems:
+            raise HistoryError([f"revisions.{k}.data.{line}" for line in problems])
+    if data is None:
+        raise HistoryError([f"revision {number} is not in the history"])
     return data
+
+
+def _position_problems(field: str, table: ScoreTable, reviewers: int, papers: int) -> list[str]:
+    """Lines for rows of `table` whose reviewer or paper position lies outside the lists."""
+    problems = []
+    for column, count, noun in (
+        (table.reviewer, reviewers, "reviewer"),
+        (table.paper, papers, "paper"),
+    ):
+        if len(column) and int(column.max()) >= count:
+            row = int(np.argmax(column >= count))
+            problems.append(
+                f"{field}: row {row}: {noun} position {int(column[row])} is out of range; "
+                f"the revision has {count} {noun}s"
+            )
+    return problems
+
+
+def history_problems(revisions: list[Revision]) -> list[str]:
+    """Cheap structural checks of stored revisions, as `revisions.K...: message` lines.
+
+    Follows each revision's list lengths from its parent (which must come earlier; the session
+    checks that) and refuses positions that do not fit: a changed entry beyond its list, a new
+    position left empty, an assignment or added score row naming a paper or reviewer the
+    revision does not have, a first revision without its policy. Score digests are checked on
+    rebuild.
+    """
+    problems: list[str] = []
+    lengths: dict[int, dict[str, int]] = {}
+    for k, revision in enumerate(revisions):
+        data = revision.data
+        if revision.parent is None:
+            before = dict.fromkeys(_LIST_FIELDS, 0)
+            if data.policy is None:
+                problems.append(f"revisions.{k}.data.policy: the first revision must hold it")
+        elif revision.parent in lengths:
+            before = lengths[revision.parent]
+        else:
+            continue
+        after = dict(before)
+        for name in _LIST_FIELDS:
+            delta: ListDelta | None = getattr(data, name)
+            if delta is None:
+                continue
+            given = {at for at, _ in delta.changed}
+            beyond = [at for at in given if at >= delta.length]
+            if beyond:
+                problems.append(
+                    f"revisions.{k}.data.{name}: position {min(beyond)} lies beyond the "
+                    f"length {delta.length}"
+                )
+            empty = next((at for at in range(before[name], delta.length) if at not in given), None)
+            if empty is not None:
+                problems.append(
+                    f"revisions.{k}.data.{name}: position {empty} is new but holds no entry"
+                )
+            after[name] = delta.length
+        lengths[revision.number] = after
+        n_reviewers, n_papers = after["reviewers"], after["papers"]
+        where = f"revisions.{k}"
+        problems += [
+            f"{where}.{line}"
+            for line in _position_problems(
+                "assignments", revision.assignments, n_reviewers, n_papers
+            )
+        ]
+        if data.scores is not None:
+            # Removed rows name pairs of the table the delta is taken against (for a root, the
+            # session's current one); removing a pair that is not there is harmless.
+            problems += [
+                f"{where}.data.scores.{line}"
+                for line in _position_problems("added", data.scores.added, n_reviewers, n_papers)
+            ]
+    return problems
 
 
 def pair_scores(table: ScoreTable, reviewer: np.ndarray, paper: np.ndarray) -> np.ndarray:

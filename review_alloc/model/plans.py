@@ -7,11 +7,15 @@ import math
 from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
 from datetime import UTC, datetime
-from typing import Self
+from typing import Annotated, Self
 
 from pydantic import Field, field_validator, model_validator
 
 from review_alloc.model.base import DocumentModel, Identifier
+from review_alloc.model.limits import MAX_SCORE
+
+FiniteFloat = Annotated[float, Field(allow_inf_nan=False)]
+"""A float that is neither infinite nor NaN (JSON has neither; a hand-edited file may)."""
 
 
 class Assignment(DocumentModel):
@@ -19,7 +23,7 @@ class Assignment(DocumentModel):
 
     paper: Identifier
     reviewer: Identifier
-    score: float = Field(ge=0, allow_inf_nan=False)
+    score: float = Field(ge=0, le=MAX_SCORE, allow_inf_nan=False)
     lead: bool = False
     """This reviewer leads the paper's discussion (at most one lead per paper)."""
 
@@ -73,11 +77,11 @@ class Plan(DocumentModel):
     """When the plan was made, timezone-aware, stored in UTC."""
     checked: bool
     method: str
-    bottleneck: float | None = None
+    bottleneck: float | None = Field(default=None, ge=0, le=MAX_SCORE, allow_inf_nan=False)
     """Lowest score allowed for unpinned pairs, when the bottleneck option made the plan."""
-    loads_before_balance: list[int] | None = None
+    loads_before_balance: list[Annotated[int, Field(ge=0)]] | None = None
     """Per-reviewer loads (session order) of the same session planned with balance off."""
-    bound: dict[str, float] | None = None
+    bound: dict[str, FiniteFloat] | None = None
     """Tier values of a relaxation above this plan (it is optimal within them); `None` when the
     plan is proven optimal."""
 

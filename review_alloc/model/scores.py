@@ -18,6 +18,8 @@ from pydantic import GetCoreSchemaHandler, GetJsonSchemaHandler
 from pydantic.json_schema import JsonSchemaValue
 from pydantic_core import core_schema
 
+from review_alloc.model.limits import MAX_SCORE
+
 ENCODING = "zlib+base64, little-endian int32/int32/float64"
 """The one encoding this version writes and reads, recorded in the document."""
 
@@ -56,11 +58,12 @@ def _value_column(data: Any) -> np.ndarray:
     if array.dtype.kind not in "iuf":
         raise ValueError(f"value: expected numbers, got {array.dtype}")
     array = array.astype(np.float64, copy=False)
-    bad = ~np.isfinite(array) | (array < 0)
+    bad = ~np.isfinite(array) | (array < 0) | (array > MAX_SCORE)
     if bad.any():
         row = int(np.argmax(bad))
         raise ValueError(
-            f"value: row {row} is {float(array[row])!r}; a score must be a finite number >= 0"
+            f"value: row {row} is {float(array[row])!r}; a score must be a finite number "
+            f"from 0 to {MAX_SCORE:g}"
         )
     return array
 
@@ -79,8 +82,9 @@ class ScoreTable:
     """Scores as three parallel arrays: `reviewer`, `paper` (int32 positions), `value` (float64).
 
     `reviewer` and `paper` index `Session.reviewers` and `Session.papers`; rows are sorted by
-    (reviewer, paper), each pair appears at most once, and values are finite and >= 0 (higher is
-    a better fit). The arrays are read-only: a table is a value, changed by making a new one.
+    (reviewer, paper), each pair appears at most once, and values are finite, >= 0 and at most
+    `MAX_SCORE` (higher is a better fit). The arrays are read-only: a table is a value, changed
+    by making a new one.
     """
 
     __slots__ = ("_reviewer", "_paper", "_value", "_keys")
@@ -244,8 +248,8 @@ class ScoreTable:
                 f"encoding: {document['encoding']!r} is not supported; expected {ENCODING!r}"
             )
         count = document["count"]
-        if isinstance(count, bool) or not isinstance(count, int) or count < 0:
-            raise ValueError(f"count: {count!r} is not a whole number >= 0")
+        if isinstance(count, bool) or not isinstance(count, int) or not 0 <= count <= _INDEX_LIMIT:
+            raise ValueError(f"count: {count!r} is not a whole number from 0 to {_INDEX_LIMIT}")
         columns = [_unpack(name, document[name], count, dtype) for name, dtype in _COLUMNS]
         return cls(*columns)
 

@@ -18,7 +18,7 @@ from pydantic import Field, PrivateAttr, model_validator
 from review_alloc.model.base import DocumentModel, Identifier
 from review_alloc.model.entities import Conflict, PairRule, Paper, Reviewer
 from review_alloc.model.events import Event
-from review_alloc.model.history import Revision
+from review_alloc.model.history import Revision, history_problems
 from review_alloc.model.plans import Plan
 from review_alloc.model.policy import Policy
 from review_alloc.model.scores import ScoreTable
@@ -145,7 +145,7 @@ class Session(DocumentModel):
             numbers.add(rev.number)
         if self.revision is not None and self.revision not in numbers:
             problems.append(f"revision: {self.revision} is not in the history")
-        return problems
+        return problems + history_problems(self.revisions)
 
     @staticmethod
     def _unique_ids(field: str, noun: str, ids: list[str], problems: list[str]) -> dict[str, int]:
