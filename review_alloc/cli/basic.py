@@ -3,12 +3,14 @@
 from __future__ import annotations
 
 import argparse
+import sys
 from collections.abc import Callable
 from pathlib import Path
 from typing import TYPE_CHECKING
 
 from review_alloc.cli.common import (
     EXIT_OK,
+    add_output_options,
     emit_json,
     positive,
     prepare_solver,
@@ -57,8 +59,11 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
 
     p = sub.add_parser("export", help="write the plan as CSV")
     p.add_argument("session", type=Path)
-    p.add_argument("--to", required=True, type=Path, dest="target", help="CSV file to write")
+    p.add_argument(
+        "--to", required=True, dest="target", help="CSV file to write ('-': standard output)"
+    )
     p.add_argument("--by", choices=("paper", "reviewer"), default="paper")
+    add_output_options(p)
 
     sub.add_parser("schema", help="print the session document's JSON Schema")
     p = sub.add_parser("demo", help="plan the built-in demo session and print its summary")
@@ -267,8 +272,13 @@ def _cmd_demo(args: argparse.Namespace) -> int:
 def _cmd_export(args: argparse.Namespace) -> int:
     from review_alloc.workspace import Workspace
 
-    rows = Workspace.open(args.session).export(args.target, by=args.by)
-    print(f"{args.target}: {rows} assignments, one row each, by {args.by}")
+    ws = Workspace.open(args.session)
+    if args.target == "-":
+        sys.stdout.write(ws.export_text(args.by, bom=args.bom))
+        return EXIT_OK
+    target = Path(args.target)
+    rows = ws.export(target, by=args.by, force=args.force, bom=args.bom)
+    print(f"{target}: {rows} assignments, one row each, by {args.by}")
     return EXIT_OK
 
 

@@ -9,15 +9,13 @@ leaves the file as it was.
 from __future__ import annotations
 
 import argparse
-import csv
-import io
 import math
+import sys
 from collections.abc import Callable
 from pathlib import Path
 
-from review_alloc.cli.common import EXIT_OK, emit_json, positive, whole
-from review_alloc.model import InputError, Paper, Reviewer, atomic_write_text
-from review_alloc.plan.diff import NotifyRow
+from review_alloc.cli.common import EXIT_OK, add_output_options, emit_json, positive, whole
+from review_alloc.model import InputError, Paper, Reviewer
 from review_alloc.workspace import Workspace, session_lock
 
 Handler = Callable[[argparse.Namespace], int]
@@ -113,7 +111,10 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
     p = sub.add_parser("notify", help="write who to tell about changed assignments (CSV)")
     p.add_argument("session", type=Path)
     p.add_argument("--since", required=True, type=positive, metavar="REV")
-    p.add_argument("--to", required=True, type=Path, dest="target", metavar="FILE.csv")
+    p.add_argument(
+        "--to", required=True, dest="target", metavar="FILE.csv", help="'-': standard output"
+    )
+    add_output_options(p)
     p.add_argument("--json", action="store_true", help="print one JSON object")
     handlers: dict[str, Handler] = {
         "withdraw": _cmd_withdraw,
@@ -361,29 +362,25 @@ def _cmd_undo(args: argparse.Namespace) -> int:
 
 def _cmd_notify(args: argparse.Namespace) -> int:
     ws = Workspace.open(args.session)
-    rows = ws.notify_rows(args.since)
-    buffer = io.StringIO()
-    writer = csv.writer(buffer, lineterminator="\n")
-    writer.writerow(NotifyRow.HEADER)
-    for row in rows:
-        writer.writerow(row.cells())
-    try:
-        atomic_write_text(args.target, buffer.getvalue())
-    except OSError as error:
-        raise InputError([f"{args.target}: cannot write ({error.strerror or error})"]) from None
+    if args.target == "-":
+        sys.stdout.write(ws.notify_text(args.since, bom=args.bom))
+        return EXIT_OK
+    target = Path(args.target)
+    count = ws.write_notices(args.since, target, force=args.force, bom=args.bom)
+    _, rows = ws.notify_table(args.since)
     if args.json:
         emit_json(
             {
                 "session": ws.session.name,
                 "since": args.since,
                 "revision": ws.session.revision,
-                "to": str(args.target),
-                "reviewers": [r.reviewer for r in rows],
+                "to": str(target),
+                "reviewers": [row[0] for row in rows],
             }
         )
     else:
         print(
-            f"{args.target}: {len(rows)} reviewers to tell about changes from revision "
+            f"{target}: {count} reviewers to tell about changes from revision "
             f"{args.since} to {ws.session.revision}"
         )
     return EXIT_OK

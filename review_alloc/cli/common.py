@@ -39,6 +39,20 @@ def emit_json(payload: dict[str, Any]) -> None:
     sys.stdout.write(json.dumps(payload, indent=2, ensure_ascii=False) + "\n")
 
 
+def add_output_options(parser: argparse.ArgumentParser) -> None:
+    """`--force` and `--bom` for a command that writes a CSV file."""
+    parser.add_argument(
+        "--force",
+        action="store_true",
+        help="replace an existing file (a session file is never replaced)",
+    )
+    parser.add_argument(
+        "--bom",
+        action="store_true",
+        help="start the CSV with a UTF-8 byte-order mark (for spreadsheets that need one)",
+    )
+
+
 def prepare_solver() -> None:
     """Compile the kernels on a cold machine, saying so once on standard error."""
     from review_alloc.workspace import prepare_solver as prepare

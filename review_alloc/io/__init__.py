@@ -1,7 +1,7 @@
 """CSV import with row-level errors, and exports of a plan. Nothing here plans anything."""
 
 from review_alloc.io.cells import csv_text, safe_cell, write_csv
-from review_alloc.io.export import export_plan_csv
+from review_alloc.io.export import export_plan_csv, plan_table, write_table
 from review_alloc.io.importer import import_csv
 from review_alloc.io.reading import FileSpec
 from review_alloc.io.score_rows import SCORES
@@ -16,6 +16,8 @@ __all__ = [
     "csv_text",
     "export_plan_csv",
     "import_csv",
+    "plan_table",
     "safe_cell",
     "write_csv",
+    "write_table",
 ]

@@ -236,15 +236,83 @@ class FilesMixin(WorkspaceBase):
         elif found is not None:
             raise InputError([f"{target}: already exists; choose another file name"])
 
-    def export(self, target: Path, by: Literal["paper", "reviewer"] = "paper") -> int:
+    def export(
+        self,
+        target: Path,
+        by: Literal["paper", "reviewer"] = "paper",
+        *,
+        force: bool = False,
+        bom: bool = False,
+    ) -> int:
         """Write the current plan as CSV, one row per assignment; returns the rows written.
 
-        Refused when the plan stored in the file broke a rule (it is never exported)."""
-        from review_alloc.io import export_plan_csv
+        Refused when the plan stored in the file broke a rule (it is never exported), and where
+        `writable` refuses the target."""
+        from review_alloc.io import plan_table, write_table
 
         self.refuse_broken_plan()
-        return export_plan_csv(self.session, target, by=by)
+        header, rows = plan_table(self.session, by)
+        self.writable(target, force=force)
+        write_table(target, header, rows, bom=bom)
+        return len(rows)
 
+    def export_text(self, by: Literal["paper", "reviewer"] = "paper", *, bom: bool = False) -> str:
+        """The plan's CSV as text (for standard output)."""
+        from review_alloc.io import csv_text, plan_table
+
+        self.refuse_broken_plan()
+        header, rows = plan_table(self.session, by)
+        return csv_text(header, rows, bom=bom)
+
+    def notify_table(self, since: int) -> tuple[tuple[str, ...], list[tuple[str, ...]]]:
+        """(header, rows) of the reviewers whose list changed since revision `since`."""
+        from review_alloc.plan.diff import NotifyRow
+
+        rows = self.notify_rows(since)  # type: ignore[attr-defined]
+        return tuple(NotifyRow.HEADER), [tuple(r.cells()) for r in rows]
+
+    def notify_text(self, since: int, *, bom: bool = False) -> str:
+        """The notices since revision `since` as CSV text (for standard output)."""
+        from review_alloc.io import csv_text
+
+        header, rows = self.notify_table(since)
+        return csv_text(header, rows, bom=bom)
+
+    def write_notices(
+        self, since: int, target: Path, *, force: bool = False, bom: bool = False
+    ) -> int:
+        """Write the notices since revision `since` as a mail-merge CSV; returns the rows."""
+        from review_alloc.io import write_table
+
+        header, rows = self.notify_table(since)
+        self.writable(target, force=force)
+        write_table(target, header, rows, bom=bom)
+        return len(rows)
+
+    def writable(self, target: Path, *, force: bool = False) -> None:
+        """Refuse an output file that would destroy something: this session's own file or any
+        session document (always), another existing file unless `force`."""
+        if self.path is not None and os.path.realpath(target) == os.path.realpath(self.path):
+            raise InputError([f"{target}: this is the session's own file; write elsewhere"])
+        if not os.path.lexists(target):
+            return
+        if os.path.isdir(target):
+            raise InputError([f"{target}: is a folder; give a file name"])
+        if _is_session_document(target):
+            raise InputError([f"{target}: this is a session file; an export never replaces one"])
+        if not force:
+            raise InputError([f"{target}: already exists; add --force to replace it"])
+
+
+def _is_session_document(path: Path) -> bool:
+    """Whether a file looks like a review-alloc session (a JSON object with a format_version)."""
+    try:
+        with open(path, "rb") as handle:
+            head = handle.read(4096)
+    except OSError:
+        return False
+    text = head.decode("utf-8", errors="ignore").lstrip("\ufeff \t\r\n")
+    return text.startswith("{") and '"format_version"' in text
 
 def _redo(workspace: WorkspaceBase, step: Step) -> None:
     """Make one recorded step again on another workspace (plans are made anew there)."""

@@ -256,3 +256,35 @@ def test_ctrl_c_says_the_file_is_unchanged_and_exits_130(tmp_path: Path) -> None
     assert run.returncode == 130, err
     assert "interrupted: no file was changed" in err and "Traceback" not in err
     assert path.read_bytes() == before
+
+
+def test_writers_never_destroy_a_file(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    path = tmp_path / "s.json"
+    save_session(workshop(), path)
+    assert main(["plan", str(path)]) == 0
+    session_bytes = path.read_bytes()
+    other = tmp_path / "other.json"
+    save_session(workshop(), other)
+    other_bytes = other.read_bytes()
+    existing = tmp_path / "plan.csv"
+    existing.write_text("keep me\n")
+    capsys.readouterr()
+    # The session itself and any session document are never written over, even with --force.
+    for target in (path, other):
+        assert main(["export", str(path), "--to", str(target), "--force"]) == 1
+        assert "session" in capsys.readouterr().err
+    assert path.read_bytes() == session_bytes and other.read_bytes() == other_bytes
+    # Another existing file only with --force (as import does).
+    assert main(["export", str(path), "--to", str(existing)]) == 1
+    assert "--force" in capsys.readouterr().err and existing.read_text() == "keep me\n"
+    assert main(["notify", str(path), "--since", "1", "--to", str(existing)]) == 1
+    assert existing.read_text() == "keep me\n"
+    assert main(["export", str(path), "--to", str(existing), "--force"]) == 0
+    assert existing.read_text().startswith("paper_id,")
+    # '-' writes to standard output and touches no file.
+    capsys.readouterr()
+    assert main(["export", str(path), "--to", "-", "--by", "reviewer"]) == 0
+    out = capsys.readouterr().out
+    assert out.startswith("reviewer_id,") and len(out.splitlines()) > 10
+    assert main(["notify", str(path), "--since", "1", "--to", "-"]) == 0
+    assert capsys.readouterr().out.startswith("reviewer_id,")
