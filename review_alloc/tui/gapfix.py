@@ -248,7 +248,11 @@ class ExplainView(Widget):
                 out.append(f"  {pid}: {why}\n")
             out.append("  No fix lifts a conflict of interest or a block.\n")
         if kind is not None:
-            out.append("v previews this fix on a copy; a accepts it and plans again\n", style="dim")
+            out.append(
+                "v previews this fix on a copy; a accepts it (its plan becomes the next "
+                "revision)\n",
+                style="dim",
+            )
 
     def _preview_detail(self, out: Text, w: WhatIf) -> None:
         b, a = w.before.figures, w.after.figures
@@ -264,7 +268,10 @@ class ExplainView(Widget):
             f"  total score      {b.total_score:.2f} -> {a.total_score:.2f}\n"
             f"  {self._noun()}s short: {len(w.gaps_before)} -> {len(w.gaps_after)}\n"
         )
-        out.append("  press a to accept it\n", style="dim")
+        out.append(
+            "  press a to accept it: this plan becomes the next revision; ctrl+z takes it back\n",
+            style="dim",
+        )
 
     # -- events ---------------------------------------------------------------------------
 
