@@ -288,3 +288,36 @@ def test_writers_never_destroy_a_file(tmp_path: Path, capsys: pytest.CaptureFixt
     assert out.startswith("reviewer_id,") and len(out.splitlines()) > 10
     assert main(["notify", str(path), "--since", "1", "--to", "-"]) == 0
     assert capsys.readouterr().out.startswith("reviewer_id,")
+
+
+def test_reload_and_redo_keeps_both_sides_changes(tmp_path: Path) -> None:
+    path = tmp_path / "venue.json"
+    save_session(workshop(), path)
+    mine = Workspace.open(path)
+    theirs = Workspace.open(path)
+    theirs.withdraw_reviewer(theirs.session.reviewers[0].id, "their change")
+    theirs.save()
+    # My steps: a change, a plan, and a fix accepted from a preview.
+    mine.set_reviewer(mine.session.reviewers[1].id, cap=9, reason="mine")
+    mine.solve()
+    mine.block(mine.session.plan.assignments[0].reviewer, mine.session.plan.assignments[0].paper)
+    refreshed, refused = mine.reload_and_redo()
+    assert refused == []
+    s = refreshed.session
+    assert s.reviewers[0].withdrawn and s.reviewer_cap(1) == 9
+    assert [e.action for e in s.events] == ["withdraw-reviewer", "set-reviewer", "plan", "block"]
+    assert refreshed.save() == path
+    assert load_session(path).reviewers[0].withdrawn
+
+
+def test_a_step_the_newer_file_refuses_is_named(tmp_path: Path) -> None:
+    path = tmp_path / "venue.json"
+    save_session(workshop(), path)
+    mine = Workspace.open(path)
+    theirs = Workspace.open(path)
+    who = theirs.session.reviewers[0].id
+    theirs.withdraw_reviewer(who, "their change")
+    theirs.save()
+    mine.withdraw_reviewer(who, "my change too")
+    _, refused = mine.reload_and_redo()
+    assert refused and "already withdrawn" in refused[0] and refused[0].startswith("withdraw")
