@@ -154,11 +154,28 @@ def _table(header: str, rows: list[list[str]], data: st.DataObject) -> str:
     return "\n".join(lines) + "\n"
 
 
-@settings(
+_FEW = settings(
     max_examples=80, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
 )
+_MANY = settings(_FEW, max_examples=2000)
+
+
+@_FEW
 @given(data=st.data())
 def test_fuzzed_files_import_or_fail_with_placed_lines(tmp_path: Path, data: st.DataObject) -> None:
+    _import_fuzzed(tmp_path, data)
+
+
+@pytest.mark.large
+@_MANY
+@given(data=st.data())
+def test_many_fuzzed_files_import_or_fail_with_placed_lines(
+    tmp_path: Path, data: st.DataObject
+) -> None:
+    _import_fuzzed(tmp_path, data)
+
+
+def _import_fuzzed(tmp_path: Path, data: st.DataObject) -> None:
     def rows(width: int) -> list[list[str]]:
         n = data.draw(st.integers(0, 4))
         return [data.draw(st.lists(_CELL, min_size=width, max_size=width)) for _ in range(n)]

@@ -38,7 +38,7 @@ def _age(path: Path, seconds: float) -> None:
     os.utime(path, (then, then))
 
 
-def _version(k: int, size: int = 400) -> Session:
+def _version(k: int, size: int = 200) -> Session:
     """Version k of a session, large enough (a few hundred kB) that a save takes a moment."""
     base = make_session()
     extra = [Paper(id=f"V{k}-{n}", title="x" * 300) for n in range(size)]

@@ -220,13 +220,30 @@ def _check_load(tmp_path: Path, raw: bytes) -> None:
     session_bytes(loaded)  # what loads can be saved again
 
 
-@settings(
+_FEW = settings(
     max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
 )
+_MANY = settings(_FEW, max_examples=3000)
+
+
+@_FEW
 @given(data=st.data())
 def test_random_field_tampering_loads_or_is_refused(
     tmp_path: Path, document: dict[str, Any], data: st.DataObject
 ) -> None:
+    _tamper_fields(tmp_path, document, data)
+
+
+@pytest.mark.large
+@_MANY
+@given(data=st.data())
+def test_much_random_field_tampering_loads_or_is_refused(
+    tmp_path: Path, document: dict[str, Any], data: st.DataObject
+) -> None:
+    _tamper_fields(tmp_path, document, data)
+
+
+def _tamper_fields(tmp_path: Path, document: dict[str, Any], data: st.DataObject) -> None:
     changed = document
     for _ in range(data.draw(st.integers(1, 3))):
         path = data.draw(st.sampled_from(_paths(changed)))
@@ -234,13 +251,24 @@ def test_random_field_tampering_loads_or_is_refused(
     _check_load(tmp_path, json.dumps(changed).encode())
 
 
-@settings(
-    max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
-)
+@_FEW
 @given(data=st.data())
 def test_random_byte_damage_loads_or_is_refused(
     tmp_path: Path, document: dict[str, Any], data: st.DataObject
 ) -> None:
+    _damage_bytes(tmp_path, document, data)
+
+
+@pytest.mark.large
+@_MANY
+@given(data=st.data())
+def test_much_random_byte_damage_loads_or_is_refused(
+    tmp_path: Path, document: dict[str, Any], data: st.DataObject
+) -> None:
+    _damage_bytes(tmp_path, document, data)
+
+
+def _damage_bytes(tmp_path: Path, document: dict[str, Any], data: st.DataObject) -> None:
     raw = bytearray(json.dumps(document).encode())
     for _ in range(data.draw(st.integers(1, 4))):
         at = data.draw(st.integers(0, len(raw) - 1))
