@@ -16,6 +16,7 @@ from pathlib import Path
 
 from review_alloc.cli.common import EXIT_OK, add_output_options, emit_json, positive, whole
 from review_alloc.model import InputError, Paper, Reviewer
+from review_alloc.model.text import nfc
 from review_alloc.workspace import Workspace, session_lock
 
 Handler = Callable[[argparse.Namespace], int]
@@ -23,8 +24,8 @@ Handler = Callable[[argparse.Namespace], int]
 
 def _pair_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("session", type=Path)
-    p.add_argument("--reviewer", required=True, metavar="ID")
-    p.add_argument("--paper", required=True, metavar="ID")
+    p.add_argument("--reviewer", required=True, metavar="ID", type=nfc)
+    p.add_argument("--paper", required=True, metavar="ID", type=nfc)
     p.add_argument("--reason", default="", help="why (kept in the session's history)")
     p.add_argument("--json", action="store_true", help="print one JSON object")
 
@@ -32,8 +33,8 @@ def _pair_options(p: argparse.ArgumentParser) -> None:
 def _one_of_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("session", type=Path)
     who = p.add_mutually_exclusive_group(required=True)
-    who.add_argument("--reviewer", metavar="ID")
-    who.add_argument("--paper", metavar="ID")
+    who.add_argument("--reviewer", metavar="ID", type=nfc)
+    who.add_argument("--paper", metavar="ID", type=nfc)
     p.add_argument("--reason", default="", help="why (kept in the session's history)")
     p.add_argument("--json", action="store_true", help="print one JSON object")
 

@@ -236,10 +236,10 @@ def test_notify_writes_its_csv_atomically(
         raise OSError(28, "No space left on device")
 
     monkeypatch.setattr(os, "replace", broken)
-    assert main(["notify", str(small), "--since", "1", "--to", str(target)]) == 1
+    assert main(["notify", str(small), "--since", "1", "--to", str(target), "--force"]) == 1
     monkeypatch.undo()
     assert target.read_text() == "earlier list\n"
-    out = _json(capsys, ["notify", str(small), "--since", "1", "--to", str(target)])
+    out = _json(capsys, ["notify", str(small), "--since", "1", "--to", str(target), "--force"])
     assert who in out["reviewers"]
     header = target.read_text().splitlines()[0]
     assert header.startswith("reviewer_id,name,email,status,papers_added")
@@ -257,3 +257,20 @@ def test_history_and_diff_print_for_people(small: Path, capsys: pytest.CaptureFi
     assert main(["diff", str(small), "1", "2"]) == 0
     text = capsys.readouterr().out
     assert "revision 1 -> 2" in text and f"  {who}: +[] -[" in text
+
+
+def test_ids_typed_in_another_unicode_form_still_match(tmp_path: Path) -> None:
+    # A terminal may send "é" decomposed (NFD); the session stores ids composed (NFC).
+    import unicodedata
+
+    from review_alloc.model import Reviewer, save_session
+    from review_alloc.samples import workshop
+
+    s = workshop()
+    reviewers = [*s.reviewers, Reviewer(id="Ré-1", name="Ada Vennick", topics=[])]
+    path = tmp_path / "s.json"
+    save_session(s.model_copy(update={"reviewers": reviewers}), path)
+    typed = unicodedata.normalize("NFD", "Ré-1")
+    assert typed != "Ré-1"
+    assert main(["withdraw", str(path), "--reviewer", typed]) == 0
+    assert load_session(path).reviewers[-1].withdrawn

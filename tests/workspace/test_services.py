@@ -146,27 +146,36 @@ def test_two_writers_at_once_both_land(tmp_path: Path) -> None:
     # second wait for the first and then change the newer file, so no change is lost.
     path = tmp_path / "venue.json"
     save_session(workshop(), path)
-    ids = [r.id for r in load_session(path).reviewers]
+    start = load_session(path)
+    ids = [r.id for r in start.reviewers]
+    papers = [p.id for p in start.papers]
     root = Path(__file__).resolve().parents[2]
     env = {**os.environ, "PYTHONPATH": str(root)}
     code = "import sys; from review_alloc.cli import main; sys.exit(main(sys.argv[1:]))"
-    for round_ in range(10):
-        a, b = ids[2 * round_], ids[2 * round_ + 1]
+    for round_ in range(20):
+        commands = [
+            ["withdraw", str(path), "--reviewer", ids[round_]],
+            ["conflict", str(path), "--reviewer", ids[round_ + 1], "--paper", papers[round_],
+             "--reason", f"round {round_}"],
+        ]
         runs = [
             subprocess.Popen(
-                [sys.executable, "-c", code, "withdraw", str(path), "--reviewer", who],
+                [sys.executable, "-c", code, *argv],
                 env=env,
                 stdout=subprocess.DEVNULL,
                 stderr=subprocess.PIPE,
             )
-            for who in (a, b)
+            for argv in commands
         ]
         for run in runs:
             assert run.wait(timeout=120) == 0, run.stderr.read() if run.stderr else ""
     session = load_session(path)
-    gone = {r.id for r in session.reviewers if r.withdrawn}
-    assert gone == set(ids[:20])
-    assert sum(e.action == "withdraw-reviewer" for e in session.events) == 20
+    assert {r.id for r in session.reviewers if r.withdrawn} == set(ids[:20])
+    declared = {(c.reviewer, c.paper) for c in session.conflicts} - {
+        (c.reviewer, c.paper) for c in start.conflicts
+    }
+    assert declared == {(ids[k + 1], papers[k]) for k in range(20)}
+    assert len(session.events) == 40
 
 
 def test_a_save_never_overwrites_a_file_changed_on_disk(tmp_path: Path) -> None:
