@@ -7,7 +7,7 @@ import json
 import sys
 from typing import Any
 
-from review_alloc.model import Session
+from review_alloc.model import MAX_COUNT, Session
 from review_alloc.plan.cautions import PLAN_CAUTION as CAUTION
 
 EXIT_OK, EXIT_INPUT, EXIT_USAGE, EXIT_CHECK = 0, 1, 2, 3
@@ -31,6 +31,8 @@ def whole(text: str) -> int:
         raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
     if value < 0:
         raise argparse.ArgumentTypeError(f"{text!r} is negative; it must be >= 0")
+    if value > MAX_COUNT:
+        raise argparse.ArgumentTypeError(f"{text!r} is above {MAX_COUNT}, the most a count may be")
     return value
 
 

@@ -15,6 +15,7 @@ from pathlib import Path
 from typing import Any, TypeVar
 
 import numpy as np
+from pydantic import ValidationError
 
 from review_alloc.model import Action, Event, InputError, Paper, Plan, Reviewer, Session
 from review_alloc.model.history import SessionData, rebase_root_scores
@@ -235,13 +236,30 @@ class WorkspaceBase:
 
     def _with_reviewer(self, j: int, **changes: object) -> list[Reviewer]:
         reviewers = list(self.session.reviewers)
-        reviewers[j] = reviewers[j].model_copy(update=changes)
+        reviewers[j] = _validated(reviewers[j], f"reviewer {reviewers[j].id}", changes)
         return reviewers
 
     def _with_paper(self, i: int, **changes: object) -> list[Paper]:
         papers = list(self.session.papers)
-        papers[i] = papers[i].model_copy(update=changes)
+        papers[i] = _validated(papers[i], f"{self.noun} {papers[i].id}", changes)
         return papers
+
+
+E = TypeVar("E", Reviewer, Paper)
+
+
+def _validated(entity: E, who: str, changes: dict[str, object]) -> E:
+    """The entity with `changes`, validated like a loaded one (bounds, text rules), so that a
+    change can never save a file that would not load again."""
+    try:
+        return type(entity).model_validate({**entity.model_dump(), **changes})
+    except ValidationError as error:
+        raise ChangeRefused(
+            [
+                f"{who}: {'.'.join(str(x) for x in e['loc'])}: {e['msg']}"
+                for e in error.errors(include_url=False)
+            ]
+        ) from None
 
 
 def data_of(session: Session) -> SessionData:

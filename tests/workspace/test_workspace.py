@@ -122,3 +122,14 @@ def test_a_conflict_on_a_pinned_pair_releases_the_pin_and_says_so(planned: Works
     assert event.action == "declare-conflict" and "pin released" in event.describe()
     assert (a.reviewer, a.paper) not in {(p.reviewer, p.paper) for p in planned.session.pins}
     assert (a.reviewer, a.paper) not in _pairs(planned)
+
+
+def test_a_change_can_never_save_a_file_that_would_not_load(planned: Workspace) -> None:
+    # Every changed entity is validated like a loaded one (bounds of model/limits.py).
+    who = planned.session.reviewers[0].id
+    with pytest.raises(ChangeRefused, match="less than or equal to 10000"):
+        planned.set_reviewer(who, cap=10**20)
+    paper = planned.session.papers[0].id
+    with pytest.raises(ChangeRefused, match="less than or equal to 10000"):
+        planned.set_paper(paper, reviews=20_000)
+    assert planned.session.events[-1].action == "plan"
