@@ -1,4 +1,4 @@
-"""Import, save, load and plan at the largest venue size, with time and peak memory.
+"""Import, save, load, plan and reopen (the stored plan re-checked) at the largest venue size.
 
 Run `python benchmarks/io_scale.py` (about a minute; `--papers/--reviewers/--candidates` to
 resize). Each step runs in a fresh subprocess so that its peak resident memory is its own.
@@ -66,6 +66,15 @@ STEPS = {
         "t0 = time.perf_counter(); o = make_plan(s); t1 = time.perf_counter()\n"
         "extra = {'solve_s': t1 - t0, 'coverage': o.plan.figures.coverage,"
         " 'demand': o.plan.figures.demand}\n"
+        "from review_alloc.model import save_session\n"
+        "save_session(s.model_copy(update={'plan': o.plan}), F/'planned.json')\n"
+    ),
+    "open": (
+        "from review_alloc.model import load_session\n"
+        "from review_alloc.workspace import Workspace\n"
+        "t0 = time.perf_counter(); s = load_session(F/'planned.json'); t1 = time.perf_counter()\n"
+        "ws = Workspace(s); ws._recheck_stored_plan(); t2 = time.perf_counter()\n"
+        "extra = {'load_s': t1 - t0, 'recheck_s': t2 - t1, 'problems': len(ws.plan_problems)}\n"
     ),
 }
 
