@@ -90,12 +90,11 @@ def rule_instance(session: Session, earlier: Plan | None = None) -> RuleInstance
         ]
     )
     arr = np.array(pairs, dtype=np.int64).reshape(-1, 2)
-    before = (
-        set()
-        if earlier is None
-        else {(rid[a.reviewer], pid[a.paper]) for a in earlier.assignments
-            if a.reviewer in rid and a.paper in pid}
-    )
+    before = {
+        (rid[a.reviewer], pid[a.paper])
+        for a in (earlier.assignments if earlier is not None else [])
+        if a.reviewer in rid and a.paper in pid
+    }
     return RuleInstance(
         cap=cap,
         floor=np.minimum(floor, cap),
