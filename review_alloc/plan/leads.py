@@ -3,11 +3,12 @@
 Each paper takes exactly one lead, so giving every reviewer `max_leads` copies ("slots") turns
 the choice into a one-to-one assignment of papers to slots, which the Hungarian method solves
 exactly (scipy's `linear_sum_assignment`). The slot matrix is dense, so above
-`DENSE_LIMIT` entries (a large venue) the same choice is solved on the equivalent sparse
-network (source → reviewer, capacity `max_leads` → paper along assigned pairs → sink), one tier
-at a time, which is just as exact. The order is lexicographic: first as many papers as
-possible get a lead, then as many of them as possible get a senior lead, then the total score of
-the lead pairs is highest.
+`DENSE_LIMIT` entries (a large venue), or where its combined float64 costs would not be exact
+(huge scores), the same choice is solved on the equivalent sparse network (source → reviewer,
+capacity `max_leads` → paper along assigned pairs → sink), one tier at a time, which is just as
+exact; its score steps are made coarser only where huge scores would not fit int64, as the
+plan's own are. The order is lexicographic: first as many papers as possible get a lead, then as
+many of them as possible get a senior lead, then the total score of the lead pairs is highest.
 """
 
 from __future__ import annotations
@@ -45,14 +46,19 @@ class LeadChoice:
 def lead_costs(score_int: np.ndarray, n_papers: int) -> tuple[int, int]:
     """Weights (per lead, per senior lead) that make the assignment costs lexicographic: a lead
     outweighs any senior and score difference over all papers, a senior any score difference."""
-    per_senior = n_papers * (int(score_int.max(initial=0)) + 1) + 1
-    per_lead = n_papers * (per_senior + int(score_int.max(initial=0))) + 1
+    return _lead_weights(int(score_int.max(initial=0)), n_papers)
+
+
+def _lead_weights(top: int, n_papers: int) -> tuple[int, int]:
+    """`lead_costs` for score steps up to `top` (Python integers: they never overflow)."""
+    per_senior = n_papers * (top + 1) + 1
+    per_lead = n_papers * (per_senior + top) + 1
     return per_lead, per_senior
 
 
 def _dense_fits(top: int, n_papers: int) -> bool:
     """Whether the dense choice stays exact in float64 with score steps up to `top`."""
-    per_lead, per_senior = lead_costs(np.array([top], dtype=np.int64), n_papers)
+    per_lead, per_senior = _lead_weights(top, n_papers)
     # The assignment solver's duals are sums of up to n_papers costs; 4 is headroom.
     return 4 * n_papers * (per_lead + per_senior + top) < EXACT_FLOAT
 
@@ -64,8 +70,8 @@ def _flow_fits(top: int, n_papers: int, n_nodes: int) -> bool:
 
 
 def score_steps(score: np.ndarray, fits: Callable[[int], bool]) -> np.ndarray:
-    """Scores as integer steps for the lead choice: SCORE_RESOLUTION steps per unit, or the
-    finest coarser step at which `fits(largest step count)` holds (`fits(0)` must hold).
+    """Scores as integer steps for the sparse lead choice: SCORE_RESOLUTION steps per unit, or
+    the finest coarser step at which `fits(largest step count)` holds (`fits(0)` must hold).
 
     Like the plan's tier weights (`plan.weights.fitting_weights`), the count tiers (papers
     led, senior leads) stay exact and only ties between scores finer than a step are lost, so
@@ -132,8 +138,11 @@ def lead_mask_warm(
     senior = session.reviewer_senior_array()[reviewer]
     loads = np.bincount(reviewer, minlength=len(session.reviewers))
     slots = np.minimum(loads, limit)
-    if n_led * int(slots.sum()) > DENSE_LIMIT or not _dense_fits(0, n_led):
-        # The flow's nodes: source, two hubs, reviewers, papers with reviews, sink.
+    top = int(np.rint(float(score.max(initial=0.0)) * SCORE_RESOLUTION))
+    if n_led * int(slots.sum()) > DENSE_LIMIT or not _dense_fits(top, n_led):
+        # The flow solves the tiers one by one, so its costs are the score steps alone: full
+        # steps unless the scores are huge. The flow's nodes: source, two hubs, reviewers,
+        # papers with reviews, sink.
         n_nodes = 4 + len(session.reviewers) + n_led
         score_int = score_steps(score, lambda top: _flow_fits(top, n_led, n_nodes))
         chosen, state = _leads_by_flow(
@@ -148,7 +157,7 @@ def lead_mask_warm(
         )
         mask[chosen] = True
         return mask, state
-    score_int = score_steps(score, lambda top: _dense_fits(top, n_led))
+    score_int = np.rint(score * SCORE_RESOLUTION).astype(np.int64)
     per_lead, per_senior = lead_costs(score_int, n_led)
     gain = per_lead + per_senior * senior.astype(np.int64) + score_int
     people = np.flatnonzero(slots > 0)

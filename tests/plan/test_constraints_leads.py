@@ -321,8 +321,9 @@ def _milp_leads(session: Session, plan: Plan) -> tuple[int, int, float]:
     return int(round(found[0])), int(round(found[1])), found[2] * top
 
 
-def _huge_score_case(seed: int) -> tuple[Session, Plan]:
-    """Scores around 1e13 on 40 papers: the lead weights at 1/10,000 steps overflow int64."""
+def _huge_score_case(seed: int, scale: float = 1e13) -> tuple[Session, Plan]:
+    """Scores around `scale` on 40 papers: at 1e13 the dense choice's lead weights at 1/10,000
+    steps overflowed int64."""
     rng = np.random.default_rng(seed)
     n_r, n_p = 12, 40
     reviewers = [Reviewer(id=f"r{j}", senior=bool(rng.random() < 0.4)) for j in range(n_r)]
@@ -334,7 +335,7 @@ def _huge_score_case(seed: int) -> tuple[Session, Plan]:
         reviewers=reviewers,
     )
     pairs = [
-        (f"r{j}", f"p{i}", float(np.round(rng.uniform(0.5, 1.5) * 1e13)))
+        (f"r{j}", f"p{i}", float(np.round(rng.uniform(0.5, 1.5) * scale)))
         for i in range(n_p)
         for j in rng.choice(n_r, size=3, replace=False)
     ]
@@ -342,14 +343,10 @@ def _huge_score_case(seed: int) -> tuple[Session, Plan]:
     return session, plan_of(session, pairs)
 
 
-@pytest.mark.parametrize("dense", [True, False])
+@pytest.mark.parametrize("scale", [1e13, 1e17])
 @pytest.mark.parametrize("seed", range(3))
-def test_huge_scores_never_overflow_the_lead_choice(
-    seed: int, dense: bool, monkeypatch: pytest.MonkeyPatch
-) -> None:
-    session, plan = _huge_score_case(seed)
-    if not dense:
-        monkeypatch.setattr(leads, "DENSE_LIMIT", 0)
+def test_huge_scores_never_overflow_the_lead_choice(seed: int, scale: float) -> None:
+    session, plan = _huge_score_case(seed, scale)
     got = value(session, plan, pick_leads(session, plan).lead_of)
     # Reference: HiGHS (scipy.optimize.milp), papers led, then senior leads, then lead score.
     want = _milp_leads(session, plan)
@@ -365,6 +362,14 @@ def test_score_steps_stay_fine_where_they_fit_and_coarsen_where_not() -> None:
     assert leads.score_steps(score, lambda top: True).tolist() == [0, 2_500, 10_000]
     coarse = leads.score_steps(score * 1e13, lambda top: top <= 1_000)
     assert coarse.tolist() == [0, 250, 1_000]
+
+
+def test_the_dense_choice_is_kept_where_its_costs_are_exact() -> None:
+    # Scores in 0..1 on a few thousand papers: the dense costs stay below 2**53 at full steps.
+    assert leads._dense_fits(10_000, 3_000)
+    # Near 1e13 per score they do not, and the sparse flow (tier by tier) chooses instead.
+    assert not leads._dense_fits(10**17, 40)
+    assert leads._flow_fits(10**13, 40, 60)
 
 
 def test_a_plan_with_huge_scores_gets_its_leads() -> None:
