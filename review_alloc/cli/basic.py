@@ -126,7 +126,10 @@ def add_rule_flags(p: argparse.ArgumentParser) -> None:
         "--bottleneck",
         action=argparse.BooleanOptionalAction,
         default=None,
-        help="maximise the lowest assigned score before floors and total score",
+        help=(
+            "after coverage (and seniors), maximise the lowest score among the assigned pairs "
+            "that are not pinned (a pinned pair may score lower), then floors and total score"
+        ),
     )
     g.add_argument("--max-leads", type=whole, help="most papers one reviewer leads (0: no leads)")
 
@@ -176,7 +179,10 @@ def rule_lines(summary: dict[str, object]) -> list[str]:
             f"without balance {b['spread']} (min {b['min']}, max {b['max']})"
         )
     if summary["bottleneck"] is not None:
-        lines.append(f"  bottleneck       lowest assigned score {summary['lowest_score']}")
+        lines.append(
+            f"  bottleneck       lowest unpinned score {summary['lowest_unpinned_score']} "
+            f"(raised first); lowest assigned score {summary['lowest_score']}"
+        )
     if not summary["optimality"]["proven"]:
         bound = summary["optimality"]["bound"]
         lines.append(

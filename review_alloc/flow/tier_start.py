@@ -38,7 +38,8 @@ def saturate_tiers(net: ResidualNetwork, n: int, m: int, scale: int) -> int:
     negative, each tier's edges are saturated and the excess this leaves at their heads is
     routed back to their tails by Dinic, at first without undoing the tier (its reverse arcs
     closed) and then, for what could not go another way, along them too. Earlier tiers stay
-    closed while later ones are routed, so no tier's flow is traded for a lighter one's. What
+    closed while later ones are routed (a lighter tier may still push more flow along a heavier
+    tier's edge, never less), so no tier's flow is traded for a lighter one's. What
     remains for cost scaling is then imbalance of the order of `scale` instead of the tier
     weights: on the layered benchmark networks about half the phases. Returns the weight of the
     lightest tier (minus its highest cost), or 0 (network untouched) when no edge or more than
@@ -75,7 +76,9 @@ def saturate_tiers(net: ResidualNetwork, n: int, m: int, scale: int) -> int:
             net.cap[feed] = np.maximum(excess[:n], 0)
             net.cap[drain] = np.maximum(-excess[:n], 0)
             dinic(net, n, n + 1)
-            net.cap[back] = reopened
+            # Added, not assigned: a closed arc's residual is zero, and whatever a push along
+            # its forward arc put there is flow too (see the restore after the last tier).
+            net.cap[back] += reopened
             if net.cap[feed].any():
                 # Returning along the tier's own arcs always succeeds: the flow was feasible.
                 dinic(net, n, n + 1)
@@ -86,8 +89,13 @@ def saturate_tiers(net: ResidualNetwork, n: int, m: int, scale: int) -> int:
                 net.cap[net.rev[terminal]] = 0
         closed.append((back, net.cap[back].copy()))
         net.cap[back] = 0
+    # A heavier tier whose own arcs took flow back (its second Dinic run) has forward residual
+    # left, and a lighter tier's routing may push along it again, which raises the closed
+    # reverse residual. Writing the saved residual over that would drop the pushed units: the
+    # flow would stop being a circulation, and cost scaling would return a wrong flow whose
+    # potentials fail the optimality certificate. The saved residual is added instead.
     for back, residual in closed:
-        net.cap[back] = residual
+        net.cap[back] += residual
     return -int(values[-1])
 
 

@@ -3,15 +3,17 @@
 Each paper takes exactly one lead, so giving every reviewer `max_leads` copies ("slots") turns
 the choice into a one-to-one assignment of papers to slots, which the Hungarian method solves
 exactly (scipy's `linear_sum_assignment`). The slot matrix is dense, so above
-`DENSE_LIMIT` entries (a large venue) the same choice is solved on the equivalent sparse
-network (source → reviewer, capacity `max_leads` → paper along assigned pairs → sink), one tier
-at a time, which is just as exact. The order is lexicographic: first as many papers as
-possible get a lead, then as many of them as possible get a senior lead, then the total score of
-the lead pairs is highest.
+`DENSE_LIMIT` entries (a large venue), or where its combined float64 costs would not be exact
+(huge scores), the same choice is solved on the equivalent sparse network (source → reviewer,
+capacity `max_leads` → paper along assigned pairs → sink), one tier at a time, which is just as
+exact; its score steps are made coarser only where huge scores would not fit int64, as the
+plan's own are. The order is lexicographic: first as many papers as possible get a lead, then as
+many of them as possible get a senior lead, then the total score of the lead pairs is highest.
 """
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
@@ -20,13 +22,16 @@ import numpy as np
 from review_alloc.model import Plan, Session
 from review_alloc.plan.figures import assignment_indices
 from review_alloc.plan.pairkeys import positions_in, sorted_keys
+from review_alloc.plan.weights import COST_LIMIT, SCORE_RESOLUTION
 
 if TYPE_CHECKING:
     from review_alloc.flow import WarmStart
 
-_RESOLUTION = 10_000
 DENSE_LIMIT = 4_000_000
 """Most entries of the dense slot matrix; larger choices go through the sparse flow."""
+
+EXACT_FLOAT = 2**53
+"""Integers below this are exact in float64, the cost type of scipy's assignment solver."""
 
 
 @dataclass(frozen=True)
@@ -41,9 +46,46 @@ class LeadChoice:
 def lead_costs(score_int: np.ndarray, n_papers: int) -> tuple[int, int]:
     """Weights (per lead, per senior lead) that make the assignment costs lexicographic: a lead
     outweighs any senior and score difference over all papers, a senior any score difference."""
-    per_senior = n_papers * (int(score_int.max(initial=0)) + 1) + 1
-    per_lead = n_papers * (per_senior + int(score_int.max(initial=0))) + 1
+    return _lead_weights(int(score_int.max(initial=0)), n_papers)
+
+
+def _lead_weights(top: int, n_papers: int) -> tuple[int, int]:
+    """`lead_costs` for score steps up to `top` (Python integers: they never overflow)."""
+    per_senior = n_papers * (top + 1) + 1
+    per_lead = n_papers * (per_senior + top) + 1
     return per_lead, per_senior
+
+
+def _dense_fits(top: int, n_papers: int) -> bool:
+    """Whether the dense choice stays exact in float64 with score steps up to `top`."""
+    per_lead, per_senior = _lead_weights(top, n_papers)
+    # The assignment solver's duals are sums of up to n_papers costs; 4 is headroom.
+    return 4 * n_papers * (per_lead + per_senior + top) < EXACT_FLOAT
+
+
+def _flow_fits(top: int, n_papers: int, n_nodes: int) -> bool:
+    """Whether the sparse choice's costs (minus the score steps, up to `top`) fit the engine's
+    int64 bounds, as `plan.weights.fitting_weights` checks for the plan's own network."""
+    return top <= COST_LIMIT // (4 * n_nodes + 8) and 4 * top * max(n_papers, 1) < COST_LIMIT
+
+
+def score_steps(score: np.ndarray, fits: Callable[[int], bool]) -> np.ndarray:
+    """Scores as integer steps for the sparse lead choice: SCORE_RESOLUTION steps per unit, or
+    the finest coarser step at which `fits(largest step count)` holds (`fits(0)` must hold).
+
+    Like the plan's tier weights (`plan.weights.fitting_weights`), the count tiers (papers
+    led, senior leads) stay exact and only ties between scores finer than a step are lost, so
+    huge scores never overflow the costs.
+    """
+    top = float(score.max(initial=0.0))
+    finest = int(np.rint(top * SCORE_RESOLUTION))
+    if fits(finest):
+        return np.rint(score * SCORE_RESOLUTION).astype(np.int64)
+    low, high = 0, finest  # fits(low), not fits(high): the costs grow with the steps
+    while high - low > 1:
+        mid = (low + high) // 2
+        low, high = (mid, high) if fits(mid) else (low, mid)
+    return np.minimum(np.rint(score * (low / top)), low).astype(np.int64)
 
 
 @dataclass(frozen=True, eq=False)
@@ -92,11 +134,17 @@ def lead_mask_warm(
     if limit == 0 or len(paper) == 0:
         return mask, None
     papers_with = np.unique(paper)
+    n_led = len(papers_with)
     senior = session.reviewer_senior_array()[reviewer]
-    score_int = np.rint(score * _RESOLUTION).astype(np.int64)
     loads = np.bincount(reviewer, minlength=len(session.reviewers))
     slots = np.minimum(loads, limit)
-    if len(papers_with) * int(slots.sum()) > DENSE_LIMIT:
+    top = int(np.rint(float(score.max(initial=0.0)) * SCORE_RESOLUTION))
+    if n_led * int(slots.sum()) > DENSE_LIMIT or not _dense_fits(top, n_led):
+        # The flow solves the tiers one by one, so its costs are the score steps alone: full
+        # steps unless the scores are huge. The flow's nodes: source, two hubs, reviewers,
+        # papers with reviews, sink.
+        n_nodes = 4 + len(session.reviewers) + n_led
+        score_int = score_steps(score, lambda top: _flow_fits(top, n_led, n_nodes))
         chosen, state = _leads_by_flow(
             reviewer,
             paper,
@@ -109,7 +157,8 @@ def lead_mask_warm(
         )
         mask[chosen] = True
         return mask, state
-    per_lead, per_senior = lead_costs(score_int, len(papers_with))
+    score_int = np.rint(score * SCORE_RESOLUTION).astype(np.int64)
+    per_lead, per_senior = lead_costs(score_int, n_led)
     gain = per_lead + per_senior * senior.astype(np.int64) + score_int
     people = np.flatnonzero(slots > 0)
     first_slot = np.zeros(len(session.reviewers), dtype=np.int64)

@@ -100,6 +100,7 @@ def plan_summary(session: Session, plan: Plan) -> dict[str, Any]:
         load["before"] = load_distribution(session, np.array(before, dtype=np.int64))
     rules = rule_report(session, plan)
     gap_reasons = rules.pop("gap_reasons")
+    lowest = {key: rules.pop(key) for key in ("lowest_score", "lowest_unpinned_score")}
     policy = session.policy
     return {
         "session": session.name,
@@ -135,7 +136,11 @@ def plan_summary(session: Session, plan: Plan) -> dict[str, Any]:
             "bottleneck": policy.bottleneck,
             "max_leads": policy.max_leads,
         },
+        # The bottleneck option raises the lowest score of the unpinned pairs (`bottleneck` is
+        # the threshold it found); `lowest_score` is the lowest of every assigned pair, pins
+        # included, which a pinned pair may hold below the threshold.
         "bottleneck": plan.bottleneck,
+        **lowest,
         "optimality": {"proven": plan.bound is None, "bound": plan.bound},
         "per_paper": paper_details(session, plan),
         **rules,

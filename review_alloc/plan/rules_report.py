@@ -112,7 +112,8 @@ def _shortfall_reason(
 
 
 def rule_report(session: Session, plan: Plan) -> dict[str, Any]:
-    """The `seniors`, `institutions`, `leads` and `gap_reasons` parts of the plan summary."""
+    """The `seniors`, `institutions`, `leads`, lowest scores and `gap_reasons` parts of the plan
+    summary."""
     reviewer, paper, score = assignment_indices(session, plan.assignments)
     loads, counts = loads_and_counts(session, reviewer, paper)
     reviews, _, cap, _ = active_demands(session)
@@ -151,7 +152,10 @@ def rule_report(session: Session, plan: Plan) -> dict[str, Any]:
     names = [normalise_institution(r.institution) for r in session.reviewers]
     per = Counter((i, names[j]) for j, i in zip(reviewer.tolist(), paper.tolist(), strict=True))
     most = max((c for (_, name), c in per.items() if name), default=0)
+    # Reviewers without an institution share no institution: they never count against the limit.
+    over = 0 if m is None else sum(1 for (_, name), c in per.items() if name and c > m)
     pinned = {(p.reviewer, p.paper) for p in session.pins}
+    scores = [a.score for a in plan.assignments]
     free_scores = [a.score for a in plan.assignments if (a.reviewer, a.paper) not in pinned]
     leads = [a for a in plan.assignments if a.lead]
     led = {a.paper for a in leads}
@@ -169,7 +173,7 @@ def rule_report(session: Session, plan: Plan) -> dict[str, Any]:
         "institutions": {
             "max_per_institution": m,
             "most_on_one_paper": int(most),
-            "over_limit": 0 if m is None else sum(1 for c in per.values() if c > m),
+            "over_limit": over,
         },
         "leads": {
             "max_leads": session.policy.max_leads,
@@ -178,6 +182,9 @@ def rule_report(session: Session, plan: Plan) -> dict[str, Any]:
             "no_lead": [p for p in with_reviews if p not in led],
             "no_senior_lead": [p for p in with_reviews if p not in lead_senior],
         },
-        "lowest_score": round(float(min(free_scores)), 6) if free_scores else None,
+        # The lowest score of any assigned pair, pins included, and the lowest of the pairs
+        # that are not pinned: the figure the bottleneck option raises (a pin may score lower).
+        "lowest_score": round(float(min(scores)), 6) if scores else None,
+        "lowest_unpinned_score": round(float(min(free_scores)), 6) if free_scores else None,
         "gap_reasons": gap_reasons,
     }

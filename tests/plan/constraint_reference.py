@@ -15,7 +15,7 @@ import numpy as np
 from scipy.optimize import Bounds, LinearConstraint, milp
 from scipy.sparse import lil_matrix, vstack
 
-from review_alloc.model import Session
+from review_alloc.model import Plan, Session
 
 TIERS = ("required", "seniors", "coverage", "floors", "score")
 
@@ -37,10 +37,13 @@ class RuleInstance:
     max_per_institution: int | None
     senior_hard: bool
     balance: float
+    earlier: np.ndarray | None = None
+    """Per pair: assigned by the earlier plan of a re-plan (None: a fresh plan, no kept tier)."""
 
 
-def rule_instance(session: Session) -> RuleInstance:
-    """Read the instance straight from the session's rows (declared conflicts only)."""
+def rule_instance(session: Session, earlier: Plan | None = None) -> RuleInstance:
+    """Read the instance straight from the session's rows (declared conflicts only); with
+    `earlier`, a re-plan that keeps as many of that plan's pairs as the higher tiers allow."""
     pol = session.policy
     rid = {r.id: j for j, r in enumerate(session.reviewers)}
     pid = {p.id: i for i, p in enumerate(session.papers)}
@@ -87,6 +90,11 @@ def rule_instance(session: Session) -> RuleInstance:
         ]
     )
     arr = np.array(pairs, dtype=np.int64).reshape(-1, 2)
+    before = {
+        (rid[a.reviewer], pid[a.paper])
+        for a in (earlier.assignments if earlier is not None else [])
+        if a.reviewer in rid and a.paper in pid
+    }
     return RuleInstance(
         cap=cap,
         floor=np.minimum(floor, cap),
@@ -101,11 +109,18 @@ def rule_instance(session: Session) -> RuleInstance:
         max_per_institution=pol.max_per_institution,
         senior_hard=pol.senior_hard,
         balance=pol.balance,
+        earlier=None
+        if earlier is None
+        else np.array([(j, i) in before for j, i in pairs], dtype=bool),
     )
 
 
 def lexicographic_rules_optimum(inst: RuleInstance) -> dict[str, float] | None:
-    """Tier values by sequential HiGHS integer programs; None when a hard rule is infeasible."""
+    """Tier values by sequential HiGHS integer programs; None when a hard rule is infeasible.
+
+    A re-plan (`inst.earlier`) has a "kept" tier (earlier pairs assigned again) between floors
+    and score, as the README's order says.
+    """
     n_r, n_p, n_e = len(inst.cap), len(inst.reviews), len(inst.pairs)
     units = [(j, k) for j in range(n_r) for k in range(int(inst.cap[j]))]
     # variables: x (E), y required part (P), s senior part (P), z floor part (R), u load units
@@ -165,6 +180,12 @@ def lexicographic_rules_optimum(inst: RuleInstance) -> dict[str, float] | None:
     c = np.zeros(n_var)
     c[oz : oz + n_r] = 1
     stages.append(c)
+    names = list(TIERS)
+    if inst.earlier is not None:
+        c = np.zeros(n_var)
+        c[ox : ox + n_e] = inst.earlier
+        stages.append(c)
+        names.insert(names.index("score"), "kept")
     c = np.zeros(n_var)
     c[ox : ox + n_e] = inst.score
     # The balance penalty: the k-th unit of a reviewer's load costs balance * k (k from 0).
@@ -173,18 +194,21 @@ def lexicographic_rules_optimum(inst: RuleInstance) -> dict[str, float] | None:
     values: dict[str, float] = {}
     matrix = a.tocsr()
     lows, highs = list(lo), list(hi)
-    for name, c in zip(TIERS, stages, strict=True):
+    for name, c in zip(names, stages, strict=True):
         res = milp(
             -c,
             constraints=LinearConstraint(matrix, lows, highs),
             bounds=Bounds(lb, ub),
             integrality=integrality,
         )
-        if res.status != 0:
+        if res.status == 2:  # infeasible: a hard rule (or the pins) cannot be met
             return None
+        assert res.status == 0, (name, res.message)
         best = -res.fun
         values[name] = best
         matrix = vstack([matrix, c.reshape(1, -1)]).tocsr()
-        lows.append(best - 1e-6)
+        # Count tiers are whole numbers at every integer point: half a unit of slack keeps the
+        # stage exact, where a hair's slack left HiGHS stuck on nearly parallel rows.
+        lows.append(best - (1e-6 if name == "score" else 0.5))
         highs.append(np.inf)
     return values

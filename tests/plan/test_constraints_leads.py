@@ -282,3 +282,104 @@ def test_warm_lead_choice_after_moved_reviews_matches_dense(
         assert warm[:2] == dense[:2]
         assert warm[2] == pytest.approx(dense[2], abs=1e-9)
         check_plan(session, with_leads(plan, leads.LeadChoice(lead_of, (), ())), None)
+
+
+
+def _milp_leads(session: Session, plan: Plan) -> tuple[int, int, float]:
+    """(papers led, senior leads, lead score) by HiGHS integer programs, one tier at a time."""
+    from scipy.optimize import Bounds, LinearConstraint, milp
+
+    rows = plan.assignments
+    senior = {r.id: r.senior for r in session.reviewers}
+    papers = sorted({x.paper for x in rows})
+    people = sorted({x.reviewer for x in rows})
+    matrix = np.zeros((len(papers) + len(people), len(rows)))
+    for k, x in enumerate(rows):
+        matrix[papers.index(x.paper), k] = 1
+        matrix[len(papers) + people.index(x.reviewer), k] = 1
+    low = [-np.inf] * len(matrix)
+    high = [1.0] * len(papers) + [float(session.policy.max_leads)] * len(people)
+    top = max(x.score for x in rows)
+    stages = [
+        np.ones(len(rows)),
+        np.array([float(senior[x.reviewer]) for x in rows]),
+        np.array([x.score / top for x in rows]),  # scaled, so that HiGHS sees numbers near 1
+    ]
+    found = []
+    for c in stages:
+        res = milp(
+            -c,
+            constraints=LinearConstraint(matrix, low, high),
+            bounds=Bounds(0, 1),
+            integrality=np.ones(len(rows)),
+        )
+        assert res.status == 0
+        found.append(-res.fun)
+        matrix = np.vstack([matrix, c])
+        low.append(found[-1] - 1e-6)
+        high.append(np.inf)
+    return int(round(found[0])), int(round(found[1])), found[2] * top
+
+
+def _huge_score_case(seed: int, scale: float = 1e13) -> tuple[Session, Plan]:
+    """Scores around `scale` on 40 papers: at 1e13 the dense choice's lead weights at 1/10,000
+    steps overflowed int64."""
+    rng = np.random.default_rng(seed)
+    n_r, n_p = 12, 40
+    reviewers = [Reviewer(id=f"r{j}", senior=bool(rng.random() < 0.4)) for j in range(n_r)]
+    papers = [Paper(id=f"p{i}") for i in range(n_p)]
+    session = Session(
+        name=f"huge scores {seed}",
+        policy=Policy(max_leads=3, cap=20),
+        papers=papers,
+        reviewers=reviewers,
+    )
+    pairs = [
+        (f"r{j}", f"p{i}", float(np.round(rng.uniform(0.5, 1.5) * scale)))
+        for i in range(n_p)
+        for j in rng.choice(n_r, size=3, replace=False)
+    ]
+    session = with_scores(session, pairs)
+    return session, plan_of(session, pairs)
+
+
+@pytest.mark.parametrize("scale", [1e13, 1e17])
+@pytest.mark.parametrize("seed", range(3))
+def test_huge_scores_never_overflow_the_lead_choice(seed: int, scale: float) -> None:
+    session, plan = _huge_score_case(seed, scale)
+    got = value(session, plan, pick_leads(session, plan).lead_of)
+    # Reference: HiGHS (scipy.optimize.milp), papers led, then senior leads, then lead score.
+    want = _milp_leads(session, plan)
+    assert got[:2] == want[:2]
+    # The score steps are coarser here (as the plan's own are for huge scores): each lead may
+    # lose at most one step, far below a millionth of the total.
+    assert got[2] == pytest.approx(want[2], rel=1e-6)
+    check_plan(session, with_leads(plan, pick_leads(session, plan)), None)
+
+
+def test_score_steps_stay_fine_where_they_fit_and_coarsen_where_not() -> None:
+    score = np.array([0.0, 0.25, 1.0])
+    assert leads.score_steps(score, lambda top: True).tolist() == [0, 2_500, 10_000]
+    coarse = leads.score_steps(score * 1e13, lambda top: top <= 1_000)
+    assert coarse.tolist() == [0, 250, 1_000]
+
+
+def test_the_dense_choice_is_kept_where_its_costs_are_exact() -> None:
+    # Scores in 0..1 on a few thousand papers: the dense costs stay below 2**53 at full steps.
+    assert leads._dense_fits(10_000, 3_000)
+    # Near 1e13 per score they do not, and the sparse flow (tier by tier) chooses instead.
+    assert not leads._dense_fits(10**17, 40)
+    assert leads._flow_fits(10**13, 40, 60)
+
+
+def test_a_plan_with_huge_scores_gets_its_leads() -> None:
+    from review_alloc.plan import make_plan
+
+    session, _ = _huge_score_case(7)
+    outcome = make_plan(session)
+    assert outcome.plan.checked and "scores in steps of" in outcome.plan.method
+    assert outcome.leads is not None
+    # Reference: HiGHS (scipy.optimize.milp) on the plan's pairs, as above.
+    want = _milp_leads(session, outcome.plan)
+    assert len(outcome.leads.lead_of) == want[0]
+    assert sum(a.lead for a in outcome.plan.assignments) == want[0]

@@ -261,7 +261,7 @@ def test_plan_json_has_the_rule_keys(tmp_path: Path, capsys: pytest.CaptureFixtu
     for key in ("assignments", "coverage", "required_coverage", "total_score", "gaps"):
         assert key in summary
     assert {"spread", "histogram", "min", "max"} <= set(summary["load"])
-    assert summary["bottleneck"] == summary["lowest_score"]
+    assert summary["bottleneck"] == summary["lowest_unpinned_score"]
     first = summary["per_paper"][0]
     assert {"reviewers", "lead", "seniors", "institutions"} <= set(first)
     assert summary["seniors"]["met"] == summary["seniors"]["wanted"]
