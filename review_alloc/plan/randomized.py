@@ -144,8 +144,13 @@ def _solve_fractional(net: PlanNetwork, cap_units: int, scale: int) -> Fractiona
             net.n_nodes, net.tails, net.heads, capacities, net.costs, lower=lower
         )
     except InfeasibleError:
+        # The plain plan met the pins, so only the hard senior rule can fail under the cap.
         raise PlanInputError(
-            ["pins: the pinned pairs cannot all be kept together with the caps and limits"]
+            [
+                "max_probability: the hard senior rule cannot be met with each pair at most "
+                f"{cap_units / scale:g} (some paper has too few eligible seniors to share its "
+                "senior seats); raise the cap or make the senior rule a tier (senior_hard: false)"
+            ]
         ) from None
     # The dual potentials prove the fractional plan optimal; checked here, not trusted.
     check_cost_certificate(
@@ -171,19 +176,22 @@ def _solve_fractional(net: PlanNetwork, cap_units: int, scale: int) -> Fractiona
 def _crowded_split(
     session: Session, net: PlanNetwork, pair_flow: np.ndarray, scale: int, plain: Plan
 ) -> dict[tuple[int, str], int] | None:
-    """A split for the mixed institution groups whose two parts together pass the limit in the
-    relaxed fractional plan: the plain plan's senior share of each (None when none pass)."""
+    """A split for the mixed institution groups whose two parts could be drawn above the limit
+    together (their ceilings sum past it): the plain plan's senior share of every mixed group
+    (None when every group is safe)."""
     m = session.policy.max_per_institution
     if m is None or not net.relaxed_groups:
         return None
     n_g = len(net.part_paper)
     inside = net.pair_part >= 0
     part_flow = np.bincount(net.pair_part[inside], weights=pair_flow[inside], minlength=n_g)
-    group_flow: dict[tuple[int, str], float] = {}
+    # The draw keeps each part at the floor or ceiling of its own flow, not their sum, so the
+    # relaxed plan is safe only where the two parts' ceilings together stay within the limit.
+    group_most: dict[tuple[int, str], int] = {}
     for g in net.relaxed_groups:
         key = (int(net.part_paper[g]), net.part_institution[g])
-        group_flow[key] = group_flow.get(key, 0.0) + float(part_flow[g])
-    if all(v <= m * scale for v in group_flow.values()):
+        group_most[key] = group_most.get(key, 0) + -(-int(round(part_flow[g])) // scale)
+    if all(v <= m for v in group_most.values()):
         return None
     rid = session.reviewer_index()
     pid = session.paper_index()
@@ -222,8 +230,9 @@ def fractional_plan(
     `max_probability` (pairs of `earlier`, a previous draw, are kept by the keep tier uncapped).
 
     Where the institution and senior rules cross (mixed groups), the relaxed network is tried
-    first; if its fractional plan passes a group's limit, the plain plan's senior share of
-    those groups is fixed and the plan is optimal for that split (stated in the method).
+    first; if a draw from it could pass a group's limit (the two parts' ceilings sum past it),
+    the plain plan's senior share of those groups is fixed and the plan is optimal for that
+    split (stated in the method).
     """
     if not 0 < max_probability <= 1:
         raise PlanInputError([f"max_probability: {max_probability} must be above 0 and at most 1"])
