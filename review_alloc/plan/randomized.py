@@ -43,6 +43,7 @@ from review_alloc.flow import InfeasibleError, check_cost_certificate, min_cost_
 from review_alloc.model import Plan, ScoreTable, Session
 from review_alloc.model.plans import PlanDraw
 from review_alloc.plan.assemble import assemble_plan
+from review_alloc.plan.cautions import RANDOM_CAUTION
 from review_alloc.plan.checker import check_plan
 from review_alloc.plan.conflicts import conflict_pairs
 from review_alloc.plan.errors import PlanInputError
@@ -425,4 +426,43 @@ def probability_of(draw: PlanDraw, session: Session) -> Mapping[tuple[str, str],
         for j, i, v in zip(
             table.reviewer.tolist(), table.paper.tolist(), table.value.tolist(), strict=True
         )
+    }
+
+
+def draw_report(session: Session, plan: Plan) -> dict[str, object]:
+    """The JSON of a randomised plan's draw: cap, seed, every pair's probability and the score
+    given up against the plain plan (positions beyond the session's lists are left out)."""
+    draw = plan.draw
+    if draw is None:
+        raise ValueError("the plan was not drawn at random")
+    table = draw.probabilities
+    n_r, n_p = len(session.reviewers), len(session.papers)
+    rows = [
+        {
+            "paper": session.papers[i].id,
+            "reviewer": session.reviewers[j].id,
+            "probability": round(v, 6),
+        }
+        for j, i, v in zip(
+            table.reviewer.tolist(), table.paper.tolist(), table.value.tolist(), strict=True
+        )
+        if j < n_r and i < n_p
+    ]
+    rows.sort(key=lambda r: (str(r["paper"]), str(r["reviewer"])))
+    plain = draw.plain_score
+    return {
+        "max_probability": draw.max_probability,
+        "seed": draw.seed,
+        "scale": draw.scale,
+        "method": draw.method,
+        "expected_score": draw.expected_score,
+        "drawn_score": plan.figures.total_score,
+        "plain_score": plain,
+        "expected_score_given_up": None if plain is None else round(plain - draw.expected_score, 6),
+        "kept_earlier": draw.kept_earlier,
+        "certified": "the fractional plan is the optimum of its linear program (dual potentials "
+        "checked); the drawn plan keeps every hard rule (independent checker) and is not "
+        "claimed optimal",
+        "probabilities": rows,
+        "caution": RANDOM_CAUTION,
     }
