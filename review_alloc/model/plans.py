@@ -61,6 +61,16 @@ class PlanFigures(DocumentModel):
         return self
 
 
+def comparable_figures(figures: PlanFigures) -> dict[str, float]:
+    """The figures a randomised or fair plan is set beside the plain plan with."""
+    return {
+        "required_coverage": float(figures.required_coverage),
+        "coverage": float(figures.coverage),
+        "floors_met": float(figures.floors_met),
+        "total_score": float(figures.total_score),
+    }
+
+
 class PlanDraw(DocumentModel):
     """How a randomised plan was drawn, so that anyone can draw it again and audit it.
 
@@ -75,10 +85,11 @@ class PlanDraw(DocumentModel):
     """Probabilities are whole multiples of 1/scale (the fractional plan's integer flow unit)."""
     method: str
     probabilities: ScoreTable
-    expected_score: float = Field(allow_inf_nan=False)
-    """The fractional plan's total score: the drawn plans' mean total score."""
-    plain_score: float | None = None
-    """Total score of the plain optimal plan of the same data, for comparison."""
+    expected: dict[str, float]
+    """The fractional plan's figures (`required_coverage`, `coverage`, `floors_met`,
+    `total_score`): the means over all draws."""
+    plain: dict[str, float] | None = None
+    """The same figures of the plain optimal plan of the same data, for comparison."""
     kept_earlier: bool = False
     """A re-plan of an earlier draw: its still-allowed pairs were kept where coverage allowed."""
 
@@ -95,8 +106,9 @@ class PlanFairness(DocumentModel):
     method: str
     worst_papers: list[Identifier] = Field(default_factory=list)
     plain_lowest_paper_score: float | None = None
-    plain_score: float | None = None
-    """Total score of the plain optimal plan of the same data, for comparison."""
+    plain: dict[str, float] | None = None
+    """The plain optimal plan's figures (`required_coverage`, `coverage`, `floors_met`,
+    `total_score`), for comparison."""
 
 
 def _utc_now() -> datetime:

@@ -36,7 +36,7 @@ from scipy.sparse import coo_matrix, csr_matrix
 
 from review_alloc.flow import InfeasibleError, min_cost_flow
 from review_alloc.model import Plan, Session
-from review_alloc.model.plans import PlanFairness
+from review_alloc.model.plans import PlanFairness, comparable_figures
 from review_alloc.plan.assemble import assemble_plan
 from review_alloc.plan.cautions import FAIR_CAUTION
 from review_alloc.plan.checker import check_plan
@@ -423,7 +423,7 @@ def fair_plan(
         method=method,
         worst_papers=worst_ids,
         plain_lowest_paper_score=round(plain_lowest, 6),
-        plain_score=plain.plan.figures.total_score,
+        plain=comparable_figures(plain.plan.figures),
     )
     return FairOutcome(
         plan=plan.model_copy(update={"checked": True, "fairness": record}),
@@ -477,10 +477,10 @@ def fairness_report(plan: Plan) -> dict[str, object]:
         "method": f.method,
         "worst_papers": f.worst_papers,
         "plain_lowest_paper_score": f.plain_lowest_paper_score,
-        "total_score": plan.figures.total_score,
-        "plain_score": f.plain_score,
+        "fair": comparable_figures(plan.figures),
+        "plain": f.plain,
         "score_given_up": None
-        if f.plain_score is None
-        else round(f.plain_score - plan.figures.total_score, 6),
+        if f.plain is None
+        else round(f.plain["total_score"] - plan.figures.total_score, 6),
         "caution": FAIR_CAUTION,
     }

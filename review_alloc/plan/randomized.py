@@ -41,7 +41,7 @@ import numpy as np
 
 from review_alloc.flow import InfeasibleError, check_cost_certificate, min_cost_flow
 from review_alloc.model import Plan, ScoreTable, Session
-from review_alloc.model.plans import PlanDraw
+from review_alloc.model.plans import PlanDraw, comparable_figures
 from review_alloc.plan.assemble import assemble_plan
 from review_alloc.plan.cautions import RANDOM_CAUTION
 from review_alloc.plan.checker import check_plan
@@ -402,8 +402,13 @@ def random_plan(
         probabilities=ScoreTable.from_arrays(
             reviewer.astype(np.int32), paper.astype(np.int32), units / frac.scale
         ),
-        expected_score=frac.tiers["score"],
-        plain_score=plain.plan.figures.total_score,
+        expected={
+            "required_coverage": frac.tiers["required"],
+            "coverage": frac.tiers["coverage"],
+            "floors_met": frac.tiers["floors"],
+            "total_score": frac.tiers["score"],
+        },
+        plain=comparable_figures(plain.plan.figures),
         kept_earlier=earlier is not None,
     )
     return RandomOutcome(
@@ -449,16 +454,17 @@ def draw_report(session: Session, plan: Plan) -> dict[str, object]:
         if j < n_r and i < n_p
     ]
     rows.sort(key=lambda r: (str(r["paper"]), str(r["reviewer"])))
-    plain = draw.plain_score
+    expected = draw.expected["total_score"]
+    plain = draw.plain["total_score"] if draw.plain is not None else None
     return {
         "max_probability": draw.max_probability,
         "seed": draw.seed,
         "scale": draw.scale,
         "method": draw.method,
-        "expected_score": draw.expected_score,
-        "drawn_score": plan.figures.total_score,
-        "plain_score": plain,
-        "expected_score_given_up": None if plain is None else round(plain - draw.expected_score, 6),
+        "expected": draw.expected,
+        "drawn": comparable_figures(plan.figures),
+        "plain": draw.plain,
+        "expected_score_given_up": None if plain is None else round(plain - expected, 6),
         "kept_earlier": draw.kept_earlier,
         "certified": "the fractional plan is the optimum of its linear program (dual potentials "
         "checked); the drawn plan keeps every hard rule (independent checker) and is not "

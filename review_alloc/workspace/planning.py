@@ -56,9 +56,12 @@ class PlanRequest:
 
         A randomised or fair plan also makes the plain plan, which its figures are set beside.
         """
-        plain = make_plan(
-            self.session, fresh=self.fresh, earlier=self.earlier, now=now, warm=self.warm
-        )
+        if self.max_probability is None and not self.fair:
+            return make_plan(
+                self.session, fresh=self.fresh, earlier=self.earlier, now=now, warm=self.warm
+            )
+        # The comparison is with the best plain plan of the same data (a fresh one).
+        plain = make_plan(self.session, fresh=True, now=now, warm=self.warm)
         if self.max_probability is not None:
             return random_plan(
                 self.session,
@@ -68,9 +71,7 @@ class PlanRequest:
                 now=now,
                 plain=plain,
             )
-        if self.fair:
-            return fair_plan(self.session, now=now, plain=plain)
-        return plain
+        return fair_plan(self.session, now=now, plain=plain)
 
 
 @dataclass(frozen=True)
@@ -131,6 +132,8 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
             max_probability = draw.max_probability
             seed = draw.seed if seed is None else seed
             keep_draw = None if fresh else current
+        if seed is not None and max_probability is None:
+            raise ChangeRefused(["a seed is for a randomised plan: give a maximum probability"])
         return PlanRequest(
             session=self.session,
             fresh=fresh,
@@ -249,8 +252,18 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
             summary["kept"] = revision.kept
         if plan.draw is not None:
             summary["randomised"] = draw_report(self.session, plan)
+            summary["optimality"]["claim"] = (
+                "a random draw: its expected figures are the capped optimum; the draw itself is "
+                "not optimal"
+            )
         if plan.fairness is not None:
             summary["fairness"] = fairness_report(plan)
+            summary["optimality"]["claim"] = (
+                "the fairest plan (lowest paper total proven optimal)"
+                if plan.fairness.exact
+                else "the fairest plan found by PeerReview4All; lowest paper total within the "
+                "stated bound"
+            )
         return summary
 
     # -- explanations ---------------------------------------------------------------------

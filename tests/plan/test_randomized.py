@@ -176,8 +176,9 @@ def test_plan_stores_what_redraws_it() -> None:
     assert [(a.reviewer, a.paper) for a in again.plan.assignments] == [
         (a.reviewer, a.paper) for a in outcome.plan.assignments
     ]
-    assert draw.expected_score == pytest.approx(outcome.tiers["score"])
-    assert draw.plain_score == make_plan(session, fresh=True).plan.figures.total_score
+    assert draw.expected["total_score"] == pytest.approx(outcome.tiers["score"])
+    assert draw.plain is not None
+    assert draw.plain["total_score"] == make_plan(session, fresh=True).plan.figures.total_score
 
 
 def test_a_cap_below_the_step_is_refused() -> None:
