@@ -296,13 +296,13 @@ def rounding_graph(session: Session, reviewer: np.ndarray, paper: np.ndarray) ->
     hops = [np.zeros(len(paper), np.int64), r_node]
     hops += [g_node, s_node, p_node, np.full(len(paper), sink), np.zeros(len(paper), np.int64)]
     steps = np.stack(hops, axis=1)
-    # Drop the missing hops (-1) and read each pair's arcs as consecutive (tail, head) nodes.
-    keys = np.full((len(paper), 6), -1, dtype=np.int64)
-    for k in range(len(paper)):
-        row = steps[k][steps[k] >= 0]
-        pairs = row[:-1] * n_nodes + row[1:]
-        keys[k, : len(pairs)] = pairs
-    present = keys >= 0
+    # Pack each row's present hops to the left (a stable sort on "missing"), then read the
+    # pair's arcs as consecutive (tail, head) nodes.
+    valid = steps >= 0
+    packed = np.take_along_axis(steps, np.argsort(~valid, axis=1, kind="stable"), axis=1)
+    arcs_in_row = valid.sum(axis=1) - 1
+    present = np.arange(steps.shape[1] - 1)[None, :] < arcs_in_row[:, None]
+    keys = np.where(present, packed[:, :-1] * n_nodes + packed[:, 1:], -1)
     uniq, inverse = np.unique(keys[present], return_inverse=True)
     path = np.full(keys.shape, -1, dtype=np.int64)
     path[present] = inverse
