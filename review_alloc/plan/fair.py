@@ -15,9 +15,12 @@ so this is not one flow problem (see `plan.fairness`); the exact problem is NP-h
    s at which every paper can still get min(kappa, its plain count) of its directly routed
    reviewers scoring at least s while the coverage tiers stay optimal (a lower bound on a new
    node per paper, found by binary search over the distinct scores); the candidate whose
-   worst-off paper scores highest is kept. Its result is compared with a stated upper bound
-   (the MIP's dual bound when HiGHS gave one, else the weakest paper's best possible total),
-   and the gap is reported.
+   worst-off paper scores highest is kept (or HiGHS's best plan so far, when it stopped at
+   the time limit with a better one). The result is set beside a stated upper bound (the
+   MIP's dual bound or LP relaxation when HiGHS gave one, and the weakest paper's best
+   possible total), and the gap is reported. Only pairs routed straight to their paper count
+   towards kappa: a pair that passes a senior or institution node cannot be told apart from
+   its group in the flow, so with those rules the round can be weak (the gap says so).
 
 The balance penalty and a re-plan's keep tier do not apply to the fairest plan (it is a fresh
 plan); leads are picked afterwards as for any plan. The independent checker verifies every
@@ -55,6 +58,10 @@ MIP_PAIR_LIMIT = 200_000
 """Sessions with more eligible pairs than this go straight to the PeerReview4All round."""
 
 MIP_METHOD = "exact: mixed-integer program (HiGHS via scipy.optimize.milp)"
+MIP_STOPPED_METHOD = (
+    "mixed-integer program (HiGHS via scipy.optimize.milp) stopped at its time limit: its best "
+    "plan so far, better than PeerReview4All's round here; not proven optimal"
+)
 PR4A_METHOD = (
     "PeerReview4All (Stelmakh, Shah and Singh), first round, on the planner's min-cost flow "
     "network; not proven optimal"
@@ -75,6 +82,11 @@ class FairOutcome(PlanOutcome):
 def paper_totals(net: PlanNetwork, used: np.ndarray) -> np.ndarray:
     """Total score of each paper for the pairs `used` (boolean per pair arc)."""
     return np.bincount(net.pair_paper[used], weights=net.pair_score[used], minlength=net.n_papers)
+
+
+def _lowest(net: PlanNetwork, used: np.ndarray, active: np.ndarray) -> float:
+    """The lowest total score of an active paper for the pairs `used`."""
+    return float(paper_totals(net, used)[active].min()) if len(active) else 0.0
 
 
 def _active_papers(session: Session) -> np.ndarray:
@@ -199,7 +211,8 @@ def _program(session: Session, net: PlanNetwork, plain_tiers: dict[str, float]) 
 def _solve_stages(
     prog: _Program, deadline: float
 ) -> tuple[np.ndarray | None, bool, float | None]:
-    """(pairs used or None, whether stage one was proven optimal, its best upper bound on t)."""
+    """(pairs used or None, whether stage one was proven optimal, its best upper bound on t);
+    when HiGHS stopped early, the pairs are its best plan so far (None if it had none)."""
 
     def run(c: np.ndarray, rows: list[LinearConstraint]) -> object:
         left = max(deadline - time.monotonic(), 0.1)
@@ -219,7 +232,8 @@ def _solve_stages(
         return None, False, _dual_bound(first)
     proven = getattr(first, "status", 1) == 0
     if not proven:
-        return None, False, _dual_bound(first)
+        # Stopped at the time limit with a feasible plan: offered as a candidate, not exact.
+        return x[: prog.n_pairs] > 0.5, False, _dual_bound(first)
     best_t = -float(first.fun)
     rows = list(prog.rows)
     fixed = np.zeros(prog.c_size)
@@ -397,9 +411,14 @@ def fair_plan(
         if mip_bound is not None:
             bound = min(bound, mip_bound)
     method = MIP_METHOD
-    if used is None:
-        used = peer_review4all(session, net, plain_used, plain_tiers)
+    if not exact:
+        # PeerReview4All's round, or HiGHS's best plan so far when its worst-off paper is better.
+        found = peer_review4all(session, net, plain_used, plain_tiers)
         method = PR4A_METHOD
+        if used is not None and _lowest(net, used, active) > _lowest(net, found, active) + _EPS:
+            method = MIP_STOPPED_METHOD
+        else:
+            used = found
     plan, leads = _checked(session, net, used, now, method)
     if plan is None:
         # A candidate broke a rule the network only relaxes (crossing institution and senior

@@ -141,3 +141,30 @@ def test_fairest_plan_keeps_institution_and_senior_rules(seed: int) -> None:
 def test_unknown_method_is_refused() -> None:
     with pytest.raises(ValueError, match="choose one of auto, peerreview4all"):
         fair_plan(random_session(1), method="guess")
+
+
+def test_a_stopped_mip_offers_its_best_plan_and_its_bound(monkeypatch: pytest.MonkeyPatch) -> None:
+    from review_alloc.plan import fair
+
+    session = random_session(5)
+    exact = fair_plan(session)
+    assert exact.plan.fairness is not None and exact.plan.fairness.exact
+    net = exact.network
+    keys = {(a.reviewer, a.paper) for a in exact.plan.assignments}
+    ids_r = [r.id for r in session.reviewers]
+    ids_p = [p.id for p in session.papers]
+    pairs = zip(net.pair_reviewer.tolist(), net.pair_paper.tolist(), strict=True)
+    best = np.array([(ids_r[j], ids_p[i]) in keys for j, i in pairs])
+    optimum = exact.plan.fairness.lowest_paper_score
+
+    def stopped(prog: object, deadline: float) -> tuple[np.ndarray, bool, float]:
+        return best, False, optimum + 0.25
+
+    monkeypatch.setattr(fair, "_solve_stages", stopped)
+    outcome = fair_plan(session)
+    record = outcome.plan.fairness
+    assert record is not None and not record.exact
+    # The better of HiGHS's plan so far and PeerReview4All's round is kept, with the bound.
+    assert record.lowest_paper_score == pytest.approx(optimum)
+    assert record.bound == pytest.approx(min(optimum + 0.25, fair.weakest_pool_bound(session, net)))
+    check_plan(session, outcome.plan, None)
