@@ -196,25 +196,18 @@ def _crowded_split(
         return None
     rid = session.reviewer_index()
     pid = session.paper_index()
-    used = np.zeros(len(net.pair_reviewer), dtype=bool)
-    if plain.assignments:
-        keys = {(rid[a.reviewer], pid[a.paper]) for a in plain.assignments}
-        used = np.array(
-            [
-                (j, i) in keys
-                for j, i in zip(net.pair_reviewer.tolist(), net.pair_paper.tolist(), strict=True)
-            ],
-            dtype=bool,
-        )
+    n_p = max(net.n_papers, 1)
+    plain_keys = np.array(
+        [rid[a.reviewer] * n_p + pid[a.paper] for a in plain.assignments], dtype=np.int64
+    )
+    used = np.isin(net.pair_reviewer * n_p + net.pair_paper, plain_keys)
+    in_part = used & inside
+    share = np.bincount(net.pair_part[in_part], minlength=n_g)
     split: dict[tuple[int, str], int] = {}
     for g in net.relaxed_groups:
-        if int(net.part_senior[g]) != 1:
-            continue
         key = (int(net.part_paper[g]), net.part_institution[g])
-        split[key] = int(np.sum(used & (net.pair_part == g)))
-    for g in net.relaxed_groups:
-        key = (int(net.part_paper[g]), net.part_institution[g])
-        split.setdefault(key, 0)
+        taken = int(share[g]) if int(net.part_senior[g]) == 1 else 0
+        split[key] = max(split.get(key, 0), taken)
     return split
 
 
