@@ -33,7 +33,6 @@ shows the kept pairs at probability 1 and redraws the same plan.
 from __future__ import annotations
 
 import secrets
-from collections.abc import Mapping
 from dataclasses import dataclass, replace
 from datetime import UTC, datetime
 
@@ -414,17 +413,6 @@ def random_plan(
         fractional=frac,
         plain=plain,
     )
-
-
-def probability_of(draw: PlanDraw, session: Session) -> Mapping[tuple[str, str], float]:
-    """Each (reviewer id, paper id) pair's probability in a stored draw (pairs not listed: 0)."""
-    table = draw.probabilities
-    return {
-        (session.reviewers[int(j)].id, session.papers[int(i)].id): float(v)
-        for j, i, v in zip(
-            table.reviewer.tolist(), table.paper.tolist(), table.value.tolist(), strict=True
-        )
-    }
 
 
 def draw_report(session: Session, plan: Plan) -> dict[str, object]:

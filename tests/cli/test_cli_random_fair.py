@@ -74,6 +74,10 @@ def test_replan_after_a_withdrawal_stays_randomised(
     saved = load_session(workshop)
     assert saved.plan is not None and saved.plan.draw is not None
     assert sorted(redraw(saved, saved.plan.draw)) == sorted(after)
+    # --fresh redraws everything under the same cap and seed.
+    fresh = _plan_json(capsys, str(workshop), "--fresh")["randomised"]
+    assert fresh["seed"] == 11 and fresh["max_probability"] == 0.4 and not fresh["kept_earlier"]
+    assert all(row["probability"] <= 0.4 for row in fresh["probabilities"])
     # 'off' goes back to the plain optimal plan.
     plain = _plan_json(capsys, str(workshop), "--max-probability", "off")
     assert "randomised" not in plain
