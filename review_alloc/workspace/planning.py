@@ -261,8 +261,8 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
             summary["optimality"]["claim"] = (
                 "the fairest plan (lowest paper total proven optimal)"
                 if plan.fairness.exact
-                else "the fairest plan found by PeerReview4All; lowest paper total within the "
-                "stated bound"
+                else "the fairest plan found, not proven optimal; lowest paper total within "
+                "the stated bound"
             )
         return summary
 
