@@ -54,6 +54,21 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
     p.add_argument(
         "--fresh", action="store_true", help="ignore the earlier plan (keep none of its pairs)"
     )
+    p.add_argument(
+        "--max-probability",
+        type=_probability_or_off,
+        metavar="Q",
+        help="draw the plan at random, each reviewer-paper pair with probability at most Q "
+        "(0 < Q <= 1); a later plan stays randomised until 'off'",
+    )
+    p.add_argument(
+        "--seed", type=whole, help="the random draw's seed (default: a new one, stored)"
+    )
+    p.add_argument(
+        "--fair",
+        action="store_true",
+        help="maximise the lowest total score of any paper, then the total score",
+    )
     p.add_argument("--json", action="store_true", help="print one JSON object")
     add_rule_flags(p)
 
@@ -80,6 +95,19 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
 def _count_or_off(text: str) -> int:
     """argparse type: a whole number >= 0, where 0 (or 'off') turns the rule off."""
     return 0 if text.strip().lower() == "off" else whole(text)
+
+
+def _probability_or_off(text: str) -> float:
+    """argparse type: a probability above 0 and at most 1, or 'off' (returned as 0)."""
+    if text.strip().lower() == "off":
+        return 0.0
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not 0 < value <= 1:
+        raise argparse.ArgumentTypeError(f"{text!r} must be above 0 and at most 1, or 'off'")
+    return value
 
 
 def _score_or_off(text: str) -> float:
@@ -240,7 +268,14 @@ def _plan_and_report(ws: Workspace, args: argparse.Namespace) -> int:
     if changes:
         ws.set_policy(changes, reason="plan options")
     prepare_solver()
-    ws.solve(fresh=args.fresh)
+    q = getattr(args, "max_probability", None)
+    ws.solve(
+        fresh=args.fresh,
+        max_probability=q or None,
+        seed=getattr(args, "seed", None),
+        fair=getattr(args, "fair", False),
+        plain=q == 0.0,
+    )
     ws.save()
     session = ws.session
     summary = ws.summary()
@@ -256,8 +291,69 @@ def _plan_and_report(ws: Workspace, args: argparse.Namespace) -> int:
                 f"{revision.parent_pairs} pairs of revision {revision.parent}"
                 + (" (fresh plan)" if revision.fresh else ""),
             )
-        print("\n".join([*lines[:-1], *rule_lines(summary), lines[-1]]))
+        if "claim" in summary["optimality"] and summary["checked"]:
+            lines[0] = f"{session.name}: plan checked; {summary['optimality']['claim']}"
+        extra = [*rule_lines(summary), *random_lines(summary), *fair_lines(summary)]
+        print("\n".join([*lines[:-1], *extra, lines[-1]]))
     return EXIT_OK
+
+
+_SIDE_BY_SIDE = (
+    ("required reviews", "required_coverage"),
+    ("all reviews", "coverage"),
+    ("reviewer floors", "floors_met"),
+    ("total score", "total_score"),
+)
+
+
+def _columns(heads: tuple[str, ...], figures: list[dict[str, float] | None]) -> list[str]:
+    """The plan figures of several plans side by side, one line per figure."""
+    lines = ["  " + " " * 17 + "".join(f"{h:>12}" for h in heads)]
+    for label, key in _SIDE_BY_SIDE:
+        cells = "".join(
+            f"{'-' if f is None else format(f[key], '.2f'):>12}" for f in figures
+        )
+        lines.append(f"    {label:<15}{cells}")
+    return lines
+
+
+def random_lines(summary: dict[str, object]) -> list[str]:
+    """Plain-text lines on a randomised plan: cap, seed, its figures beside the plain plan's."""
+    r = summary.get("randomised")
+    if not isinstance(r, dict):
+        return []
+    lines = [
+        f"  randomised       each pair at most {r['max_probability']:g} (seed {r['seed']}, "
+        f"probabilities in steps of 1/{r['scale']}"
+        + ("; earlier draw's pairs kept" if r["kept_earlier"] else "")
+        + ")",
+        f"    drawn by {r['method']}",
+        *_columns(("this draw", "expected", "plain plan"), [r["drawn"], r["expected"], r["plain"]]),
+    ]
+    if r["expected_score_given_up"] is not None:
+        lines.append(
+            f"    expected score given up for the cap: {r['expected_score_given_up']:.2f}"
+        )
+    lines.append(f"    {r['certified']}")
+    lines.append(str(r["caution"]))
+    return lines
+
+
+def fair_lines(summary: dict[str, object]) -> list[str]:
+    """Plain-text lines on the fairest plan: the worst-off papers, the bound, the plain plan."""
+    f = summary.get("fairness")
+    if not isinstance(f, dict):
+        return []
+    how = "proven optimal" if f["exact"] else f"bound {f['bound']:.2f}, gap {f['gap_to_bound']:.2f}"
+    lines = [
+        f"  fairest plan     lowest paper total {f['lowest_paper_score']:.2f} ({how}); "
+        f"plain plan's lowest {f['plain_lowest_paper_score']:.2f}",
+        f"    by {f['method']}",
+        f"    worst off: {', '.join(f['worst_papers']) or 'none'}",
+        *_columns(("fairest", "plain plan"), [f["fair"], f["plain"]]),
+        str(f["caution"]),
+    ]
+    return lines
 
 
 def _cmd_demo(args: argparse.Namespace) -> int:

@@ -34,7 +34,7 @@ from pydantic import Field, field_validator
 from review_alloc.model.base import DocumentModel
 from review_alloc.model.entities import Conflict, PairRule, Paper, Reviewer
 from review_alloc.model.errors import InputError
-from review_alloc.model.plans import Assignment, Plan, PlanFigures
+from review_alloc.model.plans import Assignment, Plan, PlanDraw, PlanFairness, PlanFigures
 from review_alloc.model.policy import Policy
 from review_alloc.model.scores import ScoreTable
 
@@ -248,6 +248,9 @@ class Revision(DocumentModel):
     bottleneck: float | None = None
     bound: dict[str, float] | None = None
     loads_before_balance: list[int] | None = None
+    draw: PlanDraw | None = None
+    """How a randomised plan was drawn (positions refer to this revision's data)."""
+    fairness: PlanFairness | None = None
     data: DataDelta
 
     @field_validator("created_at")
@@ -291,6 +294,8 @@ class Revision(DocumentModel):
             bottleneck=self.bottleneck,
             bound=self.bound,
             loads_before_balance=self.loads_before_balance,
+            draw=self.draw,
+            fairness=self.fairness,
         )
 
 

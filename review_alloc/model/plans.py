@@ -13,6 +13,7 @@ from pydantic import Field, field_validator, model_validator
 
 from review_alloc.model.base import DocumentModel, Identifier
 from review_alloc.model.limits import MAX_SCORE
+from review_alloc.model.scores import ScoreTable
 
 FiniteFloat = Annotated[float, Field(allow_inf_nan=False)]
 """A float that is neither infinite nor NaN (JSON has neither; a hand-edited file may)."""
@@ -64,6 +65,56 @@ class PlanFigures(DocumentModel):
         return self
 
 
+def comparable_figures(figures: PlanFigures) -> dict[str, float]:
+    """The figures a randomised or fair plan is set beside the plain plan with."""
+    return {
+        "required_coverage": float(figures.required_coverage),
+        "coverage": float(figures.coverage),
+        "floors_met": float(figures.floors_met),
+        "total_score": float(figures.total_score),
+    }
+
+
+class PlanDraw(DocumentModel):
+    """How a randomised plan was drawn, so that anyone can draw it again and audit it.
+
+    `probabilities` holds every pair with a positive chance (reviewer and paper positions in
+    the session the plan was made from, value = the pair's probability, a multiple of
+    1/`scale`); the plan is the dependent rounding of those values with `seed`.
+    """
+
+    max_probability: float = Field(gt=0, le=1, allow_inf_nan=False)
+    seed: int = Field(ge=0)
+    scale: int = Field(ge=1)
+    """Probabilities are whole multiples of 1/scale (the fractional plan's integer flow unit)."""
+    method: str
+    probabilities: ScoreTable
+    expected: dict[str, float]
+    """The fractional plan's figures (`required_coverage`, `coverage`, `floors_met`,
+    `total_score`): the means over all draws."""
+    plain: dict[str, float] | None = None
+    """The same figures of the plain optimal plan of the same data, for comparison."""
+    kept_earlier: bool = False
+    """A re-plan of an earlier draw: its still-allowed pairs were kept where coverage allowed."""
+
+
+class PlanFairness(DocumentModel):
+    """The fairest plan's figures: the worst-off paper's total score against what is possible."""
+
+    lowest_paper_score: float = Field(allow_inf_nan=False)
+    """The lowest total score of any paper that has reviews to get."""
+    bound: float = Field(allow_inf_nan=False)
+    """No plan with the same coverage tiers gives every paper more than this."""
+    exact: bool
+    """True when a MIP proved `lowest_paper_score` optimal (then it equals `bound`)."""
+    method: str
+    worst_papers: list[Identifier] = Field(default_factory=list)
+    plain_lowest_paper_score: float | None = None
+    plain: dict[str, float] | None = None
+    """The plain optimal plan's figures (`required_coverage`, `coverage`, `floors_met`,
+    `total_score`), for comparison."""
+
+
 def _utc_now() -> datetime:
     return datetime.now(UTC)
 
@@ -84,6 +135,10 @@ class Plan(DocumentModel):
     bound: dict[str, FiniteFloat] | None = None
     """Tier values of a relaxation above this plan (it is optimal within them); `None` when the
     plan is proven optimal."""
+    draw: PlanDraw | None = None
+    """Set when the plan was drawn at random under a probability cap (`plan.randomized`)."""
+    fairness: PlanFairness | None = None
+    """Set when the plan maximises the worst-off paper's total score (`plan.fair`)."""
 
     @field_validator("created_at")
     @classmethod

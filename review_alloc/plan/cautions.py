@@ -22,3 +22,16 @@ CONFLICT_CAUTION = (
 
 FIX_CAUTIONS = (RAISE_CAP_CAUTION, CONFLICT_CAUTION)
 """The cautions of an explanation's fixes, in the order shown."""
+
+RANDOM_CAUTION = (
+    "A randomised plan gives up some expected score so that no reviewer can count on getting "
+    "any one paper: compare its scores with the plain plan's before choosing it, and keep the "
+    "seed and probabilities with the record so the draw can be repeated for anyone who asks."
+)
+"""Shown beside a randomised plan, with its score next to the plain plan's."""
+
+FAIR_CAUTION = (
+    "The fairest plan lifts the worst-off papers at the cost of some total score: compare its "
+    "scores with the plain plan's before choosing it."
+)
+"""Shown beside the fairest plan, with its scores next to the plain plan's."""

@@ -9,11 +9,12 @@ binary search over the sorted distinct scores. At each step a Dinic maximum flow
 coverage can still be reached; the planner then confirms the top tiers with a min-cost solve
 and searches lower if the senior tier or an institution split lost something.
 
-Not offered: lifting the weakest papers' *total* score (the max-min objective of Stelmakh, Shah
-and Singh's PeerReview4All). A lower bound on every paper's total score is a side constraint on
-arc costs, not a capacity, so it is not a flow problem; those authors show the exact problem is
-NP-hard and give an approximation algorithm instead. We do not ship an approximation under an
-exact-sounding name.
+Lifting the weakest papers' *total* score (the max-min objective of Stelmakh, Shah and Singh's
+PeerReview4All) is not done here: a lower bound on every paper's total score is a side
+constraint on arc costs, not a capacity, so it is not a flow problem, and those authors show the
+exact problem is NP-hard. `plan.fair` offers it as a separate plan: exact by a MIP (HiGHS) where
+that finishes in time, else PeerReview4All's first round, named as such and shown with an upper
+bound and the gap to it, never under an exact-sounding name.
 """
 
 from __future__ import annotations

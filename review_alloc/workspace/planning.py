@@ -17,6 +17,8 @@ from review_alloc.model import Action, Plan, Session
 from review_alloc.model.history import DataDelta, Revision, assignment_table
 from review_alloc.plan import PlanOutcome, make_plan, plan_summary
 from review_alloc.plan.explanation import FIX_KINDS, Explanation, explain, report
+from review_alloc.plan.fair import fair_plan, fairness_report
+from review_alloc.plan.randomized import draw_report, random_plan
 from review_alloc.plan.whatif import WhatIf, add_recruits, allow_overload, raise_caps, what_if
 from review_alloc.workspace.base import MARKS, ChangeRefused, data_of, redoable, same_data
 from review_alloc.workspace.changes import ChangesMixin
@@ -40,12 +42,36 @@ class PlanRequest:
     fresh: bool
     earlier: Plan | None
     warm: PlanOutcome | None
+    max_probability: float | None = None
+    """Draw the plan at random with each pair's probability at most this (`plan.randomized`)."""
+    seed: int | None = None
+    """The draw's seed (None: a fresh one, stored with the plan)."""
+    keep_draw: Plan | None = None
+    """An earlier draw whose allowed pairs a randomised re-plan keeps."""
+    fair: bool = False
+    """Maximise the worst-off paper's total score (`plan.fair`)."""
 
     def run(self, now: datetime | None = None) -> PlanOutcome:
-        """Make the optimal, checked plan of the snapshot (nothing is installed)."""
-        return make_plan(
-            self.session, fresh=self.fresh, earlier=self.earlier, now=now, warm=self.warm
-        )
+        """Make the checked plan of the snapshot (nothing is installed).
+
+        A randomised or fair plan also makes the plain plan, which its figures are set beside.
+        """
+        if self.max_probability is None and not self.fair:
+            return make_plan(
+                self.session, fresh=self.fresh, earlier=self.earlier, now=now, warm=self.warm
+            )
+        # The comparison is with the best plain plan of the same data (a fresh one).
+        plain = make_plan(self.session, fresh=True, now=now, warm=self.warm)
+        if self.max_probability is not None:
+            return random_plan(
+                self.session,
+                self.max_probability,
+                seed=self.seed,
+                earlier=self.keep_draw,
+                now=now,
+                plain=plain,
+            )
+        return fair_plan(self.session, now=now, plain=plain)
 
 
 @dataclass(frozen=True)
@@ -81,14 +107,42 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
             return self.plan_of(self.session.revision)
         return self.session.plan
 
-    def plan_request(self, fresh: bool = False) -> PlanRequest:
+    def plan_request(
+        self,
+        fresh: bool = False,
+        *,
+        max_probability: float | None = None,
+        seed: int | None = None,
+        fair: bool = False,
+        plain: bool = False,
+    ) -> PlanRequest:
         """A snapshot for one plan: a re-plan keeps the current revision's pairs unless `fresh`;
-        the last outcome warm-starts it."""
+        the last outcome warm-starts it.
+
+        `max_probability` draws a new randomised plan (`seed` fixes the draw). Without it, a
+        re-plan of a randomised plan stays randomised: same cap, same seed, and the earlier
+        draw's allowed pairs kept (all redrawn when `fresh`) unless `plain` or `fair` asks
+        for a plain or a fair plan instead.
+        """
+        earlier = None if fresh else self.earlier_plan()
+        keep_draw = None
+        current = self.earlier_plan()
+        draw = current.draw if current is not None else None
+        if max_probability is None and draw is not None and not (plain or fair):
+            max_probability = draw.max_probability
+            seed = draw.seed if seed is None else seed
+            keep_draw = None if fresh else current
+        if seed is not None and max_probability is None:
+            raise ChangeRefused(["a seed is for a randomised plan: give a maximum probability"])
         return PlanRequest(
             session=self.session,
             fresh=fresh,
-            earlier=None if fresh else self.earlier_plan(),
+            earlier=earlier,
             warm=self.last_outcome,
+            max_probability=max_probability,
+            seed=seed,
+            keep_draw=keep_draw,
+            fair=fair and max_probability is None,
         )
 
     @redoable
@@ -98,9 +152,19 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
         *,
         now: datetime | None = None,
         progress: Callable[[str], None] | None = None,
+        max_probability: float | None = None,
+        seed: int | None = None,
+        fair: bool = False,
+        plain: bool = False,
     ) -> PlanOutcome:
-        """Make the optimal, checked plan of the session as it is now and install it."""
-        request = self.plan_request(fresh)
+        """Make the checked plan of the session as it is now and install it: the optimal plan,
+        a randomised one (`max_probability`, `seed`) or the fairest one (`fair`); see
+        `plan_request` for how a re-plan keeps a randomised plan randomised."""
+        if max_probability is not None and fair:
+            raise ChangeRefused(["choose either a randomised plan or the fairest plan, not both"])
+        request = self.plan_request(
+            fresh, max_probability=max_probability, seed=seed, fair=fair, plain=plain
+        )
         if progress:
             progress("building the network and solving")
         outcome = request.run(now)
@@ -145,6 +209,8 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
             bottleneck=plan.bottleneck,
             bound=plan.bound,
             loads_before_balance=plan.loads_before_balance,
+            draw=plan.draw,
+            fairness=plan.fairness,
             data=DataDelta.between(
                 self.data_of(parent) if parent is not None else None, data, s.scores
             ),
@@ -184,6 +250,20 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
             revision = self._revision(self.session.revision)
             summary["revision"] = revision.number
             summary["kept"] = revision.kept
+        if plan.draw is not None:
+            summary["randomised"] = draw_report(self.session, plan)
+            summary["optimality"]["claim"] = (
+                "a random draw: its expected figures are the capped optimum; the draw itself is "
+                "not optimal"
+            )
+        if plan.fairness is not None:
+            summary["fairness"] = fairness_report(plan)
+            summary["optimality"]["claim"] = (
+                "the fairest plan (lowest paper total proven optimal)"
+                if plan.fairness.exact
+                else "the fairest plan found, not proven optimal; lowest paper total within "
+                "the stated bound"
+            )
         return summary
 
     # -- explanations ---------------------------------------------------------------------
