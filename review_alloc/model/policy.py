@@ -94,7 +94,8 @@ class Policy(DocumentModel):
     balance: float = Field(default=0.0, ge=0, le=1000, allow_inf_nan=False)
     """Load-balance strength: each reviewer's k-th paper costs `balance * (k - 1)` score units."""
     bottleneck: bool = False
-    """Maximise the lowest score among assigned pairs before floors and total score."""
+    """Maximise the lowest score among the assigned pairs that are not pinned (a pin may score
+    lower), after coverage and before floors and total score."""
     max_leads: int = Field(default=3, ge=0, le=MAX_COUNT)
     """Most papers one reviewer leads."""
 
