@@ -28,11 +28,28 @@ Handler = Callable[[argparse.Namespace], int]
 
 def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
     """Add this module's sub-commands; return their handlers by name."""
-    p = sub.add_parser("import", help="build a session file from CSV files")
-    p.add_argument("--papers", required=True, type=Path, help="papers CSV")
-    p.add_argument("--reviewers", required=True, type=Path, help="reviewers CSV")
-    p.add_argument("--conflicts", type=Path, help="declared conflicts CSV")
-    p.add_argument("--scores", type=Path, help="scores CSV (reviewer_id,paper_id,score)")
+    p = sub.add_parser(
+        "import",
+        help="build a session file from CSV files or workbooks (.xlsx, .ods)",
+        description="Build a session file from CSV files or workbooks. A CSV file may separate "
+        "its cells with ',' ';' or tab (a ';' file may use decimal commas) and be UTF-8 or "
+        "UTF-16 with a byte-order mark; a workbook is read from its first sheet.",
+    )
+    p.add_argument("--papers", required=True, type=Path, help="papers CSV or workbook")
+    p.add_argument("--reviewers", required=True, type=Path, help="reviewers CSV or workbook")
+    p.add_argument("--conflicts", type=Path, help="declared conflicts CSV or workbook")
+    p.add_argument(
+        "--scores", type=Path, help="scores CSV or workbook (reviewer_id, paper_id, score)"
+    )
+    p.add_argument(
+        "--sheet", metavar="NAME", help="read this sheet of each workbook (default: the first)"
+    )
+    p.add_argument(
+        "--encoding",
+        metavar="NAME",
+        help="the text encoding of CSV files that are neither UTF-8 nor UTF-16 with a "
+        "byte-order mark (for example cp1252)",
+    )
     p.add_argument("--reviews", type=positive, help="reviews wanted per paper (default 3)")
     p.add_argument("--min-reviews", type=whole, help="reviews each paper must get (default 2)")
     p.add_argument("--cap", type=whole, help="most papers per reviewer (default 6)")
@@ -212,6 +229,8 @@ def _cmd_import(args: argparse.Namespace) -> int:
         name=args.name,
         kind="panel" if args.panel else "conference",
         replace=args.force,
+        sheet=args.sheet,
+        encoding=args.encoding,
     ).session
     print(
         f"{args.output}: {len(session.papers)} {session.noun}s, {len(session.reviewers)} "

@@ -163,9 +163,12 @@ class FilesMixin(WorkspaceBase):
         name: str | None = None,
         kind: str = "conference",
         replace: bool = False,
+        sheet: str | None = None,
+        encoding: str | None = None,
     ) -> Self:
-        """Build a session from CSV files and save it to `target` (refused if it exists unless
-        `replace`); every problem names its file, line and column, and nothing is written."""
+        """Build a session from CSV files or workbooks and save it to `target` (refused if it
+        exists unless `replace`); every problem names its file, line (or sheet, row) and
+        column, and nothing is written."""
         from review_alloc.io import import_csv
 
         if target.exists() and not replace:
@@ -179,6 +182,8 @@ class FilesMixin(WorkspaceBase):
             ignore_extra=ignore_extra,
             name=name or target.stem,
             kind=kind,
+            sheet=sheet,
+            encoding=encoding,
         )
         workspace = cls(session, None)
         workspace.save(target, replace=replace)

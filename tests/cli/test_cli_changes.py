@@ -236,10 +236,11 @@ def test_notify_writes_its_csv_atomically(
         raise OSError(28, "No space left on device")
 
     monkeypatch.setattr(os, "replace", broken)
-    assert main(["notify", str(small), "--since", "1", "--to", str(target)]) == 1
+    argv = ["notify", str(small), "--since", "1", "--to", str(target), "--force"]
+    assert main(argv) == 1
     monkeypatch.undo()
     assert target.read_text() == "earlier list\n"
-    out = _json(capsys, ["notify", str(small), "--since", "1", "--to", str(target)])
+    out = _json(capsys, argv)
     assert who in out["reviewers"]
     header = target.read_text().splitlines()[0]
     assert header.startswith("reviewer_id,name,email,status,papers_added")
