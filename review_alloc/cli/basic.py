@@ -74,12 +74,27 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
     p.add_argument("--json", action="store_true", help="print one JSON object")
     add_rule_flags(p)
 
-    p = sub.add_parser("export", help="write the plan as CSV")
+    p = sub.add_parser(
+        "export",
+        help="write the plan as CSV or as a workbook (.xlsx)",
+        description="Write the plan: FILE.csv has one row per assignment (with a lead column); "
+        "FILE.xlsx is a workbook with sheets by paper (the lead marked), by reviewer (load, cap, "
+        "floor), the papers short of reviews, and a summary.",
+    )
     p.add_argument("session", type=Path)
     p.add_argument(
-        "--to", required=True, dest="target", help="CSV file to write ('-': standard output)"
+        "--to",
+        required=True,
+        dest="target",
+        metavar="FILE",
+        help="FILE.csv or FILE.xlsx to write ('-': CSV on standard output)",
     )
-    p.add_argument("--by", choices=("paper", "reviewer"), default="paper")
+    p.add_argument(
+        "--by",
+        choices=("paper", "reviewer"),
+        default="paper",
+        help="the CSV's row order (a workbook has both)",
+    )
     add_output_options(p)
 
     sub.add_parser("schema", help="print the session document's JSON Schema")
@@ -297,7 +312,10 @@ def _cmd_export(args: argparse.Namespace) -> int:
         return EXIT_OK
     target = Path(args.target)
     rows = ws.export(target, by=args.by, force=args.force, bom=args.bom)
-    print(f"{target}: {rows} assignments, one row each, by {args.by}")
+    if target.suffix.lower() == ".xlsx":
+        print(f"{target}: workbook with {rows} assignments (by paper, by reviewer, short, summary)")
+    else:
+        print(f"{target}: {rows} assignments, one row each, by {args.by}")
     return EXIT_OK
 
 

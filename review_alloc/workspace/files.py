@@ -249,15 +249,28 @@ class FilesMixin(WorkspaceBase):
         force: bool = False,
         bom: bool = False,
     ) -> int:
-        """Write the current plan as CSV, one row per assignment; returns the rows written.
+        """Write the current plan as CSV (one row per assignment, sorted `by`) or, for a .xlsx
+        target, as a workbook (by paper with the lead marked, by reviewer, the papers short of
+        reviews, a summary); returns the assignments written.
 
-        Refused when the plan stored in the file broke a rule (it is never exported), and where
-        `writable` refuses the target."""
+        Refused for any other suffix, when the plan stored in the file broke a rule (it is
+        never exported), and where `writable` refuses the target."""
+        self.refuse_broken_plan()
+        # The session file is refused first, whatever its suffix: that is the graver mistake.
+        self.writable(target, force=force)
+        suffix = export_format(target)
+        if suffix == ".xlsx" and bom:
+            raise InputError([f"{target}: --bom is for CSV files; a workbook needs none"])
+        if suffix == ".xlsx":
+            from review_alloc.io.workbook import workbook_bytes
+            from review_alloc.plan.cautions import PLAN_CAUTION
+
+            summary = self.summary()  # type: ignore[attr-defined]
+            _write_bytes(target, workbook_bytes(self.session, summary, PLAN_CAUTION))
+            return len(summary["assignments"])
         from review_alloc.io import plan_table, write_table
 
-        self.refuse_broken_plan()
         header, rows = plan_table(self.session, by)
-        self.writable(target, force=force)
         write_table(target, header, rows, bom=bom)
         return len(rows)
 
@@ -307,6 +320,33 @@ class FilesMixin(WorkspaceBase):
             raise InputError([f"{target}: this is a session file; an export never replaces one"])
         if not force:
             raise InputError([f"{target}: already exists; add --force to replace it"])
+
+
+EXPORT_SUFFIXES = (".csv", ".xlsx")
+"""The files an export writes: CSV, or a workbook."""
+
+
+def export_format(target: Path) -> str:
+    """The export suffix of `target` (`.csv` or `.xlsx`, any case); InputError for others."""
+    suffix = target.suffix.lower()
+    if suffix not in EXPORT_SUFFIXES:
+        found = f"{target.suffix!r}" if target.suffix else "no suffix"
+        raise InputError(
+            [
+                f"{target}: an export is a .csv or .xlsx file (or '-' for standard output), "
+                f"not {found}; name the file plan.csv or plan.xlsx"
+            ]
+        )
+    return suffix
+
+
+def _write_bytes(target: Path, data: bytes) -> None:
+    from review_alloc.model import atomic_write_bytes
+
+    try:
+        atomic_write_bytes(target, data)
+    except OSError as error:
+        raise InputError([f"{target}: cannot write ({error.strerror or error})"]) from None
 
 
 def _is_session_document(path: Path) -> bool:
