@@ -114,9 +114,6 @@ def small(tmp_path: Path) -> Path:
         (["pin", "--reviewer", "R0001", "--paper", "NOPE"], "unknown paper 'NOPE'"),
         (["unpin", "--reviewer", "R0001", "--paper", "W0001"], "is not pinned"),
         (["unblock", "--reviewer", "R0001", "--paper", "W0001"], "is not blocked"),
-        (["set", "--reviewer", "R0001", "--reviews", "2"], "apply to a paper"),
-        (["set", "--paper", "W0001", "--cap", "2"], "apply to a reviewer"),
-        (["set", "--reviewer", "R0001"], "give --cap or --floor"),
         (["set", "--paper", "W0001", "--min-reviews", "9"], "exceeds reviews"),
         (["add-reviewer", "--id", "R0001"], "already exists"),
         (["add-reviewer", "--id", "RX", "--email", "not-mail"], "not an e-mail address"),
@@ -129,6 +126,7 @@ def small(tmp_path: Path) -> Path:
 def test_bad_changes_exit_1_with_a_message_and_leave_the_file(
     small: Path, argv: list[str], message: str, capsys: pytest.CaptureFixture[str]
 ) -> None:
+    # Options that do not go together are usage errors (exit 2): test_cli_conventions.py.
     before = small.read_bytes()
     assert main([argv[0], str(small), *argv[1:]]) == 1
     err = capsys.readouterr().err
@@ -257,4 +255,10 @@ def test_history_and_diff_print_for_people(small: Path, capsys: pytest.CaptureFi
     assert "2 revisions" in text and f"withdraw-reviewer {who}: ill" in text
     assert main(["diff", str(small), "1", "2"]) == 0
     text = capsys.readouterr().out
-    assert "revision 1 -> 2" in text and f"  {who}: +[] -[" in text
+    assert "revision 1 -> 2" in text
+    # Names and titles beside the ids.
+    name = next(r.name for r in session.reviewers if r.id == who)
+    lost = next(a.paper for a in session.plan.assignments if a.reviewer == who)
+    title = next(p.title for p in session.papers if p.id == lost)
+    assert f"  {who} {name}:\n" in text and f'    - {lost} "{title}"\n' in text
+    assert f"    - {who} {name}\n" in text
