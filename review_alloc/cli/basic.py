@@ -97,6 +97,22 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
     )
     add_output_options(p)
 
+    p = sub.add_parser(
+        "report",
+        help="write the committee's report: one self-contained HTML page",
+        description="Write one HTML page a committee can read and print: headline figures, "
+        "coverage per topic, reviewers' load, scores, gaps with their shortfall groups and "
+        "fixes, conflicts by reason, the revisions and who must be told, and the cautions. "
+        "It holds its styles and charts inline and fetches nothing.",
+    )
+    p.add_argument("session", type=Path)
+    p.add_argument("--to", required=True, dest="target", type=Path, metavar="FILE.html")
+    p.add_argument(
+        "--force",
+        action="store_true",
+        help="replace an existing file (a session file is never replaced)",
+    )
+
     sub.add_parser("schema", help="print the session document's JSON Schema")
     p = sub.add_parser("demo", help="plan the built-in demo session and print its summary")
     p.add_argument("--json", action="store_true", help="print one JSON object")
@@ -104,6 +120,7 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
         "import": _cmd_import,
         "plan": _cmd_plan,
         "export": _cmd_export,
+        "report": _cmd_report,
         "schema": _cmd_schema,
         "demo": _cmd_demo,
     }
@@ -316,6 +333,19 @@ def _cmd_export(args: argparse.Namespace) -> int:
         print(f"{target}: workbook with {rows} assignments (by paper, by reviewer, short, summary)")
     else:
         print(f"{target}: {rows} assignments, one row each, by {args.by}")
+    return EXIT_OK
+
+
+def _cmd_report(args: argparse.Namespace) -> int:
+    from review_alloc.workspace import Workspace
+
+    ws = Workspace.open(args.session)
+    data = ws.write_report(args.target, force=args.force)
+    gaps = len(data.summary["gaps"])
+    print(
+        f"{args.target}: report on {data.name}, {len(data.summary['assignments'])} assignments, "
+        f"{gaps} {data.noun}s short of reviews"
+    )
     return EXIT_OK
 
 

@@ -9,15 +9,19 @@ this workspace read or wrote it.
 from __future__ import annotations
 
 import os
+import re
 from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Literal, Self
+from typing import TYPE_CHECKING, Literal, Self
 
 from filelock import FileLock, Timeout
 
 from review_alloc.model import InputError, Policy, load_session, save_session
 from review_alloc.workspace.base import Step, WorkspaceBase
+
+if TYPE_CHECKING:
+    from review_alloc.io.report_html import ReportData
 
 DEMO_FILE = "demo-workshop.json"
 
@@ -274,6 +278,77 @@ class FilesMixin(WorkspaceBase):
         write_table(target, header, rows, bom=bom)
         return len(rows)
 
+    def report_data(self) -> ReportData:
+        """What the committee's report shows, from the current plan (refused when there is
+        none, when it is stale, or when the stored plan broke a rule)."""
+        from collections import Counter
+        from datetime import UTC, datetime
+
+        from review_alloc.io.report_html import ReportData
+        from review_alloc.plan.cautions import PLAN_CAUTION
+        from review_alloc.workspace.facts import Facts
+
+        self.refuse_broken_plan()
+        plan = self.session.plan
+        if plan is None or not plan.checked or not self.plan_is_current():
+            raise InputError(
+                [f"{self.session.name}: the plan is missing or out of date; plan again first"]
+            )
+        summary = self.summary()  # type: ignore[attr-defined]
+        explanation = self.explain_report()  # type: ignore[attr-defined]
+        facts = Facts.of(self.session)
+        s = self.session
+        reviewers = [
+            (r.id, r.name, int(facts.loads[j]), int(facts.cap[j]), int(facts.floor[j]))
+            for j, r in enumerate(s.reviewers)
+            if not r.withdrawn
+        ]
+        history = self.history()  # type: ignore[attr-defined]
+        first = history[0].number if history else None
+        since = first if first is not None and s.revision not in (None, first) else None
+        notices = []
+        if since is not None:
+            notices = [
+                {
+                    "reviewer": n.reviewer,
+                    "name": n.name,
+                    "email": n.email,
+                    "added": list(n.added),
+                    "removed": list(n.removed),
+                }
+                for n in self.notify_rows(since)  # type: ignore[attr-defined]
+            ]
+        return ReportData(
+            name=s.name,
+            noun=s.noun,
+            summary=summary,
+            explanation=explanation,
+            topics=facts.topic_coverage(),
+            load_bands=facts.load_bands(),
+            reviewers=reviewers,
+            score_bins=facts.score_histogram(),
+            conflicts=Counter(
+                _reason_kind(reason) for reason in facts.conflict_reason.values()
+            ).most_common(),
+            revisions=[e.to_json() for e in history],
+            notices_since=since,
+            notices=notices,
+            cautions=[*explanation["cautions"], PLAN_CAUTION],
+            generated=datetime.now(UTC).strftime("%Y-%m-%d %H:%M UTC"),
+        )
+
+    def write_report(self, target: Path, *, force: bool = False) -> ReportData:
+        """Write the committee's report (one self-contained HTML page) to `target`, an .html
+        file, refused where `writable` refuses it; returns what it shows."""
+        from review_alloc.io.report_html import report_html
+
+        self.writable(target, force=force)
+        if target.suffix.lower() not in (".html", ".htm"):
+            raise InputError([f"{target}: the report is an HTML page; name it report.html"])
+        data = self.report_data()
+        _write_bytes(target, report_html(data).encode("utf-8"))
+        return data
+
     def export_text(self, by: Literal["paper", "reviewer"] = "paper", *, bom: bool = False) -> str:
         """The plan's CSV as text (for standard output)."""
         from review_alloc.io import csv_text, plan_table
@@ -320,6 +395,13 @@ class FilesMixin(WorkspaceBase):
             raise InputError([f"{target}: this is a session file; an export never replaces one"])
         if not force:
             raise InputError([f"{target}: already exists; add --force to replace it"])
+
+
+def _reason_kind(reason: str) -> str:
+    """A conflict's reason without its particulars (`same institution (X); same e-mail domain
+    (x.example)` → `same institution; same e-mail domain`), so the report counts kinds."""
+    parts = [re.sub(r"\s*\([^)]*\)$", "", part.strip()) for part in reason.split(";")]
+    return "; ".join(part for part in parts if part)
 
 
 EXPORT_SUFFIXES = (".csv", ".xlsx")
