@@ -330,7 +330,12 @@ def _revisions(data: ReportData) -> str:
 def report_html(data: ReportData) -> str:
     """The whole report page as one HTML document."""
     s = data.summary
-    checked = "checked, optimal" if s["checked"] else "NOT checked"
+    if not s["checked"]:
+        checked = "NOT checked"
+    elif s.get("optimality", {}).get("proven", True):
+        checked = "checked, optimal"
+    else:
+        checked = "checked; optimal within a relaxation bound"
     revision = f", revision {s['revision']}" if s.get("revision") is not None else ""
     conflicts = (
         _table(["reason", "pairs"], [[r, n] for r, n in data.conflicts], {1})
