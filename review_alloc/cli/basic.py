@@ -28,11 +28,28 @@ Handler = Callable[[argparse.Namespace], int]
 
 def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
     """Add this module's sub-commands; return their handlers by name."""
-    p = sub.add_parser("import", help="build a session file from CSV files")
-    p.add_argument("--papers", required=True, type=Path, help="papers CSV")
-    p.add_argument("--reviewers", required=True, type=Path, help="reviewers CSV")
-    p.add_argument("--conflicts", type=Path, help="declared conflicts CSV")
-    p.add_argument("--scores", type=Path, help="scores CSV (reviewer_id,paper_id,score)")
+    p = sub.add_parser(
+        "import",
+        help="build a session file from CSV files or workbooks (.xlsx, .ods)",
+        description="Build a session file from CSV files or workbooks. A CSV file may separate "
+        "its cells with ',' ';' or tab (a ';' file may use decimal commas) and be UTF-8 or "
+        "UTF-16 with a byte-order mark; a workbook is read from its first sheet.",
+    )
+    p.add_argument("--papers", required=True, type=Path, help="papers CSV or workbook")
+    p.add_argument("--reviewers", required=True, type=Path, help="reviewers CSV or workbook")
+    p.add_argument("--conflicts", type=Path, help="declared conflicts CSV or workbook")
+    p.add_argument(
+        "--scores", type=Path, help="scores CSV or workbook (reviewer_id, paper_id, score)"
+    )
+    p.add_argument(
+        "--sheet", metavar="NAME", help="read this sheet of each workbook (default: the first)"
+    )
+    p.add_argument(
+        "--encoding",
+        metavar="NAME",
+        help="the text encoding of CSV files that are neither UTF-8 nor UTF-16 with a "
+        "byte-order mark (for example cp1252)",
+    )
     p.add_argument("--reviews", type=positive, help="reviews wanted per paper (default 3)")
     p.add_argument("--min-reviews", type=whole, help="reviews each paper must get (default 2)")
     p.add_argument("--cap", type=whole, help="most papers per reviewer (default 6)")
@@ -72,13 +89,44 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
     p.add_argument("--json", action="store_true", help="print one JSON object")
     add_rule_flags(p)
 
-    p = sub.add_parser("export", help="write the plan as CSV")
+    p = sub.add_parser(
+        "export",
+        help="write the plan as CSV or as a workbook (.xlsx)",
+        description="Write the plan: FILE.csv has one row per assignment (with a lead column); "
+        "FILE.xlsx is a workbook with sheets by paper (the lead marked), by reviewer (load, cap, "
+        "floor), the papers short of reviews, and a summary.",
+    )
     p.add_argument("session", type=Path)
     p.add_argument(
-        "--to", required=True, dest="target", help="CSV file to write ('-': standard output)"
+        "--to",
+        required=True,
+        dest="target",
+        metavar="FILE",
+        help="FILE.csv or FILE.xlsx to write ('-': CSV on standard output)",
     )
-    p.add_argument("--by", choices=("paper", "reviewer"), default="paper")
+    p.add_argument(
+        "--by",
+        choices=("paper", "reviewer"),
+        default="paper",
+        help="the CSV's row order (a workbook has both)",
+    )
     add_output_options(p)
+
+    p = sub.add_parser(
+        "report",
+        help="write the committee's report: one self-contained HTML page",
+        description="Write one HTML page a committee can read and print: headline figures, "
+        "coverage per topic, reviewers' load, scores, gaps with their shortfall groups and "
+        "fixes, conflicts by reason, the revisions and who must be told, and the cautions. "
+        "It holds its styles and charts inline and fetches nothing.",
+    )
+    p.add_argument("session", type=Path)
+    p.add_argument("--to", required=True, dest="target", type=Path, metavar="FILE.html")
+    p.add_argument(
+        "--force",
+        action="store_true",
+        help="replace an existing file (a session file is never replaced)",
+    )
 
     sub.add_parser("schema", help="print the session document's JSON Schema")
     p = sub.add_parser("demo", help="plan the built-in demo session and print its summary")
@@ -87,6 +135,7 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
         "import": _cmd_import,
         "plan": _cmd_plan,
         "export": _cmd_export,
+        "report": _cmd_report,
         "schema": _cmd_schema,
         "demo": _cmd_demo,
     }
@@ -246,6 +295,8 @@ def _cmd_import(args: argparse.Namespace) -> int:
         name=args.name,
         kind="panel" if args.panel else "conference",
         replace=args.force,
+        sheet=args.sheet,
+        encoding=args.encoding,
     ).session
     print(
         f"{args.output}: {len(session.papers)} {session.noun}s, {len(session.reviewers)} "
@@ -380,7 +431,23 @@ def _cmd_export(args: argparse.Namespace) -> int:
         return EXIT_OK
     target = Path(args.target)
     rows = ws.export(target, by=args.by, force=args.force, bom=args.bom)
-    print(f"{target}: {rows} assignments, one row each, by {args.by}")
+    if target.suffix.lower() == ".xlsx":
+        print(f"{target}: workbook with {rows} assignments (by paper, by reviewer, short, summary)")
+    else:
+        print(f"{target}: {rows} assignments, one row each, by {args.by}")
+    return EXIT_OK
+
+
+def _cmd_report(args: argparse.Namespace) -> int:
+    from review_alloc.workspace import Workspace
+
+    ws = Workspace.open(args.session)
+    data = ws.write_report(args.target, force=args.force)
+    gaps = len(data.summary["gaps"])
+    print(
+        f"{args.target}: report on {data.name}, {len(data.summary['assignments'])} assignments, "
+        f"{gaps} {data.noun}s short of reviews"
+    )
     return EXIT_OK
 
 

@@ -13,11 +13,21 @@ import math
 import sys
 from collections.abc import Callable
 from pathlib import Path
+from typing import TYPE_CHECKING
 
-from review_alloc.cli.common import EXIT_OK, add_output_options, emit_json, positive, whole
+from review_alloc.cli.common import (
+    EXIT_OK,
+    UsageError,
+    add_output_options,
+    emit_json,
+    positive,
+    whole,
+)
 from review_alloc.model import InputError, Paper, Reviewer
 from review_alloc.model.text import nfc
-from review_alloc.workspace import Workspace, session_lock
+
+if TYPE_CHECKING:
+    from review_alloc.workspace import Workspace
 
 Handler = Callable[[argparse.Namespace], int]
 
@@ -140,6 +150,9 @@ def _naming_session(handler: Handler) -> Handler:
     """The handler, with every refused change's lines naming the session file it concerns."""
 
     def run(args: argparse.Namespace) -> int:
+        # The workspace loads the solver, so it is imported only when a command runs.
+        from review_alloc.workspace import session_lock
+
         try:
             # Held from load to save: a second writer waits, then changes the newer file.
             with session_lock(args.session, required=False):
@@ -178,6 +191,8 @@ def _finish(ws: Workspace, args: argparse.Namespace, before: int | None) -> int:
 
 
 def _open(args: argparse.Namespace) -> tuple[Workspace, int | None]:
+    from review_alloc.workspace import Workspace
+
     ws = Workspace.open(args.session)
     plan = ws.session.plan
     return ws, (len(plan.assignments) if plan is not None else None)
@@ -217,16 +232,16 @@ def _pair_command(method: str) -> Handler:
 def _cmd_set(args: argparse.Namespace) -> int:
     if args.reviewer is not None:
         if args.reviews is not None or args.min_reviews is not None:
-            raise InputError(["--reviews and --min-reviews apply to a paper, not a reviewer"])
+            raise UsageError("--reviews and --min-reviews apply to a paper, not a reviewer")
         if args.cap is None and args.floor is None:
-            raise InputError(["give --cap or --floor (or both) for the reviewer"])
+            raise UsageError("give --cap or --floor (or both) for the reviewer")
         ws, before = _open(args)
         ws.set_reviewer(args.reviewer, cap=args.cap, floor=args.floor, reason=args.reason)
     else:
         if args.cap is not None or args.floor is not None:
-            raise InputError(["--cap and --floor apply to a reviewer, not a paper"])
+            raise UsageError("--cap and --floor apply to a reviewer, not a paper")
         if args.reviews is None and args.min_reviews is None:
-            raise InputError(["give --reviews or --min-reviews (or both) for the paper"])
+            raise UsageError("give --reviews or --min-reviews (or both) for the paper")
         ws, before = _open(args)
         ws.set_paper(
             args.paper, reviews=args.reviews, min_reviews=args.min_reviews, reason=args.reason
@@ -302,6 +317,8 @@ def _cmd_add_paper(args: argparse.Namespace) -> int:
 
 
 def _cmd_history(args: argparse.Namespace) -> int:
+    from review_alloc.workspace import Workspace
+
     ws = Workspace.open(args.session)
     entries = ws.history()
     if args.json:
@@ -328,6 +345,8 @@ def _cmd_history(args: argparse.Namespace) -> int:
 
 
 def _cmd_diff(args: argparse.Namespace) -> int:
+    from review_alloc.workspace import Workspace
+
     ws = Workspace.open(args.session)
     change = ws.diff(args.old, args.new)
     if args.json:
@@ -338,18 +357,41 @@ def _cmd_diff(args: argparse.Namespace) -> int:
         f"{change.new_pairs} assignments, kept {change.kept}, added {len(change.added)}, "
         f"removed {len(change.removed)}"
     )
+    names = {r.id: r.name for r in ws.session.reviewers}
+    titles = {p.id: p.title for p in ws.session.papers}
+
+    def person(who: str) -> str:
+        return f"{who} {names[who]}" if names.get(who) else who
+
+    def paper(what: str) -> str:
+        return f'{what} "{titles[what]}"' if titles.get(what) else what
+
     if change.by_reviewer:
         print("by reviewer:")
         for who, c in change.by_reviewer.items():
-            print(f"  {who}: +[{', '.join(c.added)}] -[{', '.join(c.removed)}]")
+            print(f"  {person(who)}:")
+            _print_changes(c.added, c.removed, paper)
     if change.by_paper:
         print(f"by {ws.noun}:")
         for what, c in change.by_paper.items():
-            print(f"  {what}: +[{', '.join(c.added)}] -[{', '.join(c.removed)}]")
+            print(f"  {paper(what)}:")
+            _print_changes(c.added, c.removed, person)
     return EXIT_OK
 
 
+def _print_changes(
+    added: list[str], removed: list[str], show: Callable[[str], str]
+) -> None:
+    """One line per id gained (`+`) or lost (`-`), with its name or title."""
+    for x in added:
+        print(f"    + {show(x)}")
+    for x in removed:
+        print(f"    - {show(x)}")
+
+
 def _cmd_undo(args: argparse.Namespace) -> int:
+    from review_alloc.workspace import Workspace
+
     ws = Workspace.open(args.session)
     left = ws.session.revision
     target = ws.undo(args.reason)
@@ -362,6 +404,8 @@ def _cmd_undo(args: argparse.Namespace) -> int:
 
 
 def _cmd_notify(args: argparse.Namespace) -> int:
+    from review_alloc.workspace import Workspace
+
     ws = Workspace.open(args.session)
     if args.target == "-":
         sys.stdout.write(ws.notify_text(args.since, bom=args.bom))

@@ -8,11 +8,24 @@ import sys
 from typing import Any
 
 from review_alloc.model import MAX_COUNT, Session
-from review_alloc.plan.cautions import PLAN_CAUTION as CAUTION
 
 EXIT_OK, EXIT_INPUT, EXIT_USAGE, EXIT_CHECK = 0, 1, 2, 3
 EXIT_INTERRUPTED = 130
 """The shell's convention for a command stopped by Ctrl-C (128 + SIGINT)."""
+
+
+class UsageError(Exception):
+    """Options that do not go together; `main` shows the sub-command's usage and exits 2."""
+
+
+def caution() -> str:
+    """The caution every plan report ends with (from the planner's one list of cautions).
+
+    Imported when needed: importing the planner loads the solver (numba, scipy), which
+    `--help`, `--version` and `schema` must not wait for."""
+    from review_alloc.plan.cautions import PLAN_CAUTION
+
+    return PLAN_CAUTION
 
 
 def positive(text: str) -> int:
@@ -99,7 +112,7 @@ def summary_lines(session: Session, summary: dict[str, Any], source: str) -> lis
         lines.append(f"  overloads: {len(summary['overloads'])} reviewers above cap")
     if summary["underloads"]:
         lines.append(f"  below floor: {len(summary['underloads'])} reviewers")
-    lines.append(CAUTION)
+    lines.append(caution())
     return lines
 
 

@@ -3,12 +3,11 @@
 from __future__ import annotations
 
 import argparse
-import sys
 from collections.abc import Callable
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from review_alloc.cli.common import CAUTION, EXIT_OK, EXIT_USAGE, emit_json, whole
+from review_alloc.cli.common import EXIT_OK, UsageError, caution, emit_json, positive, whole
 from review_alloc.model import Session
 
 if TYPE_CHECKING:
@@ -17,7 +16,6 @@ if TYPE_CHECKING:
 
 Handler = Callable[[argparse.Namespace], int]
 
-_LISTED = 12
 FIX_CHOICES = ("raise-caps", "recruit")
 
 
@@ -42,6 +40,12 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
         help="say why papers are short of reviews and the smallest changes that fix it",
     )
     p.add_argument("session", type=Path)
+    p.add_argument(
+        "--limit",
+        type=positive,
+        metavar="N",
+        help="list at most N items of each list (default: every gap, reviewer and fix)",
+    )
     p.add_argument("--json", action="store_true", help="print one JSON object")
 
     p = sub.add_parser(
@@ -92,13 +96,49 @@ def _cmd_explain(args: argparse.Namespace) -> int:
     if args.json:
         emit_json(report)
     else:
-        print("\n".join(explain_lines(session, report, str(args.session))))
+        print("\n".join(explain_lines(session, report, str(args.session), args.limit)))
     return EXIT_OK
 
 
-def explain_lines(session: Session, report: dict[str, Any], source: str) -> list[str]:
-    """The short plain-text explanation."""
+class _Names:
+    """Ids with the name or title beside them, and lists cut at the chair's `--limit`."""
+
+    def __init__(self, session: Session, limit: int | None) -> None:
+        self.titles = {p.id: p.title for p in session.papers}
+        self.names = {r.id: r.name for r in session.reviewers}
+        self.limit = limit
+
+    def paper(self, paper: str) -> str:
+        """`P12 "Title"` (the id alone when there is no title)."""
+        title = self.titles.get(paper, "")
+        return f'{paper} "{title}"' if title else paper
+
+    def reviewer(self, reviewer: str) -> str:
+        """`R7 Name` (the id alone when there is no name)."""
+        name = self.names.get(reviewer, "")
+        return f"{reviewer} {name}" if name else reviewer
+
+    def cut(self, items: list[Any]) -> tuple[list[Any], str | None]:
+        """The items to show, and the line that says how many were left out (or None)."""
+        if self.limit is None or len(items) <= self.limit:
+            return list(items), None
+        rest = len(items) - self.limit
+        return list(items[: self.limit]), f"... and {rest} more (drop --limit to see all)"
+
+    def listed(self, ids: list[str], show: Callable[[str], str]) -> str:
+        """The ids on one line, each with its name or title, cut at the limit."""
+        shown, more = self.cut(ids)
+        text = "; ".join(show(x) for x in shown)
+        return text + (f" ... ({len(ids)} in all)" if more else "")
+
+
+def explain_lines(
+    session: Session, report: dict[str, Any], source: str, limit: int | None = None
+) -> list[str]:
+    """The plain-text explanation: every gap, group and fix (at most `limit` of each list),
+    each id with its title or name beside it."""
     word = session.noun
+    names = _Names(session, limit)
     gaps = report["gaps"]
     lines: list[str] = []
     if not gaps:
@@ -120,65 +160,75 @@ def explain_lines(session: Session, report: dict[str, Any], source: str) -> list
             f"{word}s{topic}",
             f"  needed {group['needed']}, available {group['available']}, "
             f"shortfall {group['shortfall']}",
-            f"  {word}s: {_listed(papers)}",
-            f"  eligible reviewers: {_listed(group['reviewers'])}",
+            f"  {word}s: {names.listed(papers, names.paper)}",
+            f"  eligible reviewers: {names.listed(group['reviewers'], names.reviewer)}",
             f"  cause: {group['cause']}",
         ]
     if gaps:
         lines += ["", f"Gaps ({word}: assigned/reviews, missing):"]
-        for g in gaps[:_LISTED]:
+        shown, more = names.cut(gaps)
+        for g in shown:
             below = f", {g['missing_required']} below the minimum" if g["missing_required"] else ""
             lines.append(
-                f"  {g['paper']}  {g['assigned']}/{g['reviews']}, missing {g['missing']}{below}"
+                f"  {names.paper(g['paper'])}  {g['assigned']}/{g['reviews']}, "
+                f"missing {g['missing']}{below}"
             )
-        if len(gaps) > _LISTED:
-            lines.append(f"  ... and {len(gaps) - _LISTED} more (see --json)")
+        lines += [f"  {more}"] if more else []
     for key, label, sign in (("overloads", "Above cap", "+"), ("underloads", "Below floor", "")):
         if report[key]:
             lines += ["", f"{label}:"]
+            shown, more = names.cut(report[key])
             lines += [
                 f"  {x['reviewer']} {x['name']}: load {x['load']}, cap {x['cap']}, "
                 f"floor {x['floor']} ({sign}{x['excess']})"
-                for x in report[key][:_LISTED]
+                for x in shown
             ]
+            lines += [f"  {more}"] if more else []
     fixes = report["fixes"]
     if gaps:
         lines += ["", "Smallest fixes (computed exactly):"]
-        lines += _cap_lines(fixes["raise_caps"], source)
-        lines += _recruit_lines(fixes["recruit"], source, word)
+        lines += _cap_lines(fixes["raise_caps"], source, names)
+        lines += _recruit_lines(fixes["recruit"], source, word, names)
         losses = fixes["conflicts_and_blocks"]["pairs"]
         if losses:
             lines.append("  Conflicts and blocks that keep reviews away (information only):")
-            for x in losses[:_LISTED]:
+            shown, more = names.cut(losses)
+            for x in shown:
                 gain = f"{x['gain']}" if x["exact"] else f"at least {x['gain']}"
                 lines.append(
-                    f"    {x['reviewer']} ({x['kind']}): {_listed(x['papers'])}; "
-                    f"allowing them would add {gain}"
+                    f"    {names.reviewer(x['reviewer'])} ({x['kind']}): "
+                    f"{names.listed(x['papers'], names.paper)}; allowing them would add {gain}"
                 )
-    lines += ["", *report["cautions"], CAUTION]
+            lines += [f"    {more}"] if more else []
+    lines += ["", *report["cautions"], caution()]
     return lines
 
 
-def _cap_lines(fix: dict[str, Any], source: str) -> list[str]:
+def _cap_lines(fix: dict[str, Any], source: str, names: _Names) -> list[str]:
     if not fix["raises"]:
         return ["  a) raising caps cannot add any review"]
     lines = [
         f"  a) raise caps by {fix['total']} in total (coverage {fix['coverage_before']} -> "
         f"{fix['coverage_after']} of {fix['demand']}):"
     ]
+    shown, more = names.cut(fix["raises"])
     lines += [
         f"     {r['reviewer']} {r['name']}: cap {r['cap']} -> {r['new_cap']} (+{r['raise_by']})"
-        for r in fix["raises"][:_LISTED]
+        for r in shown
     ]
-    if len(fix["raises"]) > _LISTED:
-        lines.append(f"     ... and {len(fix['raises']) - _LISTED} more")
-    for u in fix["unclosable"][:_LISTED]:
-        lines.append(f"     cannot close {u['paper']} this way: {u['reason']}")
+    lines += [f"     {more}"] if more else []
+    lines += _unclosable(fix["unclosable"], names)
     lines.append(f"     try it: review-alloc whatif {source} --apply-fix raise-caps")
     return lines
 
 
-def _recruit_lines(fix: dict[str, Any], source: str, word: str) -> list[str]:
+def _unclosable(items: list[dict[str, Any]], names: _Names) -> list[str]:
+    shown, more = names.cut(items)
+    lines = [f"     cannot close {names.paper(u['paper'])} this way: {u['reason']}" for u in shown]
+    return lines + ([f"     {more}"] if more else [])
+
+
+def _recruit_lines(fix: dict[str, Any], source: str, word: str, names: _Names) -> list[str]:
     if fix["note"] and not fix["needs"]:
         return [f"  b) recruits: not computed; {fix['note']}"]
     if not fix["needs"]:
@@ -191,15 +241,9 @@ def _recruit_lines(fix: dict[str, Any], source: str, word: str) -> list[str]:
     lines += [f"     {n['profile']}" for n in fix["needs"]]
     if fix["note"]:
         lines.append(f"     note: {fix['note']}")
-    for u in fix["unclosable"][:_LISTED]:
-        lines.append(f"     cannot close {u['paper']} this way: {u['reason']}")
+    lines += _unclosable(fix["unclosable"], names)
     lines.append(f"     try it: review-alloc whatif {source} --apply-fix recruit")
     return lines
-
-
-def _listed(ids: list[str] | tuple[str, ...]) -> str:
-    shown = ", ".join(ids[:_LISTED])
-    return shown + (f" ... ({len(ids)} in all)" if len(ids) > _LISTED else "")
 
 
 def _cmd_whatif(args: argparse.Namespace) -> int:
@@ -213,12 +257,10 @@ def _cmd_whatif(args: argparse.Namespace) -> int:
         labels={"raise_caps": "--raise-cap", "add_reviewers": "--add-reviewers"},
     )
     if changes.is_empty():
-        print(
-            "error: whatif: give at least one change (--raise-cap, --add-reviewers, "
-            "--allow-overload or --apply-fix)",
-            file=sys.stderr,
+        raise UsageError(
+            "give at least one change (--raise-cap, --add-reviewers, --allow-overload or "
+            "--apply-fix)"
         )
-        return EXIT_USAGE
     with Workspace.editing(args.session) as ws:
         return _whatif_in(ws, changes, args)
 
@@ -294,5 +336,5 @@ def whatif_lines(session: Session, payload: dict[str, Any], source: str) -> list
         )
     else:
         lines.append(f"  {source} is unchanged; add --accept to save this change and its plan")
-    lines.append(CAUTION)
+    lines.append(caution())
     return lines

@@ -8,14 +8,31 @@ from typing import Literal
 from review_alloc.io.cells import Cell, write_csv
 from review_alloc.model import InputError, Session
 
-_PAPER_COLUMNS = ("paper_id", "title", "reviewer_id", "reviewer_name", "reviewer_email", "score")
-_REVIEWER_COLUMNS = ("reviewer_id", "reviewer_name", "reviewer_email", "paper_id", "title", "score")
+_PAPER_COLUMNS = (
+    "paper_id",
+    "title",
+    "reviewer_id",
+    "reviewer_name",
+    "reviewer_email",
+    "score",
+    "lead",
+)
+_REVIEWER_COLUMNS = (
+    "reviewer_id",
+    "reviewer_name",
+    "reviewer_email",
+    "paper_id",
+    "title",
+    "score",
+    "lead",
+)
 
 
 def plan_table(
     session: Session, by: Literal["paper", "reviewer"] = "paper"
 ) -> tuple[tuple[str, ...], list[tuple[Cell, ...]]]:
-    """(header, rows) of the session's plan, one row per assignment, sorted by paper or reviewer.
+    """(header, rows) of the session's plan, one row per assignment, sorted by paper or reviewer;
+    `lead` is `yes` on the row of the reviewer who leads the paper's discussion, else `no`.
 
     Raises `InputError` when the session has no plan.
     """
@@ -31,10 +48,11 @@ def plan_table(
         p_cells = (paper.id, paper.title)
         r_cells = (reviewer.id, reviewer.name, reviewer.email)
         score = float(a.score)
+        lead = "yes" if a.lead else "no"
         if by == "paper":
-            rows.append(((paper.id, reviewer.id), (*p_cells, *r_cells, score)))
+            rows.append(((paper.id, reviewer.id), (*p_cells, *r_cells, score, lead)))
         else:
-            rows.append(((reviewer.id, paper.id), (*r_cells, *p_cells, score)))
+            rows.append(((reviewer.id, paper.id), (*r_cells, *p_cells, score, lead)))
     rows.sort(key=lambda item: item[0])
     header = _PAPER_COLUMNS if by == "paper" else _REVIEWER_COLUMNS
     return header, [cells for _, cells in rows]

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import codecs
 import os
 import re
 from pathlib import Path
@@ -10,6 +11,7 @@ from pydantic import ValidationError
 
 from review_alloc.io.reading import FileProblems
 from review_alloc.io.score_rows import read_scores
+from review_alloc.io.sources import ReadOptions
 from review_alloc.io.tables import read_conflicts, read_papers, read_reviewers
 from review_alloc.model import InputError, Policy, ScoreTable, Session
 
@@ -27,35 +29,47 @@ def import_csv(
     ignore_extra: bool = False,
     name: str | None = None,
     kind: str = "conference",
+    sheet: str | None = None,
+    encoding: str | None = None,
 ) -> Session:
     """Read the CSV files into a session; raises `InputError` listing every problem found.
 
     Problems are collected across all files (up to 20 per file), each naming the file, line and
     column. Ids in the conflicts and scores files must name papers and reviewers of the other
-    two files. Nothing is written.
+    two files. Any file may be a workbook (.xlsx, .ods: the first sheet, or `sheet`); a CSV
+    file may use `,` `;` or tab and be UTF-8 or UTF-16 with a BOM, or in `encoding`.
+    Nothing is written.
     """
     if kind not in _KINDS:
         raise InputError([f"kind: {kind!r} is not one of {', '.join(_KINDS)}"])
+    if encoding is not None:
+        try:
+            codecs.lookup(encoding)
+        except LookupError:
+            raise InputError(
+                [f"encoding: unknown encoding {encoding!r} (try utf-8, cp1252 or latin-1)"]
+            ) from None
     policy = policy if policy is not None else Policy()
+    options = ReadOptions(ignore_extra=ignore_extra, sheet=sheet, encoding=encoding)
     paper_problems = FileProblems(str(papers))
     reviewer_problems = FileProblems(str(reviewers))
     conflict_problems = FileProblems(str(conflicts)) if conflicts is not None else None
     score_problems = FileProblems(str(scores)) if scores is not None else None
 
-    paper_rows = read_papers(papers, policy, ignore_extra, paper_problems)
-    reviewer_rows = read_reviewers(reviewers, policy, ignore_extra, reviewer_problems)
+    paper_rows = read_papers(papers, policy, options, paper_problems)
+    reviewer_rows = read_reviewers(reviewers, policy, options, reviewer_problems)
     # Ids are checked across files only against a file that was read to its end.
     paper_at = None if paper_rows is None or paper_problems.stopped else paper_rows.index
     reviewer_at = (
         None if reviewer_rows is None or reviewer_problems.stopped else reviewer_rows.index
     )
     conflict_rows = (
-        read_conflicts(conflicts, ignore_extra, reviewer_at, paper_at, conflict_problems)
+        read_conflicts(conflicts, options, reviewer_at, paper_at, conflict_problems)
         if conflicts is not None and conflict_problems is not None
         else None
     )
     table = (
-        read_scores(scores, ignore_extra, reviewer_at, paper_at, score_problems)
+        read_scores(scores, options, reviewer_at, paper_at, score_problems)
         if scores is not None and score_problems is not None
         else ScoreTable.empty()
     )

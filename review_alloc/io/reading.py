@@ -9,12 +9,15 @@ addresses, institutions, topics) are refused when they hold an invisible or cont
 character; free text (titles, names, reasons) is cleaned by the document models. Counts are
 whole numbers up to `MAX_COUNT`, scores finite numbers up to `MAX_SCORE`. A cell that
 `io.cells.safe_cell` marked with a leading quote is read back without it.
+
+Files are opened by `io.sources` (CSV in UTF-8 or UTF-16 with its separator sniffed, or a
+workbook sheet); a workbook's problems are placed by sheet, row and column letter
+(`"<file>: sheet 'S': row N: column 'c' (C): ..."`), and the same text rules apply to its cells.
 """
 
 from __future__ import annotations
 
 import csv
-import io
 import math
 import os
 import re
@@ -23,13 +26,22 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from review_alloc.io.cells import unmarked_cell
+from review_alloc.io.sources import (
+    ReadOptions,
+    Source,
+    column_letter,
+    decode,
+    is_workbook_file,
+    read_workbook,
+    separator_name,
+    sniff_separator,
+)
 from review_alloc.model import (
     MAX_COUNT,
     MAX_LINES_PER_FILE,
     MAX_SCORE,
 )
 from review_alloc.model.base import check_email
-from review_alloc.model.text import nfc
 
 _WHOLE = re.compile(r"\+?[0-9]+")
 _TRUE = frozenset({"yes", "y", "true", "1"})
@@ -50,15 +62,24 @@ class FileProblems:
     count: int = 0
     stopped: bool = False
     """True when reading stopped part-way, so the ids read so far are not the whole file."""
+    sheet: str | None = None
+    """The workbook sheet being read (None for CSV): places then say sheet, row and letter."""
+    letters: dict[str, str] = field(default_factory=dict)
+    """The column letter of each known column of a workbook sheet."""
 
     def add(self, message: str, line: int | None = None, column: str | None = None) -> None:
-        """Record a problem at a line (and column) of this file."""
+        """Record a problem at a line or row (and column) of this file."""
         self.count += 1
         if len(self.kept) < self.limit:
+            unit = "line" if self.sheet is None else "row"
+            letter = self.letters.get(column or "")
             place = "".join(
                 [
-                    f"line {line}: " if line is not None else "",
-                    f"column {column!r}: " if column is not None else "",
+                    f"sheet {self.sheet!r}: " if self.sheet is not None else "",
+                    f"{unit} {line}: " if line is not None else "",
+                    f"column {column!r}" if column is not None else "",
+                    f" ({letter})" if column is not None and letter else "",
+                    ": " if column is not None else "",
                 ]
             )
             self.kept.append(f"{self.source}: {place}{message}")
@@ -98,6 +119,10 @@ class Header:
 
     position: dict[str, int]
     width: int
+    separator: str | None = ","
+    """The CSV separator (None for a workbook sheet, whose rows need no fixed width)."""
+    unnamed: tuple[int, ...] = ()
+    """A workbook's columns without a name, which must stay empty."""
 
     def cell(self, row: list[str], column: str) -> str:
         """The stripped cell of `column` (without a `safe_cell` quote), or "" when the file has
@@ -111,39 +136,45 @@ def shown(text: str, limit: int = 40) -> str:
     return repr(text) if len(text) <= limit else f"{text[:limit]!r}... ({len(text)} characters)"
 
 
-def read_text(path: str | os.PathLike[str], problems: FileProblems) -> str | None:
-    """The file as text (UTF-8, a byte-order mark allowed), or None after recording why not."""
+def open_source(
+    path: str | os.PathLike[str], spec: FileSpec, options: ReadOptions, problems: FileProblems
+) -> Source | None:
+    """The file opened as CSV text or a workbook sheet, or None after recording why not."""
     try:
         data = Path(path).read_bytes()
     except FileNotFoundError:
         problems.add("no such file")
         return None
     except IsADirectoryError:
-        problems.add("is a folder, not a CSV file")
+        problems.add("is a folder, not a CSV file or workbook")
         return None
     except OSError as error:
         problems.add(f"cannot read ({error.strerror or error})")
         return None
-    if data.startswith(b"\xef\xbb\xbf"):
-        data = data[3:]
-    try:
-        return nfc(data.decode("utf-8"))
-    except UnicodeDecodeError as error:
-        line = data.count(b"\n", 0, error.start) + 1
-        problems.add(
-            f"not UTF-8 text (byte 0x{data[error.start]:02x} at byte offset {error.start}); "
-            "save the file as UTF-8",
-            line=line,
-        )
+    if is_workbook_file(path, data[:8]):
+        source, why = read_workbook(path, options.sheet)
+        if source is None:
+            problems.add(why)
+            return None
+        problems.sheet = source.sheet
+        return source
+    text, why, line = decode(data, options.encoding)
+    if text is None:
+        problems.add(why, line=line)
         return None
+    return Source(text=text, separator=sniff_separator(text, frozenset(spec.columns)))
 
 
-def records(text: str, problems: FileProblems) -> Iterator[tuple[int, list[str]]]:
-    """(line where the record starts, cells) for every record, blank ones included.
+def records(source: Source, problems: FileProblems) -> Iterator[tuple[int, list[str]]]:
+    """(line or row where the record starts, cells) for every record, blank ones included.
 
-    Malformed quoting ends the file with one message, since later line breaks cannot be trusted.
+    Malformed quoting ends a CSV file with one message, since later line breaks cannot be
+    trusted.
     """
-    reader = csv.reader(io.StringIO(text), strict=True)
+    if source.cells is not None:
+        yield from enumerate(source.cells, start=1)
+        return
+    reader = source.csv_reader()
     end = 0
     while True:
         start = end + 1
@@ -152,7 +183,8 @@ def records(text: str, problems: FileProblems) -> Iterator[tuple[int, list[str]]
         except StopIteration:
             return
         except csv.Error as error:
-            problems.add(_csv_message(str(error)), line=start)
+            message = _csv_message(str(error))
+            problems.add(f"{message} (separator {separator_name(source.separator)})", line=start)
             problems.stopped = True
             return
         end = reader.line_num
@@ -173,20 +205,33 @@ def is_blank(row: list[str]) -> bool:
 
 
 def read_header(
-    row: list[str], spec: FileSpec, ignore_extra: bool, problems: FileProblems, line: int = 1
+    row: list[str],
+    spec: FileSpec,
+    ignore_extra: bool,
+    problems: FileProblems,
+    line: int = 1,
+    separator: str | None = ",",
 ) -> Header | None:
-    """Match the header row against the spec; None (with messages) when it cannot be used."""
+    """Match the header row against the spec; None (with messages) when it cannot be used.
+
+    `separator` is the CSV file's (named in the messages); None reads a workbook sheet's
+    header, whose empty cells are columns that must stay empty rather than errors."""
     names = [cell.strip().lower() for cell in row]
     known = set(spec.columns)
+    split = "" if separator is None else f" (separator {separator_name(separator)})"
     if not any(name in known for name in names):
-        found = ", ".join(repr(cell) for cell in row[:4]) + (", ..." if len(row) > 4 else "")
+        shown_cells = [cell for cell in row if cell.strip()] if separator is None else row
+        found = ", ".join(repr(cell) for cell in shown_cells[:4]) + (
+            ", ..." if len(shown_cells) > 4 else ""
+        )
         problems.add(
-            f"no header row: the first row must name the columns ({', '.join(spec.columns)}); "
-            f"found {found}",
+            f"no header row{split}: the first row must name the columns "
+            f"({', '.join(spec.columns)}); found {found}",
             line=line,
         )
         return None
     position: dict[str, int] = {}
+    unnamed: list[int] = []
     usable = True
     for at, name in enumerate(names):
         if name in position:
@@ -197,11 +242,13 @@ def read_header(
             usable = False
         elif name in known:
             position[name] = at
+        elif separator is None and not name:
+            unnamed.append(at)
         elif not ignore_extra:
             if name:
                 problems.add(
-                    f"unknown column {name!r}; known columns are {', '.join(spec.columns)} "
-                    "(--ignore-extra skips unknown columns)",
+                    f"unknown column {name!r}{split}; known columns are "
+                    f"{', '.join(spec.columns)} (--ignore-extra skips unknown columns)",
                     line=line,
                 )
             else:
@@ -215,10 +262,13 @@ def read_header(
     if missing:
         plural = "s" if len(missing) > 1 else ""
         problems.add(
-            f"missing required column{plural} {', '.join(repr(m) for m in missing)}", line=line
+            f"missing required column{plural} {', '.join(repr(m) for m in missing)}{split}",
+            line=line,
         )
         usable = False
-    return Header(position, len(row)) if usable else None
+    if separator is None:
+        problems.letters = {name: column_letter(at) for name, at in position.items()}
+    return Header(position, len(row), separator, tuple(unnamed)) if usable else None
 
 
 def whole_number(text: str, minimum: int, maximum: int = MAX_COUNT) -> int | None:
@@ -268,10 +318,18 @@ def email(text: str) -> str:
         raise CellError(str(error)) from None
 
 
-def score(text: str) -> float:
-    """A score: a finite number from 0 to `MAX_SCORE`."""
+def decimal(text: str) -> str:
+    """A number written with a decimal comma (`0,75`, as `;` files do) in the form `float`
+    reads; other text is returned as it is."""
+    if "," in text and "." not in text and text.count(",") == 1:
+        return text.replace(",", ".")
+    return text
+
+
+def score(text: str, decimal_comma: bool = False) -> float:
+    """A score: a finite number from 0 to `MAX_SCORE` (a decimal comma allowed if asked)."""
     try:
-        value = float(text)
+        value = float(decimal(text) if decimal_comma else text)
     except ValueError:
         raise CellError(
             f"{shown(text)} is not a number >= 0" if text else "empty; every row needs a score"
@@ -286,21 +344,23 @@ def score(text: str) -> float:
 
 
 def open_table(
-    path: str | os.PathLike[str], spec: FileSpec, ignore_extra: bool, problems: FileProblems
-) -> tuple[Header, Iterator[tuple[int, list[str]]], str] | None:
-    """Read a file up to its header: (header, the remaining records, the text), or None."""
-    text = read_text(path, problems)
-    if text is None:
+    path: str | os.PathLike[str], spec: FileSpec, options: ReadOptions, problems: FileProblems
+) -> tuple[Header, Iterator[tuple[int, list[str]]], Source] | None:
+    """Read a file up to its header: (header, the remaining records, the source), or None."""
+    source = open_source(path, spec, options, problems)
+    if source is None:
         return None
-    rows = records(text, problems)
+    rows = records(source, problems)
+    separator = None if source.is_workbook else source.separator
     for line, row in rows:
         if is_blank(row):
             continue
-        header = read_header(row, spec, ignore_extra, problems, line)
-        return (header, rows, text) if header is not None else None
+        header = read_header(row, spec, options.ignore_extra, problems, line, separator)
+        return (header, rows, source) if header is not None else None
     if not problems:
+        what = "the sheet" if source.is_workbook else "the file"
         problems.add(
-            f"the file is empty; the first row must name the columns ({', '.join(spec.columns)})"
+            f"{what} is empty; the first row must name the columns ({', '.join(spec.columns)})"
         )
     return None
 
@@ -308,11 +368,30 @@ def open_table(
 def data_rows(
     rows: Iterator[tuple[int, list[str]]], header: Header, problems: FileProblems
 ) -> Iterator[tuple[int, list[str]]]:
-    """The non-blank records after the header that have as many cells as the header."""
+    """The non-blank records after the header that fit it: as many cells as the header (CSV),
+    or nothing outside the named columns (a workbook sheet, whose rows are padded)."""
     for line, row in rows:
         if is_blank(row):
             continue
+        if header.separator is None:
+            stray = [at for at in header.unnamed if at < len(row) and row[at].strip()]
+            stray += [at for at in range(header.width, len(row)) if row[at].strip()]
+            if stray:
+                problems.add(
+                    f"a value in column {column_letter(stray[0])}, which has no name in the "
+                    "header row; name the column or clear the cell",
+                    line=line,
+                )
+                continue
+            if len(row) < header.width:
+                row = row + [""] * (header.width - len(row))
+            yield line, row
+            continue
         if len(row) != header.width:
-            problems.add(f"{len(row)} cells, but the header has {header.width}", line=line)
+            problems.add(
+                f"{len(row)} cells, but the header has {header.width} "
+                f"(separator {separator_name(header.separator)})",
+                line=line,
+            )
             continue
         yield line, row

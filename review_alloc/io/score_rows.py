@@ -8,7 +8,6 @@ the file read again row by row, which gives every problem its line and column.
 from __future__ import annotations
 
 import csv
-import io
 import os
 from array import array
 
@@ -20,11 +19,13 @@ from review_alloc.io.reading import (
     FileSpec,
     Header,
     data_rows,
+    decimal,
     is_blank,
     open_table,
     records,
     score,
 )
+from review_alloc.io.sources import ReadOptions, Source
 from review_alloc.model import MAX_SCORE, ScoreTable, matched_text_problem
 
 SCORES = FileSpec(
@@ -38,7 +39,7 @@ class _NeedsDiagnosis(Exception):
 
 def read_scores(
     path: str | os.PathLike[str],
-    ignore_extra: bool,
+    options: ReadOptions,
     reviewers: dict[str, int] | None,
     papers: dict[str, int] | None,
     problems: FileProblems,
@@ -48,21 +49,29 @@ def read_scores(
     With either id map missing (its file could not be read) only the cells themselves and
     duplicate pairs are checked.
     """
-    opened = open_table(path, SCORES, ignore_extra, problems)
+    opened = open_table(path, SCORES, options, problems)
     if opened is None:
         return None
-    header, _, text = opened
+    header, _, source = opened
     if reviewers is not None and papers is not None:
-        fast = _fast(text, header, reviewers, papers)
+        fast = _fast(source, header, reviewers, papers)
         if fast is not None:
             return ScoreTable.from_arrays(*fast)
-    return _diagnose(text, header, reviewers, papers, problems)
+    return _diagnose(source, header, reviewers, papers, problems)
 
 
 def _fast(
-    text: str, header: Header, reviewers: dict[str, int], papers: dict[str, int]
+    source: Source, header: Header, reviewers: dict[str, int], papers: dict[str, int]
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
-    reader = csv.reader(io.StringIO(text), strict=True)
+    if source.cells is not None:
+        # A sheet's rows are padded to its width and may hold unnamed columns: the row-by-row
+        # reader checks those; sheets hold at most about a million rows.
+        if header.unnamed or any(len(row) != header.width for row in source.cells):
+            return None
+        reader = iter(source.cells)
+    else:
+        reader = source.csv_reader()
+    number = decimal if source.decimal_comma else str
     at_r = header.position["reviewer_id"]
     at_p = header.position["paper_id"]
     at_s = header.position["score"]
@@ -81,7 +90,7 @@ def _fast(
                 raise _NeedsDiagnosis
             add_r(find_r(row[at_r], -1))
             add_p(find_p(row[at_p], -1))
-            add_s(float(row[at_s]))
+            add_s(float(number(row[at_s])))
     except (_NeedsDiagnosis, ValueError, csv.Error):
         return None
     r = np.frombuffer(r_ids, dtype=np.intc).astype(np.int32)
@@ -103,7 +112,7 @@ def _fast(
 
 
 def _diagnose(
-    text: str,
+    source: Source,
     header: Header,
     reviewers: dict[str, int] | None,
     papers: dict[str, int] | None,
@@ -114,7 +123,7 @@ def _diagnose(
     values: list[float] = []
     first: dict[tuple[str, str], int] = {}
     before = problems.count
-    rows = records(text, problems)
+    rows = records(source, problems)
     for _, row in rows:
         if not is_blank(row):
             break
@@ -137,7 +146,7 @@ def _diagnose(
                 problems.add(f"unknown {noun} {key!r}", line=line, column=column)
                 good = False
         try:
-            value = score(header.cell(row, "score"))
+            value = score(header.cell(row, "score"), source.decimal_comma)
         except CellError as error:
             problems.add(str(error), line=line, column="score")
             good = False

@@ -22,6 +22,7 @@ from review_alloc.io.reading import (
     whole_number,
     yes_no,
 )
+from review_alloc.io.sources import ReadOptions
 from review_alloc.model import Conflict, Paper, Policy, Reviewer, matched_text_problem
 
 PAPERS = FileSpec(
@@ -147,10 +148,10 @@ def _check_lower_limit(
 
 
 def read_papers(
-    path: str | os.PathLike[str], policy: Policy, ignore_extra: bool, problems: FileProblems
+    path: str | os.PathLike[str], policy: Policy, options: ReadOptions, problems: FileProblems
 ) -> Entities | None:
     """Papers in file order; None when the file cannot be read at all."""
-    opened = open_table(path, PAPERS, ignore_extra, problems)
+    opened = open_table(path, PAPERS, options, problems)
     if opened is None:
         return None
     header, rows, _ = opened
@@ -181,10 +182,10 @@ def read_papers(
 
 
 def read_reviewers(
-    path: str | os.PathLike[str], policy: Policy, ignore_extra: bool, problems: FileProblems
+    path: str | os.PathLike[str], policy: Policy, options: ReadOptions, problems: FileProblems
 ) -> Entities | None:
     """Reviewers in file order; None when the file cannot be read at all."""
-    opened = open_table(path, REVIEWERS, ignore_extra, problems)
+    opened = open_table(path, REVIEWERS, options, problems)
     if opened is None:
         return None
     header, rows, _ = opened
@@ -238,14 +239,14 @@ class ConflictRows:
 
 def read_conflicts(
     path: str | os.PathLike[str],
-    ignore_extra: bool,
+    options: ReadOptions,
     reviewers: dict[str, int] | None,
     papers: dict[str, int] | None,
     problems: FileProblems,
 ) -> ConflictRows:
     """Declared conflicts; ids are checked against the given maps (None skips that check)."""
     found = ConflictRows()
-    opened = open_table(path, CONFLICTS, ignore_extra, problems)
+    opened = open_table(path, CONFLICTS, options, problems)
     if opened is None:
         return found
     header, rows, _ = opened

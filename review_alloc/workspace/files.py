@@ -9,15 +9,19 @@ this workspace read or wrote it.
 from __future__ import annotations
 
 import os
+import re
 from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Literal, Self
+from typing import TYPE_CHECKING, Literal, Self
 
 from filelock import FileLock, Timeout
 
 from review_alloc.model import InputError, Policy, load_session, save_session
 from review_alloc.workspace.base import Step, WorkspaceBase
+
+if TYPE_CHECKING:
+    from review_alloc.io.report_html import ReportData
 
 DEMO_FILE = "demo-workshop.json"
 
@@ -163,9 +167,12 @@ class FilesMixin(WorkspaceBase):
         name: str | None = None,
         kind: str = "conference",
         replace: bool = False,
+        sheet: str | None = None,
+        encoding: str | None = None,
     ) -> Self:
-        """Build a session from CSV files and save it to `target` (refused if it exists unless
-        `replace`); every problem names its file, line and column, and nothing is written."""
+        """Build a session from CSV files or workbooks and save it to `target` (refused if it
+        exists unless `replace`); every problem names its file, line (or sheet, row) and
+        column, and nothing is written."""
         from review_alloc.io import import_csv
 
         if target.exists() and not replace:
@@ -179,6 +186,8 @@ class FilesMixin(WorkspaceBase):
             ignore_extra=ignore_extra,
             name=name or target.stem,
             kind=kind,
+            sheet=sheet,
+            encoding=encoding,
         )
         workspace = cls(session, None)
         workspace.save(target, replace=replace)
@@ -244,17 +253,101 @@ class FilesMixin(WorkspaceBase):
         force: bool = False,
         bom: bool = False,
     ) -> int:
-        """Write the current plan as CSV, one row per assignment; returns the rows written.
+        """Write the current plan as CSV (one row per assignment, sorted `by`) or, for a .xlsx
+        target, as a workbook (by paper with the lead marked, by reviewer, the papers short of
+        reviews, a summary); returns the assignments written.
 
-        Refused when the plan stored in the file broke a rule (it is never exported), and where
-        `writable` refuses the target."""
+        Refused for any other suffix, when the plan stored in the file broke a rule (it is
+        never exported), and where `writable` refuses the target."""
+        self.refuse_broken_plan()
+        # The session file is refused first, whatever its suffix: that is the graver mistake.
+        self.writable(target, force=force)
+        suffix = export_format(target)
+        if suffix == ".xlsx" and bom:
+            raise InputError([f"{target}: --bom is for CSV files; a workbook needs none"])
+        if suffix == ".xlsx":
+            from review_alloc.io.workbook import workbook_bytes
+            from review_alloc.plan.cautions import PLAN_CAUTION
+
+            summary = self.summary()  # type: ignore[attr-defined]
+            _write_bytes(target, workbook_bytes(self.session, summary, PLAN_CAUTION))
+            return len(summary["assignments"])
         from review_alloc.io import plan_table, write_table
 
-        self.refuse_broken_plan()
         header, rows = plan_table(self.session, by)
-        self.writable(target, force=force)
         write_table(target, header, rows, bom=bom)
         return len(rows)
+
+    def report_data(self) -> ReportData:
+        """What the committee's report shows, from the current plan (refused when there is
+        none, when it is stale, or when the stored plan broke a rule)."""
+        from collections import Counter
+        from datetime import UTC, datetime
+
+        from review_alloc.io.report_html import ReportData
+        from review_alloc.plan.cautions import PLAN_CAUTION
+        from review_alloc.workspace.facts import Facts
+
+        self.refuse_broken_plan()
+        plan = self.session.plan
+        if plan is None or not plan.checked or not self.plan_is_current():
+            raise InputError(
+                [f"{self.session.name}: the plan is missing or out of date; plan again first"]
+            )
+        summary = self.summary()  # type: ignore[attr-defined]
+        explanation = self.explain_report()  # type: ignore[attr-defined]
+        facts = Facts.of(self.session)
+        s = self.session
+        reviewers = [
+            (r.id, r.name, int(facts.loads[j]), int(facts.cap[j]), int(facts.floor[j]))
+            for j, r in enumerate(s.reviewers)
+            if not r.withdrawn
+        ]
+        history = self.history()  # type: ignore[attr-defined]
+        first = history[0].number if history else None
+        since = first if first is not None and s.revision not in (None, first) else None
+        notices = []
+        if since is not None:
+            notices = [
+                {
+                    "reviewer": n.reviewer,
+                    "name": n.name,
+                    "email": n.email,
+                    "added": list(n.added),
+                    "removed": list(n.removed),
+                }
+                for n in self.notify_rows(since)  # type: ignore[attr-defined]
+            ]
+        return ReportData(
+            name=s.name,
+            noun=s.noun,
+            summary=summary,
+            explanation=explanation,
+            topics=facts.topic_coverage(),
+            load_bands=facts.load_bands(),
+            reviewers=reviewers,
+            score_bins=facts.score_histogram(),
+            conflicts=Counter(
+                _reason_kind(reason) for reason in facts.conflict_reason.values()
+            ).most_common(),
+            revisions=[e.to_json() for e in history],
+            notices_since=since,
+            notices=notices,
+            cautions=[*explanation["cautions"], PLAN_CAUTION],
+            generated=datetime.now(UTC).strftime("%Y-%m-%d %H:%M UTC"),
+        )
+
+    def write_report(self, target: Path, *, force: bool = False) -> ReportData:
+        """Write the committee's report (one self-contained HTML page) to `target`, an .html
+        file, refused where `writable` refuses it; returns what it shows."""
+        from review_alloc.io.report_html import report_html
+
+        self.writable(target, force=force)
+        if target.suffix.lower() not in (".html", ".htm"):
+            raise InputError([f"{target}: the report is an HTML page; name it report.html"])
+        data = self.report_data()
+        _write_bytes(target, report_html(data).encode("utf-8"))
+        return data
 
     def export_text(self, by: Literal["paper", "reviewer"] = "paper", *, bom: bool = False) -> str:
         """The plan's CSV as text (for standard output)."""
@@ -302,6 +395,40 @@ class FilesMixin(WorkspaceBase):
             raise InputError([f"{target}: this is a session file; an export never replaces one"])
         if not force:
             raise InputError([f"{target}: already exists; add --force to replace it"])
+
+
+def _reason_kind(reason: str) -> str:
+    """A conflict's reason without its particulars (`same institution (X); same e-mail domain
+    (x.example)` → `same institution; same e-mail domain`), so the report counts kinds."""
+    parts = [re.sub(r"\s*\([^)]*\)$", "", part.strip()) for part in reason.split(";")]
+    return "; ".join(part for part in parts if part)
+
+
+EXPORT_SUFFIXES = (".csv", ".xlsx")
+"""The files an export writes: CSV, or a workbook."""
+
+
+def export_format(target: Path) -> str:
+    """The export suffix of `target` (`.csv` or `.xlsx`, any case); InputError for others."""
+    suffix = target.suffix.lower()
+    if suffix not in EXPORT_SUFFIXES:
+        found = f"{target.suffix!r}" if target.suffix else "no suffix"
+        raise InputError(
+            [
+                f"{target}: an export is a .csv or .xlsx file (or '-' for standard output), "
+                f"not {found}; name the file plan.csv or plan.xlsx"
+            ]
+        )
+    return suffix
+
+
+def _write_bytes(target: Path, data: bytes) -> None:
+    from review_alloc.model import atomic_write_bytes
+
+    try:
+        atomic_write_bytes(target, data)
+    except OSError as error:
+        raise InputError([f"{target}: cannot write ({error.strerror or error})"]) from None
 
 
 def _is_session_document(path: Path) -> bool:

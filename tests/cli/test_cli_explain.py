@@ -169,3 +169,26 @@ def test_explain_without_gaps(tmp_path: Path, capsys: pytest.CaptureFixture[str]
     assert report["fixes"]["raise_caps"]["total"] == 0
     assert main(["explain", str(path)]) == 0
     assert "no gaps" in capsys.readouterr().out
+
+
+def test_explain_lists_every_gap_with_titles_and_limit_shortens(
+    conference_copy: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    report = run_json(capsys, ["explain", str(conference_copy)])
+    gaps = report["gaps"]
+    assert len(gaps) > 12, "more gaps than the old list of 12 showed"
+    session = load_session(conference_copy)
+    titles = {p.id: p.title for p in session.papers}
+    names = {r.id: r.name for r in session.reviewers}
+    assert main(["explain", str(conference_copy)]) == 0
+    out = capsys.readouterr().out
+    for g in gaps:
+        assert f'  {g["paper"]} "{titles[g["paper"]]}"  {g["assigned"]}/{g["reviews"]}' in out
+    group = report["groups"][0]
+    assert f"{group['reviewers'][0]} {names[group['reviewers'][0]]}" in out
+    assert "more (drop --limit" not in out
+    assert main(["explain", str(conference_copy), "--limit", "3"]) == 0
+    out = capsys.readouterr().out
+    shown = [g for g in gaps if f'  {g["paper"]} "{titles[g["paper"]]}"  ' in out]
+    assert len(shown) == 3
+    assert f"... and {len(gaps) - 3} more (drop --limit to see all)" in out

@@ -24,7 +24,10 @@ from review_alloc.model import (
 def _session(with_plan: bool = True) -> Session:
     pairs = [("P2", "R1", 0.5), ("P10", "R2", 0.25), ("P2", "R2", 1.0), ("P1", "R1", 0.0)]
     plan = Plan(
-        assignments=[Assignment(paper=p, reviewer=r, score=s) for p, r, s in pairs],
+        assignments=[
+            Assignment(paper=p, reviewer=r, score=s, lead=(p, r) == ("P2", "R2"))
+            for p, r, s in pairs
+        ],
         figures=PlanFigures(
             required_coverage=4,
             required_demand=6,
@@ -63,11 +66,19 @@ def test_export_by_paper(tmp_path: Path) -> None:
     path = tmp_path / "plan.csv"
     assert export_plan_csv(_session(), path) == 4
     assert _read(path) == [
-        ["paper_id", "title", "reviewer_id", "reviewer_name", "reviewer_email", "score"],
-        ["P1", 'Buoys, "drift" and sonar', "R1", "Cyra Vellmarsh", "cyra@wrenholt.example", "0.0"],
-        ["P10", "Sediment", "R2", "Dario Holtkvist", "", "0.25"],
-        ["P2", "Tides", "R1", "Cyra Vellmarsh", "cyra@wrenholt.example", "0.5"],
-        ["P2", "Tides", "R2", "Dario Holtkvist", "", "1.0"],
+        ["paper_id", "title", "reviewer_id", "reviewer_name", "reviewer_email", "score", "lead"],
+        [
+            "P1",
+            'Buoys, "drift" and sonar',
+            "R1",
+            "Cyra Vellmarsh",
+            "cyra@wrenholt.example",
+            "0.0",
+            "no",
+        ],
+        ["P10", "Sediment", "R2", "Dario Holtkvist", "", "0.25", "no"],
+        ["P2", "Tides", "R1", "Cyra Vellmarsh", "cyra@wrenholt.example", "0.5", "no"],
+        ["P2", "Tides", "R2", "Dario Holtkvist", "", "1.0", "yes"],
     ]
 
 
@@ -82,6 +93,7 @@ def test_export_by_reviewer(tmp_path: Path) -> None:
         "paper_id",
         "title",
         "score",
+        "lead",
     ]
     assert [(r[0], r[3]) for r in rows[1:]] == [
         ("R1", "P1"),

@@ -130,7 +130,7 @@ def test_an_export_of_hostile_titles_and_names_starts_no_formula(tmp_path: Path,
             if k == at_score:
                 float(cell)  # a number, not text
     # Score cells are written as bare numbers, never quoted or prefixed.
-    assert ",1000000.0\n" in raw
+    assert ",1000000.0,no\n" in raw
     titles = {unmarked_cell(row[header.index("title")]) for row in rows[1:]}
     assert titles == set(HOSTILE_TITLES)
 

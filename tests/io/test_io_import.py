@@ -11,6 +11,7 @@ from io_samples import write, write_all
 from review_alloc.io import import_csv
 from review_alloc.io.reading import FileProblems, open_table
 from review_alloc.io.score_rows import SCORES, _diagnose, _fast
+from review_alloc.io.sources import ReadOptions
 from review_alloc.model import Policy
 
 
@@ -139,11 +140,11 @@ def test_the_fast_and_the_row_by_row_score_readers_agree(tmp_path: Path) -> None
     ]
     path = write(tmp_path, "scores.csv", "\n".join(lines) + "\n")
     problems = FileProblems(str(path))
-    opened = open_table(path, SCORES, False, problems)
+    opened = open_table(path, SCORES, ReadOptions(), problems)
     assert opened is not None
-    header, _, text = opened
-    fast = _fast(text, header, reviewers, papers)
-    slow = _diagnose(text, header, reviewers, papers, problems)
+    header, _, source = opened
+    fast = _fast(source, header, reviewers, papers)
+    slow = _diagnose(source, header, reviewers, papers, problems)
     assert fast is not None and slow is not None and not problems
     for column, expected in zip(fast, (slow.reviewer, slow.paper, slow.value), strict=True):
         assert np.array_equal(column, expected)

@@ -33,7 +33,7 @@ def test_unclosed_quote(tmp_path: Path) -> None:
     lines, f = _errors(tmp_path, papers='paper_id,title\nP1,ok\nP2,"never closed\nP3,x\n')
     assert lines == [
         f"{f['papers']}: line 3: a quoted cell is not closed before the end of the file "
-        '(check the " marks)'
+        "(check the \" marks) (separator ',')"
     ]
 
 
@@ -45,7 +45,7 @@ def test_malformed_quoting(tmp_path: Path) -> None:
 
 def test_wrong_number_of_cells(tmp_path: Path) -> None:
     lines, f = _errors(tmp_path, scores="reviewer_id,paper_id,score\nR1,P1,0.5\nR1,P2\n")
-    assert lines == [f"{f['scores']}: line 3: 2 cells, but the header has 3"]
+    assert lines == [f"{f['scores']}: line 3: 2 cells, but the header has 3 (separator ',')"]
 
 
 def test_unknown_ids_in_scores_and_conflicts(tmp_path: Path) -> None:
@@ -154,26 +154,32 @@ def test_non_utf8_file(tmp_path: Path) -> None:
     offset = data.index(b"\xe9")
     assert lines == [
         f"{f['papers']}: line 3: not UTF-8 text (byte 0xe9 at byte offset {offset}); "
-        "save the file as UTF-8"
+        "save the file as UTF-8 (or UTF-16 with a byte-order mark), or name its encoding with "
+        "--encoding (for example --encoding cp1252); other encodings are read only when named"
     ]
 
 
 def test_missing_required_column(tmp_path: Path) -> None:
     lines, f = _errors(tmp_path, scores="reviewer_id,score\nR1,0.5\n")
-    assert lines == [f"{f['scores']}: line 1: missing required column 'paper_id'"]
+    assert lines == [
+        f"{f['scores']}: line 1: missing required column 'paper_id' (separator ',')"
+    ]
 
 
 def test_missing_header(tmp_path: Path) -> None:
     lines, f = _errors(tmp_path, papers="P1,Tidal sensing\nP2,Sediment models\n")
     assert len(lines) == 1
-    assert lines[0].startswith(f"{f['papers']}: line 1: no header row: the first row must name")
+    assert lines[0].startswith(
+        f"{f['papers']}: line 1: no header row (separator ','): the first row must name"
+    )
     assert "found 'P1', 'Tidal sensing'" in lines[0]
 
 
 def test_extra_column_without_ignore_extra(tmp_path: Path) -> None:
     lines, f = _errors(tmp_path, papers="paper_id,colour\nP1,blue\n")
     assert lines == [
-        f"{f['papers']}: line 1: unknown column 'colour'; known columns are paper_id, title, "
+        f"{f['papers']}: line 1: unknown column 'colour' (separator ','); known columns are "
+        "paper_id, title, "
         "topics, reviews, min_reviews, authors, institutions (--ignore-extra skips unknown columns)"
     ]
 

@@ -1,0 +1,148 @@
+"""The command line follows convention: --version, usage errors exit 2 with the sub-command's
+own usage, no app without a terminal, a light start, and spreadsheets on the command line.
+
+Exit status 2 for bad usage and a usage line on standard error are the convention of POSIX
+utilities and of Python's argparse (common practice).
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from review_alloc import __version__
+from review_alloc.cli import main
+from review_alloc.model import load_session, save_session
+from review_alloc.samples import workshop
+
+ROOT = Path(__file__).resolve().parents[2]
+FIXTURES = ROOT / "tests" / "io" / "fixtures"
+NAMES = ("papers", "reviewers", "conflicts", "scores")
+
+
+def _python(code: str, *argv: str) -> subprocess.CompletedProcess:
+    return subprocess.run(
+        [sys.executable, "-c", code, *argv],
+        env={**os.environ, "PYTHONPATH": str(ROOT)},
+        stdin=subprocess.DEVNULL,
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
+
+
+def test_version(capsys: pytest.CaptureFixture[str]) -> None:
+    with pytest.raises(SystemExit) as stop:
+        main(["--version"])
+    assert stop.value.code == 0
+    assert capsys.readouterr().out.strip() == f"review-alloc {__version__}"
+
+
+@pytest.fixture
+def saved(tmp_path: Path) -> Path:
+    path = tmp_path / "w.json"
+    save_session(workshop(), path)
+    return path
+
+
+@pytest.mark.parametrize(
+    ("argv", "command", "message"),
+    [
+        (["set", "--reviewer", "R0001", "--reviews", "3"], "set", "apply to a paper"),
+        (["set", "--paper", "W0001", "--cap", "3"], "set", "apply to a reviewer"),
+        (["set", "--reviewer", "R0001"], "set", "give --cap or --floor"),
+        (["whatif"], "whatif", "at least one change"),
+    ],
+)
+def test_usage_errors_inside_commands_exit_2_with_their_own_usage(
+    saved: Path, capsys: pytest.CaptureFixture[str], argv: list[str], command: str, message: str
+) -> None:
+    before = saved.read_bytes()
+    assert main([argv[0], str(saved), *argv[1:]]) == 2
+    err = capsys.readouterr().err
+    assert err.startswith(f"usage: review-alloc {command} ")
+    assert f"review-alloc {command}: error: " in err and message in err
+    assert saved.read_bytes() == before
+
+
+@pytest.mark.parametrize(
+    ("command", "rest"),
+    [
+        ("plan", []),
+        ("export", ["--to", "x.csv"]),
+        ("explain", []),
+        ("diff", []),
+        ("set", ["--paper", "W0001"]),
+    ],
+)
+def test_an_unknown_option_shows_the_sub_commands_usage(
+    saved: Path, capsys: pytest.CaptureFixture[str], command: str, rest: list[str]
+) -> None:
+    with pytest.raises(SystemExit) as stop:
+        main([command, str(saved), *rest, "--no-such-option"])
+    assert stop.value.code == 2
+    err = capsys.readouterr().err
+    assert err.startswith(f"usage: review-alloc {command} ")
+    assert "--no-such-option" in err
+
+
+def test_without_a_terminal_the_app_is_not_started() -> None:
+    # Standard input is not a terminal here: the app would wait forever for keys.
+    run = _python("import runpy; runpy.run_module('review_alloc', run_name='__main__')")
+    assert run.returncode == 2, run.stderr
+    assert run.stderr.startswith("usage: review-alloc")
+    assert "no terminal" in run.stderr and run.stdout == ""
+
+
+@pytest.mark.parametrize("argv", [["--help"], ["--version"], ["schema"], ["import", "--help"]])
+def test_help_version_and_schema_load_no_solver(argv: list[str]) -> None:
+    code = (
+        "import sys\n"
+        "from review_alloc.cli import main\n"
+        "try:\n"
+        "    code = main(sys.argv[1:])\n"
+        "except SystemExit as stop:\n"
+        "    code = stop.code\n"
+        "heavy = sorted(m for m in ('numba', 'scipy', 'textual') if m in sys.modules)\n"
+        "print('LOADED', heavy, file=sys.stderr)\n"
+        "sys.exit(code)\n"
+    )
+    run = _python(code, *argv)
+    assert run.returncode == 0, run.stderr
+    assert "LOADED []" in run.stderr
+    if argv == ["schema"]:
+        assert json.loads(run.stdout)["type"] == "object"
+
+
+@pytest.mark.parametrize(("folder", "suffix"), [("xlsx", ".xlsx"), ("ods", ".ods")])
+def test_import_takes_workbooks_on_the_command_line(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], folder: str, suffix: str
+) -> None:
+    out = tmp_path / "s.json"
+    files = [f"--{name}={FIXTURES / folder / (name + suffix)}" for name in NAMES]
+    assert main(["import", *files, "--sheet", "scores", "-o", str(out)]) == 1
+    err = capsys.readouterr().err
+    assert "no sheet named 'scores'" in err and not out.exists()
+    assert main(["import", *files, "-o", str(out)]) == 0
+    assert "40 papers, 24 reviewers" in capsys.readouterr().out
+    assert len(load_session(out).scores) == 960
+
+
+def test_import_names_the_encoding_option(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    sample = ROOT / "sample_sessions" / "workshop-csv"
+    reviewers = tmp_path / "reviewers.csv"
+    text = (sample / "reviewers.csv").read_text(encoding="utf-8").replace("Lena", "Léna")
+    reviewers.write_bytes(text.encode("cp1252"))
+    args = ["import", "--papers", str(sample / "papers.csv"), "--reviewers", str(reviewers)]
+    out = tmp_path / "s.json"
+    assert main([*args, "-o", str(out)]) == 1
+    assert "--encoding" in capsys.readouterr().err
+    assert main([*args, "--encoding", "cp1252", "-o", str(out)]) == 0
+    assert load_session(out).reviewers[0].name == "Léna Morbrand"
