@@ -248,9 +248,7 @@ class EntityView(Widget):
             self.set_filter("")
         if key not in self.visible_keys():
             return False
-        self.query_one(".main", RowTable).move_cursor(
-            row=self.visible_keys().index(key), animate=False
-        )
+        self.query_one(".main", RowTable).move_cursor(self.visible_keys().index(key))
         self._show_detail()
         return True
 
