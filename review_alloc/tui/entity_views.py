@@ -53,6 +53,24 @@ def _state(text: str) -> Text:
     return Text(text, style=style)
 
 
+def got_plan(facts: Facts) -> bool:
+    """Whether the session has a plan (leads exist only in a plan)."""
+    return facts.session.plan is not None
+
+
+def _lead_cell(facts: Facts, i: int) -> str:
+    """The id of the reviewer who leads paper `i`, '-' when none was chosen, '' with no plan."""
+    if not got_plan(facts) or facts.session.papers[i].withdrawn:
+        return ""
+    lead = facts.lead_of_paper[i]
+    return "-" if lead is None else facts.session.reviewers[lead].id
+
+
+def _standing(c: Candidate) -> Text:
+    """A pair's standing, with 'lead' added when the reviewer leads the paper."""
+    return _state(c.status + (" · lead" if c.lead else ""))
+
+
 class EntityView(Widget):
     """A table of papers or reviewers, a filter line above it and the chosen row's detail."""
 
@@ -322,7 +340,7 @@ class PaperView(EntityView):
     """Every paper with its coverage; the detail lists its reviewers and the best unused ones."""
 
     kind = "paper"
-    columns = ("Id", "Has", "Wants", "Min", "State", "Mean", "Title", "Topics")
+    columns = ("Id", "Has", "Wants", "Min", "State", "Lead", "Mean", "Title", "Topics")
 
     def rows(self, facts: Facts) -> list[Row]:
         """One row per paper, in session order."""
@@ -339,6 +357,7 @@ class PaperView(EntityView):
                         facts.session.paper_reviews(i),
                         facts.session.paper_min_reviews(i),
                         _state(facts.paper_status(i)),
+                        _lead_cell(facts, i),
                         f"{mean:.2f}" if got else "",
                         p.title[:34],
                         ", ".join(p.topics)[:24],
@@ -361,13 +380,19 @@ class PaperView(EntityView):
             f"(needs {s.paper_min_reviews(i)})   "
         )
         head.append_text(_state(facts.paper_status(i)))
+        lead = facts.lead_of_paper[i]
+        if lead is not None:
+            r = s.reviewers[lead]
+            head.append(f"\nlead: {r.id} {r.name}" + (" (senior)" if r.senior else ""))
+        elif got_plan(facts) and not p.withdrawn:
+            head.append("\nlead: none chosen", style="yellow")
         return head, facts.candidates_of_paper(i)
 
     def pair_cells(self, facts: Facts, c: Candidate) -> list[object]:
         """Reviewer id, name, score and standing."""
         r = facts.session.reviewers[c.reviewer]
         score = "-" if c.score is None else f"{c.score:.2f}"
-        return [r.id, score, r.name[:20], _state(c.status)]
+        return [r.id, score, r.name[:20], _standing(c)]
 
     def filter_hint(self) -> str:
         """Placeholder of the filter line."""
@@ -378,7 +403,7 @@ class ReviewerView(EntityView):
     """Every reviewer with their load; the detail lists their papers and the best unused ones."""
 
     kind = "reviewer"
-    columns = ("Id", "Name", "Load", "Cap", "Floor", "State", "Mean", "Institution")
+    columns = ("Id", "Name", "Load", "Cap", "Floor", "State", "Leads", "Mean", "Institution")
 
     def rows(self, facts: Facts) -> list[Row]:
         """One row per reviewer, in session order."""
@@ -396,6 +421,7 @@ class ReviewerView(EntityView):
                         facts.session.reviewer_cap(j),
                         facts.session.reviewer_floor(j),
                         _state(facts.reviewer_status(j)),
+                        len(facts.led_by_reviewer[j]) if got_plan(facts) else "",
                         f"{mean:.2f}" if got else "",
                         r.institution[:30],
                     ],
@@ -416,6 +442,12 @@ class ReviewerView(EntityView):
             f"load {int(facts.loads[j])}, cap {s.reviewer_cap(j)}, floor {s.reviewer_floor(j)}   "
         )
         head.append_text(_state(facts.reviewer_status(j)))
+        led = [s.papers[i].id for i in facts.led_by_reviewer[j]]
+        if led:
+            shown = ", ".join(led[:12]) + (f", … {len(led) - 12} more" if len(led) > 12 else "")
+            head.append(f"\nleads {len(led)}: {shown}")
+        elif got_plan(facts):
+            head.append("\nleads none")
         return head, facts.candidates_of_reviewer(j)
 
     def pair_columns(self) -> tuple[str, ...]:
@@ -426,7 +458,7 @@ class ReviewerView(EntityView):
         """Paper id, title, score and standing."""
         p = facts.session.papers[c.paper]
         score = "-" if c.score is None else f"{c.score:.2f}"
-        return [p.id, score, p.title[:24], _state(c.status)]
+        return [p.id, score, p.title[:24], _standing(c)]
 
     def filter_hint(self) -> str:
         """Placeholder of the filter line."""
@@ -445,7 +477,7 @@ class GapView(PaperView):
         ),
     ]
 
-    columns = ("Id", "Has", "Wants", "Min", "State", "Mean", "Title", "Topics")
+    columns = PaperView.columns
 
     def rows(self, facts: Facts) -> list[Row]:
         """Papers below their reviews, the ones below their minimum first."""
