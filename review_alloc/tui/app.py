@@ -808,11 +808,19 @@ class ReviewAllocApp(App[None]):
         except InputError as error:
             return list(error.lines)
         self.workspace = workspace
-        self._history_mark = None
-        self._refresh_all()
+        self._new_session()
         session = workspace.session
         self.notify(f"imported {len(session.papers)} {self.noun}s into {files.target}")
         return []
+
+    def _new_session(self) -> None:
+        """Show another session: no filter of the last one carries over, and the tab says
+        'papers' or 'proposals' as the new session does."""
+        self._history_mark = None
+        for view in (*self.query(EntityView), self.query_one(ConflictView)):
+            view.set_filter("")
+        self.query_one(TabbedContent).get_tab("papers").label = f"2 {self.noun.capitalize()}s"
+        self._refresh_all()
 
     async def action_quit(self) -> None:
         """Quit, asking first when there are unsaved changes."""

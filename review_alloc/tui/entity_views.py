@@ -19,7 +19,7 @@ from textual.timer import Timer
 from textual.widget import Widget
 from textual.widgets import Input, Static
 
-from review_alloc.tui.grid import RowTable
+from review_alloc.tui.grid import FilterInput, RowTable
 from review_alloc.tui.grid import cell_text as _cell_text
 from review_alloc.workspace.facts import Candidate, Facts
 
@@ -118,7 +118,7 @@ class EntityView(Widget):
 
     def compose(self) -> ComposeResult:
         """A filter line, the main table, then the detail (heading and pair table)."""
-        yield Input(placeholder=self.filter_hint(), compact=True, classes="filter")
+        yield FilterInput(placeholder=self.filter_hint(), compact=True, classes="filter")
         with Vertical(classes="split"):
             table = RowTable(classes="main")
             yield table
@@ -222,6 +222,7 @@ class EntityView(Widget):
         self._debounce = self.set_timer(0.12, self._redraw)
 
     @on(Input.Submitted, ".filter")
+    @on(FilterInput.Left, ".filter")
     def _filter_done(self) -> None:
         if self._debounce is not None:
             self._debounce.stop()

@@ -21,6 +21,7 @@ from textual.message import Message
 from textual.reactive import reactive
 from textual.scroll_view import ScrollView
 from textual.strip import Strip
+from textual.widgets import Input
 
 WIDEST = 48
 """No column is drawn wider than this; longer text is cut."""
@@ -273,3 +274,25 @@ class RowTable(ScrollView, can_focus=True):
                 self.post_message(self.Chosen(self, row))
             else:
                 self.cursor_row = row
+
+
+class FilterInput(Input):
+    """A view's filter line; escape leaves it for the table below (the filter stays applied),
+    so digits and letters are keys again."""
+
+    BINDINGS = [Binding("escape", "leave", "Back to the table", show=False)]
+
+    @dataclass
+    class Left(Message):
+        """Escape was pressed in the filter line."""
+
+        field: FilterInput
+
+        @property
+        def control(self) -> FilterInput:
+            """The filter line that sent it."""
+            return self.field
+
+    def action_leave(self) -> None:
+        """Hand the focus back; the view redraws and focuses its table."""
+        self.post_message(self.Left(self))

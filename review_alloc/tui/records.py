@@ -16,7 +16,7 @@ from textual.widget import Widget
 from textual.widgets import Input, Static
 
 from review_alloc.plan.diff import PlanDiff
-from review_alloc.tui.grid import RowTable
+from review_alloc.tui.grid import FilterInput, RowTable
 from review_alloc.workspace import HistoryEntry
 from review_alloc.workspace.facts import Facts
 
@@ -59,7 +59,7 @@ class ConflictView(Widget):
 
     def compose(self) -> ComposeResult:
         """Filter, count line and the table."""
-        yield Input(
+        yield FilterInput(
             placeholder="filter (/): reviewer, paper, 'declared', 'inferred' or a reason",
             compact=True,
             classes="filter",
@@ -116,13 +116,22 @@ class ConflictView(Widget):
         self._debounce = self.set_timer(0.15, self._redraw)
 
     @on(Input.Submitted, ".filter")
+    @on(FilterInput.Left, ".filter")
     def _filter_done(self) -> None:
+        if self._debounce is not None:
+            self._debounce.stop()
         self._redraw()
         self.query_one(RowTable).focus()
 
     def action_focus_filter(self) -> None:
         """Move to the filter line."""
         self.query_one(Input).focus()
+
+    def set_filter(self, text: str) -> None:
+        """Filter the table as if the text had been typed."""
+        self.query_one(Input).value = text
+        self._filter = text
+        self._redraw()
 
     def action_add(self) -> None:
         """Ask the app for the declare-conflict form, pre-filled from the cursor row."""
