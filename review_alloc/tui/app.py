@@ -247,32 +247,55 @@ class ReviewAllocApp(App[None]):
             self._maybe_explain()
 
     def _draw_bar(self) -> None:
+        self.query_one("#bar", Static).update(self.bar_text(self.size.width or 120))
+
+    def on_resize(self) -> None:
+        """Fit the session bar to the new width."""
+        self._draw_bar()
+
+    def bar_text(self, width: int) -> Text:
+        """The session bar: name, saved mark, plan state and file, fitted into `width` cells.
+
+        The marks come in a long and a short wording; the short ones are used when the long do
+        not fit, and then the session's name gives way, so the file name always shows."""
         ws = self.workspace
         s = ws.session
-        text = Text()
-        name = s.name if len(s.name) <= 30 else s.name[:29] + "…"
-        text.append(f" {name} ", style="bold reverse")
+        marks: list[tuple[str, str, str]] = []  # (long, short, style)
         if ws.dirty:
-            text.append(" ● UNSAVED (ctrl+s) ", style="bold black on yellow")
+            marks.append((" ● UNSAVED (ctrl+s) ", " ● UNSAVED ", "bold black on yellow"))
         else:
-            text.append(" saved ", style="green")
+            marks.append((" saved ", " saved ", "green"))
         if s.plan is None:
-            text.append(" no plan yet: press r ", style="yellow")
+            marks.append((" no plan yet: press r ", " no plan: r ", "yellow"))
         elif ws.plan_problems:
-            text.append(
-                f" plan STALE: {len(ws.plan_problems)} stored pair(s) broke a rule, press r ",
-                style="bold yellow",
+            marks.append(
+                (
+                    f" plan STALE: {len(ws.plan_problems)} stored pair(s) broke a rule, press r ",
+                    " plan STALE: r ",
+                    "bold yellow",
+                )
             )
         elif ws.data_changed_since_plan():
-            text.append(" plan STALE: data changed, press r ", style="bold yellow")
+            marks.append((" plan STALE: data changed, press r ", " plan STALE: r ", "bold yellow"))
         else:
-            revision = f" (revision {s.revision})" if s.revision is not None else ""
-            text.append(f" plan current{revision} ", style="green")
+            number = f" {s.revision}" if s.revision is not None else ""
+            marks.append(
+                (f" plan current (revision{number}) ", f" plan current{number} ", "green")
+            )
         if s.kind == "panel":
-            text.append(" grant panel ", style="dim")
-        # The file name only, last: a long folder path would push the marks off the screen.
-        text.append(f" {ws.path.name if ws.path else '(not saved yet)'}", style="dim")
-        self.query_one("#bar", Static).update(text)
+            marks.append((" grant panel ", " panel ", "dim"))
+        # The file name only: a folder path would push the marks off the screen.
+        file = f" {ws.path.name if ws.path else '(not saved yet)'}"
+        wanted = sum(len(m[0]) for m in marks) + len(file) + min(len(s.name), 20) + 2
+        wording = 0 if wanted <= width else 1
+        room = width - sum(len(m[wording]) for m in marks) - len(file) - 2
+        name = s.name if len(s.name) <= min(room, 30) else s.name[: max(min(room, 30) - 1, 4)] + "…"
+        text = Text()
+        text.append(f" {name} ", style="bold reverse")
+        for mark in marks:
+            text.append(mark[wording], style=mark[2])
+        text.append(file, style="dim")
+        return text
 
     # -- planning -------------------------------------------------------------------------
 

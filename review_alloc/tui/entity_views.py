@@ -125,6 +125,7 @@ class EntityView(Widget):
             with Vertical(classes="detail"):
                 yield Static("", classes="detail-head")
                 yield RowTable(classes="pairs")
+                yield Static("", classes="pair-note")
 
     # -- what subclasses provide ----------------------------------------------------------
 
@@ -142,7 +143,7 @@ class EntityView(Widget):
 
     def pair_columns(self) -> tuple[str, ...]:
         """Columns of the detail's pair table."""
-        return ("Id", "Score", "Name", "Standing")
+        return ("Id", "Score", "Standing", "Name")
 
     def pair_cells(self, facts: Facts, c: Candidate) -> list[object]:
         """Cells of one pair in the detail table."""
@@ -202,6 +203,7 @@ class EntityView(Widget):
             head.update(Text("Nothing matches the filter." if self._filter else "", style="dim"))
             pairs.fill(self.pair_columns(), [])
             self._pairs = []
+            self._show_pair_note()
             return
         heading, self._pairs = self.detail(facts, key)
         head.update(heading)
@@ -210,6 +212,25 @@ class EntityView(Widget):
         if self._pairs:
             pairs.move_cursor(min(row, len(self._pairs) - 1))
         self._shown_key = key
+        self._show_pair_note()
+
+    def _show_pair_note(self) -> None:
+        """The whole standing of the pair under the pair cursor, wrapped: a long reason (a
+        conflict's institutions, a rule's numbers) is never cut off by the column."""
+        note = self.query_one(".pair-note", Static)
+        facts, c = self.facts, self.selected_pair()
+        if facts is None or c is None:
+            note.update("")
+            return
+        s = facts.session
+        r, p = s.reviewers[c.reviewer], s.papers[c.paper]
+        text = Text(f"{r.id} {r.name} × {p.id}: ", style="bold")
+        text.append_text(_standing(c))
+        note.update(text)
+
+    @on(RowTable.Highlighted, ".pairs")
+    def _pair_moved(self) -> None:
+        self._show_pair_note()
 
     # -- events ---------------------------------------------------------------------------
 
@@ -393,7 +414,7 @@ class PaperView(EntityView):
         """Reviewer id, name, score and standing."""
         r = facts.session.reviewers[c.reviewer]
         score = "-" if c.score is None else f"{c.score:.2f}"
-        return [r.id, score, r.name[:20], _standing(c)]
+        return [r.id, score, _standing(c), r.name[:20]]
 
     def filter_hint(self) -> str:
         """Placeholder of the filter line."""
@@ -453,13 +474,13 @@ class ReviewerView(EntityView):
 
     def pair_columns(self) -> tuple[str, ...]:
         """Columns of the paper list in the detail."""
-        return ("Id", "Score", "Title", "Standing")
+        return ("Id", "Score", "Standing", "Title")
 
     def pair_cells(self, facts: Facts, c: Candidate) -> list[object]:
         """Paper id, title, score and standing."""
         p = facts.session.papers[c.paper]
         score = "-" if c.score is None else f"{c.score:.2f}"
-        return [p.id, score, p.title[:24], _standing(c)]
+        return [p.id, score, _standing(c), p.title[:24]]
 
     def filter_hint(self) -> str:
         """Placeholder of the filter line."""

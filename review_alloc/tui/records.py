@@ -20,7 +20,7 @@ from review_alloc.tui.grid import FilterInput, RowTable
 from review_alloc.workspace import HistoryEntry
 from review_alloc.workspace.facts import Facts
 
-CONFLICT_COLUMNS = ("Reviewer", "Name", "Paper", "Title", "Kind", "Reasons")
+CONFLICT_COLUMNS = ("Reviewer", "Paper", "Kind", "Reasons", "Name", "Title")
 REVISION_COLUMNS = ("No.", "From", "Made (UTC)", "Reviews", "Score", "Kept", "Changes")
 DIFF_COLUMNS = ("Reviewer", "Papers added", "Papers removed")
 EVENT_COLUMNS = ("When (UTC)", "Change")
@@ -66,6 +66,7 @@ class ConflictView(Widget):
         )
         yield Static("", classes="count")
         yield RowTable(classes="main")
+        yield Static("", classes="conflict-note")
 
     def watch_facts(self, facts: Facts | None) -> None:
         """Rebuild the rows from the conflict set of the new facts."""
@@ -78,7 +79,7 @@ class ConflictView(Widget):
             kind = "declared" if why.startswith("declared") else "inferred"
             if kind == "declared" and ";" in why:
                 kind = "declared+inferred"
-            rows.append((r.id, p.id, [r.id, r.name[:20], p.id, p.title[:26], kind, why]))
+            rows.append((r.id, p.id, [r.id, p.id, kind, why, r.name[:20], p.title[:26]]))
         self._rows = rows
         self._redraw()
 
@@ -92,17 +93,29 @@ class ConflictView(Widget):
             [cells for *_, cells in self._rows[:SHOWN_AT_MOST]],
         )
         self._shown = matching[:SHOWN_AT_MOST]
-        declared = sum(r[2][4].startswith("declared") for r in self._rows)
+        self._show_note()
+        declared = sum(r[2][2].startswith("declared") for r in self._rows)
         note = (
-            f"{len(self._rows)} conflicted pairs ({declared} declared, "
-            f"{len(self._rows) - declared} inferred from e-mail and institution); "
-            f"{len(matching)} match"
+            f"{len(self._rows)} conflicted pairs: {declared} declared, "
+            f"{len(self._rows) - declared} inferred (e-mail, institution) · {len(matching)} match"
         )
         if len(matching) > SHOWN_AT_MOST:
-            note += f", first {SHOWN_AT_MOST} shown: filter to narrow"
-        self.query_one(".count", Static).update(
-            Text(note + ".   a: declare a conflict", style="dim")
-        )
+            note += f" · first {SHOWN_AT_MOST} shown, / narrows"
+        self.query_one(".count", Static).update(Text(note + " · a: declare one", style="dim"))
+
+    @on(RowTable.Highlighted)
+    def _show_note(self) -> None:
+        """The cursor row in full, wrapped: its reasons are never cut off at any width."""
+        table = self.query_one(RowTable)
+        shown = getattr(self, "_shown", [])
+        note = self.query_one(".conflict-note", Static)
+        if not shown or not 0 <= table.cursor_row < len(shown):
+            note.update("")
+            return
+        reviewer, paper, cells = shown[table.cursor_row]
+        text = Text(f"{reviewer} {cells[4]} × {paper} {cells[5]} ({cells[2]}): ", style="bold")
+        text.append(cells[3])
+        note.update(text)
 
     def shown_pairs(self) -> list[tuple[str, str]]:
         """(reviewer, paper) of the rows shown."""

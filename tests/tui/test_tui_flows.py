@@ -143,8 +143,8 @@ async def test_open_a_paper_shows_its_reviewers_and_why_others_are_unused(
         paper = session.papers[1].id
         assigned = {a.reviewer for a in session.plan.assignments if a.paper == paper}
         rows = [pairs.row_at(k) for k in range(pairs.row_count)]
-        assert {r[0] for r in rows if r[3].startswith("assigned")} == assigned
-        others = [r[3] for r in rows if not r[3].startswith("assigned")]
+        assert {r[0] for r in rows if r[2].startswith("assigned")} == assigned
+        others = [r[2] for r in rows if not r[2].startswith("assigned")]
         assert others and all(
             s.startswith(("conflict", "cap full", "paper already", "eligible", "blocked"))
             for s in others
@@ -153,7 +153,7 @@ async def test_open_a_paper_shows_its_reviewers_and_why_others_are_unused(
         declared = {(c.reviewer, c.paper) for c in session.conflicts}
         for r in rows:
             if (r[0], paper) in declared:
-                assert r[3].startswith("conflict: declared")
+                assert r[2].startswith("conflict: declared")
 
 
 async def test_pin_and_block(new_app: Factory) -> None:
@@ -174,7 +174,7 @@ async def test_pin_and_block(new_app: Factory) -> None:
         assert "STALE" in bar_text(app)
         # Pin the first eligible candidate.
         rows = [pairs.row_at(k) for k in range(pairs.row_count)]
-        target = next(k for k, r in enumerate(rows) if r[3].startswith(("eligible", "cap full")))
+        target = next(k for k, r in enumerate(rows) if r[2].startswith(("eligible", "cap full")))
         pairs.move_cursor(target)
         await pilot.press("p")
         await pilot.pause()
@@ -182,7 +182,7 @@ async def test_pin_and_block(new_app: Factory) -> None:
         assert any(p.reviewer == rows[target][0] and p.paper == paper for p in s.pins)
         # A conflicted pair cannot be pinned; the refusal names the reason.
         rows = [pairs.row_at(k) for k in range(pairs.row_count)]
-        conflicted = [k for k, r in enumerate(rows) if r[3].startswith("conflict")]
+        conflicted = [k for k, r in enumerate(rows) if r[2].startswith("conflict")]
         if conflicted:
             pairs.move_cursor(conflicted[0])
             before = len(app.workspace.session.pins)
@@ -502,7 +502,7 @@ async def test_gaps_and_raising_a_full_cap_from_one(new_app: Factory) -> None:
         await pilot.press("enter")
         pairs = view.query_one(".pairs", RowTable)
         rows = [pairs.row_at(k) for k in range(pairs.row_count)]
-        full = next(k for k, r in enumerate(rows) if r[3].startswith("cap full"))
+        full = next(k for k, r in enumerate(rows) if r[2].startswith("cap full"))
         pairs.move_cursor(full)
         await pilot.press("c")
         await pilot.pause()

@@ -34,7 +34,7 @@ async def test_leads_shown_in_tables_and_details(new_app: Factory) -> None:
         assert f"lead: {lead} " in head
         pairs = view.query_one(".pairs", RowTable)
         rows = [pairs.row_at(k) for k in range(pairs.row_count)]
-        marked = [r[0] for r in rows if "lead" in r[3]]
+        marked = [r[0] for r in rows if "lead" in r[2]]
         assert marked == [lead]
         await pilot.press("3")
         await pilot.pause()
