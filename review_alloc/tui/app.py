@@ -224,6 +224,7 @@ class ReviewAllocApp(App[None]):
         mark = (len(self.workspace.revisions), self.workspace.session.revision)
         if mark != self._history_mark:
             self._history_mark = mark
+            history.noun = self.noun
             history.entries = self.workspace.history()
         active = self.query_one(TabbedContent).active or "overview"
         self._show_view(active)
@@ -400,7 +401,8 @@ class ReviewAllocApp(App[None]):
         gaps, why = self.query_one(GapView), self.query_one(ExplainView)
         gaps.display, why.display = not explaining, explaining
         self.query_one("#gaps-hint", PaneHint).update(
-            "x: back to the short papers; tab between groups and fixes; v preview, a accept"
+            f"x: back to the short {self.noun}s; tab between groups and fixes; "
+            "v preview, a accept"
             if explaining
             else "x: why short and the fixes (shortfall groups, cap raises, recruits)"
         )
@@ -570,7 +572,37 @@ class ReviewAllocApp(App[None]):
         }
         run = runs[(message.action, message.kind)]
         noun = "reviewer" if message.kind == "reviewer" else self.noun
-        self._change(f"{message.action} {noun} {ident}", lambda: run(ident))
+        s = ws.session
+        if message.kind == "reviewer":
+            who = s.reviewers[s.reviewer_index()[ident]].name
+            held = sum(a.reviewer == ident for a in s.plan.assignments) if s.plan else 0
+        else:
+            who = s.papers[s.paper_index()[ident]].title
+            held = sum(a.paper == ident for a in s.plan.assignments) if s.plan else 0
+        if message.action == "withdraw":
+            question = (
+                f"Withdraw {noun} {ident} ({who})? "
+                + (f"Its {held} pair(s) leave the plan at once. " if held else "")
+                + "ctrl+z takes it back."
+            )
+        else:
+            question = f"Reinstate {noun} {ident} ({who})? Plan again (r) to use it."
+
+        def apply(values: dict[str, str]) -> list[str]:
+            # The reason goes into the record, so History says why.
+            done = self._change(
+                f"{message.action} {noun} {ident}", lambda: run(ident, values["reason"])
+            )
+            return [] if done else ["refused: see the message in the corner"]
+
+        self.push_screen(
+            Form(
+                f"{message.action.capitalize()} {noun} {ident}",
+                [Field("reason", "reason (kept in History)")],
+                apply,
+                hint=question,
+            )
+        )
 
     def _edit(self, kind: str, ident: str) -> None:
         s = self.workspace.session
@@ -858,7 +890,7 @@ class ReviewAllocApp(App[None]):
         self.push_screen(
             Confirm(
                 "There are unsaved changes. Quit without saving them?\n"
-                "(No goes back; ctrl+s saves.)",
+                "(To keep them: Stay, then ctrl+s saves.)",
                 yes="Quit without saving",
                 no="Stay",
             ),

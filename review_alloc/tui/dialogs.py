@@ -28,6 +28,11 @@ class Confirm(ModalScreen[bool]):
         """The question and two buttons."""
         with Vertical(classes="dialog"):
             yield Static(self.question, classes="question")
+            # Only the keys this dialog itself answers to.
+            yield Static(
+                Text(f"y: {self.yes} · escape: {self.no} · tab and enter choose", style="dim"),
+                classes="keys",
+            )
             with Horizontal(classes="buttons"):
                 yield Button(self.yes, variant="warning", id="yes")
                 yield Button(self.no, variant="primary", id="no")
@@ -145,6 +150,13 @@ class ImportFiles:
     panel: bool
 
 
+def panel_label(panel: bool) -> str:
+    """The import form's panel switch, its state in words (not by colour alone)."""
+    if panel:
+        return "grant panel: YES (the session says 'proposal'; space: no)"
+    return "grant panel: NO (a conference, says 'paper'; space: yes)"
+
+
 class ImportForm(Form):
     """Build a session from CSV files, with the same row-level errors as the command line."""
 
@@ -162,9 +174,14 @@ class ImportForm(Form):
     def on_mount(self) -> None:
         """Add the panel switch above the problems line."""
         self.query_one(".dialog", Vertical).mount(
-            Checkbox("a grant panel (say 'proposal')", id="panel"),
+            Checkbox(panel_label(False), id="panel"),
             before=self.query_one(".problems", Static),
         )
+
+    @on(Checkbox.Changed, "#panel")
+    def _panel_changed(self, event: Checkbox.Changed) -> None:
+        # The box's mark differs only by colour; the words say the state.
+        event.checkbox.label = panel_label(event.value)
 
     def _import(self, values: dict[str, str]) -> list[str]:
         """Hand the files to the app's importer; its problem lines stay in the form."""

@@ -21,8 +21,22 @@ from review_alloc.workspace import HistoryEntry
 from review_alloc.workspace.facts import Facts
 
 CONFLICT_COLUMNS = ("Reviewer", "Paper", "Kind", "Reasons", "Name", "Title")
+"""Headings of the Conflicts table; "Paper" is said in the session's noun."""
 REVISION_COLUMNS = ("No.", "From", "Made (UTC)", "Reviews", "Score", "Kept", "Changes")
 DIFF_COLUMNS = ("Reviewer", "Papers added", "Papers removed")
+"""Headings of a diff; "Papers" is said in the session's noun."""
+
+
+def in_noun(headings: tuple[str, ...], noun: str) -> tuple[str, ...]:
+    """Headings with 'Paper' said as the session's noun ('Proposal' for a grant panel)."""
+    return tuple(h.replace("Paper", noun.capitalize()) for h in headings)
+
+
+def described(action: str, text: str, noun: str) -> str:
+    """An event's line with its action in the session's noun ('withdraw-proposal ...')."""
+    if noun != "paper" and text.startswith(action):
+        return action.replace("paper", noun) + text[len(action) :]
+    return text
 EVENT_COLUMNS = ("When (UTC)", "Change")
 
 SHOWN_AT_MOST = 2000
@@ -56,6 +70,7 @@ class ConflictView(Widget):
         self._rows: list[tuple[str, str, list[str]]] = []
         self._filter = ""
         self._debounce: Timer | None = None
+        self._noun = "paper"
 
     def compose(self) -> ComposeResult:
         """Filter, count line and the table."""
@@ -73,6 +88,10 @@ class ConflictView(Widget):
         if facts is None:
             return
         s = facts.session
+        self._noun = s.noun
+        self.query_one(Input).placeholder = (
+            f"filter (/): reviewer, {s.noun}, 'declared', 'inferred' or a reason"
+        )
         rows = []
         for (j, i), why in sorted(facts.conflict_reason.items(), key=lambda x: (x[0][1], x[0][0])):
             r, p = s.reviewers[j], s.papers[i]
@@ -88,7 +107,7 @@ class ConflictView(Widget):
         matching = [r for r in self._rows if all(w in " ".join(r[2]).casefold() for w in words)]
         table = self.query_one(RowTable)
         table.fill(
-            CONFLICT_COLUMNS,
+            in_noun(CONFLICT_COLUMNS, self._noun),
             [cells for *_, cells in matching[:SHOWN_AT_MOST]],
             [cells for *_, cells in self._rows[:SHOWN_AT_MOST]],
         )
@@ -164,6 +183,9 @@ class HistoryView(Widget):
         Binding("u", "undo", "Undo", tooltip="Go back one step, like ctrl+z"),
     ]
 
+    noun: str = "paper"
+    """'proposal' for a grant panel; set by the app before `entries`."""
+
     entries: reactive[list[HistoryEntry]] = reactive(list, always_update=True)
     diff: reactive[PlanDiff | None] = reactive(None, always_update=True)
     facts: reactive[Facts | None] = reactive(None, always_update=True)
@@ -222,7 +244,7 @@ class HistoryView(Widget):
         table = self.query_one(".diff", RowTable)
         if diff is None:
             head.update(Text("No revisions yet: press r to plan.", style="dim"))
-            table.fill(DIFF_COLUMNS, [])
+            table.fill(in_noun(DIFF_COLUMNS, self.noun), [])
             return
         old = f"revision {diff.old}" if diff.old is not None else "no plan"
         head.update(
@@ -236,14 +258,15 @@ class HistoryView(Widget):
             [reviewer, " ".join(c.added) or "-", " ".join(c.removed) or "-"]
             for reviewer, c in diff.by_reviewer.items()
         ]
-        table.fill(DIFF_COLUMNS, rows, widest=200)
+        table.fill(in_noun(DIFF_COLUMNS, self.noun), rows, widest=200)
 
     def watch_facts(self, facts: Facts | None) -> None:
         """Redraw the change log."""
         if facts is None:
             return
+        noun = facts.session.noun
         rows = [
-            [e.at.strftime("%m-%d %H:%M:%S"), e.describe()[:160]]
+            [e.at.strftime("%m-%d %H:%M:%S"), described(e.action, e.describe(), noun)[:160]]
             for e in reversed(facts.session.events[-500:])
         ]
         self.query_one(".events", RowTable).fill(EVENT_COLUMNS, rows, widest=120)

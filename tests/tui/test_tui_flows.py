@@ -206,8 +206,23 @@ async def test_withdraw_replan_diff_and_undo(new_app: Factory) -> None:
         assert held
         await pilot.press("w")
         await pilot.pause()
+        # w asks first, with the reviewer named, and wants a reason; escape changes nothing.
+        form = app.screen
+        assert isinstance(form, Form) and gone in form.title_text
+        await pilot.press("escape")
+        await pilot.pause()
+        assert not app.workspace.session.reviewers[0].withdrawn
+        await pilot.press("w")
+        await pilot.pause()
+        await pilot.press("enter")
+        await pilot.pause()
+        assert isinstance(app.screen, Form) and not app.workspace.session.reviewers[0].withdrawn
+        await pilot.press(*"on leave", "enter")
+        await pilot.pause()
+        assert not isinstance(app.screen, Form)
         s = app.workspace.session
         assert s.reviewers[0].withdrawn
+        assert s.events[-1].action == "withdraw-reviewer" and s.events[-1].reason == "on leave"
         assert not any(a.reviewer == gone for a in s.plan.assignments)
         assert "withdrawn" in view.query_one(".main", RowTable).row_at(0)[5]
         await plan(app, pilot)
@@ -215,6 +230,9 @@ async def test_withdraw_replan_diff_and_undo(new_app: Factory) -> None:
         await pilot.pause()
         history = app.query_one(HistoryView)
         assert [e.number for e in history.entries] == [1, 2]
+        log = history.query_one(".events", RowTable)
+        assert any(f"withdraw-reviewer {gone}" in r[1] and "on leave" in r[1]
+                   for r in map(log.row_at, range(log.row_count)))
         # The diff lists the withdrawn reviewer with every paper they lost, and nothing new.
         rows = {row[0]: row for row in history.diff_rows()}
         assert rows[gone][1] == "-" and set(rows[gone][2].split()) == held
