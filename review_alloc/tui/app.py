@@ -99,6 +99,7 @@ class ReviewAllocApp(App[None]):
         Binding("ctrl+s", "save", "Save"),
         Binding("R", "plan(True)", "Plan fresh", show=False),
         Binding("ctrl+z", "undo", "Undo"),
+        Binding("ctrl+y", "redo", "Redo", show=False),
         Binding("i", "import", "Import CSV", show=False),
         Binding("question_mark,f1", "help", "Keys"),
         Binding("1", "tab('overview')", "Overview", show=False),
@@ -718,7 +719,7 @@ class ReviewAllocApp(App[None]):
             self._go_back()
             return
         events = ws.session.events
-        marks = [k for k, e in enumerate(events) if e.action in ("plan", "undo")]
+        marks = [k for k, e in enumerate(events) if e.action in ("plan", "undo", "redo")]
         unplanned = len(events) - (marks[-1] + 1 if marks else 0)
 
         def answered(yes: bool | None) -> None:
@@ -735,6 +736,23 @@ class ReviewAllocApp(App[None]):
             answered,
         )
 
+    @on(HistoryView.RedoRequest)
+    def _redo_request(self) -> None:
+        self.action_redo()
+
+    def action_redo(self) -> None:
+        """Go forward again to the revision the last undo left, with its plan and data."""
+        if self.planning:
+            self.notify("wait for the plan or cancel it (escape) before going forward")
+            return
+        try:
+            number = self.workspace.redo()
+        except InputError as error:
+            self.notify("\n".join(error.lines), title="Nothing to redo", severity="warning")
+            return
+        self._refresh_all()
+        self.notify(f"forward to revision {number}: its plan and its data (ctrl+z goes back)")
+
     def _go_back(self) -> None:
         try:
             number = self.workspace.undo()
@@ -742,7 +760,7 @@ class ReviewAllocApp(App[None]):
             self.notify("\n".join(error.lines), title="Cannot go back", severity="warning")
             return
         self._refresh_all()
-        self.notify(f"back to revision {number}: its plan and its data")
+        self.notify(f"back to revision {number}: its plan and its data (ctrl+y goes forward)")
 
     @on(HistoryView.DiffWanted)
     def _diff_wanted(self, message: HistoryView.DiffWanted) -> None:
@@ -953,6 +971,7 @@ class ReviewAllocApp(App[None]):
             "drop the changes since the current revision, or go back to the one before",
             self.action_undo,
         )
+        yield "Redo", "go forward again to the revision the last undo left", self.action_redo
         yield "Declare a conflict", "add a conflict of interest", self.action_declare_conflict
         yield "Import from CSV", "build a session from CSV files", self.action_import
         yield "Show keys", "every key of the app", self.action_help

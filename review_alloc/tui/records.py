@@ -181,6 +181,7 @@ class HistoryView(Widget):
     BINDINGS = [
         Binding("m", "mark", "Mark base", tooltip="Compare other revisions against this one"),
         Binding("u", "undo", "Undo", tooltip="Go back one step, like ctrl+z"),
+        Binding("f", "redo", "Redo", tooltip="Go forward to the revision undone last, like ctrl+y"),
     ]
 
     noun: str = "paper"
@@ -199,6 +200,9 @@ class HistoryView(Widget):
 
     class UndoRequest(Message):
         """The chair wants to go back to the previous revision."""
+
+    class RedoRequest(Message):
+        """The chair wants to go forward to the revision undone last."""
 
     def __init__(self, *, id: str | None = None) -> None:
         super().__init__(id=id)
@@ -306,3 +310,7 @@ class HistoryView(Widget):
     def action_undo(self) -> None:
         """Ask the app to return to the previous revision."""
         self.post_message(self.UndoRequest())
+
+    def action_redo(self) -> None:
+        """Ask the app to go forward to the revision undone last."""
+        self.post_message(self.RedoRequest())

@@ -253,6 +253,24 @@ async def test_withdraw_replan_diff_and_undo(new_app: Factory) -> None:
         assert s.revision == 1
         assert not s.reviewers[0].withdrawn
         assert any(a.reviewer == gone for a in s.plan.assignments)
+        # Forward again (ctrl+y): revision 2, the reviewer withdrawn again, as it was made.
+        await pilot.press("ctrl+y")
+        await pilot.pause()
+        s = app.workspace.session
+        assert s.revision == 2 and s.reviewers[0].withdrawn
+        assert s.plan.model_dump_json() == app.workspace.plan_of(2).model_dump_json()
+        assert "plan current (revision 2)" in bar_text(app)
+        # u and f in History do the same.
+        await pilot.press("u")
+        await pilot.pause()
+        assert app.workspace.session.revision == 1
+        await pilot.press("f")
+        await pilot.pause()
+        assert app.workspace.session.revision == 2
+        assert log.row_at(0)[1].startswith("redo 2")
+        await pilot.press("f")
+        await pilot.pause()
+        assert app.workspace.session.revision == 2
 
 
 async def test_save_and_reload(new_app: Factory, tmp_path: Path) -> None:
