@@ -28,6 +28,7 @@ from textual.widgets import (
     Static,
     TabbedContent,
     TabPane,
+    Tabs,
 )
 
 from review_alloc.model import InputError, Session
@@ -195,6 +196,7 @@ class ReviewAllocApp(App[None]):
         self.query_one("#planning").display = False
         self.query_one(ExplainView).display = False
         self._refresh_all()
+        self.query_one(Overview).focus()
         self._warm_up()
         problems = self.workspace.plan_problems
         if problems:
@@ -245,6 +247,9 @@ class ReviewAllocApp(App[None]):
     def _tab_shown(self, event: TabbedContent.TabActivated) -> None:
         if event.pane.id:
             self._show_view(event.pane.id)
+            if isinstance(self.focused, Tabs):
+                # A click on a tab: its view takes the keys, as with the digit keys.
+                self.action_tab(event.pane.id)
         if event.pane.id == "gaps":
             self._maybe_explain()
 
@@ -924,6 +929,9 @@ class ReviewAllocApp(App[None]):
         tables = view.query(RowTable)
         if tables:
             tables.first().focus()
+        elif view.can_focus:
+            # The Overview scrolls by keyboard as soon as it is shown.
+            view.focus()
 
     def action_help(self) -> None:
         """Show every key."""
