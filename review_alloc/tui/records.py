@@ -67,10 +67,17 @@ class ConflictView(Widget):
 
     def __init__(self, *, id: str | None = None) -> None:
         super().__init__(id=id)
-        self._rows: list[tuple[str, str, list[str]]] = []
         self._filter = ""
         self._debounce: Timer | None = None
         self._noun = "paper"
+        self._source: dict[tuple[int, int], str] | None = None
+        self._drawn_noun = ""
+        self._order: list[tuple[int, int]] = []
+        self._rev: list[tuple[str, str]] = []
+        self._pap: list[tuple[str, str]] = []
+        self._built: list[tuple[str, str, list[str]]] | None = None
+        self._declared = 0
+        self._shown: list[tuple[str, str, list[str]]] = []
 
     def compose(self) -> ComposeResult:
         """Filter, count line and the table."""
@@ -92,33 +99,62 @@ class ConflictView(Widget):
         self.query_one(Input).placeholder = (
             f"filter (/): reviewer, {s.noun}, 'declared', 'inferred' or a reason"
         )
-        rows = []
-        for (j, i), why in sorted(facts.conflict_reason.items(), key=lambda x: (x[0][1], x[0][0])):
-            r, p = s.reviewers[j], s.papers[i]
-            kind = "declared" if why.startswith("declared") else "inferred"
-            if kind == "declared" and ";" in why:
-                kind = "declared+inferred"
-            rows.append((r.id, p.id, [r.id, p.id, kind, why, r.name[:20], p.title[:26]]))
-        self._rows = rows
+        if facts.conflict_reason is self._source and s.noun == self._drawn_noun:
+            # The same conflicts (a pin, a block or a plan leaves them alone): nothing to redo.
+            return
+        reasons = facts.conflict_reason
+        self._source, self._drawn_noun = reasons, s.noun
+        self._rev = [(r.id, r.name[:20]) for r in s.reviewers]
+        self._pap = [(p.id, p.title[:26]) for p in s.papers]
+        n_r = max(len(self._rev), 1)
+        # Rows are built only when drawn or filtered: 20,000 rows of cells up front cost a
+        # third of a second on the large sample, mostly in the garbage collector.
+        self._order = sorted(reasons, key=lambda pair: pair[1] * n_r + pair[0])
+        self._declared = sum(why.startswith("declared") for why in reasons.values())
+        self._built = None
         self._redraw()
+
+    def _row(self, pair: tuple[int, int]) -> tuple[str, str, list[str]]:
+        j, i = pair
+        why = self._source[pair] if self._source is not None else ""
+        if why.startswith("declared"):
+            kind = "declared+inferred" if ";" in why else "declared"
+        else:
+            kind = "inferred"
+        (rid, name), (pid, title) = self._rev[j], self._pap[i]
+        return rid, pid, [rid, pid, kind, why, name, title]
+
+    def _all_rows(self) -> list[tuple[str, str, list[str]]]:
+        if self._built is None:
+            self._built = [self._row(pair) for pair in self._order]
+        return self._built
 
     def _redraw(self) -> None:
         words = self._filter.casefold().split()
-        matching = [r for r in self._rows if all(w in " ".join(r[2]).casefold() for w in words)]
+        total = len(self._order)
+        head = [self._row(pair) for pair in self._order[:SHOWN_AT_MOST]]
+        if words:
+            matching = [
+                r for r in self._all_rows() if all(w in " ".join(r[2]).casefold() for w in words)
+            ]
+            count = len(matching)
+            shown = matching[:SHOWN_AT_MOST]
+        else:
+            count, shown = total, head
         table = self.query_one(RowTable)
         table.fill(
             in_noun(CONFLICT_COLUMNS, self._noun),
-            [cells for *_, cells in matching[:SHOWN_AT_MOST]],
-            [cells for *_, cells in self._rows[:SHOWN_AT_MOST]],
+            [cells for *_, cells in shown],
+            [cells for *_, cells in head],
         )
-        self._shown = matching[:SHOWN_AT_MOST]
+        self._shown = shown
         self._show_note()
-        declared = sum(r[2][2].startswith("declared") for r in self._rows)
+        declared = self._declared
         note = (
-            f"{len(self._rows)} conflicted pairs: {declared} declared, "
-            f"{len(self._rows) - declared} inferred (e-mail, institution) · {len(matching)} match"
+            f"{total} conflicted pairs: {declared} declared, "
+            f"{total - declared} inferred (e-mail, institution) · {count} match"
         )
-        if len(matching) > SHOWN_AT_MOST:
+        if count > SHOWN_AT_MOST:
             note += f" · first {SHOWN_AT_MOST} shown, / narrows"
         self.query_one(".count", Static).update(Text(note + " · a: declare one", style="dim"))
 
@@ -126,7 +162,7 @@ class ConflictView(Widget):
     def _show_note(self) -> None:
         """The cursor row in full, wrapped: its reasons are never cut off at any width."""
         table = self.query_one(RowTable)
-        shown = getattr(self, "_shown", [])
+        shown = self._shown
         note = self.query_one(".conflict-note", Static)
         if not shown or not 0 <= table.cursor_row < len(shown):
             note.update("")
@@ -168,7 +204,7 @@ class ConflictView(Widget):
     def action_add(self) -> None:
         """Ask the app for the declare-conflict form, pre-filled from the cursor row."""
         table = self.query_one(RowTable)
-        shown = getattr(self, "_shown", [])
+        shown = self._shown
         reviewer, paper = ("", "")
         if shown and 0 <= table.cursor_row < len(shown):
             reviewer, paper = shown[table.cursor_row][0], ""

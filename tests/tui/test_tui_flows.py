@@ -494,6 +494,8 @@ async def test_undo_asks_before_dropping_unplanned_changes(new_app: Factory) -> 
         assert app.workspace.session.revision == 2
         await pilot.press("3", "w")
         await pilot.pause()
+        await pilot.press(*"sick", "enter")
+        await pilot.pause()
         assert app.workspace.session.reviewers[0].withdrawn
         await pilot.press("ctrl+z")
         await pilot.pause()
