@@ -587,12 +587,12 @@ class ReviewAllocApp(App[None]):
             held = sum(a.paper == ident for a in s.plan.assignments) if s.plan else 0
         if message.action == "withdraw":
             question = (
-                f"Withdraw {noun} {ident} ({who})? "
-                + (f"Its {held} pair(s) leave the plan at once. " if held else "")
+                f"{who}: "
+                + (f"its {held} pair(s) leave the plan at once; " if held else "")
                 + "ctrl+z takes it back."
             )
         else:
-            question = f"Reinstate {noun} {ident} ({who})? Plan again (r) to use it."
+            question = f"{who}: plan again (r) to use it."
 
         def apply(values: dict[str, str]) -> list[str]:
             # The reason goes into the record, so History says why.
@@ -603,8 +603,8 @@ class ReviewAllocApp(App[None]):
 
         self.push_screen(
             Form(
-                f"{message.action.capitalize()} {noun} {ident}",
-                [Field("reason", "reason (kept in History)")],
+                f"{message.action.capitalize()} {noun} {ident}?",
+                [Field("reason", "reason (kept in History; required)")],
                 apply,
                 hint=question,
             )

@@ -78,7 +78,9 @@ class Form(ModalScreen[bool]):
 
     def compose(self) -> ComposeResult:
         """Title, one input per field, the problems line and the buttons."""
-        with Vertical(classes="dialog"):
+        # Scrolls when the screen is too short (the import form at 80x24), so the buttons and
+        # the problems line can always be reached; the focused field is scrolled into view.
+        with VerticalScroll(classes="dialog form"):
             yield Static(Text(self.title_text, style="bold"))
             if self.hint:
                 yield Static(Text(self.hint, style="dim"))
@@ -173,7 +175,7 @@ class ImportForm(Form):
 
     def on_mount(self) -> None:
         """Add the panel switch above the problems line."""
-        self.query_one(".dialog", Vertical).mount(
+        self.query_one(".dialog", VerticalScroll).mount(
             Checkbox(panel_label(False), id="panel"),
             before=self.query_one(".problems", Static),
         )

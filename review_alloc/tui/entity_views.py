@@ -208,7 +208,10 @@ class EntityView(Widget):
         heading, self._pairs = self.detail(facts, key)
         head.update(heading)
         row = pairs.cursor_row if key == self._shown_key else 0
-        pairs.fill(self.pair_columns(), [self.pair_cells(facts, c) for c in self._pairs])
+        # Narrower than the main table: the note below the list has every standing in full.
+        pairs.fill(
+            self.pair_columns(), [self.pair_cells(facts, c) for c in self._pairs], widest=32
+        )
         if self._pairs:
             pairs.move_cursor(min(row, len(self._pairs) - 1))
         self._shown_key = key

@@ -75,3 +75,17 @@ async def test_reasons_shown_in_full_at_80_by_24(new_app: Factory) -> None:
             pair = papers.selected_pair()
             assert pair is not None
             assert pair.status in _on_screen(app, papers.query_one(".pair-note", Static))
+
+
+async def test_import_form_buttons_reachable_at_80_by_24(new_app: Factory) -> None:
+    app = new_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await pilot.press("i")
+        await pilot.pause()
+        for _ in range(8):
+            await pilot.press("tab")
+        await pilot.pause()
+        focused = app.focused
+        assert focused is not None and focused.id in ("ok", "cancel")
+        region = focused.region
+        assert region.height > 0 and region.bottom <= app.size.height
