@@ -946,7 +946,7 @@ class ReviewAllocApp(App[None]):
                 key = b.key if isinstance(b, Binding) else b[0]
                 desc = b.description if isinstance(b, Binding) else b[2]
                 if key == "escape":
-                    desc = "cancel the plan being made; close a form; leave a filter line"
+                    desc = "cancel the plan; close a form; leave a filter line"
                 elif key in "123456" and len(key) == 1:
                     tab = f"{self.noun}s" if desc == "Papers" else desc
                     desc = f"show the {tab.capitalize()} tab"
