@@ -92,6 +92,11 @@ class Form(ModalScreen[bool]):
                 yield Button("OK", variant="primary", id="ok")
                 yield Button("Cancel", id="cancel")
 
+    def on_mount(self) -> None:
+        """Start in the first field, so typing goes there at once."""
+        if self.fields:
+            self.query_one(f"#field-{self.fields[0].name}", Input).focus()
+
     def values(self) -> dict[str, str]:
         """The text of every field, stripped."""
         return {

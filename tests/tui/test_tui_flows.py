@@ -217,9 +217,13 @@ async def test_withdraw_replan_diff_and_undo(new_app: Factory) -> None:
         await pilot.press("enter")
         await pilot.pause()
         assert isinstance(app.screen, Form) and not app.workspace.session.reviewers[0].withdrawn
+        assert isinstance(app.focused, Input) and app.focused.id == "field-reason"
         await pilot.press(*"on leave", "enter")
-        await pilot.pause()
-        assert not isinstance(app.screen, Form)
+        for _ in range(40):  # a loaded machine may take a few frames to close the form
+            await pilot.pause(0.05)
+            if not isinstance(app.screen, Form):
+                break
+        assert not isinstance(app.screen, Form), str(app.screen.query_one(".problems").render())
         s = app.workspace.session
         assert s.reviewers[0].withdrawn
         assert s.events[-1].action == "withdraw-reviewer" and s.events[-1].reason == "on leave"
