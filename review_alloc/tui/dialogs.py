@@ -50,6 +50,10 @@ class Confirm(ModalScreen[bool]):
         self.dismiss(answer)
 
 
+class DialogScroll(VerticalScroll, can_focus=False):
+    """A form's body: scrolls to the focused field, but is no stop of its own for tab."""
+
+
 @dataclass(frozen=True)
 class Field:
     """One line of a form: its label, current text and whether it may be left empty."""
@@ -80,7 +84,7 @@ class Form(ModalScreen[bool]):
         """Title, one input per field, the problems line and the buttons."""
         # Scrolls when the screen is too short (the import form at 80x24), so the buttons and
         # the problems line can always be reached; the focused field is scrolled into view.
-        with VerticalScroll(classes="dialog form"):
+        with DialogScroll(classes="dialog form"):
             yield Static(Text(self.title_text, style="bold"))
             if self.hint:
                 yield Static(Text(self.hint, style="dim"))
@@ -180,7 +184,7 @@ class ImportForm(Form):
 
     def on_mount(self) -> None:
         """Add the panel switch above the problems line."""
-        self.query_one(".dialog", VerticalScroll).mount(
+        self.query_one(".dialog", DialogScroll).mount(
             Checkbox(panel_label(False), id="panel"),
             before=self.query_one(".problems", Static),
         )

@@ -82,10 +82,12 @@ async def test_import_form_buttons_reachable_at_80_by_24(new_app: Factory) -> No
     async with app.run_test(size=(80, 24)) as pilot:
         await pilot.press("i")
         await pilot.pause()
-        for _ in range(8):
+        assert app.focused is not None and app.focused.id == "field-papers"
+        # Tab goes field by field (the form's body is no stop) down to the buttons.
+        for _ in range(6):
             await pilot.press("tab")
         await pilot.pause()
         focused = app.focused
-        assert focused is not None and focused.id in ("ok", "cancel")
+        assert focused is not None and focused.id == "ok"
         region = focused.region
         assert region.height > 0 and region.bottom <= app.size.height
