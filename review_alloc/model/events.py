@@ -25,6 +25,7 @@ Action = Literal[
     "unblock",
     "plan",
     "undo",
+    "redo",
     "accept-fix",
     "accept-whatif",
     "set-policy",

@@ -28,6 +28,7 @@ from textual.widgets import (
     Static,
     TabbedContent,
     TabPane,
+    Tabs,
 )
 
 from review_alloc.model import InputError, Session
@@ -99,6 +100,7 @@ class ReviewAllocApp(App[None]):
         Binding("ctrl+s", "save", "Save"),
         Binding("R", "plan(True)", "Plan fresh", show=False),
         Binding("ctrl+z", "undo", "Undo"),
+        Binding("ctrl+y", "redo", "Redo", show=False),
         Binding("i", "import", "Import CSV", show=False),
         Binding("question_mark,f1", "help", "Keys"),
         Binding("1", "tab('overview')", "Overview", show=False),
@@ -194,6 +196,7 @@ class ReviewAllocApp(App[None]):
         self.query_one("#planning").display = False
         self.query_one(ExplainView).display = False
         self._refresh_all()
+        self.query_one(Overview).focus()
         self._warm_up()
         problems = self.workspace.plan_problems
         if problems:
@@ -224,6 +227,7 @@ class ReviewAllocApp(App[None]):
         mark = (len(self.workspace.revisions), self.workspace.session.revision)
         if mark != self._history_mark:
             self._history_mark = mark
+            history.noun = self.noun
             history.entries = self.workspace.history()
         active = self.query_one(TabbedContent).active or "overview"
         self._show_view(active)
@@ -243,36 +247,62 @@ class ReviewAllocApp(App[None]):
     def _tab_shown(self, event: TabbedContent.TabActivated) -> None:
         if event.pane.id:
             self._show_view(event.pane.id)
+            if isinstance(self.focused, Tabs):
+                # A click on a tab: its view takes the keys, as with the digit keys.
+                self.action_tab(event.pane.id)
         if event.pane.id == "gaps":
             self._maybe_explain()
 
     def _draw_bar(self) -> None:
+        self.query_one("#bar", Static).update(self.bar_text(self.size.width or 120))
+
+    def on_resize(self) -> None:
+        """Fit the session bar to the new width."""
+        self._draw_bar()
+
+    def bar_text(self, width: int) -> Text:
+        """The session bar: name, saved mark, plan state and file, fitted into `width` cells.
+
+        The marks come in a long and a short wording; the short ones are used when the long do
+        not fit, and then the session's name gives way, so the file name always shows."""
         ws = self.workspace
         s = ws.session
-        text = Text()
-        name = s.name if len(s.name) <= 30 else s.name[:29] + "…"
-        text.append(f" {name} ", style="bold reverse")
+        marks: list[tuple[str, str, str]] = []  # (long, short, style)
         if ws.dirty:
-            text.append(" ● UNSAVED (ctrl+s) ", style="bold black on yellow")
+            marks.append((" ● UNSAVED (ctrl+s) ", " ● UNSAVED ", "bold black on yellow"))
         else:
-            text.append(" saved ", style="green")
+            marks.append((" saved ", " saved ", "green"))
         if s.plan is None:
-            text.append(" no plan yet: press r ", style="yellow")
+            marks.append((" no plan yet: press r ", " no plan: r ", "yellow"))
         elif ws.plan_problems:
-            text.append(
-                f" plan STALE: {len(ws.plan_problems)} stored pair(s) broke a rule, press r ",
-                style="bold yellow",
+            marks.append(
+                (
+                    f" plan STALE: {len(ws.plan_problems)} stored pair(s) broke a rule, press r ",
+                    " plan STALE: r ",
+                    "bold yellow",
+                )
             )
         elif ws.data_changed_since_plan():
-            text.append(" plan STALE: data changed, press r ", style="bold yellow")
+            marks.append((" plan STALE: data changed, press r ", " plan STALE: r ", "bold yellow"))
         else:
-            revision = f" (revision {s.revision})" if s.revision is not None else ""
-            text.append(f" plan current{revision} ", style="green")
+            number = f" {s.revision}" if s.revision is not None else ""
+            marks.append(
+                (f" plan current (revision{number}) ", f" plan current{number} ", "green")
+            )
         if s.kind == "panel":
-            text.append(" grant panel ", style="dim")
-        # The file name only, last: a long folder path would push the marks off the screen.
-        text.append(f" {ws.path.name if ws.path else '(not saved yet)'}", style="dim")
-        self.query_one("#bar", Static).update(text)
+            marks.append((" grant panel ", " panel ", "dim"))
+        # The file name only: a folder path would push the marks off the screen.
+        file = f" {ws.path.name if ws.path else '(not saved yet)'}"
+        wanted = sum(len(m[0]) for m in marks) + len(file) + min(len(s.name), 20) + 2
+        wording = 0 if wanted <= width else 1
+        room = width - sum(len(m[wording]) for m in marks) - len(file) - 2
+        name = s.name if len(s.name) <= min(room, 30) else s.name[: max(min(room, 30) - 1, 4)] + "…"
+        text = Text()
+        text.append(f" {name} ", style="bold reverse")
+        for mark in marks:
+            text.append(mark[wording], style=mark[2])
+        text.append(file, style="dim")
+        return text
 
     # -- planning -------------------------------------------------------------------------
 
@@ -377,7 +407,8 @@ class ReviewAllocApp(App[None]):
         gaps, why = self.query_one(GapView), self.query_one(ExplainView)
         gaps.display, why.display = not explaining, explaining
         self.query_one("#gaps-hint", PaneHint).update(
-            "x: back to the short papers; tab between groups and fixes; v preview, a accept"
+            f"x: back to the short {self.noun}s; tab between groups and fixes; "
+            "v preview, a accept"
             if explaining
             else "x: why short and the fixes (shortfall groups, cap raises, recruits)"
         )
@@ -547,7 +578,37 @@ class ReviewAllocApp(App[None]):
         }
         run = runs[(message.action, message.kind)]
         noun = "reviewer" if message.kind == "reviewer" else self.noun
-        self._change(f"{message.action} {noun} {ident}", lambda: run(ident))
+        s = ws.session
+        if message.kind == "reviewer":
+            who = s.reviewers[s.reviewer_index()[ident]].name
+            held = sum(a.reviewer == ident for a in s.plan.assignments) if s.plan else 0
+        else:
+            who = s.papers[s.paper_index()[ident]].title
+            held = sum(a.paper == ident for a in s.plan.assignments) if s.plan else 0
+        if message.action == "withdraw":
+            question = (
+                f"{who}: "
+                + (f"its {held} pair(s) leave the plan at once; " if held else "")
+                + "ctrl+z takes it back."
+            )
+        else:
+            question = f"{who}: plan again (r) to use it."
+
+        def apply(values: dict[str, str]) -> list[str]:
+            # The reason goes into the record, so History says why.
+            done = self._change(
+                f"{message.action} {noun} {ident}", lambda: run(ident, values["reason"])
+            )
+            return [] if done else ["refused: see the message in the corner"]
+
+        self.push_screen(
+            Form(
+                f"{message.action.capitalize()} {noun} {ident}?",
+                [Field("reason", "reason (kept in History; required)")],
+                apply,
+                hint=question,
+            )
+        )
 
     def _edit(self, kind: str, ident: str) -> None:
         s = self.workspace.session
@@ -663,7 +724,7 @@ class ReviewAllocApp(App[None]):
             self._go_back()
             return
         events = ws.session.events
-        marks = [k for k, e in enumerate(events) if e.action in ("plan", "undo")]
+        marks = [k for k, e in enumerate(events) if e.action in ("plan", "undo", "redo")]
         unplanned = len(events) - (marks[-1] + 1 if marks else 0)
 
         def answered(yes: bool | None) -> None:
@@ -680,6 +741,23 @@ class ReviewAllocApp(App[None]):
             answered,
         )
 
+    @on(HistoryView.RedoRequest)
+    def _redo_request(self) -> None:
+        self.action_redo()
+
+    def action_redo(self) -> None:
+        """Go forward again to the revision the last undo left, with its plan and data."""
+        if self.planning:
+            self.notify("wait for the plan or cancel it (escape) before going forward")
+            return
+        try:
+            number = self.workspace.redo()
+        except InputError as error:
+            self.notify("\n".join(error.lines), title="Nothing to redo", severity="warning")
+            return
+        self._refresh_all()
+        self.notify(f"forward to revision {number}: its plan and its data (ctrl+z goes back)")
+
     def _go_back(self) -> None:
         try:
             number = self.workspace.undo()
@@ -687,7 +765,7 @@ class ReviewAllocApp(App[None]):
             self.notify("\n".join(error.lines), title="Cannot go back", severity="warning")
             return
         self._refresh_all()
-        self.notify(f"back to revision {number}: its plan and its data")
+        self.notify(f"back to revision {number}: its plan and its data (ctrl+y goes forward)")
 
     @on(HistoryView.DiffWanted)
     def _diff_wanted(self, message: HistoryView.DiffWanted) -> None:
@@ -808,11 +886,19 @@ class ReviewAllocApp(App[None]):
         except InputError as error:
             return list(error.lines)
         self.workspace = workspace
-        self._history_mark = None
-        self._refresh_all()
+        self._new_session()
         session = workspace.session
         self.notify(f"imported {len(session.papers)} {self.noun}s into {files.target}")
         return []
+
+    def _new_session(self) -> None:
+        """Show another session: no filter of the last one carries over, and the tab says
+        'papers' or 'proposals' as the new session does."""
+        self._history_mark = None
+        for view in (*self.query(EntityView), self.query_one(ConflictView)):
+            view.set_filter("")
+        self.query_one(TabbedContent).get_tab("papers").label = f"2 {self.noun.capitalize()}s"
+        self._refresh_all()
 
     async def action_quit(self) -> None:
         """Quit, asking first when there are unsaved changes."""
@@ -827,7 +913,7 @@ class ReviewAllocApp(App[None]):
         self.push_screen(
             Confirm(
                 "There are unsaved changes. Quit without saving them?\n"
-                "(No goes back; ctrl+s saves.)",
+                "(To keep them: Stay, then ctrl+s saves.)",
                 yes="Quit without saving",
                 no="Stay",
             ),
@@ -843,6 +929,9 @@ class ReviewAllocApp(App[None]):
         tables = view.query(RowTable)
         if tables:
             tables.first().focus()
+        elif view.can_focus:
+            # The Overview scrolls by keyboard as soon as it is shown.
+            view.focus()
 
     def action_help(self) -> None:
         """Show every key."""
@@ -857,7 +946,7 @@ class ReviewAllocApp(App[None]):
                 key = b.key if isinstance(b, Binding) else b[0]
                 desc = b.description if isinstance(b, Binding) else b[2]
                 if key == "escape":
-                    desc = "cancel the plan being made; close a form"
+                    desc = "cancel the plan; close a form; leave a filter line"
                 elif key in "123456" and len(key) == 1:
                     tab = f"{self.noun}s" if desc == "Papers" else desc
                     desc = f"show the {tab.capitalize()} tab"
@@ -890,6 +979,7 @@ class ReviewAllocApp(App[None]):
             "drop the changes since the current revision, or go back to the one before",
             self.action_undo,
         )
+        yield "Redo", "go forward again to the revision the last undo left", self.action_redo
         yield "Declare a conflict", "add a conflict of interest", self.action_declare_conflict
         yield "Import from CSV", "build a session from CSV files", self.action_import
         yield "Show keys", "every key of the app", self.action_help

@@ -28,6 +28,11 @@ class Confirm(ModalScreen[bool]):
         """The question and two buttons."""
         with Vertical(classes="dialog"):
             yield Static(self.question, classes="question")
+            # Only the keys this dialog itself answers to.
+            yield Static(
+                Text(f"y: {self.yes} · escape: {self.no} · tab and enter choose", style="dim"),
+                classes="keys",
+            )
             with Horizontal(classes="buttons"):
                 yield Button(self.yes, variant="warning", id="yes")
                 yield Button(self.no, variant="primary", id="no")
@@ -43,6 +48,10 @@ class Confirm(ModalScreen[bool]):
     def action_answer(self, answer: bool) -> None:
         """Answer by key."""
         self.dismiss(answer)
+
+
+class DialogScroll(VerticalScroll, can_focus=False):
+    """A form's body: scrolls to the focused field, but is no stop of its own for tab."""
 
 
 @dataclass(frozen=True)
@@ -73,7 +82,9 @@ class Form(ModalScreen[bool]):
 
     def compose(self) -> ComposeResult:
         """Title, one input per field, the problems line and the buttons."""
-        with Vertical(classes="dialog"):
+        # Scrolls when the screen is too short (the import form at 80x24), so the buttons and
+        # the problems line can always be reached; the focused field is scrolled into view.
+        with DialogScroll(classes="dialog form"):
             yield Static(Text(self.title_text, style="bold"))
             if self.hint:
                 yield Static(Text(self.hint, style="dim"))
@@ -84,6 +95,11 @@ class Form(ModalScreen[bool]):
             with Horizontal(classes="buttons"):
                 yield Button("OK", variant="primary", id="ok")
                 yield Button("Cancel", id="cancel")
+
+    def on_mount(self) -> None:
+        """Start in the first field, so typing goes there at once."""
+        if self.fields:
+            self.query_one(f"#field-{self.fields[0].name}", Input).focus()
 
     def values(self) -> dict[str, str]:
         """The text of every field, stripped."""
@@ -145,6 +161,13 @@ class ImportFiles:
     panel: bool
 
 
+def panel_label(panel: bool) -> str:
+    """The import form's panel switch, its state in words (not by colour alone)."""
+    if panel:
+        return "grant panel: YES (the session says 'proposal'; space: no)"
+    return "grant panel: NO (a conference, says 'paper'; space: yes)"
+
+
 class ImportForm(Form):
     """Build a session from CSV files, with the same row-level errors as the command line."""
 
@@ -161,10 +184,15 @@ class ImportForm(Form):
 
     def on_mount(self) -> None:
         """Add the panel switch above the problems line."""
-        self.query_one(".dialog", Vertical).mount(
-            Checkbox("a grant panel (say 'proposal')", id="panel"),
+        self.query_one(".dialog", DialogScroll).mount(
+            Checkbox(panel_label(False), id="panel"),
             before=self.query_one(".problems", Static),
         )
+
+    @on(Checkbox.Changed, "#panel")
+    def _panel_changed(self, event: Checkbox.Changed) -> None:
+        # The box's mark differs only by colour; the words say the state.
+        event.checkbox.label = panel_label(event.value)
 
     def _import(self, values: dict[str, str]) -> list[str]:
         """Hand the files to the app's importer; its problem lines stay in the form."""

@@ -19,7 +19,7 @@ from textual.timer import Timer
 from textual.widget import Widget
 from textual.widgets import Input, Static
 
-from review_alloc.tui.grid import RowTable
+from review_alloc.tui.grid import FilterInput, RowTable
 from review_alloc.tui.grid import cell_text as _cell_text
 from review_alloc.workspace.facts import Candidate, Facts
 
@@ -51,6 +51,24 @@ def _state(text: str) -> Text:
     else:
         style = ""
     return Text(text, style=style)
+
+
+def got_plan(facts: Facts) -> bool:
+    """Whether the session has a plan (leads exist only in a plan)."""
+    return facts.session.plan is not None
+
+
+def _lead_cell(facts: Facts, i: int) -> str:
+    """The id of the reviewer who leads paper `i`, '-' when none was chosen, '' with no plan."""
+    if not got_plan(facts) or facts.session.papers[i].withdrawn:
+        return ""
+    lead = facts.lead_of_paper[i]
+    return "-" if lead is None else facts.session.reviewers[lead].id
+
+
+def _standing(c: Candidate) -> Text:
+    """A pair's standing, with 'lead' added when the reviewer leads the paper."""
+    return _state(c.status + (" · lead" if c.lead else ""))
 
 
 class EntityView(Widget):
@@ -100,13 +118,14 @@ class EntityView(Widget):
 
     def compose(self) -> ComposeResult:
         """A filter line, the main table, then the detail (heading and pair table)."""
-        yield Input(placeholder=self.filter_hint(), compact=True, classes="filter")
+        yield FilterInput(placeholder=self.filter_hint(), compact=True, classes="filter")
         with Vertical(classes="split"):
             table = RowTable(classes="main")
             yield table
             with Vertical(classes="detail"):
                 yield Static("", classes="detail-head")
                 yield RowTable(classes="pairs")
+                yield Static("", classes="pair-note")
 
     # -- what subclasses provide ----------------------------------------------------------
 
@@ -124,7 +143,7 @@ class EntityView(Widget):
 
     def pair_columns(self) -> tuple[str, ...]:
         """Columns of the detail's pair table."""
-        return ("Id", "Score", "Name", "Standing")
+        return ("Id", "Score", "Standing", "Name")
 
     def pair_cells(self, facts: Facts, c: Candidate) -> list[object]:
         """Cells of one pair in the detail table."""
@@ -184,14 +203,37 @@ class EntityView(Widget):
             head.update(Text("Nothing matches the filter." if self._filter else "", style="dim"))
             pairs.fill(self.pair_columns(), [])
             self._pairs = []
+            self._show_pair_note()
             return
         heading, self._pairs = self.detail(facts, key)
         head.update(heading)
         row = pairs.cursor_row if key == self._shown_key else 0
-        pairs.fill(self.pair_columns(), [self.pair_cells(facts, c) for c in self._pairs])
+        # Narrower than the main table: the note below the list has every standing in full.
+        pairs.fill(
+            self.pair_columns(), [self.pair_cells(facts, c) for c in self._pairs], widest=32
+        )
         if self._pairs:
             pairs.move_cursor(min(row, len(self._pairs) - 1))
         self._shown_key = key
+        self._show_pair_note()
+
+    def _show_pair_note(self) -> None:
+        """The whole standing of the pair under the pair cursor, wrapped: a long reason (a
+        conflict's institutions, a rule's numbers) is never cut off by the column."""
+        note = self.query_one(".pair-note", Static)
+        facts, c = self.facts, self.selected_pair()
+        if facts is None or c is None:
+            note.update("")
+            return
+        s = facts.session
+        r, p = s.reviewers[c.reviewer], s.papers[c.paper]
+        text = Text(f"{r.id} {r.name} × {p.id}: ", style="bold")
+        text.append_text(_standing(c))
+        note.update(text)
+
+    @on(RowTable.Highlighted, ".pairs")
+    def _pair_moved(self) -> None:
+        self._show_pair_note()
 
     # -- events ---------------------------------------------------------------------------
 
@@ -204,6 +246,7 @@ class EntityView(Widget):
         self._debounce = self.set_timer(0.12, self._redraw)
 
     @on(Input.Submitted, ".filter")
+    @on(FilterInput.Left, ".filter")
     def _filter_done(self) -> None:
         if self._debounce is not None:
             self._debounce.stop()
@@ -248,9 +291,7 @@ class EntityView(Widget):
             self.set_filter("")
         if key not in self.visible_keys():
             return False
-        self.query_one(".main", RowTable).move_cursor(
-            row=self.visible_keys().index(key), animate=False
-        )
+        self.query_one(".main", RowTable).move_cursor(self.visible_keys().index(key))
         self._show_detail()
         return True
 
@@ -324,7 +365,7 @@ class PaperView(EntityView):
     """Every paper with its coverage; the detail lists its reviewers and the best unused ones."""
 
     kind = "paper"
-    columns = ("Id", "Has", "Wants", "Min", "State", "Mean", "Title", "Topics")
+    columns = ("Id", "Has", "Wants", "Min", "State", "Lead", "Mean", "Title", "Topics")
 
     def rows(self, facts: Facts) -> list[Row]:
         """One row per paper, in session order."""
@@ -341,6 +382,7 @@ class PaperView(EntityView):
                         facts.session.paper_reviews(i),
                         facts.session.paper_min_reviews(i),
                         _state(facts.paper_status(i)),
+                        _lead_cell(facts, i),
                         f"{mean:.2f}" if got else "",
                         p.title[:34],
                         ", ".join(p.topics)[:24],
@@ -363,13 +405,19 @@ class PaperView(EntityView):
             f"(needs {s.paper_min_reviews(i)})   "
         )
         head.append_text(_state(facts.paper_status(i)))
+        lead = facts.lead_of_paper[i]
+        if lead is not None:
+            r = s.reviewers[lead]
+            head.append(f"\nlead: {r.id} {r.name}" + (" (senior)" if r.senior else ""))
+        elif got_plan(facts) and not p.withdrawn:
+            head.append("\nlead: none chosen", style="yellow")
         return head, facts.candidates_of_paper(i)
 
     def pair_cells(self, facts: Facts, c: Candidate) -> list[object]:
         """Reviewer id, name, score and standing."""
         r = facts.session.reviewers[c.reviewer]
         score = "-" if c.score is None else f"{c.score:.2f}"
-        return [r.id, score, r.name[:20], _state(c.status)]
+        return [r.id, score, _standing(c), r.name[:20]]
 
     def filter_hint(self) -> str:
         """Placeholder of the filter line."""
@@ -380,7 +428,7 @@ class ReviewerView(EntityView):
     """Every reviewer with their load; the detail lists their papers and the best unused ones."""
 
     kind = "reviewer"
-    columns = ("Id", "Name", "Load", "Cap", "Floor", "State", "Mean", "Institution")
+    columns = ("Id", "Name", "Load", "Cap", "Floor", "State", "Leads", "Mean", "Institution")
 
     def rows(self, facts: Facts) -> list[Row]:
         """One row per reviewer, in session order."""
@@ -398,6 +446,7 @@ class ReviewerView(EntityView):
                         facts.session.reviewer_cap(j),
                         facts.session.reviewer_floor(j),
                         _state(facts.reviewer_status(j)),
+                        len(facts.led_by_reviewer[j]) if got_plan(facts) else "",
                         f"{mean:.2f}" if got else "",
                         r.institution[:30],
                     ],
@@ -418,17 +467,23 @@ class ReviewerView(EntityView):
             f"load {int(facts.loads[j])}, cap {s.reviewer_cap(j)}, floor {s.reviewer_floor(j)}   "
         )
         head.append_text(_state(facts.reviewer_status(j)))
+        led = [s.papers[i].id for i in facts.led_by_reviewer[j]]
+        if led:
+            shown = ", ".join(led[:12]) + (f", … {len(led) - 12} more" if len(led) > 12 else "")
+            head.append(f"\nleads {len(led)}: {shown}")
+        elif got_plan(facts):
+            head.append("\nleads none")
         return head, facts.candidates_of_reviewer(j)
 
     def pair_columns(self) -> tuple[str, ...]:
         """Columns of the paper list in the detail."""
-        return ("Id", "Score", "Title", "Standing")
+        return ("Id", "Score", "Standing", "Title")
 
     def pair_cells(self, facts: Facts, c: Candidate) -> list[object]:
         """Paper id, title, score and standing."""
         p = facts.session.papers[c.paper]
         score = "-" if c.score is None else f"{c.score:.2f}"
-        return [p.id, score, p.title[:24], _state(c.status)]
+        return [p.id, score, _standing(c), p.title[:24]]
 
     def filter_hint(self) -> str:
         """Placeholder of the filter line."""
@@ -447,7 +502,7 @@ class GapView(PaperView):
         ),
     ]
 
-    columns = ("Id", "Has", "Wants", "Min", "State", "Mean", "Title", "Topics")
+    columns = PaperView.columns
 
     def rows(self, facts: Facts) -> list[Row]:
         """Papers below their reviews, the ones below their minimum first."""

@@ -65,6 +65,11 @@ class ExplainView(Widget):
         kind: str
 
     GROUP_COLUMNS = ("Group", "Topic", "Papers", "Eligible", "Needed", "Avail", "Short")
+
+    def group_columns(self) -> tuple[str, ...]:
+        """The group table's headings, in the session's own noun."""
+        noun = f"{self._noun().capitalize()}s"
+        return tuple(noun if c == "Papers" else c for c in self.GROUP_COLUMNS)
     FIX_COLUMNS = ("Fix", "Change", "Coverage")
 
     def __init__(self, *, id: str | None = None) -> None:
@@ -91,13 +96,13 @@ class ExplainView(Widget):
         groups = self.query_one(".groups", RowTable)
         fixes = self.query_one(".fixes", RowTable)
         if explanation is None:
-            groups.fill(self.GROUP_COLUMNS, [])
+            groups.fill(self.group_columns(), [])
             fixes.fill(self.FIX_COLUMNS, [])
             self._fix_kinds = []
             self._show_detail()
             return
         groups.fill(
-            self.GROUP_COLUMNS,
+            self.group_columns(),
             [
                 [
                     f"{_TIER_WORDS[g.tier]} {k}",

@@ -21,11 +21,14 @@ from textual.message import Message
 from textual.reactive import reactive
 from textual.scroll_view import ScrollView
 from textual.strip import Strip
+from textual.widgets import Input
 
 WIDEST = 48
 """No column is drawn wider than this; longer text is cut."""
 GAP = 2
 """Spaces between columns."""
+CURSOR_MARK = "▶"
+"""Drawn in the cursor row's left margin, so the cursor shows without colour."""
 
 
 def cell_text(value: object) -> str:
@@ -188,14 +191,21 @@ class RowTable(ScrollView, can_focus=True):
             return Strip([Segment(" " * width, base)])
         line = self._lines.get(row)
         if line is None:
+            # Cached without any row colour: the odd-row shade and the cursor are both laid
+            # under the cells' own styles when drawn, so neither hides the other.
             line = self._strip(self._line_text(self._rows[row]))
-            if row % 2:
-                line = line.apply_style(self.get_component_rich_style("rowtable--odd"))
             self._lines[row] = line
         if row == self.cursor_row:
             name = "rowtable--cursor" if self.has_focus else "rowtable--cursor-blurred"
-            line = line.apply_style(self.get_component_rich_style(name))
-            return line.crop_extend(scroll_x, scroll_x + width, self.get_component_rich_style(name))
+            style = self.get_component_rich_style(name)
+            # A mark in the first cell's margin shows the cursor without colour too.
+            line = Strip([Segment(CURSOR_MARK), *line.crop(1, line.cell_length)]).apply_style(
+                style
+            )
+            return line.crop_extend(scroll_x, scroll_x + width, style)
+        if row % 2:
+            style = self.get_component_rich_style("rowtable--odd")
+            return line.apply_style(style).crop_extend(scroll_x, scroll_x + width, style)
         return line.crop_extend(scroll_x, scroll_x + width, base + Style())
 
     # -- cursor ---------------------------------------------------------------------------
@@ -264,3 +274,25 @@ class RowTable(ScrollView, can_focus=True):
                 self.post_message(self.Chosen(self, row))
             else:
                 self.cursor_row = row
+
+
+class FilterInput(Input):
+    """A view's filter line; escape leaves it for the table below (the filter stays applied),
+    so digits and letters are keys again."""
+
+    BINDINGS = [Binding("escape", "leave", "Back to the table", show=False)]
+
+    @dataclass
+    class Left(Message):
+        """Escape was pressed in the filter line."""
+
+        field: FilterInput
+
+        @property
+        def control(self) -> FilterInput:
+            """The filter line that sent it."""
+            return self.field
+
+    def action_leave(self) -> None:
+        """Hand the focus back; the view redraws and focuses its table."""
+        self.post_message(self.Left(self))

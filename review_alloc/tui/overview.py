@@ -6,14 +6,22 @@ from datetime import datetime
 
 from rich.text import Text
 from textual.app import ComposeResult
-from textual.containers import Grid, VerticalScroll
+from textual.containers import Vertical, VerticalScroll
+from textual.geometry import Size
 from textual.reactive import reactive
+from textual.widget import Widget
 from textual.widgets import Static
 
 from review_alloc.plan.cautions import PLAN_CAUTION
 from review_alloc.workspace.facts import Facts
 
 BAR_WIDTH = 8
+"""The narrowest bar drawn; charts widen their bars to the width they are given."""
+LABEL_WIDEST = 40
+"""Labels longer than this are cut (with an ellipsis); topic names rarely come close."""
+
+ChartRow = tuple[str, int, int, str, str]
+"""(label, value, scale, note, style) of one bar."""
 
 
 def bar(value: int, most: int, width: int = BAR_WIDTH, style: str = "") -> Text:
@@ -24,43 +32,93 @@ def bar(value: int, most: int, width: int = BAR_WIDTH, style: str = "") -> Text:
     return out
 
 
-def _chart(title: str, rows: list[tuple[str, int, int, str, str]]) -> Text:
-    """Rows of (label, value, scale, note, style) as labelled bars."""
+def _chart(title: str, rows: list[ChartRow], width: int = 0) -> Text:
+    """Rows of (label, value, scale, note, style) as labelled bars filling `width` cells."""
     text = Text(title + "\n", style="bold")
     if not rows:
         text.append("(no plan yet: press r to plan)", style="dim")
         return text
-    width = max(len(label) for label, *_ in rows)
+    label_width = min(max(len(label) for label, *_ in rows), LABEL_WIDEST)
+    note_width = max(len(note) for *_, note, _ in rows)
+    bar_width = max(BAR_WIDTH, width - label_width - note_width - 2)
     for label, value, most, note, style in rows:
-        text.append(f"{label:<{width}} ")
-        text.append_text(bar(value, most, style=style))
+        if len(label) > label_width:
+            label = label[: label_width - 1] + "…"
+        text.append(f"{label:<{label_width}} ")
+        text.append_text(bar(value, most, width=bar_width, style=style))
         text.append(f" {note}\n")
+    text.rstrip()
     return text
 
 
-class Overview(VerticalScroll):
-    """Headline figures, then load bands, score distribution and coverage per topic."""
+class Chart(Widget):
+    """One bar chart, as wide as its place on screen: labels whole, bars fill the rest."""
+
+    DEFAULT_CSS = """
+    Chart {
+        height: auto;
+    }
+    """
+
+    def __init__(self, *, id: str | None = None, classes: str | None = None) -> None:
+        super().__init__(id=id, classes=classes)
+        self.title = ""
+        self.rows: list[ChartRow] = []
+
+    def show(self, title: str, rows: list[ChartRow]) -> None:
+        """Draw `rows` under `title`."""
+        self.title, self.rows = title, rows
+        self.refresh(layout=True)
+
+    def render(self) -> Text:
+        """The chart at the current width."""
+        return _chart(self.title, self.rows, self.content_size.width)
+
+    def get_content_height(self, container: Size, viewport: Size, width: int) -> int:
+        """A line for the title and one per bar (or one for the empty note)."""
+        return 1 + max(len(self.rows), 1)
+
+
+def topic_rows(coverage: list[tuple[str, int, int]]) -> list[ChartRow]:
+    """Topics worst first (largest shortfall, then the larger share missing), then by name."""
+    ordered = sorted(
+        coverage,
+        key=lambda t: (-(t[2] - t[1]), -((t[2] - t[1]) / t[2]) if t[2] else 0.0, t[0]),
+    )
+    rows = []
+    for topic, placed, wanted in ordered:
+        short = "" if placed == wanted else f"  SHORT {wanted - placed}"
+        rows.append(
+            (topic, placed, wanted, f"{placed}/{wanted}{short}", "green" if not short else "yellow")
+        )
+    return rows
+
+
+class Overview(VerticalScroll, can_focus=True):
+    """Headline figures, then coverage per topic (worst first), load bands and scores.
+
+    It takes the focus when its tab is shown, so arrows and page keys scroll it at once."""
 
     facts: reactive[Facts | None] = reactive(None, always_update=True)
     changed_since: reactive[bool] = reactive(False)
 
     def compose(self) -> ComposeResult:
-        """The figures block, the caution and a grid of three charts."""
+        """The figures block, the caution and three full-width charts, topics first."""
         yield Static("", id="figures")
         yield Static(Text(PLAN_CAUTION, style="italic"), id="caution")
-        with Grid(id="charts"):
-            yield Static("", id="chart-load", classes="chart")
-            yield Static("", id="chart-score", classes="chart")
-            yield Static("", id="chart-topic", classes="chart")
+        with Vertical(id="charts"):
+            yield Chart(id="chart-topic", classes="chart")
+            yield Chart(id="chart-load", classes="chart")
+            yield Chart(id="chart-score", classes="chart")
 
     def watch_facts(self, facts: Facts | None) -> None:
         """Redraw everything from new facts."""
         if facts is None:
             return
         self.query_one("#figures", Static).update(self._figures(facts))
-        self.query_one("#chart-load", Static).update(self._load_chart(facts))
-        self.query_one("#chart-score", Static).update(self._score_chart(facts))
-        self.query_one("#chart-topic", Static).update(self._topic_chart(facts))
+        self.query_one("#chart-topic", Chart).show(*self._topic_chart(facts))
+        self.query_one("#chart-load", Chart).show(*self._load_chart(facts))
+        self.query_one("#chart-score", Chart).show(*self._score_chart(facts))
 
     def _figures(self, facts: Facts) -> Text:
         s = facts.session
@@ -113,31 +171,30 @@ class Overview(VerticalScroll):
             out.append(f"{state}\n", style=style if state else "")
         return out
 
-    def _load_chart(self, facts: Facts) -> Text:
+    def _load_chart(self, facts: Facts) -> tuple[str, list[ChartRow]]:
         bands = facts.load_bands() if facts.session.plan else []
         most = max((n for _, n in bands), default=0)
         styles = {"over cap": "red", "at cap": "green", "idle": "yellow"}
-        return _chart(
+        return (
             "Reviewers by load against cap",
             [(label, n, most, str(n), styles.get(label, "cyan")) for label, n in bands],
         )
 
-    def _score_chart(self, facts: Facts) -> Text:
+    def _score_chart(self, facts: Facts) -> tuple[str, list[ChartRow]]:
         bins = facts.score_histogram()
         most = max((n for _, n in bins), default=0)
-        return _chart(
-            "Scores of assigned pairs", [(label, n, most, str(n), "magenta") for label, n in bins]
+        return (
+            "Scores of assigned pairs",
+            [(label, n, most, str(n), "magenta") for label, n in bins],
         )
 
-    def _topic_chart(self, facts: Facts) -> Text:
-        rows = []
-        if facts.session.plan is not None:
-            for topic, placed, wanted in facts.topic_coverage():
-                short = "" if placed == wanted else f" -{wanted - placed}"
-                note = f"{placed}/{wanted}{short}"
-                style = "green" if placed == wanted else "yellow"
-                rows.append((topic[:13], placed, wanted, note, style))
-        return _chart("Coverage per topic", rows)
+    def _topic_chart(self, facts: Facts) -> tuple[str, list[ChartRow]]:
+        rows = topic_rows(facts.topic_coverage()) if facts.session.plan is not None else []
+        short = sum(r[1] < r[2] for r in rows)
+        title = "Reviews placed per topic, worst first" + (
+            f" ({short} topic(s) short)" if short else ""
+        )
+        return title, rows
 
 
 def _when(moment: datetime) -> str:

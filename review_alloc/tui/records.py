@@ -16,13 +16,27 @@ from textual.widget import Widget
 from textual.widgets import Input, Static
 
 from review_alloc.plan.diff import PlanDiff
-from review_alloc.tui.grid import RowTable
+from review_alloc.tui.grid import FilterInput, RowTable
 from review_alloc.workspace import HistoryEntry
 from review_alloc.workspace.facts import Facts
 
-CONFLICT_COLUMNS = ("Reviewer", "Name", "Paper", "Title", "Kind", "Reasons")
+CONFLICT_COLUMNS = ("Reviewer", "Paper", "Kind", "Reasons", "Name", "Title")
+"""Headings of the Conflicts table; "Paper" is said in the session's noun."""
 REVISION_COLUMNS = ("No.", "From", "Made (UTC)", "Reviews", "Score", "Kept", "Changes")
 DIFF_COLUMNS = ("Reviewer", "Papers added", "Papers removed")
+"""Headings of a diff; "Papers" is said in the session's noun."""
+
+
+def in_noun(headings: tuple[str, ...], noun: str) -> tuple[str, ...]:
+    """Headings with 'Paper' said as the session's noun ('Proposal' for a grant panel)."""
+    return tuple(h.replace("Paper", noun.capitalize()) for h in headings)
+
+
+def described(action: str, text: str, noun: str) -> str:
+    """An event's line with its action in the session's noun ('withdraw-proposal ...')."""
+    if noun != "paper" and text.startswith(action):
+        return action.replace("paper", noun) + text[len(action) :]
+    return text
 EVENT_COLUMNS = ("When (UTC)", "Change")
 
 SHOWN_AT_MOST = 2000
@@ -53,56 +67,110 @@ class ConflictView(Widget):
 
     def __init__(self, *, id: str | None = None) -> None:
         super().__init__(id=id)
-        self._rows: list[tuple[str, str, list[str]]] = []
         self._filter = ""
         self._debounce: Timer | None = None
+        self._noun = "paper"
+        self._source: dict[tuple[int, int], str] | None = None
+        self._drawn_noun = ""
+        self._order: list[tuple[int, int]] = []
+        self._rev: list[tuple[str, str]] = []
+        self._pap: list[tuple[str, str]] = []
+        self._built: list[tuple[str, str, list[str]]] | None = None
+        self._declared = 0
+        self._shown: list[tuple[str, str, list[str]]] = []
 
     def compose(self) -> ComposeResult:
         """Filter, count line and the table."""
-        yield Input(
+        yield FilterInput(
             placeholder="filter (/): reviewer, paper, 'declared', 'inferred' or a reason",
             compact=True,
             classes="filter",
         )
         yield Static("", classes="count")
         yield RowTable(classes="main")
+        yield Static("", classes="conflict-note")
 
     def watch_facts(self, facts: Facts | None) -> None:
         """Rebuild the rows from the conflict set of the new facts."""
         if facts is None:
             return
         s = facts.session
-        rows = []
-        for (j, i), why in sorted(facts.conflict_reason.items(), key=lambda x: (x[0][1], x[0][0])):
-            r, p = s.reviewers[j], s.papers[i]
-            kind = "declared" if why.startswith("declared") else "inferred"
-            if kind == "declared" and ";" in why:
-                kind = "declared+inferred"
-            rows.append((r.id, p.id, [r.id, r.name[:20], p.id, p.title[:26], kind, why]))
-        self._rows = rows
+        self._noun = s.noun
+        self.query_one(Input).placeholder = (
+            f"filter (/): reviewer, {s.noun}, 'declared', 'inferred' or a reason"
+        )
+        if facts.conflict_reason is self._source and s.noun == self._drawn_noun:
+            # The same conflicts (a pin, a block or a plan leaves them alone): nothing to redo.
+            return
+        reasons = facts.conflict_reason
+        self._source, self._drawn_noun = reasons, s.noun
+        self._rev = [(r.id, r.name[:20]) for r in s.reviewers]
+        self._pap = [(p.id, p.title[:26]) for p in s.papers]
+        n_r = max(len(self._rev), 1)
+        # Rows are built only when drawn or filtered: 20,000 rows of cells up front cost a
+        # third of a second on the large sample, mostly in the garbage collector.
+        self._order = sorted(reasons, key=lambda pair: pair[1] * n_r + pair[0])
+        self._declared = sum(why.startswith("declared") for why in reasons.values())
+        self._built = None
         self._redraw()
+
+    def _row(self, pair: tuple[int, int]) -> tuple[str, str, list[str]]:
+        j, i = pair
+        why = self._source[pair] if self._source is not None else ""
+        if why.startswith("declared"):
+            kind = "declared+inferred" if ";" in why else "declared"
+        else:
+            kind = "inferred"
+        (rid, name), (pid, title) = self._rev[j], self._pap[i]
+        return rid, pid, [rid, pid, kind, why, name, title]
+
+    def _all_rows(self) -> list[tuple[str, str, list[str]]]:
+        if self._built is None:
+            self._built = [self._row(pair) for pair in self._order]
+        return self._built
 
     def _redraw(self) -> None:
         words = self._filter.casefold().split()
-        matching = [r for r in self._rows if all(w in " ".join(r[2]).casefold() for w in words)]
+        total = len(self._order)
+        head = [self._row(pair) for pair in self._order[:SHOWN_AT_MOST]]
+        if words:
+            matching = [
+                r for r in self._all_rows() if all(w in " ".join(r[2]).casefold() for w in words)
+            ]
+            count = len(matching)
+            shown = matching[:SHOWN_AT_MOST]
+        else:
+            count, shown = total, head
         table = self.query_one(RowTable)
         table.fill(
-            CONFLICT_COLUMNS,
-            [cells for *_, cells in matching[:SHOWN_AT_MOST]],
-            [cells for *_, cells in self._rows[:SHOWN_AT_MOST]],
+            in_noun(CONFLICT_COLUMNS, self._noun),
+            [cells for *_, cells in shown],
+            [cells for *_, cells in head],
         )
-        self._shown = matching[:SHOWN_AT_MOST]
-        declared = sum(r[2][4].startswith("declared") for r in self._rows)
+        self._shown = shown
+        self._show_note()
+        declared = self._declared
         note = (
-            f"{len(self._rows)} conflicted pairs ({declared} declared, "
-            f"{len(self._rows) - declared} inferred from e-mail and institution); "
-            f"{len(matching)} match"
+            f"{total} conflicted pairs: {declared} declared, "
+            f"{total - declared} inferred (e-mail, institution) · {count} match"
         )
-        if len(matching) > SHOWN_AT_MOST:
-            note += f", first {SHOWN_AT_MOST} shown: filter to narrow"
-        self.query_one(".count", Static).update(
-            Text(note + ".   a: declare a conflict", style="dim")
-        )
+        if count > SHOWN_AT_MOST:
+            note += f" · first {SHOWN_AT_MOST} shown, / narrows"
+        self.query_one(".count", Static).update(Text(note + " · a: declare one", style="dim"))
+
+    @on(RowTable.Highlighted)
+    def _show_note(self) -> None:
+        """The cursor row in full, wrapped: its reasons are never cut off at any width."""
+        table = self.query_one(RowTable)
+        shown = self._shown
+        note = self.query_one(".conflict-note", Static)
+        if not shown or not 0 <= table.cursor_row < len(shown):
+            note.update("")
+            return
+        reviewer, paper, cells = shown[table.cursor_row]
+        text = Text(f"{reviewer} {cells[4]} × {paper} {cells[5]} ({cells[2]}): ", style="bold")
+        text.append(cells[3])
+        note.update(text)
 
     def shown_pairs(self) -> list[tuple[str, str]]:
         """(reviewer, paper) of the rows shown."""
@@ -116,7 +184,10 @@ class ConflictView(Widget):
         self._debounce = self.set_timer(0.15, self._redraw)
 
     @on(Input.Submitted, ".filter")
+    @on(FilterInput.Left, ".filter")
     def _filter_done(self) -> None:
+        if self._debounce is not None:
+            self._debounce.stop()
         self._redraw()
         self.query_one(RowTable).focus()
 
@@ -124,10 +195,16 @@ class ConflictView(Widget):
         """Move to the filter line."""
         self.query_one(Input).focus()
 
+    def set_filter(self, text: str) -> None:
+        """Filter the table as if the text had been typed."""
+        self.query_one(Input).value = text
+        self._filter = text
+        self._redraw()
+
     def action_add(self) -> None:
         """Ask the app for the declare-conflict form, pre-filled from the cursor row."""
         table = self.query_one(RowTable)
-        shown = getattr(self, "_shown", [])
+        shown = self._shown
         reviewer, paper = ("", "")
         if shown and 0 <= table.cursor_row < len(shown):
             reviewer, paper = shown[table.cursor_row][0], ""
@@ -140,7 +217,11 @@ class HistoryView(Widget):
     BINDINGS = [
         Binding("m", "mark", "Mark base", tooltip="Compare other revisions against this one"),
         Binding("u", "undo", "Undo", tooltip="Go back one step, like ctrl+z"),
+        Binding("f", "redo", "Redo", tooltip="Go forward to the revision undone last, like ctrl+y"),
     ]
+
+    noun: str = "paper"
+    """'proposal' for a grant panel; set by the app before `entries`."""
 
     entries: reactive[list[HistoryEntry]] = reactive(list, always_update=True)
     diff: reactive[PlanDiff | None] = reactive(None, always_update=True)
@@ -155,6 +236,9 @@ class HistoryView(Widget):
 
     class UndoRequest(Message):
         """The chair wants to go back to the previous revision."""
+
+    class RedoRequest(Message):
+        """The chair wants to go forward to the revision undone last."""
 
     def __init__(self, *, id: str | None = None) -> None:
         super().__init__(id=id)
@@ -200,7 +284,7 @@ class HistoryView(Widget):
         table = self.query_one(".diff", RowTable)
         if diff is None:
             head.update(Text("No revisions yet: press r to plan.", style="dim"))
-            table.fill(DIFF_COLUMNS, [])
+            table.fill(in_noun(DIFF_COLUMNS, self.noun), [])
             return
         old = f"revision {diff.old}" if diff.old is not None else "no plan"
         head.update(
@@ -214,14 +298,15 @@ class HistoryView(Widget):
             [reviewer, " ".join(c.added) or "-", " ".join(c.removed) or "-"]
             for reviewer, c in diff.by_reviewer.items()
         ]
-        table.fill(DIFF_COLUMNS, rows, widest=200)
+        table.fill(in_noun(DIFF_COLUMNS, self.noun), rows, widest=200)
 
     def watch_facts(self, facts: Facts | None) -> None:
         """Redraw the change log."""
         if facts is None:
             return
+        noun = facts.session.noun
         rows = [
-            [e.at.strftime("%m-%d %H:%M:%S"), e.describe()[:160]]
+            [e.at.strftime("%m-%d %H:%M:%S"), described(e.action, e.describe(), noun)[:160]]
             for e in reversed(facts.session.events[-500:])
         ]
         self.query_one(".events", RowTable).fill(EVENT_COLUMNS, rows, widest=120)
@@ -261,3 +346,7 @@ class HistoryView(Widget):
     def action_undo(self) -> None:
         """Ask the app to return to the previous revision."""
         self.post_message(self.UndoRequest())
+
+    def action_redo(self) -> None:
+        """Ask the app to go forward to the revision undone last."""
+        self.post_message(self.RedoRequest())

@@ -23,7 +23,7 @@ from review_alloc.plan import PlanOutcome
 from review_alloc.plan.figures import assignment_indices, plan_figures
 from review_alloc.plan.rules import PairRules
 
-MARKS = ("plan", "undo")
+MARKS = ("plan", "undo", "redo")
 """Events after which the plan and the data agree again."""
 
 STALE_NOTE = " (stale: the data changed since it was made; plan again)"

@@ -28,6 +28,8 @@ class Candidate:
     """'assigned', 'pinned', or the reason the pair is not in the plan."""
     rule: Rule = Rule.ELIGIBLE
     """The rule that keeps the pair out of the plan (`ELIGIBLE` when none does)."""
+    lead: bool = False
+    """The reviewer leads the paper's discussion in the current plan."""
 
     @property
     def usable(self) -> bool:
@@ -55,6 +57,10 @@ class Facts:
     pair_values: np.ndarray = field(repr=False)
     rules: PairRules = field(repr=False)
     """The session's rules, asked for every pair's standing."""
+    lead_of_paper: list[int | None] = field(default_factory=list)
+    """The reviewer (index) who leads each paper's discussion in the plan, or None."""
+    led_by_reviewer: list[list[int]] = field(default_factory=list)
+    """The papers (indices) each reviewer leads in the plan, in session order."""
 
     @classmethod
     def of(cls, session: Session, previous: Facts | None = None) -> Facts:
@@ -68,11 +74,18 @@ class Facts:
         paper_at, reviewer_at = session.paper_index(), session.reviewer_index()
         by_paper: list[list[tuple[int, float]]] = [[] for _ in range(n_p)]
         by_reviewer: list[list[tuple[int, float]]] = [[] for _ in range(n_r)]
+        lead_of: list[int | None] = [None] * n_p
         plan = session.plan
         for a in plan.assignments if plan else ():
             i, j = paper_at[a.paper], reviewer_at[a.reviewer]
             by_paper[i].append((j, a.score))
             by_reviewer[j].append((i, a.score))
+            if a.lead:
+                lead_of[i] = j
+        led: list[list[int]] = [[] for _ in range(n_r)]
+        for i, j in enumerate(lead_of):
+            if j is not None:
+                led[j].append(i)
         loads = np.array([len(x) for x in by_reviewer], dtype=np.int64)
         counts = np.array([len(x) for x in by_paper], dtype=np.int64)
         reviews, minimum, cap, floor = active_demands(session)
@@ -94,6 +107,8 @@ class Facts:
             pair_keys=pair_keys,
             pair_values=pair_values,
             rules=rules,
+            lead_of_paper=lead_of,
+            led_by_reviewer=led,
         )
 
     # -- single figures -------------------------------------------------------------------
@@ -143,13 +158,19 @@ class Facts:
             on_paper=on_paper,
         )
 
+    def leads(self, reviewer: int, paper: int) -> bool:
+        """Whether `reviewer` leads `paper`'s discussion in the current plan."""
+        return bool(self.lead_of_paper) and self.lead_of_paper[paper] == reviewer
+
     def pair_status(self, reviewer: int, paper: int) -> str:
         """Why a pair is or is not in the plan, in the chair's words."""
         return self.pair_verdict(reviewer, paper).text
 
     def _candidate(self, reviewer: int, paper: int, score: float | None) -> Candidate:
         verdict = self.pair_verdict(reviewer, paper)
-        return Candidate(reviewer, paper, score, verdict.text, verdict.rule)
+        return Candidate(
+            reviewer, paper, score, verdict.text, verdict.rule, self.leads(reviewer, paper)
+        )
 
     @property
     def noun(self) -> str:

@@ -5,7 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from datetime import datetime
 
-from review_alloc.model import Plan
+from review_alloc.model import Action, Plan
 from review_alloc.model.history import Revision, SessionData, rebase_root_scores, restore_data
 from review_alloc.model.plans import PlanFigures
 from review_alloc.plan.diff import NotifyRow, PlanDiff, diff_plans, notify_rows
@@ -112,6 +112,74 @@ class HistoryMixin(WorkspaceBase):
             raise ChangeRefused([f"revision {current.number} is the first; nothing to go back to"])
         else:
             target = current.parent
+        self._go_to(
+            target,
+            "undo",
+            f"back to revision {target}"
+            + (f" from {current.number}" if target != current.number else ", changes dropped"),
+            reason,
+        )
+        return target
+
+    def redo_target(self) -> int | None:
+        """The revision `redo` would go forward to, or None when there is nothing to redo."""
+        try:
+            return self._redo_target()
+        except ChangeRefused:
+            return None
+
+    @redoable
+    def redo(self, reason: str = "") -> int:
+        """Go forward again to the revision the last undo left: its plan and its data.
+
+        Undos and redos pair off like a stack, so repeated redos retrace repeated undos. Any
+        other change or plan after the undo ends the chance to redo it, and an undo that only
+        dropped unplanned changes has no revision to go forward to (its changes stay listed in
+        History)."""
+        target = self._redo_target()
+        current = self.session.revision
+        self._go_to(target, "redo", f"forward to revision {target} from {current}", reason)
+        return target
+
+    def _redo_target(self) -> int:
+        events = self.session.events
+        pending = 0
+        for k in range(len(events) - 1, -1, -1):
+            event = events[k]
+            if event.action == "redo":
+                pending += 1
+            elif event.action != "undo":
+                break
+            elif pending:
+                pending -= 1
+            else:
+                before = self._current_before(k)
+                if before is None or before == int(event.subject):
+                    raise ChangeRefused(
+                        [
+                            f"the last undo dropped the changes made since revision "
+                            f"{event.subject}; there is no revision to go forward to (the "
+                            "changes are listed in History)"
+                        ]
+                    )
+                return before
+        raise ChangeRefused(["nothing to redo: no undo since the last change or plan"])
+
+    def _current_before(self, k: int) -> int | None:
+        """The revision that was current just before event `k`."""
+        events = self.session.events
+        for m in range(k - 1, -1, -1):
+            action = events[m].action
+            if action in ("undo", "redo"):
+                return int(events[m].subject)
+            if action == "plan":
+                made = [r.number for r in self.session.revisions if r.event == m]
+                return made[0] if made else None
+        return None
+
+    def _go_to(self, target: int, action: Action, detail: str, reason: str) -> None:
+        """Make revision `target` current with its plan and data, recorded as one event."""
+        s = self.session
         data = self.data_of(target)
         self.session = s.model_copy(
             update={
@@ -121,15 +189,13 @@ class HistoryMixin(WorkspaceBase):
         )
         self.plan_problems = []
         self._record(
-            "undo",
+            action,
             str(target),
-            f"back to revision {target}"
-            + (f" from {current.number}" if target != current.number else ", changes dropped"),
+            detail,
             reason=reason,
             plan=self.plan_of(target),
             revision=target,
         )
-        return target
 
     def diff_from_parent(self, number: int) -> PlanDiff:
         """What revision `number` changed against the revision it was planned from."""

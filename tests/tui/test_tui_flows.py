@@ -114,12 +114,12 @@ async def test_filter_papers(new_app: Factory) -> None:
         await pilot.press("enter")
         table = view.query_one(".main", RowTable)
         assert app.focused is table
-        # "Mean" is the sixth column; sorting it twice puts the highest first.
+        # "Mean" is the seventh column; sorting it twice puts the highest first.
         view.set_filter("")
-        view.sort_by(5)
-        view.sort_by(5)
+        view.sort_by(6)
+        view.sort_by(6)
         await pilot.pause()
-        means = [float(table.row_at(k)[5]) for k in range(table.row_count)]
+        means = [float(table.row_at(k)[6]) for k in range(table.row_count)]
         assert means == sorted(means, reverse=True) and len(means) == 40
         # A click on the "Has" heading (second column, after the five-letter ids) sorts by it.
         await pilot.click(table, offset=(9, 0))
@@ -143,8 +143,8 @@ async def test_open_a_paper_shows_its_reviewers_and_why_others_are_unused(
         paper = session.papers[1].id
         assigned = {a.reviewer for a in session.plan.assignments if a.paper == paper}
         rows = [pairs.row_at(k) for k in range(pairs.row_count)]
-        assert {r[0] for r in rows if r[3] == "assigned"} == assigned
-        others = [r[3] for r in rows if r[3] != "assigned"]
+        assert {r[0] for r in rows if r[2].startswith("assigned")} == assigned
+        others = [r[2] for r in rows if not r[2].startswith("assigned")]
         assert others and all(
             s.startswith(("conflict", "cap full", "paper already", "eligible", "blocked"))
             for s in others
@@ -153,7 +153,7 @@ async def test_open_a_paper_shows_its_reviewers_and_why_others_are_unused(
         declared = {(c.reviewer, c.paper) for c in session.conflicts}
         for r in rows:
             if (r[0], paper) in declared:
-                assert r[3].startswith("conflict: declared")
+                assert r[2].startswith("conflict: declared")
 
 
 async def test_pin_and_block(new_app: Factory) -> None:
@@ -174,7 +174,7 @@ async def test_pin_and_block(new_app: Factory) -> None:
         assert "STALE" in bar_text(app)
         # Pin the first eligible candidate.
         rows = [pairs.row_at(k) for k in range(pairs.row_count)]
-        target = next(k for k, r in enumerate(rows) if r[3].startswith(("eligible", "cap full")))
+        target = next(k for k, r in enumerate(rows) if r[2].startswith(("eligible", "cap full")))
         pairs.move_cursor(target)
         await pilot.press("p")
         await pilot.pause()
@@ -182,7 +182,7 @@ async def test_pin_and_block(new_app: Factory) -> None:
         assert any(p.reviewer == rows[target][0] and p.paper == paper for p in s.pins)
         # A conflicted pair cannot be pinned; the refusal names the reason.
         rows = [pairs.row_at(k) for k in range(pairs.row_count)]
-        conflicted = [k for k, r in enumerate(rows) if r[3].startswith("conflict")]
+        conflicted = [k for k, r in enumerate(rows) if r[2].startswith("conflict")]
         if conflicted:
             pairs.move_cursor(conflicted[0])
             before = len(app.workspace.session.pins)
@@ -206,8 +206,27 @@ async def test_withdraw_replan_diff_and_undo(new_app: Factory) -> None:
         assert held
         await pilot.press("w")
         await pilot.pause()
+        # w asks first, with the reviewer named, and wants a reason; escape changes nothing.
+        form = app.screen
+        assert isinstance(form, Form) and gone in form.title_text
+        await pilot.press("escape")
+        await pilot.pause()
+        assert not app.workspace.session.reviewers[0].withdrawn
+        await pilot.press("w")
+        await pilot.pause()
+        await pilot.press("enter")
+        await pilot.pause()
+        assert isinstance(app.screen, Form) and not app.workspace.session.reviewers[0].withdrawn
+        assert isinstance(app.focused, Input) and app.focused.id == "field-reason"
+        await pilot.press(*"on leave", "enter")
+        for _ in range(40):  # a loaded machine may take a few frames to close the form
+            await pilot.pause(0.05)
+            if not isinstance(app.screen, Form):
+                break
+        assert not isinstance(app.screen, Form), str(app.screen.query_one(".problems").render())
         s = app.workspace.session
         assert s.reviewers[0].withdrawn
+        assert s.events[-1].action == "withdraw-reviewer" and s.events[-1].reason == "on leave"
         assert not any(a.reviewer == gone for a in s.plan.assignments)
         assert "withdrawn" in view.query_one(".main", RowTable).row_at(0)[5]
         await plan(app, pilot)
@@ -215,6 +234,9 @@ async def test_withdraw_replan_diff_and_undo(new_app: Factory) -> None:
         await pilot.pause()
         history = app.query_one(HistoryView)
         assert [e.number for e in history.entries] == [1, 2]
+        log = history.query_one(".events", RowTable)
+        assert any(f"withdraw-reviewer {gone}" in r[1] and "on leave" in r[1]
+                   for r in map(log.row_at, range(log.row_count)))
         # The diff lists the withdrawn reviewer with every paper they lost, and nothing new.
         rows = {row[0]: row for row in history.diff_rows()}
         assert rows[gone][1] == "-" and set(rows[gone][2].split()) == held
@@ -235,6 +257,24 @@ async def test_withdraw_replan_diff_and_undo(new_app: Factory) -> None:
         assert s.revision == 1
         assert not s.reviewers[0].withdrawn
         assert any(a.reviewer == gone for a in s.plan.assignments)
+        # Forward again (ctrl+y): revision 2, the reviewer withdrawn again, as it was made.
+        await pilot.press("ctrl+y")
+        await pilot.pause()
+        s = app.workspace.session
+        assert s.revision == 2 and s.reviewers[0].withdrawn
+        assert s.plan.model_dump_json() == app.workspace.plan_of(2).model_dump_json()
+        assert "plan current (revision 2)" in bar_text(app)
+        # u and f in History do the same.
+        await pilot.press("u")
+        await pilot.pause()
+        assert app.workspace.session.revision == 1
+        await pilot.press("f")
+        await pilot.pause()
+        assert app.workspace.session.revision == 2
+        assert log.row_at(0)[1].startswith("redo 2")
+        await pilot.press("f")
+        await pilot.pause()
+        assert app.workspace.session.revision == 2
 
 
 async def test_save_and_reload(new_app: Factory, tmp_path: Path) -> None:
@@ -458,6 +498,8 @@ async def test_undo_asks_before_dropping_unplanned_changes(new_app: Factory) -> 
         assert app.workspace.session.revision == 2
         await pilot.press("3", "w")
         await pilot.pause()
+        await pilot.press(*"sick", "enter")
+        await pilot.pause()
         assert app.workspace.session.reviewers[0].withdrawn
         await pilot.press("ctrl+z")
         await pilot.pause()
@@ -502,7 +544,7 @@ async def test_gaps_and_raising_a_full_cap_from_one(new_app: Factory) -> None:
         await pilot.press("enter")
         pairs = view.query_one(".pairs", RowTable)
         rows = [pairs.row_at(k) for k in range(pairs.row_count)]
-        full = next(k for k, r in enumerate(rows) if r[3].startswith("cap full"))
+        full = next(k for k, r in enumerate(rows) if r[2].startswith("cap full"))
         pairs.move_cursor(full)
         await pilot.press("c")
         await pilot.pause()

@@ -149,3 +149,21 @@ def test_the_apps_pair_status_is_the_rule_modules_on_every_pair(seed: int) -> No
         else:
             assert rules.why_not(j, i) is None
             assert not status.startswith(("conflict", "blocked", "withdrawn", "below min"))
+
+
+def test_leads_follow_the_plan(tight: Session) -> None:
+    facts = Facts.of(tight)
+    pid, rid = tight.paper_index(), tight.reviewer_index()
+    leads = {a.paper: a.reviewer for a in tight.plan.assignments if a.lead}
+    assert leads
+    for i, p in enumerate(tight.papers):
+        lead = facts.lead_of_paper[i]
+        assert (None if lead is None else tight.reviewers[lead].id) == leads.get(p.id)
+    for j, r in enumerate(tight.reviewers):
+        assert [tight.papers[i].id for i in facts.led_by_reviewer[j]] == sorted(
+            (p for p, who in leads.items() if who == r.id), key=pid.__getitem__
+        )
+    paper, reviewer = next(iter(leads.items()))
+    on_paper = facts.candidates_of_paper(pid[paper])
+    assert [c.reviewer for c in on_paper if c.lead] == [rid[reviewer]]
+    assert facts.leads(rid[reviewer], pid[paper])
