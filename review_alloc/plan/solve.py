@@ -8,10 +8,11 @@ penalty `balance * sum over reviewers of load * (load - 1) / 2`.
 The institution rule and the senior rule together are not a network flow where a (paper,
 institution) group mixes seniors and juniors (the two families of reviewer sets cross). There
 each part of the group is first capped at m, a relaxation: if its optimum keeps the real rule,
-it is optimal. Otherwise a greedy dive fixes how violated groups share their cap, and a branch
-and bound over those shares (see `_solve_rules`) proves the result optimal or, when its budget
-runs out on a large network, leaves the best open relaxation as a reported upper bound
-(`Plan.bound`).
+it is optimal. Otherwise a greedy dive fixes how violated groups share their cap, and a
+lexicographic MIP (`plan.exact`, HiGHS) settles the tiers where relaxation and dive differ and
+chooses every group's shares; the flow engine plans that split (see `_solve_rules`). The plan is
+then proven optimal (MIP status optimal, gap 0); only when the MIP's time limit runs out is the
+best plan found reported with its bound and gap (`Plan.bound`).
 
 Seniors are a tier just below required coverage by default, not a hard rule: a venue with too
 few seniors still gets its best plan, and the papers short of seniors are listed with a reason.
@@ -19,7 +20,7 @@ few seniors still gets its best plan, and the papers short of seniors are listed
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from datetime import UTC, datetime
 
 import numpy as np
@@ -30,6 +31,7 @@ from review_alloc.model.plans import trusted_assignments, trusted_plan
 from review_alloc.plan.checker import check_plan
 from review_alloc.plan.conflicts import ConflictSet, conflict_pairs
 from review_alloc.plan.errors import PlanInputError
+from review_alloc.plan.exact import EXACT_TIERS, ExactResult, exact_tiers, solve_exact
 from review_alloc.plan.fairness import coverage_flows, highest_threshold, score_thresholds
 from review_alloc.plan.figures import plan_figures
 from review_alloc.plan.leads import LeadChoice, LeadState, lead_choice, lead_mask_warm
@@ -56,7 +58,7 @@ class PlanOutcome:
     bottleneck: float | None = None
     """The bottleneck threshold (lowest allowed unpinned score) when the option is on."""
     relaxed_bound: dict[str, float] = field(default_factory=dict)
-    """Tier values of the best open relaxation when the split search ran out of budget before
+    """Tier bounds (and the measured "gap") when the exact program's time limit ran out before
     proving the plan optimal, else {}."""
     loads_before_balance: np.ndarray | None = None
     """Per-reviewer loads of the same session planned with balance off (only when balancing)."""
@@ -64,11 +66,14 @@ class PlanOutcome:
     """The plan's tier values (see `tier_values`)."""
     lead_state: LeadState | None = None
     """The lead choice's solved state on a large venue, so that the next plan's starts warm."""
+    proof: ExactResult | None = None
+    """The exact program's proof where the institution and senior rules cross (None where the
+    flow network alone is exact and its dual certificate is the proof)."""
 
     @property
     def proven_optimal(self) -> bool:
-        """True unless the relaxation bound is above the plan on some tier."""
-        return not self.relaxed_bound or self.relaxed_bound == self.tiers
+        """True unless the exact program stopped at its time limit with a bound above the plan."""
+        return not self.relaxed_bound
 
 
 def tier_values(net: PlanNetwork, used: np.ndarray) -> dict[str, float]:
@@ -188,14 +193,9 @@ def _violated_splits(
     return chosen
 
 
-SEARCH_BUDGET = 150_000
-"""Arcs times solves the institution split search may spend beyond its first, greedy plan
-(a network larger than this gets the greedy plan and the bound, without a search)."""
-
-
 @dataclass
 class _Node:
-    """A solved network of the split search."""
+    """A solved network of one institution split."""
 
     net: PlanNetwork
     result: CostFlowResult
@@ -223,6 +223,26 @@ def _solve_split(
     return _Node(net, result, split, _violated_splits(session, net, used))
 
 
+def _lex(tiers: dict[str, int]) -> tuple[int, ...]:
+    return tuple(tiers[name] for name in EXACT_TIERS)
+
+
+def _float_bound(
+    root: _Node, final: _Node, proof: ExactResult
+) -> dict[str, float]:
+    """The program's integer bound in the plan's tier units; tiers below the open one keep the
+    larger of the relaxation's and the plan's values, with the measured gap beside them."""
+    relaxed = tier_values(root.net, root.result.flow[root.net.pair_arcs] > 0)
+    mine = tier_values(final.net, final.result.flow[final.net.pair_arcs] > 0)
+    bound = {name: max(relaxed[name], mine[name]) for name in OBJECTIVE_TIERS}
+    for name, value in proof.bound.items():
+        if name == "score":
+            bound[name] = round(value / root.net.resolution, 6)
+        elif name in bound:
+            bound[name] = value
+    return {**bound, "gap": proof.gap}
+
+
 def _solve_rules(
     session: Session,
     threshold: float | None,
@@ -230,54 +250,52 @@ def _solve_rules(
     conflicts: ConflictSet,
     earlier: Plan | None = None,
     warm: PlanOutcome | None = None,
-) -> tuple[PlanNetwork, CostFlowResult, dict[tuple[int, str], int], dict[str, float]]:
-    """Solve, with mixed institution groups split exactly by branch and bound where needed.
+) -> tuple[
+    PlanNetwork, CostFlowResult, dict[tuple[int, str], int], dict[str, float], ExactResult | None
+]:
+    """Solve, with mixed institution groups split exactly by a lexicographic MIP where needed.
 
     A relaxed network (mixed groups' parts capped at m each) is solved first; if its optimum
-    keeps the institution rule it is optimal. Otherwise a greedy dive (splitting every violated
-    group at once) gives a plan, and a depth-first branch and bound over one group's senior
-    share k = 0..m at a time, pruned by the min cost (the whole lexicographic objective in one
-    integer; every split network has the same weights), proves it optimal or improves it within
-    `SEARCH_BUDGET`. Returns the network, its result, its split, and the tier values of the best
-    remaining bound ({} when the plan is proven optimal).
+    keeps the institution rule it is optimal (no proof beyond the flow's is needed). Otherwise a
+    greedy dive (splitting every violated group at once) gives a plan that keeps the rule, and
+    `plan.exact.solve_exact` settles the tiers on which relaxation and dive differ, choosing how
+    every mixed group shares its cap; the flow engine then plans that split, so the plan keeps
+    its dual certificate. Returns the network, its result, its split, the bound in tier units
+    ({} when proven optimal) and the program's proof (None when the flow alone was exact).
     """
     root = _solve_split(session, threshold, dict(split), conflicts, earlier, warm)
     if not root.violated:
-        return root.net, root.result, root.split, {}
+        return root.net, root.result, root.split, {}, None
     best = root
     while best.violated:
         merged = {**best.split, **{key: k for key, (k, _, _) in best.violated.items()}}
         best = _solve_split(session, threshold, merged, conflicts, earlier)
-    work = 0
-    stack: list[tuple[int, dict[str, float], dict[tuple[int, str], int], _Node | None]] = []
-
-    def push_children(node: _Node) -> None:
-        key, (guess, low, high) = next(iter(node.violated.items()))
-        bound = tier_values(node.net, node.result.flow[node.net.pair_arcs] > 0)
-        order = [k for k in range(high, low - 1, -1) if k != guess] + [guess]
-        for k in order:
-            stack.append((node.result.cost, bound, {**node.split, key: k}, None))
-
-    push_children(root)
-    while stack:
-        parent_cost, _, child_split, _ = stack[-1]
-        if parent_cost >= best.result.cost:
-            stack.pop()
-            continue
-        if work + len(root.net.tails) > SEARCH_BUDGET:
-            break
-        stack.pop()
-        node = _solve_split(session, threshold, child_split, conflicts, earlier)
-        work += len(node.net.tails)
-        if node.result.cost >= best.result.cost:
-            continue
-        if not node.violated:
-            best = node
-        else:
-            push_children(node)
-    open_nodes = [(cost, tiers) for cost, tiers, _, _ in stack if cost < best.result.cost]
-    bound = min(open_nodes, key=lambda x: x[0])[1] if open_nodes else {}
-    return best.net, best.result, best.split, bound
+    m = int(session.policy.max_per_institution or 0)
+    upper = exact_tiers(root.net, root.result.flow[root.net.pair_arcs] > 0, m)
+    lower = exact_tiers(root.net, best.result.flow[best.net.pair_arcs] > 0, m)
+    proof = solve_exact(
+        root.net, m, root.result.flow, root.result.potentials, upper, lower, dict(best.split)
+    )
+    final = best
+    if proof.solved:
+        candidate = _solve_split(session, threshold, proof.split, conflicts, earlier)
+        if not candidate.violated:
+            found = exact_tiers(root.net, candidate.result.flow[candidate.net.pair_arcs] > 0, m)
+            if _lex(found) >= _lex(lower):
+                final = candidate
+            if proof.proven and _lex(found) != _lex(proof.tiers):
+                # The plan on the program's split must reach the program's optimum exactly;
+                # otherwise nothing is proven and the relaxation stays the bound.
+                proof = replace(
+                    proof,
+                    proven=False,
+                    status="the flow on the program's split differs from the program's optimum",
+                    gap=float("nan"),
+                    bound={k: float(v) for k, v in upper.items()},
+                )
+    if proof.proven:
+        return final.net, final.result, final.split, {}, proof
+    return final.net, final.result, final.split, _float_bound(root, final, proof), proof
 
 
 def _bottleneck(
@@ -286,12 +304,20 @@ def _bottleneck(
     base: dict[str, float],
     split: dict[tuple[int, str], int],
     earlier: Plan | None = None,
-) -> tuple[float | None, PlanNetwork, CostFlowResult, dict[tuple[int, str], int], dict]:
+    proof: ExactResult | None = None,
+) -> tuple[
+    float | None,
+    PlanNetwork,
+    CostFlowResult,
+    dict[tuple[int, str], int],
+    dict,
+    ExactResult | None,
+]:
     """The highest score threshold keeping required coverage, seniors and coverage optimal."""
     thresholds = score_thresholds(net)
     if len(thresholds) == 0:
         result = _run(session, net)
-        return None, net, result, split, {}
+        return None, net, result, split, {}, proof
     # The max-flow pruning runs on the relaxed network, so it never rejects a reachable threshold.
     relaxed = build_network(session, conflicts=net.conflicts) if split else net
     target = coverage_flows(relaxed, None)
@@ -315,8 +341,26 @@ def _bottleneck(
 
         top = highest_threshold(thresholds[:top], reaches)
         attempt = cache.get(top) or solved(float(thresholds[top]))
-    net_t, result_t, split_t, bound_t = attempt
-    return float(thresholds[top]), net_t, result_t, split_t, bound_t
+    net_t, result_t, split_t, bound_t, proof_t = attempt
+    return float(thresholds[top]), net_t, result_t, split_t, bound_t, proof_t
+
+
+def _proof_note(proof: ExactResult) -> str:
+    """The method's note on the crossing rules: the MIP's status and gap."""
+    if proof.proven:
+        return (
+            "; institution groups that mix seniors and juniors shared out by a lexicographic MIP "
+            f"(HiGHS: optimal, gap 0, {len(proof.solved)} tier(s) solved)"
+        )
+    if not proof.solved:
+        return (
+            "; institution groups that mix seniors and juniors shared out by a greedy dive, the "
+            f"exact MIP {proof.status} (relative gap {proof.gap:.4g}; a bound is reported)"
+        )
+    return (
+        "; institution groups that mix seniors and juniors shared out by a lexicographic MIP "
+        f"(HiGHS stopped: {proof.status}; gap {proof.gap:.4g}; a bound is reported)"
+    )
 
 
 def _decode(
@@ -368,19 +412,23 @@ def make_plan(
     result is just as optimal and checked.
     """
     keep_from = None if fresh else (earlier if earlier is not None else session.plan)
-    net, result, split, bound = _solve_rules(
+    net, result, split, bound, proof = _solve_rules(
         session, None, {}, conflict_pairs(session), keep_from, warm
     )
     bottleneck = None
     if session.policy.bottleneck:
         base = tier_values(net, result.flow[net.pair_arcs] > 0)
-        bottleneck, net, result, split, bound = _bottleneck(session, net, base, split, keep_from)
+        bottleneck, net, result, split, bound, proof = _bottleneck(
+            session, net, base, split, keep_from, proof
+        )
     used = result.flow[net.pair_arcs] > 0
     final = tier_values(net, used)
     relaxed = bound if bound != final else {}
     plan, leads, lead_state = _decode(
         session, net, result, now or datetime.now(UTC), warm.lead_state if warm else None
     )
+    if proof is not None:
+        plan = plan.model_copy(update={"method": plan.method + _proof_note(proof)})
     if net.kept is not None or net.resolution != SCORE_RESOLUTION:
         plan = plan.model_copy(
             update={
@@ -421,4 +469,5 @@ def make_plan(
         loads_before_balance=before,
         tiers=final,
         lead_state=lead_state,
+        proof=proof,
     )

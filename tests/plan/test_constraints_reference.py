@@ -24,10 +24,15 @@ TOPICS = ["alpha", "beta", "gamma", "delta"]
 LABS = ["Lab Oster", "Lab Wrenmoor", "Lab Calvale"]
 
 
-def rules_session(seed: int, **policy: object) -> Session:
-    """A seeded random session with seniors, institutions, topics, conflicts, blocks and pins."""
+def rules_session(
+    seed: int, size: tuple[int, int] | None = None, **policy: object
+) -> Session:
+    """A seeded random session with seniors, institutions, topics, conflicts, blocks and pins
+    (`size` = (reviewers, papers), else a small random size)."""
     rng = np.random.default_rng(seed)
     n_r, n_p = int(rng.integers(3, 9)), int(rng.integers(2, 9))
+    if size is not None:
+        n_r, n_p = size
     reviewers = [
         Reviewer(
             id=f"r{j}",
@@ -108,6 +113,26 @@ def test_seniors_and_institutions_together_match_highs(seed: int) -> None:
     # Here the two rules cross and no flow model exists: the planner's split search must still
     # reach the integer optimum on cases this small.
     assert_matches_highs(rules_session(200 + seed, senior_min=1, max_per_institution=1))
+
+
+def crossing_case(seed: int) -> None:
+    session = rules_session(700 + seed, (19, 46), senior_min=1, max_per_institution=1)
+    session = session.model_copy(
+        update={"policy": session.policy.model_copy(update={"cap": 8})}
+    )
+    assert_matches_highs(session)
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_crossing_rules_at_46_papers_match_highs(seed: int) -> None:
+    # The size where the budgeted split search used to stop short of the optimum (issue 21).
+    crossing_case(seed)
+
+
+@pytest.mark.large
+@pytest.mark.parametrize("seed", range(3, 25))
+def test_crossing_rules_at_46_papers_match_highs_more_seeds(seed: int) -> None:
+    crossing_case(seed)
 
 
 @pytest.mark.parametrize("seed", range(20))

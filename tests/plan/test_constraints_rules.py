@@ -308,7 +308,7 @@ def test_session_files_without_the_rule_fields_still_load() -> None:
     assert session.policy.max_leads == 3 and session.policy.balance == 0
 
 
-def test_an_unproven_plan_stays_within_its_reported_bound() -> None:
+def test_crossing_rules_on_the_panel_are_proven_optimal_by_the_mip() -> None:
     from review_alloc.plan import solve
 
     session = load_session(SAMPLES / "panel.json")
@@ -318,10 +318,33 @@ def test_an_unproven_plan_stays_within_its_reported_bound() -> None:
         }
     )
     outcome = make_plan(session)
+    # The panel's labs mix seniors and juniors, so the relaxation breaks the crossing rule and
+    # the exact program (HiGHS) settles the split: status optimal, gap 0, no bound.
+    assert outcome.proof is not None and outcome.proof.proven and outcome.proof.solved
+    assert outcome.proof.gap == 0 and outcome.plan.bound is None and outcome.proven_optimal
+    assert "optimal, gap 0" in outcome.plan.method
+    assert set(solve.OBJECTIVE_TIERS) <= set(outcome.tiers)
+    assert plan_summary(session, outcome.plan)["institutions"]["over_limit"] == 0
+    assert plan_summary(session, outcome.plan)["optimality"]["proven"]
+
+
+def test_a_venue_too_large_for_the_mip_reports_its_bound_and_gap() -> None:
+    from review_alloc.plan import exact, solve
+
+    session = load_session(SAMPLES / "panel.json")
+    session = session.model_copy(
+        update={
+            "policy": session.policy.model_copy(update={"senior_min": 1, "max_per_institution": 1})
+        }
+    )
+    limit = exact.MAX_FREE_ARCS
+    exact.MAX_FREE_ARCS = 0
+    try:
+        outcome = make_plan(session)
+    finally:
+        exact.MAX_FREE_ARCS = limit
     bound = outcome.plan.bound
-    # The panel's labs are large, so the split search runs out of budget: the plan is feasible
-    # (checked) and each tier is at most the relaxation's.
-    assert bound is not None and not outcome.proven_optimal
+    assert bound is not None and not outcome.proven_optimal and bound["gap"] >= 0
     for name in solve.OBJECTIVE_TIERS:
         assert outcome.tiers[name] <= bound[name] + 1e-9
     assert plan_summary(session, outcome.plan)["institutions"]["over_limit"] == 0
