@@ -1,5 +1,5 @@
 """Late changes and history: withdraw, reinstate, pin, block, conflict, set, add, and the
-history, diff, undo and notify commands.
+history, diff, undo, redo and notify commands.
 
 Each change opens the session through a `Workspace`, applies one change (refused with a reason,
 exit 1, when a hard rule forbids it), and saves atomically; a refused or interrupted command
@@ -119,6 +119,11 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
     p.add_argument("--reason", default="")
     p.add_argument("--json", action="store_true", help="print one JSON object")
 
+    p = sub.add_parser("redo", help="go forward again to the revision the last undo left")
+    p.add_argument("session", type=Path)
+    p.add_argument("--reason", default="")
+    p.add_argument("--json", action="store_true", help="print one JSON object")
+
     p = sub.add_parser("notify", help="write who to tell about changed assignments (CSV)")
     p.add_argument("session", type=Path)
     p.add_argument("--since", required=True, type=positive, metavar="REV")
@@ -141,6 +146,7 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
         "history": _cmd_history,
         "diff": _cmd_diff,
         "undo": _cmd_undo,
+        "redo": _cmd_redo,
         "notify": _cmd_notify,
     }
     return {name: _naming_session(handler) for name, handler in handlers.items()}
@@ -400,6 +406,20 @@ def _cmd_undo(args: argparse.Namespace) -> int:
         emit_json({"session": str(args.session), "from": left, "revision": target})
     else:
         print(f"{args.session}: back to revision {target} (plan and data) from revision {left}")
+    return EXIT_OK
+
+
+def _cmd_redo(args: argparse.Namespace) -> int:
+    from review_alloc.workspace import Workspace
+
+    ws = Workspace.open(args.session)
+    left = ws.session.revision
+    target = ws.redo(args.reason)
+    ws.save()
+    if args.json:
+        emit_json({"session": str(args.session), "from": left, "revision": target})
+    else:
+        print(f"{args.session}: forward to revision {target} (plan and data) from revision {left}")
     return EXIT_OK
 
 

@@ -189,9 +189,9 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
             kept = sum((a.reviewer, a.paper) in before for a in plan.assignments)
         number = max((r.number for r in s.revisions), default=0) + 1
         event_at = len(s.events)
-        # The changes since the data last agreed with a plan; an undo that set it counts.
+        # The changes since the data last agreed with a plan; an undo or redo that set it counts.
         marks = [k for k, e in enumerate(s.events) if e.action in MARKS]
-        if marks and s.events[marks[-1]].action == "undo":
+        if marks and s.events[marks[-1]].action in ("undo", "redo"):
             marks[-1] -= 1
         revision = Revision(
             number=number,

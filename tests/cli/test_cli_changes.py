@@ -95,6 +95,17 @@ def test_late_withdrawals_move_only_what_they_must_and_undo_brings_the_plan_back
     assert [(r["number"], r["current"]) for r in history["revisions"]] == [(1, True), (2, False)]
     assert len(history["revisions"][1]["changes"]) == 3
 
+    # Redo retraces the undo: the re-plan and its withdrawals come back, and a second redo
+    # has nothing left to retrace.
+    assert main(["redo", str(conference)]) == 0
+    again = load_session(conference)
+    assert again.revision == 2 and again.plan.model_dump_json() != first_plan
+    assert {r.id for r in again.reviewers if r.withdrawn} >= set(heavy)
+    before = conference.read_bytes()
+    assert main(["redo", str(conference)]) == 1
+    assert "nothing to redo" in capsys.readouterr().err
+    assert conference.read_bytes() == before
+
 
 @pytest.fixture
 def small(tmp_path: Path) -> Path:
@@ -121,6 +132,7 @@ def small(tmp_path: Path) -> Path:
         (["add-paper", "--id", "PX", "--score", "NOPE=0.5"], "unknown reviewer 'NOPE'"),
         (["diff", "7"], "unknown revision 7"),
         (["undo"], "is the first"),
+        (["redo"], "nothing to redo"),
     ],
 )
 def test_bad_changes_exit_1_with_a_message_and_leave_the_file(
