@@ -1,12 +1,13 @@
 """The committee's report: one self-contained HTML page (inline CSS and SVG, nothing fetched).
 
-The page holds what a committee reads and prints: headline figures, coverage per topic sorted
-by shortfall, reviewers' load against cap, the scores of assigned pairs, the gaps with their
-shortfall groups and fixes, conflicts by reason, the revisions since the first plan and who
-must be told, and the cautions. Every text from the session is HTML-escaped, so a title can
-never become markup; the page has no script, no link and no remote address, so opening it
-fetches nothing. Each headline figure carries `data-figure="<key of plan --json>"`, so a
-test (or a script) can check the page against `review-alloc plan --json`.
+The page holds what a committee reads and prints: headline figures (for a randomised or the
+fairest plan, its cap, seed or bound with its figures beside the plain plan's), coverage per
+topic sorted by shortfall, reviewers' load against cap, the scores of assigned pairs, the gaps
+with their shortfall groups and fixes, conflicts by reason, the revisions since the first plan
+and who must be told, and the cautions. Every text from the session is HTML-escaped, so a title
+can never become markup; the page has no script, no link and no remote address, so opening it
+fetches nothing. Each headline figure carries `data-figure="<key of plan --json>"`, so a test
+(or a script) can check the page against `review-alloc plan --json`.
 """
 
 from __future__ import annotations
@@ -327,24 +328,86 @@ def _revisions(data: ReportData) -> str:
     return "".join(parts)
 
 
+_TIERS = (
+    ("required reviews placed", "required_coverage"),
+    ("all reviews placed", "coverage"),
+    ("reviewer floors met", "floors_met"),
+    ("total score", "total_score"),
+)
+
+
+def _side_by_side(columns: list[tuple[str, dict[str, Any]]]) -> str:
+    """The tier figures of several plans, one column each (the plain plan first)."""
+    rows = [[label, *(f"{c[key]:g}" for _, c in columns)] for label, key in _TIERS]
+    return _table(["figure", *(name for name, _ in columns)], rows, set(range(1, len(columns) + 1)))
+
+
+def _randomised(r: dict[str, Any], noun: str) -> str:
+    """Cap, seed, method, figures beside the plain plan, and how the probabilities spread."""
+    bands: dict[str, int] = {}
+    cap = float(r["max_probability"])
+    for pair in r["probabilities"]:
+        q = float(pair["probability"])
+        # Pinned pairs are certain whatever the cap.
+        band = "certain" if q >= 1 - 1e-9 else "at the cap" if q >= cap - 1e-9 else "below the cap"
+        bands[band] = bands.get(band, 0) + 1
+    spread = ", ".join(f"{n} {band}" for band, n in sorted(bands.items()))
+    return (
+        f"<p>A random draw in which no reviewer had more than a {cap:g} chance of any one "
+        f"{_e(noun)} (seed {_e(r['seed'])}; {_e(r['method'])}). Anyone holding the session can "
+        "repeat the draw from the cap, the seed and the stored probabilities.</p>"
+        + _side_by_side(
+            [("plain plan", r["plain"]), ("expected", r["expected"]), ("this draw", r["drawn"])]
+        )
+        + f'<p class="note">expected score given up against the plain plan: '
+        f"{float(r['expected_score_given_up']):g}; pairs with a chance: {len(r['probabilities'])}"
+        f" ({_e(spread)}); {_e(r['certified'])}</p>"
+        + f'<p class="caution">{_e(r["caution"])}</p>'
+    )
+
+
+def _fairest(f: dict[str, Any], noun: str) -> str:
+    """The worst-off papers' total, its bound, and the figures beside the plain plan."""
+    exact = "proven the highest possible" if f["exact"] else "not proven the highest possible"
+    bound = "" if f["bound"] is None else f"; bound {float(f['bound']):g}"
+    gap = "" if f["gap_to_bound"] is None else f", gap to the bound {float(f['gap_to_bound']):g}"
+    worst = ", ".join(map(str, f["worst_papers"]))
+    return (
+        f"<p>The plan that raises the lowest total score any {_e(noun)} receives: "
+        f"{float(f['lowest_paper_score']):g} ({_e(exact)}{_e(bound)}{_e(gap)}; the plain plan's "
+        f"lowest is {float(f['plain_lowest_paper_score']):g}). Method: {_e(f['method'])}.</p>"
+        + f"<p>Worst-off {_e(noun)}s: {_e(worst)}</p>"
+        + _side_by_side([("plain plan", f["plain"]), ("fairest plan", f["fair"])])
+        + f'<p class="note">score given up against the plain plan: '
+        f"{float(f['score_given_up']):g}</p>"
+        + f'<p class="caution">{_e(f["caution"])}</p>'
+    )
+
+
 def report_html(data: ReportData) -> str:
     """The whole report page as one HTML document."""
     s = data.summary
     if not s["checked"]:
         checked = "NOT checked"
+    elif "randomised" in s or "fairness" in s:
+        checked = f"checked; {s['optimality']['claim']}"
     elif s.get("optimality", {}).get("proven", True):
         checked = "checked, optimal"
     else:
         checked = "checked; optimal within a relaxation bound"
-    revision = f", revision {s['revision']}" if s.get("revision") is not None else ""
+    revision = f"; revision {s['revision']}" if s.get("revision") is not None else ""
     conflicts = (
         _table(["reason", "pairs"], [[r, n] for r, n in data.conflicts], {1})
         if data.conflicts
         else '<p class="note">no conflicts declared or inferred</p>'
     )
     cautions = "".join(f'<p class="caution">{_e(c)}</p>' for c in data.cautions)
-    sections = [
-        ("Headline figures", _cards(data)),
+    sections = [("Headline figures", _cards(data))]
+    if "randomised" in s:
+        sections.append(("A randomised plan", _randomised(s["randomised"], data.noun)))
+    if "fairness" in s:
+        sections.append(("The fairest plan", _fairest(s["fairness"], data.noun)))
+    sections += [
         ("Coverage per topic (largest shortfall first)", _topics(data)),
         ("Reviewers' load against cap", _loads(data)),
         ("Scores of the assigned pairs", _bar_chart(data.score_bins, "assigned pairs by score")),

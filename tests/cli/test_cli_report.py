@@ -124,3 +124,38 @@ def test_headless_chromium_renders_the_report(replanned: Path, tmp_path: Path) -
     )
     data = shot.read_bytes()
     assert data.startswith(b"\x89PNG") and len(data) > 20_000
+
+
+@pytest.mark.parametrize("options", [["--max-probability", "0.5", "--seed", "11"], ["--fair"]])
+def test_a_randomised_or_fairest_plan_is_reported_beside_the_plain_plan(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], options: list[str]
+) -> None:
+    path = tmp_path / "w.json"
+    save_session(workshop(), path)
+    capsys.readouterr()
+    assert main(["plan", str(path), *options, "--json"]) == 0
+    summary = json.loads(capsys.readouterr().out)
+    target = tmp_path / "report.html"
+    assert main(["report", str(path), "--to", str(target)]) == 0
+    page = target.read_text()
+    rows = {
+        cells[0]: cells[1:]
+        for cells in (
+            re.findall(r"<td[^>]*>([^<]*)</td>", row)
+            for row in re.findall(r"<tr>(.*?)</tr>", page)
+        )
+        if cells
+    }
+    if "randomised" in summary:
+        r = summary["randomised"]
+        assert "A randomised plan" in page and "seed 11" in page and "a 0.5 chance" in page
+        columns = [r["plain"], r["expected"], r["drawn"]]
+        assert r["caution"].split(":")[0] in page
+    else:
+        f = summary["fairness"]
+        assert "The fairest plan" in page and f"{f['lowest_paper_score']:g}" in page
+        assert all(p in page for p in f["worst_papers"])
+        columns = [f["plain"], f["fair"]]
+    # The side-by-side figures are plan --json's, column by column.
+    assert rows["total score"] == [f"{c['total_score']:g}" for c in columns]
+    assert rows["all reviews placed"] == [f"{c['coverage']:g}" for c in columns]
