@@ -19,9 +19,9 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from enum import StrEnum
 from functools import cached_property
+from typing import TYPE_CHECKING
 
 import numpy as np
-from scipy.sparse import csr_matrix
 
 from review_alloc.model import PairRule, Session
 from review_alloc.plan.conflicts import ConflictSet, conflict_pairs
@@ -31,6 +31,9 @@ from review_alloc.plan.institutions import reviewer_institutions
 from review_alloc.plan.overload import overload_allowances
 from review_alloc.plan.pairkeys import contains, key_order, pair_keys, positions_in
 from review_alloc.plan.seniors import paper_senior_need
+
+if TYPE_CHECKING:
+    from scipy.sparse import csr_matrix
 
 MAX_CANDIDATE_PAIRS = 60_000_000
 """Above this many candidate pairs the network would not fit the memory budget."""
@@ -205,6 +208,10 @@ class PairRules:
     @cached_property
     def _topic_matrices(self) -> tuple[csr_matrix, csr_matrix]:
         """Reviewer × topic and paper × topic incidence, over one vocabulary."""
+        # Imported here: scipy is needed only when the shared-topic rule is asked, and a
+        # command that only reads a session must start without it.
+        from scipy.sparse import csr_matrix
+
         vocab: dict[str, int] = {}
         out = []
         for sets in self._topic_sets:

@@ -146,3 +146,52 @@ def test_import_names_the_encoding_option(
     assert "--encoding" in capsys.readouterr().err
     assert main([*args, "--encoding", "cp1252", "-o", str(out)]) == 0
     assert load_session(out).reviewers[0].name == "Léna Morbrand"
+
+
+@pytest.fixture(scope="module")
+def planned(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """A session with two revisions, a withdrawal between them."""
+    from review_alloc.workspace import Workspace
+
+    path = tmp_path_factory.mktemp("planned") / "w.json"
+    save_session(workshop(), path)
+    with Workspace.editing(path) as ws:
+        ws.solve()
+        ws.withdraw_reviewer(ws.session.plan.assignments[0].reviewer, "illness")
+        ws.solve()
+        ws.save()
+    return path
+
+
+@pytest.mark.parametrize(
+    "argv",
+    [
+        ["history", "{s}"],
+        ["history", "{s}", "--json"],
+        ["diff", "{s}"],
+        ["diff", "{s}", "1", "2", "--json"],
+        ["export", "{s}", "--to", "{dir}/plan.csv"],
+        ["export", "{s}", "--to", "{dir}/plan.xlsx", "--json"],
+        ["export", "{s}", "--to", "-"],
+        ["notify", "{s}", "--since", "1", "--to", "{dir}/tell.csv", "--json"],
+        ["notify", "{s}", "--since", "1", "--to", "-"],
+    ],
+)
+def test_commands_that_solve_nothing_load_no_solver(
+    planned: Path, tmp_path: Path, argv: list[str]
+) -> None:
+    # Opening the session re-checks its stored plan against the rules; that, too, must run
+    # without numba or scipy (each costs a noticeable part of a second to import).
+    words = [w.format(s=planned, dir=tmp_path) for w in argv]
+    code = (
+        "import sys\n"
+        "from review_alloc.cli import main\n"
+        "code = main(sys.argv[1:])\n"
+        "heavy = sorted(m for m in ('numba', 'scipy', 'textual') if m in sys.modules)\n"
+        "print('LOADED', heavy, file=sys.stderr)\n"
+        "sys.exit(code)\n"
+    )
+    run = _python(code, *words)
+    assert run.returncode == 0, run.stderr
+    assert "LOADED []" in run.stderr
+    assert run.stdout
