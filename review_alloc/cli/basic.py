@@ -10,6 +10,7 @@ from typing import TYPE_CHECKING
 
 from review_alloc.cli.common import (
     EXIT_OK,
+    UsageError,
     add_output_options,
     emit_json,
     positive,
@@ -17,6 +18,7 @@ from review_alloc.cli.common import (
     summary_lines,
     validation_message,
     whole,
+    write_json,
 )
 from review_alloc.model import InputError, Policy
 
@@ -65,6 +67,7 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
     p.add_argument("--panel", action="store_true", help="a grant panel: say 'proposal'")
     p.add_argument("--force", action="store_true", help="replace an existing session file")
     p.add_argument("-o", "--output", required=True, type=Path, help="session file to write")
+    p.add_argument("--json", action="store_true", help="print one JSON object")
 
     p = sub.add_parser("plan", help="make the optimal plan and save it in the session")
     p.add_argument("session", type=Path)
@@ -111,6 +114,7 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
         help="the CSV's row order (a workbook has both)",
     )
     add_output_options(p)
+    p.add_argument("--json", action="store_true", help="print one JSON object")
 
     p = sub.add_parser(
         "report",
@@ -127,8 +131,15 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
         action="store_true",
         help="replace an existing file (a session file is never replaced)",
     )
+    p.add_argument("--json", action="store_true", help="print one JSON object")
 
-    sub.add_parser("schema", help="print the session document's JSON Schema")
+    p = sub.add_parser(
+        "schema",
+        help="print the session document's JSON Schema",
+        description="Print the session document's JSON Schema. The schema is itself the one "
+        "JSON object printed, with or without --json.",
+    )
+    p.add_argument("--json", action="store_true", help="the same JSON Schema (for scripts)")
     p = sub.add_parser("demo", help="plan the built-in demo session and print its summary")
     p.add_argument("--json", action="store_true", help="print one JSON object")
     return {
@@ -298,6 +309,19 @@ def _cmd_import(args: argparse.Namespace) -> int:
         sheet=args.sheet,
         encoding=args.encoding,
     ).session
+    if args.json:
+        emit_json(
+            args,
+            {
+                "session": session.name,
+                "kind": session.kind,
+                "papers": len(session.papers),
+                "reviewers": len(session.reviewers),
+                "conflicts": len(session.conflicts),
+                "scores": len(session.scores),
+            },
+        )
+        return EXIT_OK
     print(
         f"{args.output}: {len(session.papers)} {session.noun}s, {len(session.reviewers)} "
         f"reviewers, {len(session.conflicts)} declared conflicts, {len(session.scores)} scores"
@@ -332,7 +356,7 @@ def _plan_and_report(ws: Workspace, args: argparse.Namespace) -> int:
     summary = ws.summary()
     revision = ws.revisions[-1]
     if args.json:
-        emit_json(summary)
+        emit_json(args, summary)
     else:
         lines = summary_lines(session, summary, str(args.session))
         if revision.kept is not None:
@@ -416,7 +440,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     session = ws.session
     summary = ws.summary()
     if getattr(args, "json", False):
-        emit_json(summary)
+        emit_json(args, summary)
     else:
         print("\n".join(summary_lines(session, summary, "SESSION")))
     return EXIT_OK
@@ -425,13 +449,27 @@ def _cmd_demo(args: argparse.Namespace) -> int:
 def _cmd_export(args: argparse.Namespace) -> int:
     from review_alloc.workspace import Workspace
 
+    if args.target == "-" and args.json:
+        raise UsageError("--json prints the result on standard output; give --to a file")
     ws = Workspace.open(args.session)
     if args.target == "-":
         sys.stdout.write(ws.export_text(args.by, bom=args.bom))
         return EXIT_OK
     target = Path(args.target)
     rows = ws.export(target, by=args.by, force=args.force, bom=args.bom)
-    if target.suffix.lower() == ".xlsx":
+    workbook = target.suffix.lower() == ".xlsx"
+    if args.json:
+        emit_json(
+            args,
+            {
+                "session": ws.session.name,
+                "to": str(target),
+                "format": "xlsx" if workbook else "csv",
+                "by": None if workbook else args.by,
+                "assignments": rows,
+            },
+        )
+    elif workbook:
         print(f"{target}: workbook with {rows} assignments (by paper, by reviewer, short, summary)")
     else:
         print(f"{target}: {rows} assignments, one row each, by {args.by}")
@@ -444,6 +482,17 @@ def _cmd_report(args: argparse.Namespace) -> int:
     ws = Workspace.open(args.session)
     data = ws.write_report(args.target, force=args.force)
     gaps = len(data.summary["gaps"])
+    if args.json:
+        emit_json(
+            args,
+            {
+                "session": data.name,
+                "to": str(args.target),
+                "assignments": len(data.summary["assignments"]),
+                "gaps": gaps,
+            },
+        )
+        return EXIT_OK
     print(
         f"{args.target}: report on {data.name}, {len(data.summary['assignments'])} assignments, "
         f"{gaps} {data.noun}s short of reviews"
@@ -454,5 +503,7 @@ def _cmd_report(args: argparse.Namespace) -> int:
 def _cmd_schema(args: argparse.Namespace) -> int:
     from review_alloc.model import session_json_schema
 
-    emit_json(session_json_schema())
+    # The schema is the result itself (a validator reads it as it is), so it carries none of
+    # the keys the other commands' objects start with.
+    write_json(session_json_schema())
     return EXIT_OK
