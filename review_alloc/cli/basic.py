@@ -20,6 +20,7 @@ from review_alloc.cli.common import (
     whole,
     write_json,
 )
+from review_alloc.cli.progress import Steps, progress
 from review_alloc.model import InputError, Policy
 
 if TYPE_CHECKING:
@@ -295,20 +296,22 @@ def _cmd_import(args: argparse.Namespace) -> int:
         policy = Policy(**overrides)
     except ValueError as error:
         raise InputError([f"options: {validation_message(error)}"]) from None
-    session = Workspace.import_csv(
-        args.output,
-        args.papers,
-        args.reviewers,
-        args.conflicts,
-        args.scores,
-        policy=policy,
-        ignore_extra=args.ignore_extra,
-        name=args.name,
-        kind="panel" if args.panel else "conference",
-        replace=args.force,
-        sheet=args.sheet,
-        encoding=args.encoding,
-    ).session
+    with progress(f"reading {args.papers.name} and the other files", json_output=args.json):
+        workspace = Workspace.import_csv(
+            args.output,
+            args.papers,
+            args.reviewers,
+            args.conflicts,
+            args.scores,
+            policy=policy,
+            ignore_extra=args.ignore_extra,
+            name=args.name,
+            kind="panel" if args.panel else "conference",
+            replace=args.force,
+            sheet=args.sheet,
+            encoding=args.encoding,
+        )
+    session = workspace.session
     if args.json:
         emit_json(
             args,
@@ -334,24 +337,39 @@ def _cmd_plan(args: argparse.Namespace) -> int:
 
     # Through the Workspace so that the plan keeps earlier pairs and becomes a revision; the
     # file stays locked while planning, so a change made meanwhile waits instead of being lost.
-    with Workspace.editing(args.session) as ws:
-        return _plan_and_report(ws, args)
+    with (
+        progress(f"opening {args.session.name}", json_output=args.json) as steps,
+        Workspace.editing(args.session) as ws,
+    ):
+        _make_plan(ws, args, steps)
+    return _plan_report(ws, args)
 
 
-def _plan_and_report(ws: Workspace, args: argparse.Namespace) -> int:
+def _make_plan(ws: Workspace, args: argparse.Namespace, steps: Steps) -> None:
+    """Plan and save, telling `steps` what is under way (nothing is printed here)."""
     changes = rule_overrides(args)
     if changes:
         ws.set_policy(changes, reason="plan options")
+    steps.step("preparing the solver")
     prepare_solver()
     q = getattr(args, "max_probability", None)
+    s = ws.session
+    head = f"planning {len(s.papers)} {s.noun}s and {len(s.reviewers)} reviewers"
+    steps.step(head)
     ws.solve(
         fresh=args.fresh,
         max_probability=q or None,
         seed=getattr(args, "seed", None),
         fair=getattr(args, "fair", False),
         plain=q == 0.0,
+        progress=lambda text: steps.step(f"{head}: {text}"),
     )
+    steps.step(f"saving {args.session.name}")
     ws.save()
+
+
+def _plan_report(ws: Workspace, args: argparse.Namespace) -> int:
+    """Print the saved plan's summary, as text or as JSON."""
     session = ws.session
     summary = ws.summary()
     revision = ws.revisions[-1]
@@ -479,8 +497,10 @@ def _cmd_export(args: argparse.Namespace) -> int:
 def _cmd_report(args: argparse.Namespace) -> int:
     from review_alloc.workspace import Workspace
 
-    ws = Workspace.open(args.session)
-    data = ws.write_report(args.target, force=args.force)
+    with progress(f"opening {args.session.name}", json_output=args.json) as steps:
+        ws = Workspace.open(args.session)
+        steps.step("gathering the figures, gaps and fixes, and writing the page")
+        data = ws.write_report(args.target, force=args.force)
     gaps = len(data.summary["gaps"])
     if args.json:
         emit_json(
