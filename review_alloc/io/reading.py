@@ -52,6 +52,19 @@ class CellError(ValueError):
     """A cell that cannot be read; the message says why, without file or line."""
 
 
+_REPEAT_LINES_SHOWN = 5
+"""How many line numbers a cause reported once lists before saying how many more."""
+
+
+@dataclass
+class _Repeat:
+    """One cause reported once: where its message is kept (None: beyond the limit) and every
+    line it was found on."""
+
+    index: int | None
+    lines: list[int]
+
+
 @dataclass
 class FileProblems:
     """The problems found in one file: the first few messages and a count of all of them."""
@@ -66,6 +79,20 @@ class FileProblems:
     """The workbook sheet being read (None for CSV): places then say sheet, row and letter."""
     letters: dict[str, str] = field(default_factory=dict)
     """The column letter of each known column of a workbook sheet."""
+    repeats: dict[tuple[str | None, str], _Repeat] = field(default_factory=dict)
+    """Causes that may recur on many rows (an unknown id), each reported once."""
+
+    def add_once(self, cause: str, message: str, line: int, column: str | None) -> None:
+        """Record a problem whose one cause may recur on many rows (a misspelt or duplicated
+        id): the first row gives the message, later rows only add to its count, so one cause
+        does not push other problems out of the lines shown."""
+        seen = self.repeats.get((column, cause))
+        if seen is not None:
+            seen.lines.append(line)
+            return
+        at = len(self.kept) if len(self.kept) < self.limit else None
+        self.add(message, line=line, column=column)
+        self.repeats[(column, cause)] = _Repeat(at, [line])
 
     def add(self, message: str, line: int | None = None, column: str | None = None) -> None:
         """Record a problem at a line or row (and column) of this file."""
@@ -86,11 +113,19 @@ class FileProblems:
 
     def lines(self) -> list[str]:
         """The kept messages, then `... and N more errors in <file>` when some were left out."""
+        kept = list(self.kept)
+        unit = "line" if self.sheet is None else "row"
+        for seen in self.repeats.values():
+            n = len(seen.lines)
+            if seen.index is not None and n > 1:
+                shown = ", ".join(str(x) for x in seen.lines[:_REPEAT_LINES_SHOWN])
+                more = f" and {n - _REPEAT_LINES_SHOWN} more" if n > _REPEAT_LINES_SHOWN else ""
+                kept[seen.index] += f" (on {n} rows: {unit}s {shown}{more})"
         rest = self.count - len(self.kept)
         if rest <= 0:
-            return list(self.kept)
+            return kept
         noun = "error" if rest == 1 else "errors"
-        return [*self.kept, f"... and {rest} more {noun} in {self.source}"]
+        return [*kept, f"... and {rest} more {noun} in {self.source}"]
 
     def __bool__(self) -> bool:
         return self.count > 0
