@@ -150,12 +150,14 @@ def test_import_names_the_encoding_option(
 
 @pytest.fixture(scope="module")
 def planned(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    """A session with two revisions, a withdrawal between them."""
+    """A session with two revisions, a withdrawal between them, under the shared-topic rule
+    (which the re-check of the stored plan on open then asks, for every pair)."""
     from review_alloc.workspace import Workspace
 
     path = tmp_path_factory.mktemp("planned") / "w.json"
     save_session(workshop(), path)
     with Workspace.editing(path) as ws:
+        ws.set_policy({"require_shared_topic": True}, reason="topics")
         ws.solve()
         ws.withdraw_reviewer(ws.session.plan.assignments[0].reviewer, "illness")
         ws.solve()
