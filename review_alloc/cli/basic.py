@@ -21,7 +21,7 @@ from review_alloc.cli.common import (
     write_json,
 )
 from review_alloc.cli.progress import Steps, progress
-from review_alloc.model import InputError, Policy
+from review_alloc.model import InputError, Policy, load_session
 
 if TYPE_CHECKING:
     from review_alloc.workspace import Workspace
@@ -63,6 +63,15 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
         help="a pair without a score row: eligible with score 0, or not eligible",
     )
     add_rule_flags(p)
+    p.add_argument(
+        "--column",
+        action="append",
+        default=[],
+        metavar="KIND.FIELD=COLUMN",
+        help="read our FIELD from the file's COLUMN, for files another system wrote (repeat; "
+        "e.g. papers.paper_id='Submission ID'); kept in the session, so a re-import with "
+        "--force onto it needs none of them again",
+    )
     p.add_argument("--ignore-extra", action="store_true", help="ignore unknown CSV columns")
     p.add_argument("--name", help="session name (default: the output file's stem)")
     p.add_argument("--panel", action="store_true", help="a grant panel: say 'proposal'")
@@ -292,6 +301,8 @@ def _cmd_import(args: argparse.Namespace) -> int:
         if getattr(args, key) is not None
     }
     overrides.update(rule_overrides(args))
+    stored = _stored_columns(args.output) if args.force else {}
+    columns = Workspace.column_map(args.column, stored)
     try:
         policy = Policy(**overrides)
     except ValueError as error:
@@ -310,6 +321,7 @@ def _cmd_import(args: argparse.Namespace) -> int:
             replace=args.force,
             sheet=args.sheet,
             encoding=args.encoding,
+            columns=columns,
         )
     session = workspace.session
     if args.json:
@@ -322,6 +334,7 @@ def _cmd_import(args: argparse.Namespace) -> int:
                 "reviewers": len(session.reviewers),
                 "conflicts": len(session.conflicts),
                 "scores": len(session.scores),
+                "columns": session.import_columns,
             },
         )
         return EXIT_OK
@@ -329,7 +342,26 @@ def _cmd_import(args: argparse.Namespace) -> int:
         f"{args.output}: {len(session.papers)} {session.noun}s, {len(session.reviewers)} "
         f"reviewers, {len(session.conflicts)} declared conflicts, {len(session.scores)} scores"
     )
+    if session.import_columns:
+        mapped = ", ".join(
+            f"{kind}.{name} from {column!r}"
+            for kind, fields in session.import_columns.items()
+            for name, column in fields.items()
+        )
+        kept = " (kept from the earlier session)" if stored and not args.column else ""
+        print(f"  columns: {mapped}{kept}")
     return EXIT_OK
+
+
+def _stored_columns(path: Path) -> dict[str, dict[str, str]]:
+    """The column mapping of the session a re-import replaces (none when it is no session)."""
+    if not path.is_file():
+        return {}
+    try:
+        return load_session(path).import_columns
+    except (InputError, OSError, ValueError):
+        # The file is replaced either way (--force); a broken one simply has no mapping.
+        return {}
 
 
 def _cmd_plan(args: argparse.Namespace) -> int:

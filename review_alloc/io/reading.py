@@ -21,7 +21,7 @@ import csv
 import math
 import os
 import re
-from collections.abc import Iterator
+from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -197,7 +197,8 @@ def open_source(
     if text is None:
         problems.add(why, line=line)
         return None
-    return Source(text=text, separator=sniff_separator(text, frozenset(spec.columns)))
+    theirs = {column.strip().lower() for column in options.columns.get(spec.kind, {}).values()}
+    return Source(text=text, separator=sniff_separator(text, frozenset(spec.columns) | theirs))
 
 
 def records(source: Source, problems: FileProblems) -> Iterator[tuple[int, list[str]]]:
@@ -246,12 +247,29 @@ def read_header(
     problems: FileProblems,
     line: int = 1,
     separator: str | None = ",",
+    columns: Mapping[str, str] | None = None,
 ) -> Header | None:
     """Match the header row against the spec; None (with messages) when it cannot be used.
 
     `separator` is the CSV file's (named in the messages); None reads a workbook sheet's
-    header, whose empty cells are columns that must stay empty rather than errors."""
+    header, whose empty cells are columns that must stay empty rather than errors. `columns`
+    maps our fields to the file's own column names (another system's export)."""
     names = [cell.strip().lower() for cell in row]
+    if columns:
+        theirs = {column.strip().lower(): name for name, column in columns.items()}
+        absent = [
+            f"{name}={column!r}"
+            for name, column in columns.items()
+            if column.strip().lower() not in names
+        ]
+        if absent:
+            problems.add(
+                f"the column mapping names columns this file does not have "
+                f"({', '.join(absent)}); its header has {', '.join(map(repr, row))}",
+                line=line,
+            )
+            return None
+        names = [theirs.get(name, name) for name in names]
     known = set(spec.columns)
     split = "" if separator is None else f" (separator {separator_name(separator)})"
     if not any(name in known for name in names):
@@ -390,7 +408,15 @@ def open_table(
     for line, row in rows:
         if is_blank(row):
             continue
-        header = read_header(row, spec, options.ignore_extra, problems, line, separator)
+        header = read_header(
+            row,
+            spec,
+            options.ignore_extra,
+            problems,
+            line,
+            separator,
+            columns=options.columns.get(spec.kind, {}),
+        )
         return (header, rows, source) if header is not None else None
     if not problems:
         what = "the sheet" if source.is_workbook else "the file"
