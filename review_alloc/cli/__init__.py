@@ -6,8 +6,13 @@ then withheld) or an internal error, 130 interrupted (Ctrl-C; saves are atomic, 
 left half-written). Each module of this package registers its own sub-commands; `main` only
 dispatches.
 
-Nothing here imports the planner at start: `--help`, `--version` and `schema` answer without
-loading numba or scipy (the commands import the workspace when they run).
+Nothing here imports the planner at start: `--help`, `--version`, `schema`, `history`, `diff`,
+`export` and `notify` answer without loading numba or scipy (the commands import the workspace
+when they run, and the workspace imports the solver only to solve).
+
+`--json` (every command but `open`): one JSON object on standard output, starting with
+`command`, `ok` and `file`; a failure is one too (`ok` false, `exit`, `errors`), its messages
+also on standard error.
 """
 
 from __future__ import annotations
