@@ -194,8 +194,8 @@ class ColumnsForm(ModalScreen["ColumnMap | None"]):
     """
 
     DEFAULT_CSS = """
-    ColumnsForm .column-row { height: 3; }
-    ColumnsForm .column-row Label { width: 24; padding: 1 1 0 0; }
+    ColumnsForm .column-row { height: 1; }
+    ColumnsForm .column-row Label { width: 24; padding: 0 1 0 0; }
     ColumnsForm .column-row Select { width: 1fr; }
     """
     BINDINGS = [Binding("escape", "cancel", "Cancel")]
@@ -228,12 +228,17 @@ class ColumnsForm(ModalScreen["ColumnMap | None"]):
                     start = self._start(kind, column)
                     with Horizontal(classes="column-row"):
                         yield Label(column or f"(column {k + 1}, no name)")
-                        select: Select[str] = Select(
-                            options, prompt="not one of ours", id=f"map-{kind}-{k}"
-                        )
-                        if start is not None:
-                            select.value = start
-                        yield select
+                        ident = f"map-{kind}-{k}"
+                        if start is None:
+                            yield Select(options, prompt="not one of ours", compact=True, id=ident)
+                        else:
+                            yield Select(
+                                options,
+                                prompt="not one of ours",
+                                value=start,
+                                compact=True,
+                                id=ident,
+                            )
             yield Static("", classes="problems")
             with Horizontal(classes="buttons"):
                 yield Button("OK", variant="primary", id="ok")
