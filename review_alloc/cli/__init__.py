@@ -6,15 +6,21 @@ then withheld) or an internal error, 130 interrupted (Ctrl-C; saves are atomic, 
 left half-written). Each module of this package registers its own sub-commands; `main` only
 dispatches.
 
-Nothing here imports the planner at start: `--help`, `--version` and `schema` answer without
-loading numba or scipy (the commands import the workspace when they run).
+Nothing here imports the planner at start: `--help`, `--version`, `schema`, `history`, `diff`,
+`export` and `notify` answer without loading numba or scipy (the commands import the workspace
+when they run, and the workspace imports the solver only to solve).
+
+`--json` (every command but `open`): one JSON object on standard output, starting with
+`command`, `ok` and `file`; a failure is one too (`ok` false, `exit`, `errors`), its messages
+also on standard error.
 """
 
 from __future__ import annotations
 
 import argparse
 import sys
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
+from typing import NoReturn
 
 from review_alloc import __version__
 from review_alloc.cli import app, basic, changes, explain
@@ -22,8 +28,10 @@ from review_alloc.cli.common import (
     EXIT_CHECK,
     EXIT_INPUT,
     EXIT_INTERRUPTED,
+    EXIT_OK,
     EXIT_USAGE,
     UsageError,
+    emit_failure,
 )
 from review_alloc.model import InputError
 
@@ -31,12 +39,31 @@ _MODULES = (basic, explain, changes, app)
 _DEFAULT_COMMAND = "app"
 
 
+class _ParseError(Exception):
+    """A usage error argparse found, raised instead of exiting so that `main` can answer it
+    like every other usage error (and in JSON when asked)."""
+
+    def __init__(self, parser: argparse.ArgumentParser, message: str) -> None:
+        super().__init__(message)
+        self.parser = parser
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse's parser, whose usage errors reach `main` instead of exiting at once."""
+
+    def error(self, message: str) -> NoReturn:
+        """Raise the usage error for `main` to report."""
+        raise _ParseError(self, message)
+
+
 def build_parser() -> tuple[argparse.ArgumentParser, dict]:
     """The parser of every sub-command and the handlers by command name."""
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="review-alloc",
         description="Plan reviewer assignments exactly: coverage first, then fit. "
-        "Without a command (at a terminal), open the app on the demo workshop.",
+        "Without a command (at a terminal), open the app on the demo workshop. Every command "
+        "takes --json (except `open`, the app): one JSON object on standard output, success "
+        "or failure alike.",
     )
     parser.add_argument("--version", action="version", version=f"review-alloc {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
@@ -65,10 +92,24 @@ def _subparser(parser: argparse.ArgumentParser, command: str | None) -> argparse
     return parser
 
 
+def _command_word(parser: argparse.ArgumentParser) -> str | None:
+    """The sub-command a parser belongs to (None for the top level)."""
+    word = parser.prog.removeprefix("review-alloc").strip()
+    return word or None
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Run one command; return its exit code."""
+    words = list(sys.argv[1:] if argv is None else argv)
     parser, handlers = build_parser()
-    args, own = _parse(parser, argv)
+    try:
+        args, own = _parse(parser, words)
+    except _ParseError as error:
+        error.parser.print_usage(sys.stderr)
+        print(f"{error.parser.prog}: error: {error}", file=sys.stderr)
+        if "--json" in words:
+            emit_failure(None, _command_word(error.parser), EXIT_USAGE, [str(error)])
+        raise SystemExit(EXIT_USAGE) from None
     if args.command is None and not (sys.stdin.isatty() and sys.stdout.isatty()):
         # Without a terminal the app could only wait for keys that never come.
         parser.print_help(sys.stderr)
@@ -77,48 +118,59 @@ def main(argv: Sequence[str] | None = None) -> int:
             file=sys.stderr,
         )
         return EXIT_USAGE
+    code, lines = _run(handlers[args.command or _DEFAULT_COMMAND], args, own)
+    if code != EXIT_OK and getattr(args, "json", False):
+        emit_failure(args, args.command, code, lines)
+    return code
+
+
+def _run(
+    handler: Callable[[argparse.Namespace], int],
+    args: argparse.Namespace,
+    own: argparse.ArgumentParser,
+) -> tuple[int, list[str]]:
+    """Run a handler; return its exit code and, on failure, the lines said on standard error."""
     try:
-        return handlers[args.command or _DEFAULT_COMMAND](args)
+        return handler(args), []
     except UsageError as error:
         own.print_usage(sys.stderr)
         print(f"{own.prog}: error: {error}", file=sys.stderr)
-        return EXIT_USAGE
+        return EXIT_USAGE, [str(error)]
     except InputError as error:
         for line in error.lines:
             print(f"error: {line}", file=sys.stderr)
-        return EXIT_INPUT
+        return EXIT_INPUT, list(error.lines)
     except BrokenPipeError:
         # The reader (`head`, a pager) stopped early; that is not an error of ours.
         sys.stderr.close()
-        return 0
+        return EXIT_OK, []
     except KeyboardInterrupt:
         from review_alloc.workspace import files_written
 
         written = files_written()
-        print(
-            "interrupted: "
-            + (
-                f"{', '.join(map(str, written))} written in full before the interruption"
-                if written
-                else "no file was changed"
-            ),
-            file=sys.stderr,
+        line = "interrupted: " + (
+            f"{', '.join(map(str, written))} written in full before the interruption"
+            if written
+            else "no file was changed"
         )
-        return EXIT_INTERRUPTED
+        print(line, file=sys.stderr)
+        return EXIT_INTERRUPTED, [line]
     except OSError as error:
         where = f"{error.filename}: " if error.filename else ""
-        print(f"error: {where}{error.strerror or error}", file=sys.stderr)
-        return EXIT_INPUT
+        line = f"error: {where}{error.strerror or error}"
+        print(line, file=sys.stderr)
+        return EXIT_INPUT, [line.removeprefix("error: ")]
     except Exception as error:  # the last line of defence: a user never sees a traceback
         # The planner is imported only by the commands that plan, so its error class is
         # looked up only when one of them failed.
         errors = sys.modules.get("review_alloc.plan.errors")
         if errors is not None and isinstance(error, errors.PlanCheckError):
-            print(f"internal error, plan withheld: {error}", file=sys.stderr)
-            return EXIT_CHECK
-        print(
-            f"internal error ({type(error).__name__}: {error}); no file was left half-written "
-            "(saves are atomic); please report this with the command that caused it",
-            file=sys.stderr,
-        )
-        return EXIT_CHECK
+            line = f"internal error, plan withheld: {error}"
+        else:
+            line = (
+                f"internal error ({type(error).__name__}: {error}); no file was left "
+                "half-written (saves are atomic); please report this with the command that "
+                "caused it"
+            )
+        print(line, file=sys.stderr)
+        return EXIT_CHECK, [line]

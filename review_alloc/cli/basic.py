@@ -10,6 +10,7 @@ from typing import TYPE_CHECKING
 
 from review_alloc.cli.common import (
     EXIT_OK,
+    UsageError,
     add_output_options,
     emit_json,
     positive,
@@ -17,8 +18,10 @@ from review_alloc.cli.common import (
     summary_lines,
     validation_message,
     whole,
+    write_json,
 )
-from review_alloc.model import InputError, Policy
+from review_alloc.cli.progress import Steps, progress
+from review_alloc.model import InputError, Policy, load_session
 
 if TYPE_CHECKING:
     from review_alloc.workspace import Workspace
@@ -60,11 +63,21 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
         help="a pair without a score row: eligible with score 0, or not eligible",
     )
     add_rule_flags(p)
+    p.add_argument(
+        "--column",
+        action="append",
+        default=[],
+        metavar="KIND.FIELD=COLUMN",
+        help="read our FIELD from the file's COLUMN, for files another system wrote (repeat; "
+        "e.g. papers.paper_id='Submission ID'); kept in the session, so a re-import with "
+        "--force onto it needs none of them again",
+    )
     p.add_argument("--ignore-extra", action="store_true", help="ignore unknown CSV columns")
     p.add_argument("--name", help="session name (default: the output file's stem)")
     p.add_argument("--panel", action="store_true", help="a grant panel: say 'proposal'")
     p.add_argument("--force", action="store_true", help="replace an existing session file")
     p.add_argument("-o", "--output", required=True, type=Path, help="session file to write")
+    p.add_argument("--json", action="store_true", help="print one JSON object")
 
     p = sub.add_parser("plan", help="make the optimal plan and save it in the session")
     p.add_argument("session", type=Path)
@@ -111,6 +124,7 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
         help="the CSV's row order (a workbook has both)",
     )
     add_output_options(p)
+    p.add_argument("--json", action="store_true", help="print one JSON object")
 
     p = sub.add_parser(
         "report",
@@ -127,8 +141,15 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
         action="store_true",
         help="replace an existing file (a session file is never replaced)",
     )
+    p.add_argument("--json", action="store_true", help="print one JSON object")
 
-    sub.add_parser("schema", help="print the session document's JSON Schema")
+    p = sub.add_parser(
+        "schema",
+        help="print the session document's JSON Schema",
+        description="Print the session document's JSON Schema. The schema is itself the one "
+        "JSON object printed, with or without --json.",
+    )
+    p.add_argument("--json", action="store_true", help="the same JSON Schema (for scripts)")
     p = sub.add_parser("demo", help="plan the built-in demo session and print its summary")
     p.add_argument("--json", action="store_true", help="print one JSON object")
     return {
@@ -280,29 +301,67 @@ def _cmd_import(args: argparse.Namespace) -> int:
         if getattr(args, key) is not None
     }
     overrides.update(rule_overrides(args))
+    stored = _stored_columns(args.output) if args.force else {}
+    columns = Workspace.column_map(args.column, stored)
     try:
         policy = Policy(**overrides)
     except ValueError as error:
         raise InputError([f"options: {validation_message(error)}"]) from None
-    session = Workspace.import_csv(
-        args.output,
-        args.papers,
-        args.reviewers,
-        args.conflicts,
-        args.scores,
-        policy=policy,
-        ignore_extra=args.ignore_extra,
-        name=args.name,
-        kind="panel" if args.panel else "conference",
-        replace=args.force,
-        sheet=args.sheet,
-        encoding=args.encoding,
-    ).session
+    with progress(f"reading {args.papers.name} and the other files", json_output=args.json):
+        workspace = Workspace.import_csv(
+            args.output,
+            args.papers,
+            args.reviewers,
+            args.conflicts,
+            args.scores,
+            policy=policy,
+            ignore_extra=args.ignore_extra,
+            name=args.name,
+            kind="panel" if args.panel else "conference",
+            replace=args.force,
+            sheet=args.sheet,
+            encoding=args.encoding,
+            columns=columns,
+        )
+    session = workspace.session
+    if args.json:
+        emit_json(
+            args,
+            {
+                "session": session.name,
+                "kind": session.kind,
+                "papers": len(session.papers),
+                "reviewers": len(session.reviewers),
+                "conflicts": len(session.conflicts),
+                "scores": len(session.scores),
+                "columns": session.import_columns,
+            },
+        )
+        return EXIT_OK
     print(
         f"{args.output}: {len(session.papers)} {session.noun}s, {len(session.reviewers)} "
         f"reviewers, {len(session.conflicts)} declared conflicts, {len(session.scores)} scores"
     )
+    if session.import_columns:
+        mapped = ", ".join(
+            f"{kind}.{name} from {column!r}"
+            for kind, fields in session.import_columns.items()
+            for name, column in fields.items()
+        )
+        kept = " (kept from the earlier session)" if stored and not args.column else ""
+        print(f"  columns: {mapped}{kept}")
     return EXIT_OK
+
+
+def _stored_columns(path: Path) -> dict[str, dict[str, str]]:
+    """The column mapping of the session a re-import replaces (none when it is no session)."""
+    if not path.is_file():
+        return {}
+    try:
+        return load_session(path).import_columns
+    except (InputError, OSError, ValueError):
+        # The file is replaced either way (--force); a broken one simply has no mapping.
+        return {}
 
 
 def _cmd_plan(args: argparse.Namespace) -> int:
@@ -310,29 +369,44 @@ def _cmd_plan(args: argparse.Namespace) -> int:
 
     # Through the Workspace so that the plan keeps earlier pairs and becomes a revision; the
     # file stays locked while planning, so a change made meanwhile waits instead of being lost.
-    with Workspace.editing(args.session) as ws:
-        return _plan_and_report(ws, args)
+    with (
+        progress(f"opening {args.session.name}", json_output=args.json) as steps,
+        Workspace.editing(args.session) as ws,
+    ):
+        _make_plan(ws, args, steps)
+    return _plan_report(ws, args)
 
 
-def _plan_and_report(ws: Workspace, args: argparse.Namespace) -> int:
+def _make_plan(ws: Workspace, args: argparse.Namespace, steps: Steps) -> None:
+    """Plan and save, telling `steps` what is under way (nothing is printed here)."""
     changes = rule_overrides(args)
     if changes:
         ws.set_policy(changes, reason="plan options")
+    steps.step("preparing the solver")
     prepare_solver()
     q = getattr(args, "max_probability", None)
+    s = ws.session
+    head = f"planning {len(s.papers)} {s.noun}s and {len(s.reviewers)} reviewers"
+    steps.step(head)
     ws.solve(
         fresh=args.fresh,
         max_probability=q or None,
         seed=getattr(args, "seed", None),
         fair=getattr(args, "fair", False),
         plain=q == 0.0,
+        progress=lambda text: steps.step(f"{head}: {text}"),
     )
+    steps.step(f"saving {args.session.name}")
     ws.save()
+
+
+def _plan_report(ws: Workspace, args: argparse.Namespace) -> int:
+    """Print the saved plan's summary, as text or as JSON."""
     session = ws.session
     summary = ws.summary()
     revision = ws.revisions[-1]
     if args.json:
-        emit_json(summary)
+        emit_json(args, summary)
     else:
         lines = summary_lines(session, summary, str(args.session))
         if revision.kept is not None:
@@ -416,7 +490,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     session = ws.session
     summary = ws.summary()
     if getattr(args, "json", False):
-        emit_json(summary)
+        emit_json(args, summary)
     else:
         print("\n".join(summary_lines(session, summary, "SESSION")))
     return EXIT_OK
@@ -425,13 +499,27 @@ def _cmd_demo(args: argparse.Namespace) -> int:
 def _cmd_export(args: argparse.Namespace) -> int:
     from review_alloc.workspace import Workspace
 
+    if args.target == "-" and args.json:
+        raise UsageError("--json prints the result on standard output; give --to a file")
     ws = Workspace.open(args.session)
     if args.target == "-":
         sys.stdout.write(ws.export_text(args.by, bom=args.bom))
         return EXIT_OK
     target = Path(args.target)
     rows = ws.export(target, by=args.by, force=args.force, bom=args.bom)
-    if target.suffix.lower() == ".xlsx":
+    workbook = target.suffix.lower() == ".xlsx"
+    if args.json:
+        emit_json(
+            args,
+            {
+                "session": ws.session.name,
+                "to": str(target),
+                "format": "xlsx" if workbook else "csv",
+                "by": None if workbook else args.by,
+                "assignments": rows,
+            },
+        )
+    elif workbook:
         print(f"{target}: workbook with {rows} assignments (by paper, by reviewer, short, summary)")
     else:
         print(f"{target}: {rows} assignments, one row each, by {args.by}")
@@ -441,9 +529,22 @@ def _cmd_export(args: argparse.Namespace) -> int:
 def _cmd_report(args: argparse.Namespace) -> int:
     from review_alloc.workspace import Workspace
 
-    ws = Workspace.open(args.session)
-    data = ws.write_report(args.target, force=args.force)
+    with progress(f"opening {args.session.name}", json_output=args.json) as steps:
+        ws = Workspace.open(args.session)
+        steps.step("gathering the figures, gaps and fixes, and writing the page")
+        data = ws.write_report(args.target, force=args.force)
     gaps = len(data.summary["gaps"])
+    if args.json:
+        emit_json(
+            args,
+            {
+                "session": data.name,
+                "to": str(args.target),
+                "assignments": len(data.summary["assignments"]),
+                "gaps": gaps,
+            },
+        )
+        return EXIT_OK
     print(
         f"{args.target}: report on {data.name}, {len(data.summary['assignments'])} assignments, "
         f"{gaps} {data.noun}s short of reviews"
@@ -454,5 +555,7 @@ def _cmd_report(args: argparse.Namespace) -> int:
 def _cmd_schema(args: argparse.Namespace) -> int:
     from review_alloc.model import session_json_schema
 
-    emit_json(session_json_schema())
+    # The schema is the result itself (a validator reads it as it is), so it carries none of
+    # the keys the other commands' objects start with.
+    write_json(session_json_schema())
     return EXIT_OK

@@ -181,8 +181,9 @@ def _finish(ws: Workspace, args: argparse.Namespace, before: int | None) -> int:
     dropped = before - after if before is not None and after is not None else 0
     if args.json:
         emit_json(
+            args,
             {
-                "session": str(args.session),
+                "session": ws.session.name,
                 "event": event.model_dump(mode="json"),
                 "assignments_removed": dropped,
                 "revision": ws.session.revision,
@@ -328,7 +329,7 @@ def _cmd_history(args: argparse.Namespace) -> int:
     ws = Workspace.open(args.session)
     entries = ws.history()
     if args.json:
-        emit_json({"session": ws.session.name, "revisions": [e.to_json() for e in entries]})
+        emit_json(args, {"session": ws.session.name, "revisions": [e.to_json() for e in entries]})
         return EXIT_OK
     if not entries:
         print(f"{ws.session.name}: no revisions yet; `review-alloc plan {args.session}` makes one")
@@ -356,7 +357,7 @@ def _cmd_diff(args: argparse.Namespace) -> int:
     ws = Workspace.open(args.session)
     change = ws.diff(args.old, args.new)
     if args.json:
-        emit_json({"session": ws.session.name, **change.to_json()})
+        emit_json(args, {"session": ws.session.name, **change.to_json()})
         return EXIT_OK
     print(
         f"{ws.session.name}: revision {change.old} -> {change.new}: {change.old_pairs} -> "
@@ -403,7 +404,7 @@ def _cmd_undo(args: argparse.Namespace) -> int:
     target = ws.undo(args.reason)
     ws.save()
     if args.json:
-        emit_json({"session": str(args.session), "from": left, "revision": target})
+        emit_json(args, {"session": ws.session.name, "from": left, "revision": target})
     else:
         print(f"{args.session}: back to revision {target} (plan and data) from revision {left}")
     return EXIT_OK
@@ -417,7 +418,7 @@ def _cmd_redo(args: argparse.Namespace) -> int:
     target = ws.redo(args.reason)
     ws.save()
     if args.json:
-        emit_json({"session": str(args.session), "from": left, "revision": target})
+        emit_json(args, {"session": ws.session.name, "from": left, "revision": target})
     else:
         print(f"{args.session}: forward to revision {target} (plan and data) from revision {left}")
     return EXIT_OK
@@ -426,6 +427,8 @@ def _cmd_redo(args: argparse.Namespace) -> int:
 def _cmd_notify(args: argparse.Namespace) -> int:
     from review_alloc.workspace import Workspace
 
+    if args.target == "-" and args.json:
+        raise UsageError("--json prints the result on standard output; give --to a file")
     ws = Workspace.open(args.session)
     if args.target == "-":
         sys.stdout.write(ws.notify_text(args.since, bom=args.bom))
@@ -435,6 +438,7 @@ def _cmd_notify(args: argparse.Namespace) -> int:
     _, rows = ws.notify_table(args.since)
     if args.json:
         emit_json(
+            args,
             {
                 "session": ws.session.name,
                 "since": args.since,

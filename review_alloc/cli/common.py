@@ -49,9 +49,37 @@ def whole(text: str) -> int:
     return value
 
 
-def emit_json(payload: dict[str, Any]) -> None:
+def write_json(payload: dict[str, Any]) -> None:
     """Print one JSON object on standard output (and nothing else goes there)."""
     sys.stdout.write(json.dumps(payload, indent=2, ensure_ascii=False) + "\n")
+
+
+def session_file(args: argparse.Namespace) -> str | None:
+    """The session file a command reads or writes, as given (None for `demo` and `schema`)."""
+    path = getattr(args, "session", None) or getattr(args, "output", None)
+    return None if path is None else str(path)
+
+
+def emit_json(args: argparse.Namespace, payload: dict[str, Any]) -> None:
+    """Print a command's result as its one JSON object: every command's object starts with
+    `command`, `ok` (true) and `file` (the session file, or null), then its own keys; a
+    session's name is under `session`."""
+    write_json({"command": args.command, "ok": True, "file": session_file(args), **payload})
+
+
+def emit_failure(args: argparse.Namespace | None, command: str | None, code: int,
+                 lines: list[str]) -> None:
+    """The JSON object of a failed command: `ok` false, its exit code and its messages (the
+    same lines go to standard error), so a script reads one object either way."""
+    write_json(
+        {
+            "command": command,
+            "ok": False,
+            "file": session_file(args) if args is not None else None,
+            "exit": code,
+            "errors": lines,
+        }
+    )
 
 
 def add_output_options(parser: argparse.ArgumentParser) -> None:

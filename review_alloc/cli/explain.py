@@ -94,7 +94,7 @@ def _cmd_explain(args: argparse.Namespace) -> int:
     session = ws.session
     report = ws.explain_report()
     if args.json:
-        emit_json(report)
+        emit_json(args, report)
     else:
         print("\n".join(explain_lines(session, report, str(args.session), args.limit)))
     return EXIT_OK
@@ -277,7 +277,7 @@ def _whatif_in(ws: Workspace, changes: ChangeSet, args: argparse.Namespace) -> i
     added = [r.id for r in result.session.reviewers if r.id not in known]
     payload = whatif_payload(result, added=added, accepted=args.accept, revision=revision)
     if args.json:
-        emit_json(payload)
+        emit_json(args, payload)
     else:
         print("\n".join(whatif_lines(original, payload, str(args.session))))
     return EXIT_OK

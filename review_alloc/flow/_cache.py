@@ -19,15 +19,16 @@ def _temp_cache_dir() -> Path:
 
 
 def numba_cache_dir() -> Path:
-    """The folder review-alloc keeps numba's compiled kernels in, following XDG conventions."""
-    base = os.environ.get("XDG_CACHE_HOME")
-    if base:
-        return Path(base) / "review-alloc" / "numba"
-    try:
-        return Path.home() / ".cache" / "review-alloc" / "numba"
-    except RuntimeError:
+    """The folder review-alloc keeps numba's compiled kernels in: the platform's per-user
+    cache folder (platformdirs: `$XDG_CACHE_HOME/review-alloc` or `~/.cache/review-alloc` on
+    Linux, the usual places on macOS and Windows), then `numba`."""
+    from platformdirs import user_cache_path
+
+    folder = user_cache_path("review-alloc", appauthor=False)
+    if not folder.is_absolute():
         # Without a home folder (some service accounts), a per-user temp folder still works.
         return _temp_cache_dir()
+    return folder / "numba"
 
 
 def user_cache_dir() -> str:

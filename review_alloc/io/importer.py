@@ -5,10 +5,12 @@ from __future__ import annotations
 import codecs
 import os
 import re
+from collections.abc import Mapping
 from pathlib import Path
 
 from pydantic import ValidationError
 
+from review_alloc.io.columns import map_problems
 from review_alloc.io.reading import FileProblems
 from review_alloc.io.score_rows import read_scores
 from review_alloc.io.sources import ReadOptions
@@ -31,6 +33,7 @@ def import_csv(
     kind: str = "conference",
     sheet: str | None = None,
     encoding: str | None = None,
+    columns: Mapping[str, Mapping[str, str]] | None = None,
 ) -> Session:
     """Read the CSV files into a session; raises `InputError` listing every problem found.
 
@@ -38,7 +41,8 @@ def import_csv(
     column. Ids in the conflicts and scores files must name papers and reviewers of the other
     two files. Any file may be a workbook (.xlsx, .ods: the first sheet, or `sheet`); a CSV
     file may use `,` `;` or tab and be UTF-8 or UTF-16 with a BOM, or in `encoding`.
-    Nothing is written.
+    `columns` maps our fields to other names the files use (`io.columns`); the session keeps
+    it. Nothing is written.
     """
     if kind not in _KINDS:
         raise InputError([f"kind: {kind!r} is not one of {', '.join(_KINDS)}"])
@@ -50,7 +54,13 @@ def import_csv(
                 [f"encoding: unknown encoding {encoding!r} (try utf-8, cp1252 or latin-1)"]
             ) from None
     policy = policy if policy is not None else Policy()
-    options = ReadOptions(ignore_extra=ignore_extra, sheet=sheet, encoding=encoding)
+    mapping = {kind: dict(fields) for kind, fields in (columns or {}).items() if fields}
+    problems = map_problems(mapping)
+    if problems:
+        raise InputError(problems)
+    options = ReadOptions(
+        ignore_extra=ignore_extra, sheet=sheet, encoding=encoding, columns=mapping
+    )
     paper_problems = FileProblems(str(papers))
     reviewer_problems = FileProblems(str(reviewers))
     conflict_problems = FileProblems(str(conflicts)) if conflicts is not None else None
@@ -94,6 +104,7 @@ def import_csv(
             reviewers=reviewer_rows.items,
             conflicts=conflict_rows.items if conflict_rows else [],
             scores=table,
+            import_columns=mapping,
         )
     except ValidationError as error:
         raise InputError(_session_lines(error, sources)) from None

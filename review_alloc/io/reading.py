@@ -21,7 +21,7 @@ import csv
 import math
 import os
 import re
-from collections.abc import Iterator
+from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -52,6 +52,19 @@ class CellError(ValueError):
     """A cell that cannot be read; the message says why, without file or line."""
 
 
+_REPEAT_LINES_SHOWN = 5
+"""How many line numbers a cause reported once lists before saying how many more."""
+
+
+@dataclass
+class _Repeat:
+    """One cause reported once: where its message is kept (None: beyond the limit) and every
+    line it was found on."""
+
+    index: int | None
+    lines: list[int]
+
+
 @dataclass
 class FileProblems:
     """The problems found in one file: the first few messages and a count of all of them."""
@@ -66,6 +79,20 @@ class FileProblems:
     """The workbook sheet being read (None for CSV): places then say sheet, row and letter."""
     letters: dict[str, str] = field(default_factory=dict)
     """The column letter of each known column of a workbook sheet."""
+    repeats: dict[tuple[str | None, str], _Repeat] = field(default_factory=dict)
+    """Causes that may recur on many rows (an unknown id), each reported once."""
+
+    def add_once(self, cause: str, message: str, line: int, column: str | None) -> None:
+        """Record a problem whose one cause may recur on many rows (a misspelt or duplicated
+        id): the first row gives the message, later rows only add to its count, so one cause
+        does not push other problems out of the lines shown."""
+        seen = self.repeats.get((column, cause))
+        if seen is not None:
+            seen.lines.append(line)
+            return
+        at = len(self.kept) if len(self.kept) < self.limit else None
+        self.add(message, line=line, column=column)
+        self.repeats[(column, cause)] = _Repeat(at, [line])
 
     def add(self, message: str, line: int | None = None, column: str | None = None) -> None:
         """Record a problem at a line or row (and column) of this file."""
@@ -86,11 +113,19 @@ class FileProblems:
 
     def lines(self) -> list[str]:
         """The kept messages, then `... and N more errors in <file>` when some were left out."""
+        kept = list(self.kept)
+        unit = "line" if self.sheet is None else "row"
+        for seen in self.repeats.values():
+            n = len(seen.lines)
+            if seen.index is not None and n > 1:
+                shown = ", ".join(str(x) for x in seen.lines[:_REPEAT_LINES_SHOWN])
+                more = f" and {n - _REPEAT_LINES_SHOWN} more" if n > _REPEAT_LINES_SHOWN else ""
+                kept[seen.index] += f" (on {n} rows: {unit}s {shown}{more})"
         rest = self.count - len(self.kept)
         if rest <= 0:
-            return list(self.kept)
+            return kept
         noun = "error" if rest == 1 else "errors"
-        return [*self.kept, f"... and {rest} more {noun} in {self.source}"]
+        return [*kept, f"... and {rest} more {noun} in {self.source}"]
 
     def __bool__(self) -> bool:
         return self.count > 0
@@ -162,7 +197,8 @@ def open_source(
     if text is None:
         problems.add(why, line=line)
         return None
-    return Source(text=text, separator=sniff_separator(text, frozenset(spec.columns)))
+    theirs = {column.strip().lower() for column in options.columns.get(spec.kind, {}).values()}
+    return Source(text=text, separator=sniff_separator(text, frozenset(spec.columns) | theirs))
 
 
 def records(source: Source, problems: FileProblems) -> Iterator[tuple[int, list[str]]]:
@@ -211,12 +247,29 @@ def read_header(
     problems: FileProblems,
     line: int = 1,
     separator: str | None = ",",
+    columns: Mapping[str, str] | None = None,
 ) -> Header | None:
     """Match the header row against the spec; None (with messages) when it cannot be used.
 
     `separator` is the CSV file's (named in the messages); None reads a workbook sheet's
-    header, whose empty cells are columns that must stay empty rather than errors."""
+    header, whose empty cells are columns that must stay empty rather than errors. `columns`
+    maps our fields to the file's own column names (another system's export)."""
     names = [cell.strip().lower() for cell in row]
+    if columns:
+        theirs = {column.strip().lower(): name for name, column in columns.items()}
+        absent = [
+            f"{name}={column!r}"
+            for name, column in columns.items()
+            if column.strip().lower() not in names
+        ]
+        if absent:
+            problems.add(
+                f"the column mapping names columns this file does not have "
+                f"({', '.join(absent)}); its header has {', '.join(map(repr, row))}",
+                line=line,
+            )
+            return None
+        names = [theirs.get(name, name) for name in names]
     known = set(spec.columns)
     split = "" if separator is None else f" (separator {separator_name(separator)})"
     if not any(name in known for name in names):
@@ -355,7 +408,15 @@ def open_table(
     for line, row in rows:
         if is_blank(row):
             continue
-        header = read_header(row, spec, options.ignore_extra, problems, line, separator)
+        header = read_header(
+            row,
+            spec,
+            options.ignore_extra,
+            problems,
+            line,
+            separator,
+            columns=options.columns.get(spec.kind, {}),
+        )
         return (header, rows, source) if header is not None else None
     if not problems:
         what = "the sheet" if source.is_workbook else "the file"

@@ -143,7 +143,7 @@ def _diagnose(
                 problems.add(f"empty; every row needs a {noun} id", line=line, column=column)
                 good = False
             elif index is not None and key not in index:
-                problems.add(f"unknown {noun} {key!r}", line=line, column=column)
+                problems.add_once(key, f"unknown {noun} {key!r}", line, column)
                 good = False
         try:
             value = score(header.cell(row, "score"), source.decimal_comma)

@@ -19,8 +19,8 @@ import csv
 import datetime
 import io
 import os
-from collections.abc import Iterator
-from dataclasses import dataclass
+from collections.abc import Iterator, Mapping
+from dataclasses import dataclass, field
 from pathlib import Path
 
 from review_alloc.model.text import nfc
@@ -40,6 +40,8 @@ class ReadOptions:
     """The sheet of a workbook to read (None: the first)."""
     encoding: str | None = None
     """The text encoding of a CSV file that is neither UTF-8 nor UTF-16 with a BOM."""
+    columns: Mapping[str, Mapping[str, str]] = field(default_factory=dict)
+    """Kind of file -> our field -> the file's own name for that column (`io.columns`)."""
 
 
 def separator_name(separator: str) -> str:

@@ -224,7 +224,9 @@ def _known(row: _Row, column: str, noun: str, index: dict[str, int] | None) -> s
         row.fail(column, f"empty; every row needs a {noun} id")
         return None
     if index is not None and key not in index:
-        row.fail(column, f"unknown {noun} {key!r}")
+        # Reported once with its count of rows: a misspelt id recurs on every row it has.
+        row.problems.add_once(key, f"unknown {noun} {key!r}", row.line, column)
+        row.good = False
         return None
     return key
 

@@ -80,6 +80,9 @@ class Session(DocumentModel):
     """Every plan made, oldest first (see `model.history`); files from before history load empty."""
     revision: int | None = None
     """Number of the revision the current plan and data came from (None: not from history)."""
+    import_columns: dict[str, dict[str, str]] = Field(default_factory=dict)
+    """The import's column mapping (kind of file -> our field -> the file's own column name;
+    see `io.columns`), kept so that a re-import of newer files needs no retyping."""
 
     _indexes: _IndexCache = PrivateAttr(default_factory=_IndexCache)
 

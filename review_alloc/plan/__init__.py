@@ -1,15 +1,44 @@
-"""Planning: session → network, solve, decode, check, and what the plan means."""
+"""Planning: session → network, solve, decode, check, and what the plan means.
 
-from review_alloc.plan.checker import check_plan
-from review_alloc.plan.conflicts import ConflictSet, conflict_pairs
-from review_alloc.plan.errors import PlanCheckError, PlanInputError
-from review_alloc.plan.network import PlanNetwork, build_network
-from review_alloc.plan.report import Gap, LoadIssue, find_gaps, load_issues, plan_summary
-from review_alloc.plan.solve import PlanOutcome, make_plan
-from review_alloc.plan.weights import SCORE_RESOLUTION
+Importing this package has no side effects: the public names below load their modules on first
+use (PEP 562), so a command that only reads a session (history, diff, export) does not import
+the solver (numba) or scipy.
+"""
+
+from __future__ import annotations
+
+from importlib import import_module
+from typing import TYPE_CHECKING, Any
+
+if TYPE_CHECKING:
+    from review_alloc.plan.checker import check_plan
+    from review_alloc.plan.conflicts import ConflictSet, conflict_pairs
+    from review_alloc.plan.errors import PlanCheckError, PlanInputError
+    from review_alloc.plan.network import PlanNetwork, build_network
+    from review_alloc.plan.report import Gap, LoadIssue, find_gaps, load_issues, plan_summary
+    from review_alloc.plan.solve import PlanOutcome, make_plan
+    from review_alloc.plan.weights import SCORE_RESOLUTION
+
+_HOMES = {
+    "SCORE_RESOLUTION": "weights",
+    "ConflictSet": "conflicts",
+    "Gap": "report",
+    "LoadIssue": "report",
+    "PlanCheckError": "errors",
+    "PlanInputError": "errors",
+    "PlanNetwork": "network",
+    "PlanOutcome": "solve",
+    "build_network": "network",
+    "check_plan": "checker",
+    "conflict_pairs": "conflicts",
+    "find_gaps": "report",
+    "load_issues": "report",
+    "make_plan": "solve",
+    "plan_summary": "report",
+}
+"""The module each public name lives in."""
 
 __all__ = [
-    "SCORE_RESOLUTION",
     "ConflictSet",
     "Gap",
     "LoadIssue",
@@ -17,6 +46,7 @@ __all__ = [
     "PlanInputError",
     "PlanNetwork",
     "PlanOutcome",
+    "SCORE_RESOLUTION",
     "build_network",
     "check_plan",
     "conflict_pairs",
@@ -25,3 +55,19 @@ __all__ = [
     "make_plan",
     "plan_summary",
 ]
+
+
+def __getattr__(name: str) -> Any:
+    """Load a public name from its module on first access (PEP 562)."""
+    home = _HOMES.get(name)
+    if home is None:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    value = getattr(import_module(f"{__name__}.{home}"), name)
+    # Later lookups find the name directly and no longer come through here.
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    """The module's names, public ones included before they are first loaded."""
+    return sorted(set(globals()) | set(__all__))

@@ -21,7 +21,6 @@ from enum import StrEnum
 from functools import cached_property
 
 import numpy as np
-from scipy.sparse import csr_matrix
 
 from review_alloc.model import PairRule, Session
 from review_alloc.plan.conflicts import ConflictSet, conflict_pairs
@@ -31,6 +30,9 @@ from review_alloc.plan.institutions import reviewer_institutions
 from review_alloc.plan.overload import overload_allowances
 from review_alloc.plan.pairkeys import contains, key_order, pair_keys, positions_in
 from review_alloc.plan.seniors import paper_senior_need
+
+_TOPIC_SLICE = 2_000_000
+"""Pairs whose shared topic is looked up at once (a few arrays of this times the topics)."""
 
 MAX_CANDIDATE_PAIRS = 60_000_000
 """Above this many candidate pairs the network would not fit the memory budget."""
@@ -131,7 +133,7 @@ _DEPENDS: dict[str, tuple[str, ...]] = {
     "_conflict_keys": ("papers", "reviewers", "conflicts", "policy"),
     "_scores": ("papers", "scores"),
     "_topic_sets": ("papers", "reviewers"),
-    "_topic_matrices": ("papers", "reviewers"),
+    "_topic_index": ("papers", "reviewers"),
     "_blocked": ("papers", "reviewers", "blocks"),
     "_pinned": ("papers", "reviewers", "pins"),
     "_withdrawn": ("papers", "reviewers"),
@@ -203,20 +205,19 @@ class PairRules:
         )
 
     @cached_property
-    def _topic_matrices(self) -> tuple[csr_matrix, csr_matrix]:
-        """Reviewer × topic and paper × topic incidence, over one vocabulary."""
+    def _topic_index(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
+        """Over one topic vocabulary: the sorted reviewer-topic keys (reviewer * width +
+        topic), each paper's topic ids in CSR form (starts, ids), and the width."""
         vocab: dict[str, int] = {}
-        out = []
-        for sets in self._topic_sets:
-            rows = [k for k, topics in enumerate(sets) for _ in topics]
-            cols = [vocab.setdefault(t, len(vocab)) for topics in sets for t in topics]
-            out.append((rows, cols, len(sets)))
+        reviewer_sets, paper_sets = self._topic_sets
+        rows = [j for j, topics in enumerate(reviewer_sets) for _ in topics]
+        cols = [vocab.setdefault(t, len(vocab)) for topics in reviewer_sets for t in topics]
+        ids = [vocab.setdefault(t, len(vocab)) for topics in paper_sets for t in topics]
         width = max(len(vocab), 1)
-        r, p = (
-            csr_matrix((np.ones(len(rows), dtype=np.int32), (rows, cols)), shape=(n, width))
-            for rows, cols, n in out
-        )
-        return r, p
+        keys = np.sort(np.asarray(rows, dtype=np.int64) * width + np.asarray(cols, dtype=np.int64))
+        starts = np.zeros(len(paper_sets) + 1, dtype=np.int64)
+        starts[1:] = np.cumsum([len(topics) for topics in paper_sets])
+        return keys, starts, np.asarray(ids, dtype=np.int64), width
 
     @cached_property
     def _blocked(self) -> tuple[set[tuple[int, int]], np.ndarray]:
@@ -283,12 +284,30 @@ class PairRules:
         return found, np.where(found, values[at] if len(keys) else 0.0, 0.0)
 
     def shared_topic(self, reviewer: np.ndarray, paper: np.ndarray) -> np.ndarray:
-        """Per pair of index arrays: do reviewer and paper share a topic (case, spaces folded)?"""
-        if len(reviewer) == 0:
-            return np.zeros(0, dtype=bool)
-        rt, pt = self._topic_matrices
-        both = rt[np.asarray(reviewer)].multiply(pt[np.asarray(paper)])
-        return np.asarray(both.sum(axis=1)).ravel() > 0
+        """Per pair of index arrays: do reviewer and paper share a topic (case, spaces folded)?
+
+        Each pair is expanded into the paper's topics and each (reviewer, topic) looked up
+        among the reviewers' sorted keys: plain numpy, so that re-checking a stored plan when
+        a session opens needs no scipy. Pairs go in slices to bound the memory."""
+        out = np.zeros(len(reviewer), dtype=bool)
+        keys, starts, ids, width = self._topic_index
+        if len(reviewer) == 0 or len(keys) == 0 or len(ids) == 0:
+            return out
+        r_all = np.asarray(reviewer, dtype=np.int64)
+        p_all = np.asarray(paper, dtype=np.int64)
+        for lo in range(0, len(r_all), _TOPIC_SLICE):
+            r, p = r_all[lo : lo + _TOPIC_SLICE], p_all[lo : lo + _TOPIC_SLICE]
+            first = starts[p]
+            counts = starts[p + 1] - first
+            total = int(counts.sum())
+            if total == 0:
+                continue
+            owner = np.repeat(np.arange(len(r)), counts)
+            within = np.arange(total) - np.repeat(np.cumsum(counts) - counts, counts)
+            topic = ids[np.repeat(first, counts) + within]
+            found, _ = positions_in(r[owner] * width + topic, keys)
+            out[lo + owner[found]] = True
+        return out
 
     # -- candidates and eligible pairs (the builder's view) ---------------------------------
 

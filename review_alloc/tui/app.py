@@ -870,7 +870,7 @@ class ReviewAllocApp(App[None]):
                 severity="warning",
             )
             return
-        self.push_screen(ImportForm(self._open_imported))
+        self.push_screen(ImportForm(self._open_imported, self.workspace.session.import_columns))
 
     def _open_imported(self, files: ImportFiles) -> list[str]:
         """Import through the Workspace and show the new session; problems stay in the form."""
@@ -882,6 +882,7 @@ class ReviewAllocApp(App[None]):
                 files.conflicts,
                 files.scores,
                 kind="panel" if files.panel else "conference",
+                columns=files.columns,
             )
         except InputError as error:
             return list(error.lines)

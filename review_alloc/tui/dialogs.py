@@ -1,9 +1,10 @@
-"""Small modal forms: confirm, change two limits, declare a conflict, import CSV, help."""
+"""Small modal forms: confirm, change two limits, declare a conflict, import CSV (with the
+files' own column names mapped to ours), help."""
 
 from __future__ import annotations
 
-from collections.abc import Callable
-from dataclasses import dataclass
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field
 from pathlib import Path
 
 from rich.text import Text
@@ -12,7 +13,13 @@ from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.screen import ModalScreen
-from textual.widgets import Button, Checkbox, Input, Label, Static
+from textual.widgets import Button, Checkbox, Input, Label, Select, Static
+
+from review_alloc.model import InputError
+from review_alloc.workspace import Workspace
+
+ColumnMap = dict[str, dict[str, str]]
+"""Kind of file -> our field -> the file's own column name (see `io.columns`)."""
 
 
 class Confirm(ModalScreen[bool]):
@@ -159,6 +166,118 @@ class ImportFiles:
     scores: Path | None
     target: Path
     panel: bool
+    columns: ColumnMap = field(default_factory=dict)
+    """The files' own column names for our fields, chosen in `ColumnsForm`."""
+
+
+_FILE_KINDS = ("papers", "reviewers", "conflicts", "scores")
+
+
+def columns_said(columns: Mapping[str, Mapping[str, str]]) -> str:
+    """The mapping in one line, as the import form shows it."""
+    if not any(columns.values()):
+        return "columns: the files' own names (ctrl+o or Columns…: map other names to ours)"
+    mapped = ", ".join(
+        f"{kind}.{name} from {column!r}"
+        for kind, fields in columns.items()
+        for name, column in fields.items()
+    )
+    return f"columns: {mapped}"
+
+
+class ColumnsForm(ModalScreen["ColumnMap | None"]):
+    """Each file's header, one column per line, with our field chosen for it (or none).
+
+    A column already named as ours starts on that field; one the mapping names starts on its
+    field; the others start on "not ours". Only the columns whose name differs from the field
+    chosen go into the mapping.
+    """
+
+    DEFAULT_CSS = """
+    ColumnsForm .column-row { height: 1; }
+    ColumnsForm .column-row Label { width: 24; padding: 0 1 0 0; }
+    ColumnsForm .column-row Select { width: 1fr; }
+    """
+    BINDINGS = [Binding("escape", "cancel", "Cancel")]
+
+    def __init__(
+        self,
+        headers: dict[str, list[str]],
+        fields: dict[str, tuple[str, ...]],
+        current: Mapping[str, Mapping[str, str]],
+    ) -> None:
+        super().__init__()
+        self.headers, self.fields, self.current = headers, fields, current
+
+    def _start(self, kind: str, column: str) -> str | None:
+        folded = column.strip().lower()
+        for name, theirs in self.current.get(kind, {}).items():
+            if theirs.strip().lower() == folded:
+                return name
+        return folded if folded in self.fields[kind] else None
+
+    def compose(self) -> ComposeResult:
+        """Per file, its columns and a choice of our fields beside each."""
+        with DialogScroll(classes="dialog form"):
+            yield Static(Text("Which of our fields is each column?", style="bold"))
+            yield Static(Text("tab moves, enter opens a choice; escape cancels", style="dim"))
+            for kind, header in self.headers.items():
+                yield Static(Text(f"{kind} file", style="bold underline"))
+                options = [(name, name) for name in self.fields[kind]]
+                for k, column in enumerate(header):
+                    start = self._start(kind, column)
+                    with Horizontal(classes="column-row"):
+                        yield Label(column or f"(column {k + 1}, no name)")
+                        ident = f"map-{kind}-{k}"
+                        if start is None:
+                            yield Select(options, prompt="not one of ours", compact=True, id=ident)
+                        else:
+                            yield Select(
+                                options,
+                                prompt="not one of ours",
+                                value=start,
+                                compact=True,
+                                id=ident,
+                            )
+            yield Static("", classes="problems")
+            with Horizontal(classes="buttons"):
+                yield Button("OK", variant="primary", id="ok")
+                yield Button("Cancel", id="cancel")
+
+    def chosen(self) -> tuple[ColumnMap, list[str]]:
+        """The mapping chosen, and what is wrong with it (a field chosen for two columns)."""
+        mapping: ColumnMap = {}
+        problems: list[str] = []
+        for kind, header in self.headers.items():
+            taken: dict[str, str] = {}
+            for k, column in enumerate(header):
+                name = self.query_one(f"#map-{kind}-{k}", Select).value
+                if not isinstance(name, str):
+                    continue
+                if name in taken:
+                    problems.append(
+                        f"{kind}: {name} is chosen for both {taken[name]!r} and {column!r}"
+                    )
+                taken[name] = column
+                if column.strip().lower() != name:
+                    mapping.setdefault(kind, {})[name] = column.strip()
+        return mapping, problems
+
+    @on(Button.Pressed, "#ok")
+    def _ok(self) -> None:
+        mapping, problems = self.chosen()
+        if problems:
+            self.query_one(".problems", Static).update(Text("\n".join(problems), style="red"))
+        else:
+            self.dismiss(mapping)
+
+    @on(Button.Pressed, "#cancel")
+    def _cancel_button(self) -> None:
+        self.dismiss(None)
+
+    def action_cancel(self) -> None:
+        """Close, keeping the mapping as it was."""
+        self.dismiss(None)
 
 
 def panel_label(panel: bool) -> str:
@@ -169,9 +288,19 @@ def panel_label(panel: bool) -> str:
 
 
 class ImportForm(Form):
-    """Build a session from CSV files, with the same row-level errors as the command line."""
+    """Build a session from CSV files, with the same row-level errors as the command line.
 
-    def __init__(self, importer: Callable[[ImportFiles], list[str]]) -> None:
+    "Columns" reads each file's header and lets the chair choose our field for each column;
+    the mapping starts from the open session's, so newer files from the same system need no
+    mapping again."""
+
+    BINDINGS = [Binding("ctrl+o", "columns", "Columns")]
+
+    def __init__(
+        self,
+        importer: Callable[[ImportFiles], list[str]],
+        columns: Mapping[str, Mapping[str, str]] | None = None,
+    ) -> None:
         fields = [
             Field("papers", "papers CSV (paper_id,title,topics,reviews,min_reviews)"),
             Field("reviewers", "reviewers CSV (reviewer_id,name,email,institution,...)"),
@@ -181,13 +310,50 @@ class ImportForm(Form):
         ]
         super().__init__("Import a session from CSV files", fields, self._import)
         self.importer = importer
+        self.columns: ColumnMap = {k: dict(v) for k, v in (columns or {}).items() if v}
 
     def on_mount(self) -> None:
-        """Add the panel switch above the problems line."""
-        self.query_one(".dialog", DialogScroll).mount(
-            Checkbox(panel_label(False), id="panel"),
-            before=self.query_one(".problems", Static),
+        """Add the panel switch and the column mapping above the problems line, and the
+        columns button after OK and Cancel."""
+        problems = self.query_one(".problems", Static)
+        body = self.query_one(".dialog", DialogScroll)
+        body.mount(Checkbox(panel_label(False), id="panel"), before=problems)
+        body.mount(Static(self._columns_text(), id="columns-said"), before=problems)
+        self.query_one(".buttons", Horizontal).mount(Button("Columns…", id="columns"))
+
+    def _columns_text(self) -> Text:
+        return Text(columns_said(self.columns))
+
+    @on(Button.Pressed, "#columns")
+    def _columns_button(self) -> None:
+        self.action_columns()
+
+    def action_columns(self) -> None:
+        """Read the header of every file given and open the column choice."""
+        values = self.values()
+        headers: dict[str, list[str]] = {}
+        problems: list[str] = []
+        for kind in _FILE_KINDS:
+            if values[kind]:
+                try:
+                    headers[kind] = Workspace.file_header(Path(values[kind]).expanduser(), kind)
+                except InputError as error:
+                    problems += error.lines
+        if not headers and not problems:
+            problems.append("give the files first: their headers are what you map")
+        if problems:
+            self.query_one(".problems", Static).update(Text("\n".join(problems), style="red"))
+            return
+        self.query_one(".problems", Static).update("")
+        self.app.push_screen(
+            ColumnsForm(headers, Workspace.import_fields(), self.columns), self._mapped
         )
+
+    def _mapped(self, mapping: ColumnMap | None) -> None:
+        if mapping is None:
+            return
+        self.columns = mapping
+        self.query_one("#columns-said", Static).update(self._columns_text())
 
     @on(Checkbox.Changed, "#panel")
     def _panel_changed(self, event: Checkbox.Changed) -> None:
@@ -204,6 +370,7 @@ class ImportForm(Form):
                 scores=Path(values["scores"]).expanduser() if values["scores"] else None,
                 target=Path(values["target"]).expanduser(),
                 panel=self.query_one("#panel", Checkbox).value,
+                columns=self.columns,
             )
         )
 

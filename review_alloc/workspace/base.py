@@ -12,16 +12,18 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
-from typing import Any, TypeVar
+from typing import TYPE_CHECKING, Any, TypeVar
 
 import numpy as np
 from pydantic import ValidationError
 
 from review_alloc.model import Action, Event, InputError, Paper, Plan, Reviewer, Session
 from review_alloc.model.history import SessionData, rebase_root_scores
-from review_alloc.plan import PlanOutcome
 from review_alloc.plan.figures import assignment_indices, plan_figures
 from review_alloc.plan.rules import PairRules
+
+if TYPE_CHECKING:
+    from review_alloc.plan.solve import PlanOutcome
 
 MARKS = ("plan", "undo", "redo")
 """Events after which the plan and the data agree again."""

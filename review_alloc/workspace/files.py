@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import os
 import re
-from collections.abc import Iterator
+from collections.abc import Iterator, Mapping
 from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING, Literal, Self
@@ -96,9 +96,11 @@ def file_identity(path: Path) -> tuple[int, int, int] | None:
 
 
 def data_folder() -> Path:
-    """The per-user data folder: `$XDG_DATA_HOME/review-alloc`, else `~/.local/share/...`."""
-    base = os.environ.get("XDG_DATA_HOME") or str(Path.home() / ".local" / "share")
-    return Path(base) / "review-alloc"
+    """The per-user data folder, from platformdirs: `$XDG_DATA_HOME/review-alloc`, else
+    `~/.local/share/review-alloc` on Linux; the usual places on macOS and Windows."""
+    from platformdirs import user_data_path
+
+    return user_data_path("review-alloc", appauthor=False)
 
 
 def demo_session_path() -> Path:
@@ -169,10 +171,12 @@ class FilesMixin(WorkspaceBase):
         replace: bool = False,
         sheet: str | None = None,
         encoding: str | None = None,
+        columns: Mapping[str, Mapping[str, str]] | None = None,
     ) -> Self:
         """Build a session from CSV files or workbooks and save it to `target` (refused if it
         exists unless `replace`); every problem names its file, line (or sheet, row) and
-        column, and nothing is written."""
+        column, and nothing is written. `columns` maps our fields to the files' own column
+        names (kind of file -> field -> column) and is kept in the session."""
         from review_alloc.io import import_csv
 
         if target.exists() and not replace:
@@ -188,10 +192,35 @@ class FilesMixin(WorkspaceBase):
             kind=kind,
             sheet=sheet,
             encoding=encoding,
+            columns=columns,
         )
         workspace = cls(session, None)
         workspace.save(target, replace=replace)
         return workspace
+
+    @staticmethod
+    def import_fields() -> dict[str, tuple[str, ...]]:
+        """Our fields per kind of input file, required first (what a column mapping picks)."""
+        from review_alloc.io.columns import import_fields
+
+        return import_fields()
+
+    @staticmethod
+    def column_map(
+        items: list[str], base: Mapping[str, Mapping[str, str]] | None = None
+    ) -> dict[str, dict[str, str]]:
+        """`KIND.FIELD=COLUMN` items laid over a stored mapping, checked (`InputError`)."""
+        from review_alloc.io.columns import column_map
+
+        return column_map(items, base)
+
+    @staticmethod
+    def file_header(path: Path, kind: str, *, sheet: str | None = None) -> list[str]:
+        """The column names of an input file's header row, as written (for choosing a
+        mapping); an `InputError` names the file when it cannot be read."""
+        from review_alloc.io.columns import header_names
+
+        return header_names(path, kind, sheet=sheet)
 
     def save(self, path: Path | None = None, *, replace: bool = False) -> Path:
         """Write the session atomically to `path` (or where it came from) and clear the mark.

@@ -11,18 +11,22 @@ from __future__ import annotations
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field, replace
 from datetime import datetime
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from review_alloc.model import Action, Plan, Session
 from review_alloc.model.history import DataDelta, Revision, assignment_table
-from review_alloc.plan import PlanOutcome, make_plan, plan_summary
-from review_alloc.plan.explanation import FIX_KINDS, Explanation, explain, report
-from review_alloc.plan.fair import fair_plan, fairness_report
-from review_alloc.plan.randomized import draw_report, random_plan
-from review_alloc.plan.whatif import WhatIf, add_recruits, allow_overload, raise_caps, what_if
+from review_alloc.plan.report import plan_summary
 from review_alloc.workspace.base import MARKS, ChangeRefused, data_of, redoable, same_data
 from review_alloc.workspace.changes import ChangesMixin
 from review_alloc.workspace.history import HistoryMixin
+
+if TYPE_CHECKING:
+    from review_alloc.plan.explanation import Explanation
+    from review_alloc.plan.solve import PlanOutcome
+    from review_alloc.plan.whatif import WhatIf
+
+# The planner's solving modules (numba, scipy) are imported inside the services that solve:
+# a command that only reads a session (history, diff, export, notify) must start without them.
 
 
 def prepare_solver(say: Callable[[str], None] | None = None) -> None:
@@ -56,6 +60,10 @@ class PlanRequest:
 
         A randomised or fair plan also makes the plain plan, which its figures are set beside.
         """
+        from review_alloc.plan.fair import fair_plan
+        from review_alloc.plan.randomized import random_plan
+        from review_alloc.plan.solve import make_plan
+
         if self.max_probability is None and not self.fair:
             return make_plan(
                 self.session, fresh=self.fresh, earlier=self.earlier, now=now, warm=self.warm
@@ -251,12 +259,16 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
             summary["revision"] = revision.number
             summary["kept"] = revision.kept
         if plan.draw is not None:
+            from review_alloc.plan.randomized import draw_report
+
             summary["randomised"] = draw_report(self.session, plan)
             summary["optimality"]["claim"] = (
                 "a random draw: its expected figures are the capped optimum; the draw itself is "
                 "not optimal"
             )
         if plan.fairness is not None:
+            from review_alloc.plan.fair import fairness_report
+
             summary["fairness"] = fairness_report(plan)
             summary["optimality"]["claim"] = (
                 "the fairest plan (lowest paper total proven optimal)"
@@ -270,6 +282,8 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
 
     def explain(self, session: Session | None = None) -> Explanation:
         """Shortfall groups and fixes of the session (or of a snapshot of it, in a thread)."""
+        from review_alloc.plan.explanation import explain
+
         return explain(session if session is not None else self.session)
 
     def explain_report(self) -> dict[str, object]:
@@ -278,6 +292,8 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
         Plans first, on a snapshot, when the stored plan is missing, stale or unchecked;
         nothing is recorded.
         """
+        from review_alloc.plan.explanation import report
+
         plan = self.current_plan()
         return report(self.explain(), plan)
 
@@ -287,6 +303,9 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
         self, changes: ChangeSet, explanation: Explanation | None = None
     ) -> tuple[Session, tuple[str, ...]]:
         """The session changed as asked (a copy; nothing is recorded) and the changes in words."""
+        from review_alloc.plan.explanation import FIX_KINDS, explain
+        from review_alloc.plan.whatif import add_recruits, allow_overload, raise_caps
+
         changed = self.session
         lines: list[str] = []
         for kind in dict.fromkeys(changes.fixes):
@@ -318,6 +337,8 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
         The changed copy is planned as the re-plan that accepting would install, so what the
         preview shows is what the session gets.
         """
+        from review_alloc.plan.whatif import what_if
+
         if changes.is_empty():
             raise ChangeRefused(["a what-if needs at least one change"])
         base = self.session

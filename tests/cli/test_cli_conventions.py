@@ -146,3 +146,88 @@ def test_import_names_the_encoding_option(
     assert "--encoding" in capsys.readouterr().err
     assert main([*args, "--encoding", "cp1252", "-o", str(out)]) == 0
     assert load_session(out).reviewers[0].name == "Léna Morbrand"
+
+
+@pytest.fixture(scope="module")
+def planned(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """A session with two revisions, a withdrawal between them, under the shared-topic rule
+    (which the re-check of the stored plan on open then asks, for every pair)."""
+    from review_alloc.workspace import Workspace
+
+    path = tmp_path_factory.mktemp("planned") / "w.json"
+    save_session(workshop(), path)
+    with Workspace.editing(path) as ws:
+        ws.set_policy({"require_shared_topic": True}, reason="topics")
+        ws.solve()
+        ws.withdraw_reviewer(ws.session.plan.assignments[0].reviewer, "illness")
+        ws.solve()
+        ws.save()
+    return path
+
+
+@pytest.mark.parametrize(
+    "argv",
+    [
+        ["history", "{s}"],
+        ["history", "{s}", "--json"],
+        ["diff", "{s}"],
+        ["diff", "{s}", "1", "2", "--json"],
+        ["export", "{s}", "--to", "{dir}/plan.csv"],
+        ["export", "{s}", "--to", "{dir}/plan.xlsx", "--json"],
+        ["export", "{s}", "--to", "-"],
+        ["notify", "{s}", "--since", "1", "--to", "{dir}/tell.csv", "--json"],
+        ["notify", "{s}", "--since", "1", "--to", "-"],
+    ],
+)
+def test_commands_that_solve_nothing_load_no_solver(
+    planned: Path, tmp_path: Path, argv: list[str]
+) -> None:
+    # Opening the session re-checks its stored plan against the rules; that, too, must run
+    # without numba or scipy (each costs a noticeable part of a second to import).
+    words = [w.format(s=planned, dir=tmp_path) for w in argv]
+    code = (
+        "import sys\n"
+        "from review_alloc.cli import main\n"
+        "code = main(sys.argv[1:])\n"
+        "heavy = sorted(m for m in ('numba', 'scipy', 'textual') if m in sys.modules)\n"
+        "print('LOADED', heavy, file=sys.stderr)\n"
+        "sys.exit(code)\n"
+    )
+    run = _python(code, *words)
+    assert run.returncode == 0, run.stderr
+    assert "LOADED []" in run.stderr
+    assert run.stdout
+
+
+def test_one_misspelt_id_is_reported_once_with_its_count(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # One reviewer id misspelt on all 40 of its score rows, and one real error after them:
+    # the misspelling is one line with its count, and the real error is still shown.
+    sample = ROOT / "sample_sessions" / "workshop-csv"
+    rows = (sample / "scores.csv").read_text(encoding="utf-8").splitlines()
+    misspelt = [r.replace("R0003,", "R0O03,", 1) if r.startswith("R0003,") else r for r in rows]
+    last = len(misspelt) - 1
+    misspelt[last] = misspelt[last].rsplit(",", 1)[0] + ",high"
+    scores = tmp_path / "scores.csv"
+    scores.write_text("\n".join(misspelt) + "\n", encoding="utf-8")
+    conflicts = tmp_path / "conflicts.csv"
+    conflicts.write_text(
+        "reviewer_id,paper_id,reason\nR9999,W0001,advisor\nR9999,W0002,advisor\n",
+        encoding="utf-8",
+    )
+    out = tmp_path / "s.json"
+    args = ["import", "--papers", str(sample / "papers.csv")]
+    args += ["--reviewers", str(sample / "reviewers.csv"), "--scores", str(scores)]
+    assert main([*args, "--conflicts", str(conflicts), "-o", str(out)]) == 1
+    err = capsys.readouterr().err.splitlines()
+    first = 2 + next(k for k, r in enumerate(misspelt[1:]) if r.startswith("R0O03,"))
+    assert err == [
+        f"error: {conflicts}: line 2: column 'reviewer_id': unknown reviewer 'R9999' "
+        "(on 2 rows: lines 2, 3)",
+        f"error: {scores}: line {first}: column 'reviewer_id': unknown reviewer 'R0O03' "
+        f"(on 40 rows: lines {first}, {first + 1}, {first + 2}, {first + 3}, {first + 4} "
+        "and 35 more)",
+        f"error: {scores}: line {last + 1}: column 'score': 'high' is not a number >= 0",
+    ]
+    assert not out.exists()

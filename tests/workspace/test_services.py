@@ -14,9 +14,9 @@ import pytest
 from review_alloc.cli import main
 from review_alloc.model import Conflict, InputError, load_session, save_session
 from review_alloc.plan import check_plan
+from review_alloc.plan import solve as solve_module
 from review_alloc.samples import workshop
 from review_alloc.workspace import ChangeRefused, ChangeSet, FileChanged, Workspace
-from review_alloc.workspace import planning as planning_module
 from tests.plan.test_explain_groups import topic_session
 
 SCARCE = "quantum sensing"
@@ -127,13 +127,14 @@ def test_any_change_marks_the_plan_stale_even_when_no_pair_leaves() -> None:
 
 def test_every_plan_after_the_first_starts_warm(monkeypatch: pytest.MonkeyPatch) -> None:
     seen: list[object] = []
-    real = planning_module.make_plan
+    real = solve_module.make_plan
 
     def recording(session, **kwargs):  # type: ignore[no-untyped-def]
         seen.append(kwargs.get("warm"))
         return real(session, **kwargs)
 
-    monkeypatch.setattr(planning_module, "make_plan", recording)
+    # The workspace imports make_plan when it plans, so patching its home is enough.
+    monkeypatch.setattr(solve_module, "make_plan", recording)
     ws = Workspace(workshop())
     first = ws.solve()
     ws.withdraw_reviewer(ws.session.plan.assignments[0].reviewer, "illness")
