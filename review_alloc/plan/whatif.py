@@ -13,6 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from review_alloc.model import Plan, Reviewer, Session
+from review_alloc.plan.diff import PlanDiff, diff_plans
 from review_alloc.plan.errors import PlanInputError
 from review_alloc.plan.fixes import CapRaiseFix, RecruitFix
 from review_alloc.plan.report import Gap, LoadIssue, find_gaps, load_issues
@@ -44,6 +45,24 @@ class WhatIf:
     request: object = None
     """What the caller asked for, in its own terms (the Workspace keeps its change set here,
     so that an accepted what-if can be made again on a newer copy of the file)."""
+    moves: PlanDiff | None = None
+    """The pairs that move from the earlier plan (the one reviewers may have been sent) to the
+    changed copy's plan, by reviewer: whom the chair must tell. None without an earlier plan:
+    nobody has been told anything yet."""
+
+    def to_tell(self) -> tuple[str, ...]:
+        """Reviewers already in the session whose papers change (recruits are new people)."""
+        if self.moves is None:
+            return ()
+        known = {r.id for r in self.base.reviewers} if self.base is not None else None
+        return tuple(r for r in self.moves.by_reviewer if known is None or r in known)
+
+    def recruits(self) -> tuple[str, ...]:
+        """Reviewers the changed copy adds (placeholders until a real person is named)."""
+        if self.base is None:
+            return ()
+        known = {r.id for r in self.base.reviewers}
+        return tuple(r.id for r in self.session.reviewers if r.id not in known)
 
 
 def raise_caps(session: Session, raises: Mapping[str, int], *, label: str = "raise cap") -> Session:
@@ -179,4 +198,5 @@ def what_if(
         outcome=outcome,
         overloads=tuple(over),
         underloads=tuple(under),
+        moves=diff_plans(earlier, outcome.plan) if earlier is not None else None,
     )

@@ -7,6 +7,7 @@ is a previous outcome), explain, preview a fix or a what-if, and accept it as on
 The faces format and display; they never save, solve or decide a rule around it.
 """
 
+from review_alloc.plan.fixes import FIX_KEYS, FixMenu, TargetFix
 from review_alloc.workspace.base import ChangeRefused
 from review_alloc.workspace.files import (
     FileChanged,
@@ -25,6 +26,9 @@ class Workspace(FilesMixin, PlanningMixin):
 
 
 __all__ = [
+    "FIX_KEYS",
+    "FixMenu",
+    "TargetFix",
     "ChangeRefused",
     "ChangeSet",
     "FileChanged",
