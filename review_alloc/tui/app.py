@@ -52,6 +52,7 @@ from review_alloc.tui.records import ConflictView, HistoryView
 from review_alloc.workspace import (
     ChangeSet,
     FileChanged,
+    FixMenu,
     PlanRequest,
     Workspace,
     prepare_solver,
@@ -133,6 +134,7 @@ class ReviewAllocApp(App[None]):
         session: Session
         explanation: Explanation | None
         lines: list[str]
+        menu: FixMenu | None = None
 
     @dataclass
     class PreviewReady(Message):
@@ -439,11 +441,12 @@ class ReviewAllocApp(App[None]):
         """Compute the groups and fixes of a session snapshot and post them back."""
         try:
             result = self.workspace.explain(session)
+            menu = self.workspace.fixes(session, result)
         except (InputError, PlanCheckError, OverflowError) as error:
             lines = list(error.lines) if isinstance(error, InputError) else [str(error)]
             self.post_message(self.ExplainReady(session, None, lines))
             return
-        self.post_message(self.ExplainReady(session, result, []))
+        self.post_message(self.ExplainReady(session, result, [], menu))
 
     @on(ExplainReady)
     def _explain_ready(self, message: ExplainReady) -> None:
@@ -454,6 +457,7 @@ class ReviewAllocApp(App[None]):
         if message.explanation is None:
             view.state = "no explanation: " + "; ".join(message.lines[:3])
             return
+        view.menu = message.menu
         view.explanation = message.explanation
         short = message.explanation.shortfall
         stale = message.session is not self.workspace.session
@@ -486,13 +490,15 @@ class ReviewAllocApp(App[None]):
             f"{'accepting' if accept else 'previewing'} the {message.kind} fix… "
             "(planning the session as it is and as changed)"
         )
-        self._preview(explanation, message.kind, accept)
+        self._preview(explanation, view.menu, message.kind, accept)
 
     @work(thread=True, exclusive=True, group="whatif", exit_on_error=False)
-    def _preview(self, explanation: Explanation, kind: str, accept: bool) -> None:
+    def _preview(
+        self, explanation: Explanation, menu: FixMenu | None, kind: str, accept: bool
+    ) -> None:
         """Plan the session and its changed copy; the session is never touched here."""
         try:
-            result = self.workspace.what_if(ChangeSet(fixes=(kind,)), explanation)
+            result = self.workspace.what_if(ChangeSet(fixes=(kind,)), explanation, menu=menu)
         except (InputError, PlanCheckError) as error:
             lines = list(error.lines) if isinstance(error, InputError) else [str(error)]
             self.post_message(self.PreviewReady(explanation, None, lines))
