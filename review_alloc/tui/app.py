@@ -48,6 +48,7 @@ from review_alloc.tui.entity_views import EntityView, GapView, PaperView, Review
 from review_alloc.tui.gapfix import ExplainView, PaneHint
 from review_alloc.tui.grid import RowTable
 from review_alloc.tui.overview import Overview
+from review_alloc.tui.planopts import PlanChoice, PlanOptions
 from review_alloc.tui.records import ConflictView, HistoryView
 from review_alloc.workspace import (
     ChangeSet,
@@ -100,6 +101,13 @@ class ReviewAllocApp(App[None]):
         Binding("escape", "cancel_plan", "Cancel plan", show=False),
         Binding("ctrl+s", "save", "Save"),
         Binding("R", "plan(True)", "Plan fresh", show=False),
+        Binding(
+            "o",
+            "plan_options",
+            "Plan options",
+            show=False,
+            tooltip="Plan randomised (probability cap, seed) or fairest, or optimal again",
+        ),
         Binding("ctrl+z", "undo", "Undo"),
         Binding("ctrl+y", "redo", "Redo", show=False),
         Binding("i", "import", "Import CSV", show=False),
@@ -313,11 +321,56 @@ class ReviewAllocApp(App[None]):
         """Whether a plan is being made right now."""
         return self._planning_since is not None
 
-    def action_plan(self, fresh: bool = False) -> None:
+    def action_plan_options(self) -> None:
+        """Ask which kind of plan to make (optimal, randomised, fairest), then make it."""
+        if self.planning:
+            self.notify("a plan is already being made (escape cancels it)")
+            return
+        plan = self.workspace.session.plan
+        draw = plan.draw if plan is not None else None
+        mode = "optimal"
+        if draw is not None:
+            mode = "randomised"
+        elif plan is not None and plan.fairness is not None:
+            mode = "fairest"
+
+        def chosen(choice: PlanChoice | None) -> None:
+            if choice is not None:
+                self.plan_with(choice)
+
+        self.push_screen(
+            PlanOptions(
+                mode=mode,
+                cap=draw.max_probability if draw is not None else None,
+                seed=draw.seed if draw is not None else None,
+            ),
+            chosen,
+        )
+
+    def plan_with(self, choice: PlanChoice) -> None:
+        """Make the plan the options dialog asked for, in a worker thread."""
+        try:
+            request = self.workspace.plan_request(
+                choice.fresh,
+                max_probability=choice.max_probability,
+                seed=choice.seed,
+                fair=choice.mode == "fairest",
+                plain=choice.mode == "optimal",
+            )
+        except InputError as error:
+            self.notify("\n".join(error.lines), title="No plan", severity="warning")
+            return
+        words = {"randomised": "a randomised plan", "fairest": "the fairest plan"}
+        self.action_plan(choice.fresh, request=request, what=words.get(choice.mode, ""))
+
+    def action_plan(
+        self, fresh: bool = False, *, request: PlanRequest | None = None, what: str = ""
+    ) -> None:
         """Make the optimal plan in a worker thread; the screen stays live.
 
         A re-plan keeps as many pairs of the current revision as coverage and floors allow
-        (so few reviewers have to be told); `fresh` ignores them.
+        (so few reviewers have to be told); `fresh` ignores them. A randomised plan stays
+        randomised (same cap and seed) until the plan options ask for another kind.
         """
         if self.planning:
             self.notify("a plan is already being made (escape cancels it)")
@@ -329,10 +382,13 @@ class ReviewAllocApp(App[None]):
         strip.display = True
         papers = sum(not p.withdrawn for p in snapshot.papers)
         self.query_one("#planning-label", Label).update(
-            f"planning {papers} {self.noun}s exactly... escape cancels "
+            f"planning {papers} {self.noun}s" + (f" ({what})" if what else " exactly")
+            + "... escape cancels "
         )
         # Warm from the last outcome, keeping the current revision's pairs unless fresh.
-        self._solve(self.workspace.plan_request(fresh), self._generation)
+        if request is None:
+            request = self.workspace.plan_request(fresh)
+        self._solve(request, self._generation)
 
     @work(thread=True, exclusive=True, group="plan", exit_on_error=False)
     def _solve(self, request: PlanRequest, generation: int) -> None:
@@ -392,9 +448,21 @@ class ReviewAllocApp(App[None]):
                 f"against revision {entry.parent}: +{len(d.added)} / -{len(d.removed)} pairs, "
                 f"{d.kept} kept, {len(d.by_reviewer)} reviewer(s) to tell"
             )
+        plan = message.outcome.plan
+        kind = ""
+        if plan.draw is not None:
+            kind = (
+                f"\nrandomised: each pair at most {plan.draw.max_probability:g}, seed "
+                f"{plan.draw.seed}; the Overview compares it with the optimal plan"
+            )
+        elif plan.fairness is not None:
+            kind = (
+                f"\nfairest: lowest {self.noun} total {plan.fairness.lowest_paper_score:.2f}; "
+                "the Overview compares it with the optimal plan"
+            )
         self.notify(
             f"revision {number}: {f.coverage}/{f.demand} reviews, score {f.total_score:.2f} "
-            f"({monotonic() - started:.1f} s)\n{change}\nHistory (6) shows who changed.",
+            f"({monotonic() - started:.1f} s)\n{change}{kind}\nHistory (6) shows who changed.",
             title="Plan made and checked",
             timeout=6,
         )
@@ -980,6 +1048,11 @@ class ReviewAllocApp(App[None]):
         yield "Plan now", "make the optimal, checked plan", self.action_plan
         yield "Save session", "write the session file (atomic)", self.action_save
         yield "Plan fresh", "plan ignoring the current revision's pairs", self._plan_fresh
+        yield (
+            "Plan options",
+            "a randomised plan (probability cap, seed), the fairest plan, or the optimal one",
+            self.action_plan_options,
+        )
         yield (
             "Undo",
             "drop the changes since the current revision, or go back to the one before",

@@ -71,6 +71,12 @@ def _standing(c: Candidate) -> Text:
     return _state(c.status + (" · lead" if c.lead else ""))
 
 
+def _probability(facts: Facts, c: Candidate) -> str:
+    """A pair's probability in the randomised plan's draw, to three places."""
+    value = facts.probability(c.reviewer, c.paper)
+    return "" if value is None else f"{value:.3f}"
+
+
 class EntityView(Widget):
     """A table of papers or reviewers, a filter line above it and the chosen row's detail."""
 
@@ -209,9 +215,14 @@ class EntityView(Widget):
         head.update(heading)
         row = pairs.cursor_row if key == self._shown_key else 0
         # Narrower than the main table: the note below the list has every standing in full.
-        pairs.fill(
-            self.pair_columns(), [self.pair_cells(facts, c) for c in self._pairs], widest=32
-        )
+        columns = list(self.pair_columns())
+        cells = [self.pair_cells(facts, c) for c in self._pairs]
+        if facts.randomised:
+            # A drawn plan: each pair's probability beside its score.
+            columns.insert(2, "Prob")
+            for line, c in zip(cells, self._pairs, strict=True):
+                line.insert(2, _probability(facts, c))
+        pairs.fill(tuple(columns), cells, widest=32)
         if self._pairs:
             pairs.move_cursor(min(row, len(self._pairs) - 1))
         self._shown_key = key
@@ -229,6 +240,8 @@ class EntityView(Widget):
         r, p = s.reviewers[c.reviewer], s.papers[c.paper]
         text = Text(f"{r.id} {r.name} × {p.id}: ", style="bold")
         text.append_text(_standing(c))
+        if facts.randomised:
+            text.append(f" · probability {_probability(facts, c)} in this draw")
         note.update(text)
 
     @on(RowTable.Highlighted, ".pairs")
