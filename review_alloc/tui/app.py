@@ -50,6 +50,7 @@ from review_alloc.tui.grid import RowTable
 from review_alloc.tui.overview import Overview
 from review_alloc.tui.planopts import PlanChoice, PlanOptions
 from review_alloc.tui.records import ConflictView, HistoryView
+from review_alloc.tui.scenarios import ScenarioScreen, parse_pairs
 from review_alloc.workspace import (
     ChangeSet,
     FileChanged,
@@ -148,12 +149,14 @@ class ReviewAllocApp(App[None]):
     class PreviewReady(Message):
         """A what-if preview of one fix finished in its worker."""
 
-        explanation: Explanation
+        explanation: Explanation | None
         preview: WhatIf | None
         lines: list[str]
         kind: str = ""
         accept: bool = False
         """Accept the fix as soon as its preview is ready (the chair pressed `a`)."""
+        keep: bool = False
+        """Keep the preview as a scenario (a what-if the chair typed in)."""
 
     def __init__(self, workspace: Workspace, *, clock: Callable[[], datetime] = _utc_now) -> None:
         super().__init__()
@@ -166,6 +169,8 @@ class ReviewAllocApp(App[None]):
         self._version = 0
         self._history_mark: tuple[int, int | None] | None = None
         self._explaining: Session | None = None
+        self.scenarios: list[WhatIf] = []
+        """Previews the chair kept to compare side by side (`c`) before accepting one."""
 
     # -- layout ---------------------------------------------------------------------------
 
@@ -550,7 +555,12 @@ class ReviewAllocApp(App[None]):
             self.notify("wait for the plan or cancel it (escape) before accepting a fix")
             return
         shown = view.preview
-        if accept and shown is not None and shown.base is self.workspace.session:
+        if (
+            accept
+            and shown is not None
+            and shown.base is self.workspace.session
+            and shown.request == ChangeSet(fixes=(message.kind,))
+        ):
             # What the chair previewed is exactly what is accepted: no second solve.
             self._accept(message.kind, shown)
             return
@@ -576,24 +586,135 @@ class ReviewAllocApp(App[None]):
     @on(PreviewReady)
     def _preview_ready(self, message: PreviewReady) -> None:
         view = self.query_one(ExplainView)
-        if view.explanation is not message.explanation:
+        if view.explanation is not message.explanation and not message.keep:
             return
         if message.preview is None:
             view.state = "no preview: " + "; ".join(message.lines[:3])
+            if message.keep:
+                self.notify("\n".join(message.lines[:6]), title="No what-if", severity="warning")
             return
         view.preview = message.preview
         view.state = f"preview ready: {len(message.preview.gaps_after)} {self.noun}s short after it"
+        if message.keep:
+            self._keep(message.preview)
         if message.accept:
             self._accept(message.kind, message.preview)
 
-    def _accept(self, kind: str, preview: WhatIf) -> None:
+    # -- what-if scenarios ----------------------------------------------------------------
+
+    def _keep(self, preview: WhatIf) -> None:
+        if any(kept is preview for kept in self.scenarios):
+            self.notify("this preview is kept already; c compares the scenarios")
+            return
+        self.scenarios.append(preview)
+        self.notify(
+            f"kept as scenario S{len(self.scenarios)}; c compares the {len(self.scenarios)} "
+            "kept side by side",
+            title="Scenario kept",
+        )
+
+    def action_keep_scenario(self) -> None:
+        """Keep the preview on screen as a scenario to compare with others."""
+        preview = self.query_one(ExplainView).preview
+        if preview is None:
+            self.notify("preview a fix first (v), or try a what-if (n)", severity="warning")
+            return
+        self._keep(preview)
+
+    def action_compare_scenarios(self) -> None:
+        """Show the kept scenarios' figures side by side; one may be accepted from there."""
+        if not self.scenarios:
+            self.notify(
+                "no scenario kept yet: preview a fix (v) or try a what-if (n), then keep it (k)",
+                severity="warning",
+            )
+            return
+
+        def chosen(k: int | None) -> None:
+            if k is None:
+                return
+            preview = self.scenarios[k]
+            asked = preview.request
+            fixes_only = (
+                isinstance(asked, ChangeSet)
+                and asked.fixes
+                and not (asked.raise_caps or asked.add_reviewers)
+                and asked.allow_overload is None
+            )
+            kind = "+".join(asked.fixes) if fixes_only else f"S{k + 1} what-if"
+            if self._accept(kind, preview, "accept-fix" if fixes_only else "accept-whatif"):
+                # Every other scenario was made from the session as it was.
+                self.scenarios.clear()
+
+        self.push_screen(
+            ScenarioScreen(self.scenarios, self.workspace.session, self.scenarios.pop), chosen
+        )
+
+    def action_new_whatif(self) -> None:
+        """Ask for cap raises, recruits or an overload allowance and preview them on a copy."""
+        fields = [
+            Field("caps", "raise caps: REVIEWER=N, ... (e.g. R0003=2, R0007=1)", optional=True),
+            Field("recruits", "add reviewers: TOPIC=N, ... (at the policy's cap)", optional=True),
+            Field("overload", f"let everyone take up to N {self.noun}s above cap", optional=True),
+        ]
+
+        def apply(values: dict[str, str]) -> list[str]:
+            caps, problems = parse_pairs(values["caps"], "raise caps")
+            recruits, more = parse_pairs(values["recruits"], "add reviewers")
+            overload, worse = whole_or_default(values["overload"], "overload")
+            problems += more + worse
+            if problems:
+                return problems
+            changes = ChangeSet(
+                raise_caps=caps,
+                add_reviewers=recruits,
+                allow_overload=overload,
+                labels={"raise_caps": "raise caps", "add_reviewers": "add reviewers"},
+            )
+            if changes.is_empty():
+                return ["give at least one change"]
+            try:
+                self.workspace.changed_copy(changes)
+            except InputError as error:
+                return list(error.lines)
+            view = self.query_one(ExplainView)
+            view.state = "planning the what-if… (the session as it is and as changed)"
+            self._whatif(view.explanation, changes)
+            return []
+
+        self.push_screen(
+            Form(
+                "What if…",
+                fields,
+                apply,
+                hint="planned on a copy and kept as a scenario; the session is unchanged",
+            )
+        )
+
+    @work(thread=True, exclusive=True, group="whatif", exit_on_error=False)
+    def _whatif(self, explanation: Explanation | None, changes: ChangeSet) -> None:
+        """Plan the session and a changed copy of it, to keep as a scenario."""
+        try:
+            result = self.workspace.what_if(changes)
+        except (InputError, PlanCheckError) as error:
+            lines = list(error.lines) if isinstance(error, InputError) else [str(error)]
+            self.post_message(self.PreviewReady(explanation, None, lines, keep=True))
+            return
+        self.post_message(self.PreviewReady(explanation, result, [], "what-if", keep=True))
+
+    def _accept(self, kind: str, preview: WhatIf, action: str = "accept-fix") -> bool:
         """Record a previewed fix as one change and install its plan as one revision."""
         try:
-            number = self.workspace.accept(preview, reason=f"Gaps tab: accepted the {kind} fix")
+            number = self.workspace.accept(
+                preview,
+                reason=f"Gaps tab: accepted the {kind}"
+                + (" fix" if action == "accept-fix" else ""),
+                action=action,  # type: ignore[arg-type]
+            )
         except InputError as error:
             self._refresh_all()
             self.notify("\n".join(error.lines[:8]), title="Fix refused", severity="warning")
-            return
+            return False
         self._refresh_all()
         done = list(preview.changes)
         f = preview.after.figures
@@ -601,8 +722,9 @@ class ReviewAllocApp(App[None]):
             "\n".join(done[:6] + ([f"… {len(done) - 6} more"] if len(done) > 6 else []))
             + f"\nrevision {number}: {f.coverage}/{f.demand} reviews, score "
             f"{f.total_score:.2f}. History lists the change; ctrl+z takes it back.",
-            title=f"Accepted the {kind} fix",
+            title=f"Accepted the {kind}" + (" fix" if action == "accept-fix" else ""),
         )
+        return True
 
     # -- changes --------------------------------------------------------------------------
 

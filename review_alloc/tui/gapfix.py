@@ -85,6 +85,9 @@ class ExplainView(Widget):
         Binding("v", "preview", "Preview fix", tooltip="Plan a copy with the fix: before/after"),
         Binding("a", "accept", "Accept fix", tooltip="Apply the fix to the session, then plan"),
         Binding("x", "app.gap_pane('papers')", "Short papers", tooltip="Back to the paper list"),
+        Binding("k", "app.keep_scenario", "Keep", tooltip="Keep the preview as a scenario"),
+        Binding("c", "app.compare_scenarios", "Compare", tooltip="The kept scenarios side by side"),
+        Binding("n", "app.new_whatif", "What-if", tooltip="Try cap raises, recruits or overload"),
     ]
 
     explanation: reactive[Explanation | None] = reactive(None, always_update=True)
@@ -326,7 +329,8 @@ class ExplainView(Widget):
         for line in moves_lines(w):
             out.append(f"  {line}\n")
         out.append(
-            "  press a to accept it: this plan becomes the next revision; ctrl+z takes it back\n",
+            "  a accepts it: this plan becomes the next revision; ctrl+z takes it back. "
+            "k keeps it as a scenario, c compares the kept ones side by side\n",
             style="dim",
         )
 
