@@ -19,6 +19,9 @@ from review_alloc.plan.fixes import CapRaiseFix, RecruitFix
 from review_alloc.plan.report import Gap, LoadIssue, find_gaps, load_issues
 from review_alloc.plan.solve import PlanOutcome, make_plan
 
+RECRUIT_PREFIX = "NEW-"
+"""Ids of the placeholder reviewers a recruit fix adds start with this."""
+
 RECRUIT_SCORE = 0.0
 """Score given to a recruit's pairs with their topic's papers: the fit is unknown until they bid."""
 
@@ -92,6 +95,11 @@ def raise_caps(session: Session, raises: Mapping[str, int], *, label: str = "rai
     return session.model_copy(update={"reviewers": reviewers, "plan": None})
 
 
+def is_recruit_placeholder(reviewer: Reviewer) -> bool:
+    """Whether a reviewer is a placeholder a recruit fix added ('recruit k for TOPIC')."""
+    return reviewer.id.startswith(RECRUIT_PREFIX) and reviewer.name.startswith("recruit ")
+
+
 def _slug(topic: str) -> str:
     return re.sub(r"[^a-z0-9]+", "-", topic.casefold()).strip("-") or "topic"
 
@@ -128,9 +136,9 @@ def add_recruits(
         k = 0
         for _ in range(n):
             k += 1
-            while f"NEW-{_slug(topic)}-{k}" in taken:
+            while f"{RECRUIT_PREFIX}{_slug(topic)}-{k}" in taken:
                 k += 1
-            rid = f"NEW-{_slug(topic)}-{k}"
+            rid = f"{RECRUIT_PREFIX}{_slug(topic)}-{k}"
             taken.add(rid)
             reviewers.append(Reviewer(id=rid, name=f"recruit {k} for {topic}", topics=[topic]))
             new_r += [len(reviewers) - 1] * len(papers)

@@ -766,6 +766,9 @@ class ReviewAllocApp(App[None]):
         if message.action == "edit":
             self._edit(message.kind, ident)
             return
+        if message.action == "name":
+            self._name_recruit(ident)
+            return
         runs = {
             ("withdraw", "reviewer"): ws.withdraw_reviewer,
             ("reinstate", "reviewer"): ws.reinstate_reviewer,
@@ -803,6 +806,54 @@ class ReviewAllocApp(App[None]):
                 [Field("reason", "reason (kept in History; required)")],
                 apply,
                 hint=question,
+            )
+        )
+
+    def _name_recruit(self, ident: str) -> None:
+        """Ask for the real person behind a recruit placeholder; one recorded change."""
+        ws = self.workspace
+        if ident not in ws.recruit_placeholders():
+            self.notify(
+                f"{ident} is a person already; n names the placeholders an accepted recruit fix "
+                "added ('recruit k for TOPIC')",
+                severity="warning",
+            )
+            return
+        placeholder = ws.session.reviewers[ws.session.reviewer_index()[ident]]
+        fields = [
+            Field("name", "name"),
+            Field("id", "reviewer id (unique)"),
+            Field("email", "e-mail", optional=True),
+            Field("institution", "institution", optional=True),
+            Field("reason", "reason (kept in History)", "recruited for the fix", optional=True),
+        ]
+
+        def apply(values: dict[str, str]) -> list[str]:
+            try:
+                ws.name_recruit(
+                    ident,
+                    values["id"],
+                    values["name"],
+                    email=values["email"],
+                    institution=values["institution"],
+                    reason=values["reason"],
+                )
+            except InputError as error:
+                return list(error.lines)
+            self._refresh_all()
+            self.notify(
+                f"{placeholder.name} is now {values['id']} {values['name']}. Press r to plan "
+                "again (their institution and e-mail may bring conflicts).",
+                title="Recruit named",
+            )
+            return []
+
+        self.push_screen(
+            Form(
+                f"Who is {placeholder.name} ({ident})?",
+                fields,
+                apply,
+                hint="the person keeps the placeholder's topics, cap, scores and pairs",
             )
         )
 

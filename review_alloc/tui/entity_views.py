@@ -19,6 +19,7 @@ from textual.timer import Timer
 from textual.widget import Widget
 from textual.widgets import Input, Static
 
+from review_alloc.plan.whatif import is_recruit_placeholder
 from review_alloc.tui.grid import FilterInput, RowTable
 from review_alloc.tui.grid import cell_text as _cell_text
 from review_alloc.workspace.facts import Candidate, Facts
@@ -442,6 +443,20 @@ class ReviewerView(EntityView):
 
     kind = "reviewer"
     columns = ("Id", "Name", "Load", "Cap", "Floor", "State", "Leads", "Mean", "Institution")
+    BINDINGS = [
+        Binding(
+            "n",
+            "name_recruit",
+            "Name recruit",
+            tooltip="Turn a recruit placeholder into the real person (name, id, e-mail)",
+        ),
+    ]
+
+    def action_name_recruit(self) -> None:
+        """Ask for the real person behind the recruit placeholder under the cursor."""
+        key = self._current_key()
+        if key is not None:
+            self.post_message(self.EntityRequest("name", self.kind, key))
 
     def rows(self, facts: Facts) -> list[Row]:
         """One row per reviewer, in session order."""
@@ -480,6 +495,11 @@ class ReviewerView(EntityView):
             f"load {int(facts.loads[j])}, cap {s.reviewer_cap(j)}, floor {s.reviewer_floor(j)}   "
         )
         head.append_text(_state(facts.reviewer_status(j)))
+        if is_recruit_placeholder(r):
+            head.append(
+                "\nrecruit placeholder from an accepted fix: n names the real person",
+                style="bold yellow",
+            )
         led = [s.papers[i].id for i in facts.led_by_reviewer[j]]
         if led:
             shown = ", ".join(led[:12]) + (f", … {len(led) - 12} more" if len(led) > 12 else "")

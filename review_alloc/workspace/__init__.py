@@ -19,9 +19,10 @@ from review_alloc.workspace.files import (
 )
 from review_alloc.workspace.history import HistoryEntry
 from review_alloc.workspace.planning import ChangeSet, PlanningMixin, PlanRequest, prepare_solver
+from review_alloc.workspace.recruits import RecruitsMixin
 
 
-class Workspace(FilesMixin, PlanningMixin):
+class Workspace(FilesMixin, PlanningMixin, RecruitsMixin):
     """An open session with its file path, its unsaved-changes mark, its changes and services."""
 
 
