@@ -1211,6 +1211,7 @@ class ReviewAllocApp(App[None]):
                     ("click header", "sort by that column (again: reverse)"),
                 ],
             ),
+            ("Reviewers", rows(ReviewerView.BINDINGS)),
             ("Gaps", rows(GapView.BINDINGS[-1:]) + rows(ExplainView.BINDINGS)),
             ("Conflicts", rows(ConflictView.BINDINGS)),
             ("History", rows(HistoryView.BINDINGS)),

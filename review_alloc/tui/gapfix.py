@@ -85,9 +85,21 @@ class ExplainView(Widget):
         Binding("v", "preview", "Preview fix", tooltip="Plan a copy with the fix: before/after"),
         Binding("a", "accept", "Accept fix", tooltip="Apply the fix to the session, then plan"),
         Binding("x", "app.gap_pane('papers')", "Short papers", tooltip="Back to the paper list"),
-        Binding("k", "app.keep_scenario", "Keep", tooltip="Keep the preview as a scenario"),
+        Binding(
+            "k",
+            "app.keep_scenario",
+            "Keep the preview as a scenario",
+            show=False,
+            tooltip="Keep the preview to compare it with others (c)",
+        ),
         Binding("c", "app.compare_scenarios", "Compare", tooltip="The kept scenarios side by side"),
-        Binding("n", "app.new_whatif", "What-if", tooltip="Try cap raises, recruits or overload"),
+        Binding(
+            "n",
+            "app.new_whatif",
+            "Try a what-if (cap raises, recruits, overload)",
+            show=False,
+            tooltip="Try cap raises, recruits or overload on a copy",
+        ),
     ]
 
     explanation: reactive[Explanation | None] = reactive(None, always_update=True)
@@ -264,7 +276,11 @@ class ExplainView(Widget):
             f"eligible reviewers: {_short(g.reviewers)}\n"
         )
         out.append(f"cause: {g.cause}\n", style="italic")
-        out.append("tab to the fixes below; v previews one, a accepts it\n", style="dim")
+        out.append(
+            "tab to the fixes below; v previews one, a accepts it; n tries a what-if of your "
+            "own (cap raises, recruits, overload)\n",
+            style="dim",
+        )
 
     def _fix_detail(self, out: Text, explanation: Explanation) -> None:
         fix = self.chosen_target_fix()

@@ -21,10 +21,28 @@ MODES = ("optimal", "randomised", "fairest")
 """The kinds of plan a chair can ask for, in the order the dialog lists them."""
 
 _MODE_LABELS = {
-    "optimal": "optimal: the highest total score (the usual plan)",
-    "randomised": "randomised: cap the chance that any reviewer gets any one paper",
-    "fairest": "fairest: lift the worst-off paper's total score first",
+    "optimal": "optimal: the highest total score",
+    "randomised": "randomised: cap each pair's chance at Q",
+    "fairest": "fairest: the worst-off paper first",
 }
+
+
+class MarkedRadio(RadioButton):
+    """A radio button whose choice shows by its mark, not by colour alone."""
+
+    @property
+    def BUTTON_INNER(self) -> str:  # noqa: N802 (the name textual draws the mark from)
+        """'●' when chosen, a blank otherwise."""
+        return "●" if self.value else " "
+
+
+class MarkedCheckbox(Checkbox):
+    """A check box whose state shows by its mark, not by colour alone."""
+
+    @property
+    def BUTTON_INNER(self) -> str:  # noqa: N802 (the name textual draws the mark from)
+        """'X' when ticked, a blank otherwise."""
+        return "X" if self.value else " "
 
 
 @dataclass(frozen=True)
@@ -81,14 +99,13 @@ class PlanOptions(ModalScreen[PlanChoice | None]):
             yield Static(Text("Plan options", style="bold"))
             with RadioSet(id="plan-mode"):
                 for mode in MODES:
-                    yield RadioButton(
-                        _MODE_LABELS[mode], value=mode == self.mode, id=f"mode-{mode}"
-                    )
+                    chosen = mode == self.mode
+                    yield MarkedRadio(_MODE_LABELS[mode], value=chosen, id=f"mode-{mode}")
             yield Label("probability cap Q for the randomised plan (above 0, at most 1)")
             yield Input(value=self.cap_text or "0.5", id="plan-cap", compact=True)
-            yield Label("seed of the draw (optional; empty draws a new one, kept with the plan)")
+            yield Label("seed (optional; empty: a new one, kept with the plan)")
             yield Input(value=self.seed_text, id="plan-seed", compact=True)
-            yield Checkbox("fresh: ignore the current revision's pairs", id="plan-fresh")
+            yield MarkedCheckbox("fresh: ignore the current revision's pairs", id="plan-fresh")
             yield Static("", classes="plan-caution")
             yield Static("", classes="problems")
             with Horizontal(classes="buttons"):

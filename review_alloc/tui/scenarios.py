@@ -56,11 +56,25 @@ def parse_pairs(text: str, what: str) -> tuple[dict[str, int], list[str]]:
 
 
 def scenario_label(w: WhatIf) -> str:
-    """A scenario's changes in one short line."""
+    """A scenario's changes in a few words (the detail below the table lists them all)."""
+    asked = w.request
+    parts: list[str] = []
+    fixes = getattr(asked, "fixes", ())
+    parts += [f"fix {key}" for key in fixes]
+    raises = getattr(asked, "raise_caps", {}) or {}
+    if raises:
+        parts.append(f"raise {len(raises)} caps +{sum(raises.values())}")
+    recruits = getattr(asked, "add_reviewers", {}) or {}
+    if recruits:
+        parts.append(f"add {sum(recruits.values())} reviewers")
+    overload = getattr(asked, "allow_overload", None)
+    if overload is not None:
+        parts.append(f"overload up to {overload}")
+    if parts:
+        return "; ".join(parts)
     if not w.changes:
         return "(no change)"
-    first = w.changes[0]
-    return first + (f" (+{len(w.changes) - 1} more)" if len(w.changes) > 1 else "")
+    return w.changes[0] + (f" (+{len(w.changes) - 1} more)" if len(w.changes) > 1 else "")
 
 
 def base_row(w: WhatIf) -> list[object]:
