@@ -841,6 +841,8 @@ class ReviewAllocApp(App[None]):
             except InputError as error:
                 return list(error.lines)
             self._refresh_all()
+            # The row keeps the cursor under its new id.
+            self.query_one(ReviewerView).select(values["id"].strip())
             self.notify(
                 f"{placeholder.name} is now {values['id']} {values['name']}. Press r to plan "
                 "again (their institution and e-mail may bring conflicts).",
