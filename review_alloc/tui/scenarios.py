@@ -17,19 +17,15 @@ from review_alloc.model import Session
 from review_alloc.plan.whatif import WhatIf
 from review_alloc.tui.grid import RowTable
 
-COLUMNS = (
-    "Scenario",
-    "Required",
-    "All reviews",
-    "Score",
-    "Short",
-    "Above cap",
-    "Moved",
-    "Tell",
-    "New people",
-    "Changes",
+COLUMNS = ("Scenario", "Req", "All", "Score", "Short", "Over", "Moved", "Tell", "New", "Changes")
+"""One column per figure a chair weighs (short names, so that all fit 80 columns; `LEGEND`
+spells them out); the first row is the session as it is."""
+
+LEGEND = (
+    "Req: required reviews · All: all reviews · Short: {noun}s short · Over: reviewers above "
+    "cap · Moved: pairs moved and Tell: reviewers to tell, against the current plan · New: "
+    "people to recruit"
 )
-"""One column per figure a chair weighs; the first row is the session as it is."""
 
 
 def parse_pairs(text: str, what: str) -> tuple[dict[str, int], list[str]]:
@@ -137,8 +133,8 @@ class ScenarioScreen(ModalScreen[int | None]):
             yield Static(Text("What-if scenarios side by side", style="bold"))
             yield Static(
                 Text(
-                    "a: accept the scenario under the cursor · d: drop it · escape: close. "
-                    "Moved and Tell count against the current plan.",
+                    "a: accept the scenario under the cursor · d: drop it · escape: close\n"
+                    + LEGEND.format(noun=self.current.noun),
                     style="dim",
                 ),
                 classes="keys",
@@ -178,11 +174,11 @@ class ScenarioScreen(ModalScreen[int | None]):
             out.append("the session as it is, with its plan" if self.scenarios else "")
         else:
             w = self.scenarios[k]
-            out.append(f"S{k + 1}:\n", style="bold")
-            for line in w.changes[:10]:
-                out.append(f"  - {line}\n")
-            if len(w.changes) > 10:
-                out.append(f"  … and {len(w.changes) - 10} more\n")
+            out.append(f"S{k + 1}: ", style="bold")
+            # One wrapped paragraph, so that a long fix still fits under the table at 80x24.
+            out.append("; ".join(w.changes[:12]))
+            if len(w.changes) > 12:
+                out.append(f"; … and {len(w.changes) - 12} more")
         self.query_one(".scenario-detail", Static).update(out)
 
     @on(RowTable.Highlighted)
