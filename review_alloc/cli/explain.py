@@ -16,7 +16,8 @@ if TYPE_CHECKING:
 
 Handler = Callable[[argparse.Namespace], int]
 
-FIX_CHOICES = ("raise-caps", "recruit")
+FIX_CHOICES = ("raise-caps-min", "recruit-min", "raise-caps", "recruit")
+"""The fixes `whatif --apply-fix` takes: to every paper's minimum (-min), or to full coverage."""
 
 
 def name_and_count(text: str) -> tuple[str, int]:
@@ -80,7 +81,9 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
         action="append",
         default=[],
         choices=FIX_CHOICES,
-        help="apply the fix `explain` suggests: raised caps, or recruits per topic",
+        help="apply a computed fix: raised caps or recruits per topic, reaching every paper's "
+        "minimum (raise-caps-min, recruit-min) or every paper's full reviews (raise-caps, "
+        "recruit)",
     )
     p.add_argument("--accept", action="store_true", help="save the changed session and its plan")
     p.add_argument("--json", action="store_true", help="print one JSON object")
@@ -308,9 +311,55 @@ def whatif_payload(
         "overloads": [asdict(x) for x in over],
         "underloads": [asdict(x) for x in under],
         "new_reviewers": added,
+        "moves": _moves(result),
         "accepted": accepted,
         "revision": revision,
     }
+
+
+def _moves(result: WhatIf) -> dict[str, Any] | None:
+    """Pairs that move from the earlier plan and the reviewers to tell (None: no plan yet)."""
+    moves = result.moves
+    if moves is None:
+        return None
+    people = {r.id: r for r in result.session.reviewers}
+    return {
+        "added": [{"reviewer": r, "paper": p} for r, p in moves.added],
+        "removed": [{"reviewer": r, "paper": p} for r, p in moves.removed],
+        "to_tell": [
+            {
+                "reviewer": rid,
+                "name": people[rid].name,
+                "email": people[rid].email,
+                **moves.by_reviewer[rid].to_json(),
+            }
+            for rid in result.to_tell()
+        ],
+    }
+
+
+def moves_lines(payload: dict[str, Any], limit: int = 12) -> list[str]:
+    """How many pairs move and whom to tell, in a few lines."""
+    moves = payload["moves"]
+    if moves is None:
+        return ["  pairs moved: none yet (no plan has been made, so nobody has been told)"]
+    tell = moves["to_tell"]
+    lines = [
+        f"  pairs moved: {len(moves['added']) + len(moves['removed'])} "
+        f"(+{len(moves['added'])} / -{len(moves['removed'])} against the current plan)",
+        f"  reviewers to tell: {len(tell)}"
+        + (f", and {len(payload['new_reviewers'])} new reviewers to find"
+           if payload["new_reviewers"] else ""),
+    ]
+    for x in tell[:limit]:
+        name = f" {x['name']}" if x["name"] else ""
+        change = ", ".join(
+            [f"+{p}" for p in x["added"]] + [f"-{p}" for p in x["removed"]]
+        )
+        lines.append(f"    {x['reviewer']}{name}: {change}")
+    if len(tell) > limit:
+        lines.append(f"    ... and {len(tell) - limit} more (--json lists them all)")
+    return lines
 
 
 def whatif_lines(session: Session, payload: dict[str, Any], source: str) -> list[str]:
@@ -329,6 +378,7 @@ def whatif_lines(session: Session, payload: dict[str, Any], source: str) -> list
     ]
     if payload["overloads"]:
         lines.append(f"  reviewers above cap: {len(payload['overloads'])}")
+    lines += moves_lines(payload)
     if payload["accepted"]:
         lines.append(
             f"  saved to {source} as revision {payload['revision']} with its new plan "

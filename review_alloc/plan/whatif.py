@@ -13,10 +13,14 @@ from dataclasses import dataclass
 import numpy as np
 
 from review_alloc.model import Plan, Reviewer, Session
+from review_alloc.plan.diff import PlanDiff, diff_plans
 from review_alloc.plan.errors import PlanInputError
 from review_alloc.plan.fixes import CapRaiseFix, RecruitFix
 from review_alloc.plan.report import Gap, LoadIssue, find_gaps, load_issues
 from review_alloc.plan.solve import PlanOutcome, make_plan
+
+RECRUIT_PREFIX = "NEW-"
+"""Ids of the placeholder reviewers a recruit fix adds start with this."""
 
 RECRUIT_SCORE = 0.0
 """Score given to a recruit's pairs with their topic's papers: the fit is unknown until they bid."""
@@ -44,6 +48,24 @@ class WhatIf:
     request: object = None
     """What the caller asked for, in its own terms (the Workspace keeps its change set here,
     so that an accepted what-if can be made again on a newer copy of the file)."""
+    moves: PlanDiff | None = None
+    """The pairs that move from the earlier plan (the one reviewers may have been sent) to the
+    changed copy's plan, by reviewer: whom the chair must tell. None without an earlier plan:
+    nobody has been told anything yet."""
+
+    def to_tell(self) -> tuple[str, ...]:
+        """Reviewers already in the session whose papers change (recruits are new people)."""
+        if self.moves is None:
+            return ()
+        known = {r.id for r in self.base.reviewers} if self.base is not None else None
+        return tuple(r for r in self.moves.by_reviewer if known is None or r in known)
+
+    def recruits(self) -> tuple[str, ...]:
+        """Reviewers the changed copy adds (placeholders until a real person is named)."""
+        if self.base is None:
+            return ()
+        known = {r.id for r in self.base.reviewers}
+        return tuple(r.id for r in self.session.reviewers if r.id not in known)
 
 
 def raise_caps(session: Session, raises: Mapping[str, int], *, label: str = "raise cap") -> Session:
@@ -71,6 +93,11 @@ def raise_caps(session: Session, raises: Mapping[str, int], *, label: str = "rai
         j = reviewer_at[rid]
         reviewers[j] = reviewers[j].model_copy(update={"cap": session.reviewer_cap(j) + amount})
     return session.model_copy(update={"reviewers": reviewers, "plan": None})
+
+
+def is_recruit_placeholder(reviewer: Reviewer) -> bool:
+    """Whether a reviewer is a placeholder a recruit fix added ('recruit k for TOPIC')."""
+    return reviewer.id.startswith(RECRUIT_PREFIX) and reviewer.name.startswith("recruit ")
 
 
 def _slug(topic: str) -> str:
@@ -109,9 +136,9 @@ def add_recruits(
         k = 0
         for _ in range(n):
             k += 1
-            while f"NEW-{_slug(topic)}-{k}" in taken:
+            while f"{RECRUIT_PREFIX}{_slug(topic)}-{k}" in taken:
                 k += 1
-            rid = f"NEW-{_slug(topic)}-{k}"
+            rid = f"{RECRUIT_PREFIX}{_slug(topic)}-{k}"
             taken.add(rid)
             reviewers.append(Reviewer(id=rid, name=f"recruit {k} for {topic}", topics=[topic]))
             new_r += [len(reviewers) - 1] * len(papers)
@@ -179,4 +206,5 @@ def what_if(
         outcome=outcome,
         overloads=tuple(over),
         underloads=tuple(under),
+        moves=diff_plans(earlier, outcome.plan) if earlier is not None else None,
     )

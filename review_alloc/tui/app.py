@@ -48,10 +48,13 @@ from review_alloc.tui.entity_views import EntityView, GapView, PaperView, Review
 from review_alloc.tui.gapfix import ExplainView, PaneHint
 from review_alloc.tui.grid import RowTable
 from review_alloc.tui.overview import Overview
+from review_alloc.tui.planopts import PlanChoice, PlanOptions
 from review_alloc.tui.records import ConflictView, HistoryView
+from review_alloc.tui.scenarios import ScenarioScreen, parse_pairs
 from review_alloc.workspace import (
     ChangeSet,
     FileChanged,
+    FixMenu,
     PlanRequest,
     Workspace,
     prepare_solver,
@@ -99,6 +102,13 @@ class ReviewAllocApp(App[None]):
         Binding("escape", "cancel_plan", "Cancel plan", show=False),
         Binding("ctrl+s", "save", "Save"),
         Binding("R", "plan(True)", "Plan fresh", show=False),
+        Binding(
+            "o",
+            "plan_options",
+            "Plan options",
+            show=False,
+            tooltip="Plan randomised (probability cap, seed) or fairest, or optimal again",
+        ),
         Binding("ctrl+z", "undo", "Undo"),
         Binding("ctrl+y", "redo", "Redo", show=False),
         Binding("i", "import", "Import CSV", show=False),
@@ -133,17 +143,20 @@ class ReviewAllocApp(App[None]):
         session: Session
         explanation: Explanation | None
         lines: list[str]
+        menu: FixMenu | None = None
 
     @dataclass
     class PreviewReady(Message):
         """A what-if preview of one fix finished in its worker."""
 
-        explanation: Explanation
+        explanation: Explanation | None
         preview: WhatIf | None
         lines: list[str]
         kind: str = ""
         accept: bool = False
         """Accept the fix as soon as its preview is ready (the chair pressed `a`)."""
+        keep: bool = False
+        """Keep the preview as a scenario (a what-if the chair typed in)."""
 
     def __init__(self, workspace: Workspace, *, clock: Callable[[], datetime] = _utc_now) -> None:
         super().__init__()
@@ -156,6 +169,8 @@ class ReviewAllocApp(App[None]):
         self._version = 0
         self._history_mark: tuple[int, int | None] | None = None
         self._explaining: Session | None = None
+        self.scenarios: list[WhatIf] = []
+        """Previews the chair kept to compare side by side (`c`) before accepting one."""
 
     # -- layout ---------------------------------------------------------------------------
 
@@ -311,11 +326,56 @@ class ReviewAllocApp(App[None]):
         """Whether a plan is being made right now."""
         return self._planning_since is not None
 
-    def action_plan(self, fresh: bool = False) -> None:
+    def action_plan_options(self) -> None:
+        """Ask which kind of plan to make (optimal, randomised, fairest), then make it."""
+        if self.planning:
+            self.notify("a plan is already being made (escape cancels it)")
+            return
+        plan = self.workspace.session.plan
+        draw = plan.draw if plan is not None else None
+        mode = "optimal"
+        if draw is not None:
+            mode = "randomised"
+        elif plan is not None and plan.fairness is not None:
+            mode = "fairest"
+
+        def chosen(choice: PlanChoice | None) -> None:
+            if choice is not None:
+                self.plan_with(choice)
+
+        self.push_screen(
+            PlanOptions(
+                mode=mode,
+                cap=draw.max_probability if draw is not None else None,
+                seed=draw.seed if draw is not None else None,
+            ),
+            chosen,
+        )
+
+    def plan_with(self, choice: PlanChoice) -> None:
+        """Make the plan the options dialog asked for, in a worker thread."""
+        try:
+            request = self.workspace.plan_request(
+                choice.fresh,
+                max_probability=choice.max_probability,
+                seed=choice.seed,
+                fair=choice.mode == "fairest",
+                plain=choice.mode == "optimal",
+            )
+        except InputError as error:
+            self.notify("\n".join(error.lines), title="No plan", severity="warning")
+            return
+        words = {"randomised": "a randomised plan", "fairest": "the fairest plan"}
+        self.action_plan(choice.fresh, request=request, what=words.get(choice.mode, ""))
+
+    def action_plan(
+        self, fresh: bool = False, *, request: PlanRequest | None = None, what: str = ""
+    ) -> None:
         """Make the optimal plan in a worker thread; the screen stays live.
 
         A re-plan keeps as many pairs of the current revision as coverage and floors allow
-        (so few reviewers have to be told); `fresh` ignores them.
+        (so few reviewers have to be told); `fresh` ignores them. A randomised plan stays
+        randomised (same cap and seed) until the plan options ask for another kind.
         """
         if self.planning:
             self.notify("a plan is already being made (escape cancels it)")
@@ -327,10 +387,13 @@ class ReviewAllocApp(App[None]):
         strip.display = True
         papers = sum(not p.withdrawn for p in snapshot.papers)
         self.query_one("#planning-label", Label).update(
-            f"planning {papers} {self.noun}s exactly... escape cancels "
+            f"planning {papers} {self.noun}s" + (f" ({what})" if what else " exactly")
+            + "... escape cancels "
         )
         # Warm from the last outcome, keeping the current revision's pairs unless fresh.
-        self._solve(self.workspace.plan_request(fresh), self._generation)
+        if request is None:
+            request = self.workspace.plan_request(fresh)
+        self._solve(request, self._generation)
 
     @work(thread=True, exclusive=True, group="plan", exit_on_error=False)
     def _solve(self, request: PlanRequest, generation: int) -> None:
@@ -390,9 +453,21 @@ class ReviewAllocApp(App[None]):
                 f"against revision {entry.parent}: +{len(d.added)} / -{len(d.removed)} pairs, "
                 f"{d.kept} kept, {len(d.by_reviewer)} reviewer(s) to tell"
             )
+        plan = message.outcome.plan
+        kind = ""
+        if plan.draw is not None:
+            kind = (
+                f"\nrandomised: each pair at most {plan.draw.max_probability:g}, seed "
+                f"{plan.draw.seed}; the Overview compares it with the optimal plan"
+            )
+        elif plan.fairness is not None:
+            kind = (
+                f"\nfairest: lowest {self.noun} total {plan.fairness.lowest_paper_score:.2f}; "
+                "the Overview compares it with the optimal plan"
+            )
         self.notify(
             f"revision {number}: {f.coverage}/{f.demand} reviews, score {f.total_score:.2f} "
-            f"({monotonic() - started:.1f} s)\n{change}\nHistory (6) shows who changed.",
+            f"({monotonic() - started:.1f} s)\n{change}{kind}\nHistory (6) shows who changed.",
             title="Plan made and checked",
             timeout=6,
         )
@@ -439,11 +514,12 @@ class ReviewAllocApp(App[None]):
         """Compute the groups and fixes of a session snapshot and post them back."""
         try:
             result = self.workspace.explain(session)
+            menu = self.workspace.fixes(session, result)
         except (InputError, PlanCheckError, OverflowError) as error:
             lines = list(error.lines) if isinstance(error, InputError) else [str(error)]
             self.post_message(self.ExplainReady(session, None, lines))
             return
-        self.post_message(self.ExplainReady(session, result, []))
+        self.post_message(self.ExplainReady(session, result, [], menu))
 
     @on(ExplainReady)
     def _explain_ready(self, message: ExplainReady) -> None:
@@ -454,6 +530,7 @@ class ReviewAllocApp(App[None]):
         if message.explanation is None:
             view.state = "no explanation: " + "; ".join(message.lines[:3])
             return
+        view.menu = message.menu
         view.explanation = message.explanation
         short = message.explanation.shortfall
         stale = message.session is not self.workspace.session
@@ -478,7 +555,12 @@ class ReviewAllocApp(App[None]):
             self.notify("wait for the plan or cancel it (escape) before accepting a fix")
             return
         shown = view.preview
-        if accept and shown is not None and shown.base is self.workspace.session:
+        if (
+            accept
+            and shown is not None
+            and shown.base is self.workspace.session
+            and shown.request == ChangeSet(fixes=(message.kind,))
+        ):
             # What the chair previewed is exactly what is accepted: no second solve.
             self._accept(message.kind, shown)
             return
@@ -486,13 +568,15 @@ class ReviewAllocApp(App[None]):
             f"{'accepting' if accept else 'previewing'} the {message.kind} fix… "
             "(planning the session as it is and as changed)"
         )
-        self._preview(explanation, message.kind, accept)
+        self._preview(explanation, view.menu, message.kind, accept)
 
     @work(thread=True, exclusive=True, group="whatif", exit_on_error=False)
-    def _preview(self, explanation: Explanation, kind: str, accept: bool) -> None:
+    def _preview(
+        self, explanation: Explanation, menu: FixMenu | None, kind: str, accept: bool
+    ) -> None:
         """Plan the session and its changed copy; the session is never touched here."""
         try:
-            result = self.workspace.what_if(ChangeSet(fixes=(kind,)), explanation)
+            result = self.workspace.what_if(ChangeSet(fixes=(kind,)), explanation, menu=menu)
         except (InputError, PlanCheckError) as error:
             lines = list(error.lines) if isinstance(error, InputError) else [str(error)]
             self.post_message(self.PreviewReady(explanation, None, lines))
@@ -502,24 +586,135 @@ class ReviewAllocApp(App[None]):
     @on(PreviewReady)
     def _preview_ready(self, message: PreviewReady) -> None:
         view = self.query_one(ExplainView)
-        if view.explanation is not message.explanation:
+        if view.explanation is not message.explanation and not message.keep:
             return
         if message.preview is None:
             view.state = "no preview: " + "; ".join(message.lines[:3])
+            if message.keep:
+                self.notify("\n".join(message.lines[:6]), title="No what-if", severity="warning")
             return
         view.preview = message.preview
         view.state = f"preview ready: {len(message.preview.gaps_after)} {self.noun}s short after it"
+        if message.keep:
+            self._keep(message.preview)
         if message.accept:
             self._accept(message.kind, message.preview)
 
-    def _accept(self, kind: str, preview: WhatIf) -> None:
+    # -- what-if scenarios ----------------------------------------------------------------
+
+    def _keep(self, preview: WhatIf) -> None:
+        if any(kept is preview for kept in self.scenarios):
+            self.notify("this preview is kept already; c compares the scenarios")
+            return
+        self.scenarios.append(preview)
+        self.notify(
+            f"kept as scenario S{len(self.scenarios)}; c compares the {len(self.scenarios)} "
+            "kept side by side",
+            title="Scenario kept",
+        )
+
+    def action_keep_scenario(self) -> None:
+        """Keep the preview on screen as a scenario to compare with others."""
+        preview = self.query_one(ExplainView).preview
+        if preview is None:
+            self.notify("preview a fix first (v), or try a what-if (n)", severity="warning")
+            return
+        self._keep(preview)
+
+    def action_compare_scenarios(self) -> None:
+        """Show the kept scenarios' figures side by side; one may be accepted from there."""
+        if not self.scenarios:
+            self.notify(
+                "no scenario kept yet: preview a fix (v) or try a what-if (n), then keep it (k)",
+                severity="warning",
+            )
+            return
+
+        def chosen(k: int | None) -> None:
+            if k is None:
+                return
+            preview = self.scenarios[k]
+            asked = preview.request
+            fixes_only = (
+                isinstance(asked, ChangeSet)
+                and asked.fixes
+                and not (asked.raise_caps or asked.add_reviewers)
+                and asked.allow_overload is None
+            )
+            kind = "+".join(asked.fixes) if fixes_only else f"S{k + 1} what-if"
+            if self._accept(kind, preview, "accept-fix" if fixes_only else "accept-whatif"):
+                # Every other scenario was made from the session as it was.
+                self.scenarios.clear()
+
+        self.push_screen(
+            ScenarioScreen(self.scenarios, self.workspace.session, self.scenarios.pop), chosen
+        )
+
+    def action_new_whatif(self) -> None:
+        """Ask for cap raises, recruits or an overload allowance and preview them on a copy."""
+        fields = [
+            Field("caps", "raise caps: REVIEWER=N, ... (e.g. R0003=2, R0007=1)", optional=True),
+            Field("recruits", "add reviewers: TOPIC=N, ... (at the policy's cap)", optional=True),
+            Field("overload", f"let everyone take up to N {self.noun}s above cap", optional=True),
+        ]
+
+        def apply(values: dict[str, str]) -> list[str]:
+            caps, problems = parse_pairs(values["caps"], "raise caps")
+            recruits, more = parse_pairs(values["recruits"], "add reviewers")
+            overload, worse = whole_or_default(values["overload"], "overload")
+            problems += more + worse
+            if problems:
+                return problems
+            changes = ChangeSet(
+                raise_caps=caps,
+                add_reviewers=recruits,
+                allow_overload=overload,
+                labels={"raise_caps": "raise caps", "add_reviewers": "add reviewers"},
+            )
+            if changes.is_empty():
+                return ["give at least one change"]
+            try:
+                self.workspace.changed_copy(changes)
+            except InputError as error:
+                return list(error.lines)
+            view = self.query_one(ExplainView)
+            view.state = "planning the what-if… (the session as it is and as changed)"
+            self._whatif(view.explanation, changes)
+            return []
+
+        self.push_screen(
+            Form(
+                "What if…",
+                fields,
+                apply,
+                hint="planned on a copy and kept as a scenario; the session is unchanged",
+            )
+        )
+
+    @work(thread=True, exclusive=True, group="whatif", exit_on_error=False)
+    def _whatif(self, explanation: Explanation | None, changes: ChangeSet) -> None:
+        """Plan the session and a changed copy of it, to keep as a scenario."""
+        try:
+            result = self.workspace.what_if(changes)
+        except (InputError, PlanCheckError) as error:
+            lines = list(error.lines) if isinstance(error, InputError) else [str(error)]
+            self.post_message(self.PreviewReady(explanation, None, lines, keep=True))
+            return
+        self.post_message(self.PreviewReady(explanation, result, [], "what-if", keep=True))
+
+    def _accept(self, kind: str, preview: WhatIf, action: str = "accept-fix") -> bool:
         """Record a previewed fix as one change and install its plan as one revision."""
         try:
-            number = self.workspace.accept(preview, reason=f"Gaps tab: accepted the {kind} fix")
+            number = self.workspace.accept(
+                preview,
+                reason=f"Gaps tab: accepted the {kind}"
+                + (" fix" if action == "accept-fix" else ""),
+                action=action,  # type: ignore[arg-type]
+            )
         except InputError as error:
             self._refresh_all()
             self.notify("\n".join(error.lines[:8]), title="Fix refused", severity="warning")
-            return
+            return False
         self._refresh_all()
         done = list(preview.changes)
         f = preview.after.figures
@@ -527,8 +722,9 @@ class ReviewAllocApp(App[None]):
             "\n".join(done[:6] + ([f"… {len(done) - 6} more"] if len(done) > 6 else []))
             + f"\nrevision {number}: {f.coverage}/{f.demand} reviews, score "
             f"{f.total_score:.2f}. History lists the change; ctrl+z takes it back.",
-            title=f"Accepted the {kind} fix",
+            title=f"Accepted the {kind}" + (" fix" if action == "accept-fix" else ""),
         )
+        return True
 
     # -- changes --------------------------------------------------------------------------
 
@@ -570,6 +766,9 @@ class ReviewAllocApp(App[None]):
         if message.action == "edit":
             self._edit(message.kind, ident)
             return
+        if message.action == "name":
+            self._name_recruit(ident)
+            return
         runs = {
             ("withdraw", "reviewer"): ws.withdraw_reviewer,
             ("reinstate", "reviewer"): ws.reinstate_reviewer,
@@ -607,6 +806,56 @@ class ReviewAllocApp(App[None]):
                 [Field("reason", "reason (kept in History; required)")],
                 apply,
                 hint=question,
+            )
+        )
+
+    def _name_recruit(self, ident: str) -> None:
+        """Ask for the real person behind a recruit placeholder; one recorded change."""
+        ws = self.workspace
+        if ident not in ws.recruit_placeholders():
+            self.notify(
+                f"{ident} is a person already; n names the placeholders an accepted recruit fix "
+                "added ('recruit k for TOPIC')",
+                severity="warning",
+            )
+            return
+        placeholder = ws.session.reviewers[ws.session.reviewer_index()[ident]]
+        fields = [
+            Field("name", "name"),
+            Field("id", "reviewer id (unique)"),
+            Field("email", "e-mail", optional=True),
+            Field("institution", "institution", optional=True),
+            Field("reason", "reason (kept in History)", "recruited for the fix", optional=True),
+        ]
+
+        def apply(values: dict[str, str]) -> list[str]:
+            try:
+                ws.name_recruit(
+                    ident,
+                    values["id"],
+                    values["name"],
+                    email=values["email"],
+                    institution=values["institution"],
+                    reason=values["reason"],
+                )
+            except InputError as error:
+                return list(error.lines)
+            self._refresh_all()
+            # The row keeps the cursor under its new id.
+            self.query_one(ReviewerView).select(values["id"].strip())
+            self.notify(
+                f"{placeholder.name} is now {values['id']} {values['name']}. Press r to plan "
+                "again (their institution and e-mail may bring conflicts).",
+                title="Recruit named",
+            )
+            return []
+
+        self.push_screen(
+            Form(
+                f"Who is {placeholder.name} ({ident})?",
+                fields,
+                apply,
+                hint="the person keeps the placeholder's topics, cap, scores and pairs",
             )
         )
 
@@ -965,6 +1214,7 @@ class ReviewAllocApp(App[None]):
                     ("click header", "sort by that column (again: reverse)"),
                 ],
             ),
+            ("Reviewers", rows(ReviewerView.BINDINGS)),
             ("Gaps", rows(GapView.BINDINGS[-1:]) + rows(ExplainView.BINDINGS)),
             ("Conflicts", rows(ConflictView.BINDINGS)),
             ("History", rows(HistoryView.BINDINGS)),
@@ -975,6 +1225,11 @@ class ReviewAllocApp(App[None]):
         yield "Plan now", "make the optimal, checked plan", self.action_plan
         yield "Save session", "write the session file (atomic)", self.action_save
         yield "Plan fresh", "plan ignoring the current revision's pairs", self._plan_fresh
+        yield (
+            "Plan options",
+            "a randomised plan (probability cap, seed), the fairest plan, or the optimal one",
+            self.action_plan_options,
+        )
         yield (
             "Undo",
             "drop the changes since the current revision, or go back to the one before",

@@ -19,6 +19,7 @@ from textual.timer import Timer
 from textual.widget import Widget
 from textual.widgets import Input, Static
 
+from review_alloc.plan.whatif import is_recruit_placeholder
 from review_alloc.tui.grid import FilterInput, RowTable
 from review_alloc.tui.grid import cell_text as _cell_text
 from review_alloc.workspace.facts import Candidate, Facts
@@ -69,6 +70,12 @@ def _lead_cell(facts: Facts, i: int) -> str:
 def _standing(c: Candidate) -> Text:
     """A pair's standing, with 'lead' added when the reviewer leads the paper."""
     return _state(c.status + (" · lead" if c.lead else ""))
+
+
+def _probability(facts: Facts, c: Candidate) -> str:
+    """A pair's probability in the randomised plan's draw, to three places."""
+    value = facts.probability(c.reviewer, c.paper)
+    return "" if value is None else f"{value:.3f}"
 
 
 class EntityView(Widget):
@@ -209,9 +216,14 @@ class EntityView(Widget):
         head.update(heading)
         row = pairs.cursor_row if key == self._shown_key else 0
         # Narrower than the main table: the note below the list has every standing in full.
-        pairs.fill(
-            self.pair_columns(), [self.pair_cells(facts, c) for c in self._pairs], widest=32
-        )
+        columns = list(self.pair_columns())
+        cells = [self.pair_cells(facts, c) for c in self._pairs]
+        if facts.randomised:
+            # A drawn plan: each pair's probability beside its score.
+            columns.insert(2, "Prob")
+            for line, c in zip(cells, self._pairs, strict=True):
+                line.insert(2, _probability(facts, c))
+        pairs.fill(tuple(columns), cells, widest=32)
         if self._pairs:
             pairs.move_cursor(min(row, len(self._pairs) - 1))
         self._shown_key = key
@@ -229,6 +241,8 @@ class EntityView(Widget):
         r, p = s.reviewers[c.reviewer], s.papers[c.paper]
         text = Text(f"{r.id} {r.name} × {p.id}: ", style="bold")
         text.append_text(_standing(c))
+        if facts.randomised:
+            text.append(f" · probability {_probability(facts, c)} in this draw")
         note.update(text)
 
     @on(RowTable.Highlighted, ".pairs")
@@ -429,6 +443,20 @@ class ReviewerView(EntityView):
 
     kind = "reviewer"
     columns = ("Id", "Name", "Load", "Cap", "Floor", "State", "Leads", "Mean", "Institution")
+    BINDINGS = [
+        Binding(
+            "n",
+            "name_recruit",
+            "Name recruit",
+            tooltip="Turn a recruit placeholder into the real person (name, id, e-mail)",
+        ),
+    ]
+
+    def action_name_recruit(self) -> None:
+        """Ask for the real person behind the recruit placeholder under the cursor."""
+        key = self._current_key()
+        if key is not None:
+            self.post_message(self.EntityRequest("name", self.kind, key))
 
     def rows(self, facts: Facts) -> list[Row]:
         """One row per reviewer, in session order."""
@@ -467,6 +495,11 @@ class ReviewerView(EntityView):
             f"load {int(facts.loads[j])}, cap {s.reviewer_cap(j)}, floor {s.reviewer_floor(j)}   "
         )
         head.append_text(_state(facts.reviewer_status(j)))
+        if is_recruit_placeholder(r):
+            head.append(
+                "\nrecruit placeholder from an accepted fix: n names the real person",
+                style="bold yellow",
+            )
         led = [s.papers[i].id for i in facts.led_by_reviewer[j]]
         if led:
             shown = ", ".join(led[:12]) + (f", … {len(led) - 12} more" if len(led) > 12 else "")

@@ -26,8 +26,12 @@ from review_alloc.plan.explain import ShortfallGroup
 from review_alloc.plan.explanation import Explanation
 from review_alloc.plan.whatif import WhatIf
 from review_alloc.tui.grid import RowTable
+from review_alloc.workspace import FixMenu, TargetFix
 
 _TIER_WORDS = {"min_reviews": "required", "reviews": "all"}
+_TARGET_WORDS = {"minimum": "minimum", "full": "full"}
+"""Fix labels by target: 'minimum' reaches every paper's required reviews, 'full' all."""
+_KIND_WORDS = {"raise-caps": "raise caps", "recruit": "recruit"}
 """Group labels by tier: 'required 1' is the CLI's min_reviews-1, 'all 1' its reviews-1."""
 
 
@@ -44,6 +48,36 @@ def _short(ids: tuple[str, ...], most: int = 8) -> str:
     return shown + (f" … ({len(ids)} in all)" if len(ids) > most else "")
 
 
+def _cost(fix: TargetFix) -> str:
+    """What a fix costs in people and caps, in a few words."""
+    if fix.kind == "raise-caps":
+        who = "reviewer" if fix.people == 1 else "reviewers"
+        return f"{fix.people} {who} asked, caps +{fix.caps}"
+    return f"{fix.people} new {'reviewer' if fix.people == 1 else 'reviewers'}, no cap raised"
+
+
+def moves_lines(w: WhatIf, most: int = 6) -> list[str]:
+    """How many pairs a preview moves and whom to tell, a few lines (shared by the views)."""
+    recruits = w.recruits()
+    found = f"; {len(recruits)} new reviewers to find" if recruits else ""
+    if w.moves is None:
+        return [f"pairs moved: none (no plan yet, so nobody has been told){found}"]
+    moves, tell = w.moves, w.to_tell()
+    lines = [
+        f"pairs moved: {len(moves.added) + len(moves.removed)} "
+        f"(+{len(moves.added)} / -{len(moves.removed)} against the current plan)",
+        f"reviewers to tell: {len(tell)}{found}",
+    ]
+    names = {r.id: r.name for r in w.session.reviewers}
+    for rid in tell[:most]:
+        change = moves.by_reviewer[rid]
+        papers = ", ".join([f"+{p}" for p in change.added] + [f"-{p}" for p in change.removed])
+        lines.append(f"  {rid} {names.get(rid, '')}: {papers}")
+    if len(tell) > most:
+        lines.append(f"  … and {len(tell) - most} more")
+    return lines
+
+
 class ExplainView(Widget):
     """Shortfall groups over the fixes; the detail shows the chosen row, a preview, cautions."""
 
@@ -51,15 +85,32 @@ class ExplainView(Widget):
         Binding("v", "preview", "Preview fix", tooltip="Plan a copy with the fix: before/after"),
         Binding("a", "accept", "Accept fix", tooltip="Apply the fix to the session, then plan"),
         Binding("x", "app.gap_pane('papers')", "Short papers", tooltip="Back to the paper list"),
+        Binding(
+            "k",
+            "app.keep_scenario",
+            "Keep the preview as a scenario",
+            show=False,
+            tooltip="Keep the preview to compare it with others (c)",
+        ),
+        Binding("c", "app.compare_scenarios", "Compare", tooltip="The kept scenarios side by side"),
+        Binding(
+            "n",
+            "app.new_whatif",
+            "Try a what-if (cap raises, recruits, overload)",
+            show=False,
+            tooltip="Try cap raises, recruits or overload on a copy",
+        ),
     ]
 
     explanation: reactive[Explanation | None] = reactive(None, always_update=True)
+    menu: FixMenu | None = None
+    """The fixes for both targets, of the same session as `explanation` (set before it)."""
     state: reactive[str] = reactive("", always_update=True)
     preview: reactive[WhatIf | None] = reactive(None, always_update=True)
 
     @dataclass
     class FixRequest(Message):
-        """Preview or accept one fix (`kind` is one of FIX_KINDS)."""
+        """Preview or accept one fix (`kind` is one of `FIX_KEYS`)."""
 
         action: str
         kind: str
@@ -70,7 +121,7 @@ class ExplainView(Widget):
         """The group table's headings, in the session's own noun."""
         noun = f"{self._noun().capitalize()}s"
         return tuple(noun if c == "Papers" else c for c in self.GROUP_COLUMNS)
-    FIX_COLUMNS = ("Fix", "Change", "Coverage")
+    FIX_COLUMNS = ("Fix", "Cost", "Coverage")
 
     def __init__(self, *, id: str | None = None) -> None:
         super().__init__(id=id)
@@ -119,25 +170,16 @@ class ExplainView(Widget):
         )
         rows: list[list[object]] = []
         self._fix_kinds = []
-        caps, rec = explanation.caps, explanation.recruits
-        if caps.raises:
+        for fix in self._offered(explanation):
             rows.append(
                 [
-                    "raise caps",
-                    f"+{caps.total} over {len(caps.raises)} reviewers",
-                    f"{caps.coverage_before} -> {caps.coverage_after}/{caps.demand}",
+                    f"{_TARGET_WORDS[fix.target]}: {_KIND_WORDS[fix.kind]}",
+                    _cost(fix),
+                    f"{fix.coverage_before} -> {fix.coverage_after}/{fix.demand}"
+                    + (" required" if fix.target == "minimum" else ""),
                 ]
             )
-            self._fix_kinds.append("raise-caps")
-        if rec.needs:
-            rows.append(
-                [
-                    "recruit",
-                    f"{rec.total} new: " + ", ".join(f"{n.recruits} {n.topic}" for n in rec.needs),
-                    f"{rec.coverage_before} -> {rec.coverage_after}/{rec.demand}",
-                ]
-            )
-            self._fix_kinds.append("recruit")
+            self._fix_kinds.append(fix.key)
         for loss in explanation.losses:
             gain = f"+{loss.gain}" if loss.exact else f"at least +{loss.gain}"
             rows.append([f"info: {loss.kind}", f"{loss.reviewer}, {len(loss.papers)} pairs", gain])
@@ -148,6 +190,20 @@ class ExplainView(Widget):
     def watch_preview(self) -> None:
         """Show a finished what-if preview."""
         self._show_detail()
+
+    def _offered(self, explanation: Explanation) -> tuple[TargetFix, ...]:
+        """The fixes to list: both targets' when the menu is of this session, else none."""
+        menu = self.menu
+        if menu is None or menu.session is not explanation.session:
+            return ()
+        return menu.offered()
+
+    def chosen_target_fix(self) -> TargetFix | None:
+        """The fix under the fix table's cursor, None on an information row."""
+        key = self.chosen_fix()
+        if key is None or self.menu is None:
+            return None
+        return self.menu.get(key)
 
     @staticmethod
     def _numbered(explanation: Explanation) -> list[tuple[int, ShortfallGroup]]:
@@ -220,29 +276,42 @@ class ExplainView(Widget):
             f"eligible reviewers: {_short(g.reviewers)}\n"
         )
         out.append(f"cause: {g.cause}\n", style="italic")
-        out.append("tab to the fixes below; v previews one, a accepts it\n", style="dim")
+        out.append(
+            "tab to the fixes below; v previews one, a accepts it; n tries a what-if of your "
+            "own (cap raises, recruits, overload)\n",
+            style="dim",
+        )
 
     def _fix_detail(self, out: Text, explanation: Explanation) -> None:
-        kind = self.chosen_fix()
+        fix = self.chosen_target_fix()
         table = self.query_one(".fixes", RowTable)
-        if kind == "raise-caps":
-            fix = explanation.caps
-            out.append(f"Least cap raise: +{fix.total} in total\n", style="bold")
-            for r in fix.raises:
-                out.append(f"  {r.reviewer} {r.name}: cap {r.cap} -> {r.new_cap} (+{r.raise_by})\n")
-            for u in fix.unclosable:
-                out.append(f"  cannot close {u.paper} this way: {u.reason}\n")
-        elif kind == "recruit":
-            rec = explanation.recruits
-            out.append(
-                f"Recruit {rec.total} reviewers, each taking up to {rec.recruit_cap}\n",
-                style="bold",
+        noun = self._noun()
+        if fix is not None:
+            aim = (
+                f"every {noun} at its minimum (required reviews)"
+                if fix.target == "minimum"
+                else f"every {noun} fully reviewed"
             )
+            reach = "reaches" if fix.reaches else "comes as close as it can to"
+            out.append(f"{_KIND_WORDS[fix.kind].capitalize()}: {reach} {aim}\n", style="bold")
+            out.append(f"  cost: {_cost(fix)}\n")
+        if fix is not None and fix.caps_fix is not None:
+            caps = fix.caps_fix
+            for r in caps.raises:
+                out.append(f"  {r.reviewer} {r.name}: cap {r.cap} -> {r.new_cap} (+{r.raise_by})\n")
+            for u in caps.unclosable:
+                out.append(f"  cannot close {u.paper} this way: {u.reason}\n")
+        elif fix is not None and fix.recruit_fix is not None:
+            rec = fix.recruit_fix
+            out.append(f"  each recruit takes up to {rec.recruit_cap} {noun}s\n")
             for need in rec.needs:
                 out.append(f"  {need.profile}\n")
             if rec.note:
                 out.append(f"  note: {rec.note}\n")
-            out.append("  accepting adds placeholder reviewers named 'recruit k for TOPIC'\n")
+            out.append(
+                "  accepting adds placeholder reviewers named 'recruit k for TOPIC'; in the "
+                "Reviewers tab, n names the real person\n"
+            )
         else:
             k = table.cursor_row - sum(x is not None for x in self._fix_kinds)
             loss = explanation.losses[k]
@@ -252,7 +321,7 @@ class ExplainView(Widget):
             for pid, why in zip(loss.papers, loss.reasons, strict=True):
                 out.append(f"  {pid}: {why}\n")
             out.append("  No fix lifts a conflict of interest or a block.\n")
-        if kind is not None:
+        if fix is not None:
             out.append(
                 "v previews this fix on a copy; a accepts it (its plan becomes the next "
                 "revision)\n",
@@ -273,8 +342,11 @@ class ExplainView(Widget):
             f"  total score      {b.total_score:.2f} -> {a.total_score:.2f}\n"
             f"  {self._noun()}s short: {len(w.gaps_before)} -> {len(w.gaps_after)}\n"
         )
+        for line in moves_lines(w):
+            out.append(f"  {line}\n")
         out.append(
-            "  press a to accept it: this plan becomes the next revision; ctrl+z takes it back\n",
+            "  a accepts it: this plan becomes the next revision; ctrl+z takes it back. "
+            "k keeps it as a scenario, c compares the kept ones side by side\n",
             style="dim",
         )
 

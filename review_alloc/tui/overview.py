@@ -12,7 +12,7 @@ from textual.reactive import reactive
 from textual.widget import Widget
 from textual.widgets import Static
 
-from review_alloc.plan.cautions import PLAN_CAUTION
+from review_alloc.plan.cautions import FAIR_CAUTION, PLAN_CAUTION, RANDOM_CAUTION
 from review_alloc.workspace.facts import Facts
 
 BAR_WIDTH = 8
@@ -116,6 +116,7 @@ class Overview(VerticalScroll, can_focus=True):
         if facts is None:
             return
         self.query_one("#figures", Static).update(self._figures(facts))
+        self.query_one("#caution", Static).update(Text(_cautions(facts), style="italic"))
         self.query_one("#chart-topic", Chart).show(*self._topic_chart(facts))
         self.query_one("#chart-load", Chart).show(*self._load_chart(facts))
         self.query_one("#chart-score", Chart).show(*self._score_chart(facts))
@@ -157,6 +158,7 @@ class Overview(VerticalScroll, can_focus=True):
             ("below floor", str(len(under)), "OK" if not under else "CHECK"),
             ("total score", f"{f.total_score:.2f}", ""),
             ("mean score", f"{f.total_score / f.assigned:.3f}" if f.assigned else "-", ""),
+            *_kind_rows(facts),
             ("plan made", _when(plan.created_at), "checked" if plan.checked else "NOT CHECKED"),
             (
                 "data since",
@@ -195,6 +197,49 @@ class Overview(VerticalScroll, can_focus=True):
             f" ({short} topic(s) short)" if short else ""
         )
         return title, rows
+
+
+def _cautions(facts: Facts) -> str:
+    """The plan's caution, and the randomised or fairest plan's beside it."""
+    plan = facts.session.plan
+    lines = [PLAN_CAUTION]
+    if plan is not None and plan.draw is not None:
+        lines.append(RANDOM_CAUTION)
+    elif plan is not None and plan.fairness is not None:
+        lines.append(FAIR_CAUTION)
+    return "\n".join(lines)
+
+
+def _kind_rows(facts: Facts) -> list[tuple[str, str, str]]:
+    """For a randomised or fairest plan: what kind it is, and its figures beside the optimal
+    plan's (what the randomness or the fairness costs)."""
+    plan = facts.session.plan
+    if plan is None:
+        return []
+    if plan.draw is not None:
+        d = plan.draw
+        rows = [("plan kind", f"randomised: each pair at most {d.max_probability:g}", "")]
+        rows.append(("seed", f"{d.seed} (o: plan options; r draws again with it)", ""))
+        expected = d.expected.get("total_score")
+        if expected is not None and d.plain is not None:
+            plain = d.plain["total_score"]
+            given = f"-{plain - expected:.2f}"
+            rows.append(("expected score", f"{expected:.2f} vs {plain:.2f} optimal", given))
+        return rows
+    if plan.fairness is not None:
+        f = plan.fairness
+        rows = [("plan kind", "fairest" + ("" if f.exact else " found (not proven)"), "")]
+        low = f"{f.lowest_paper_score:.2f}"
+        if f.plain_lowest_paper_score is not None:
+            low += f" vs {f.plain_lowest_paper_score:.2f} optimal"
+        rows.append((f"lowest {facts.noun} total", low, f"bound {f.bound:.2f}"))
+        if f.plain is not None:
+            plain = f.plain["total_score"]
+            total = plan.figures.total_score
+            given = f"-{plain - total:.2f}"
+            rows.append(("score vs optimal", f"{total:.2f} vs {plain:.2f}", given))
+        return rows
+    return []
 
 
 def _when(moment: datetime) -> str:

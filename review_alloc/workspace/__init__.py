@@ -7,6 +7,8 @@ is a previous outcome), explain, preview a fix or a what-if, and accept it as on
 The faces format and display; they never save, solve or decide a rule around it.
 """
 
+from typing import Any
+
 from review_alloc.workspace.base import ChangeRefused
 from review_alloc.workspace.files import (
     FileChanged,
@@ -18,13 +20,30 @@ from review_alloc.workspace.files import (
 )
 from review_alloc.workspace.history import HistoryEntry
 from review_alloc.workspace.planning import ChangeSet, PlanningMixin, PlanRequest, prepare_solver
+from review_alloc.workspace.recruits import RecruitsMixin
 
 
-class Workspace(FilesMixin, PlanningMixin):
+class Workspace(FilesMixin, PlanningMixin, RecruitsMixin):
     """An open session with its file path, its unsaved-changes mark, its changes and services."""
 
 
+_FROM_FIXES = ("FIX_KEYS", "FixMenu", "TargetFix")
+
+
+def __getattr__(name: str) -> Any:
+    """The fix types, loaded on first use: the fixes need scipy, and a command that only
+    reads a session must start without it."""
+    if name in _FROM_FIXES:
+        from review_alloc.plan import fixes
+
+        return getattr(fixes, name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
 __all__ = [
+    "FIX_KEYS",
+    "FixMenu",
+    "TargetFix",
     "ChangeRefused",
     "ChangeSet",
     "FileChanged",

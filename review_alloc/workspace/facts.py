@@ -61,6 +61,9 @@ class Facts:
     """The reviewer (index) who leads each paper's discussion in the plan, or None."""
     led_by_reviewer: list[list[int]] = field(default_factory=list)
     """The papers (indices) each reviewer leads in the plan, in session order."""
+    probability_keys: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
+    """For a randomised plan: reviewer * papers + paper of every pair with a chance, sorted."""
+    probability_values: np.ndarray = field(default_factory=lambda: np.zeros(0))
 
     @classmethod
     def of(cls, session: Session, previous: Facts | None = None) -> Facts:
@@ -91,6 +94,7 @@ class Facts:
         reviews, minimum, cap, floor = active_demands(session)
         rules = PairRules.renewed(session, previous.rules if previous is not None else None)
         pair_keys, pair_values = rules.sorted_scores()
+        prob_keys, prob_values = _probabilities(session)
         return cls(
             session=session,
             loads=loads,
@@ -109,6 +113,8 @@ class Facts:
             rules=rules,
             lead_of_paper=lead_of,
             led_by_reviewer=led,
+            probability_keys=prob_keys,
+            probability_values=prob_values,
         )
 
     # -- single figures -------------------------------------------------------------------
@@ -116,6 +122,23 @@ class Facts:
     def score(self, reviewer: int, paper: int) -> float | None:
         """The score of a pair, or None when the table has no row for it."""
         return self.rules.score(reviewer, paper)
+
+    @property
+    def randomised(self) -> bool:
+        """Whether the current plan was drawn at random (pairs have probabilities)."""
+        plan = self.session.plan
+        return plan is not None and plan.draw is not None
+
+    def probability(self, reviewer: int, paper: int) -> float | None:
+        """The pair's probability in the randomised plan's draw (0 when it had no chance);
+        None when the plan is not a random draw."""
+        if not self.randomised:
+            return None
+        key = reviewer * max(len(self.session.papers), 1) + paper
+        at = int(np.searchsorted(self.probability_keys, key))
+        if at < len(self.probability_keys) and self.probability_keys[at] == key:
+            return float(self.probability_values[at])
+        return 0.0
 
     def paper_status(self, i: int) -> str:
         """A short word for a paper's coverage, readable without colour."""
@@ -281,3 +304,21 @@ class Facts:
                 placed[topic] = placed.get(topic, 0) + int(min(self.counts[i], self.reviews[i]))
                 wanted[topic] = wanted.get(topic, 0) + int(self.reviews[i])
         return [(t, placed[t], wanted[t]) for t in sorted(wanted)]
+
+
+def _probabilities(session: Session) -> tuple[np.ndarray, np.ndarray]:
+    """The draw's pair probabilities as sorted keys and values (empty for other plans).
+
+    Positions are those of the session the draw was made from; entities are only ever
+    appended, so positions past today's lists are dropped and the rest still match."""
+    plan = session.plan
+    if plan is None or plan.draw is None:
+        return np.zeros(0, np.int64), np.zeros(0)
+    table = plan.draw.probabilities
+    n_r, n_p = len(session.reviewers), len(session.papers)
+    reviewer = table.reviewer.astype(np.int64)
+    paper = table.paper.astype(np.int64)
+    keep = (reviewer < n_r) & (paper < n_p)
+    keys = reviewer[keep] * max(n_p, 1) + paper[keep]
+    order = np.argsort(keys, kind="stable")
+    return keys[order], np.asarray(table.value, dtype=np.float64)[keep][order]

@@ -22,6 +22,7 @@ from review_alloc.workspace.history import HistoryMixin
 
 if TYPE_CHECKING:
     from review_alloc.plan.explanation import Explanation
+    from review_alloc.plan.fixes import FixMenu
     from review_alloc.plan.solve import PlanOutcome
     from review_alloc.plan.whatif import WhatIf
 
@@ -87,7 +88,8 @@ class ChangeSet:
     """The changes of a what-if: computed fixes, cap raises, recruits, an overload allowance."""
 
     fixes: tuple[str, ...] = ()
-    """Fix kinds (`FIX_KINDS`) taken from the explanation of the session as it is."""
+    """Fixes (`plan.fixes.FIX_KEYS`: 'raise-caps-min', 'recruit-min' for every paper's minimum,
+    'raise-caps', 'recruit' for full coverage) computed for the session as it is."""
     raise_caps: Mapping[str, int] = field(default_factory=dict)
     """Reviewer id -> papers added to their cap."""
     add_reviewers: Mapping[str, int] = field(default_factory=dict)
@@ -286,6 +288,20 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
 
         return explain(session if session is not None else self.session)
 
+    def fixes(
+        self, session: Session | None = None, explanation: Explanation | None = None
+    ) -> FixMenu:
+        """The cap-raise and recruit fixes for both targets (every paper at its minimum, every
+        paper fully reviewed), each with its cost in people and caps; `explanation` of the same
+        session saves recomputing the full target's fixes."""
+        from review_alloc.plan.fixes import fix_menu
+
+        s = session if session is not None else self.session
+        full = None
+        if explanation is not None and explanation.session is s:
+            full = (explanation.caps, explanation.recruits)
+        return fix_menu(s, full=full)
+
     def explain_report(self) -> dict[str, object]:
         """The explanation as one JSON-ready object, beside the current optimal plan.
 
@@ -300,22 +316,46 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
     # -- what-ifs and fixes ---------------------------------------------------------------
 
     def changed_copy(
-        self, changes: ChangeSet, explanation: Explanation | None = None
+        self,
+        changes: ChangeSet,
+        explanation: Explanation | None = None,
+        *,
+        menu: FixMenu | None = None,
     ) -> tuple[Session, tuple[str, ...]]:
-        """The session changed as asked (a copy; nothing is recorded) and the changes in words."""
+        """The session changed as asked (a copy; nothing is recorded) and the changes in words.
+
+        Each fix is computed on the session as changed by the fixes before it; an
+        `explanation` or `menu` of the session as it is saves computing the first again."""
         from review_alloc.plan.explanation import FIX_KINDS, explain
-        from review_alloc.plan.whatif import add_recruits, allow_overload, raise_caps
+        from review_alloc.plan.fixes import FIX_KEYS, fix_menu
+        from review_alloc.plan.whatif import (
+            add_recruits,
+            allow_overload,
+            apply_cap_fix,
+            apply_recruit_fix,
+            raise_caps,
+        )
 
         changed = self.session
         lines: list[str] = []
         for kind in dict.fromkeys(changes.fixes):
-            if kind not in FIX_KINDS:
-                raise ChangeRefused([f"fix {kind!r}: choose one of {', '.join(FIX_KINDS)}"])
-            if explanation is None or explanation.session is not changed:
-                explanation = explain(changed)
-            changed, words = explanation.fix_copy(kind)
+            if kind not in FIX_KEYS:
+                raise ChangeRefused([f"fix {kind!r}: choose one of {', '.join(FIX_KEYS)}"])
+            if kind in FIX_KINDS and (menu is None or menu.session is not changed):
+                if explanation is None or explanation.session is not changed:
+                    explanation = explain(changed)
+                changed, words = explanation.fix_copy(kind)
+            else:
+                if menu is None or menu.session is not changed:
+                    menu = fix_menu(changed)
+                fix = menu.get(kind)
+                words = fix.changes()
+                if fix.caps_fix is not None:
+                    changed = apply_cap_fix(changed, fix.caps_fix)
+                elif fix.recruit_fix is not None:
+                    changed = apply_recruit_fix(changed, fix.recruit_fix)
             lines += words
-            explanation = None
+            explanation, menu = None, None
         if changes.raise_caps:
             label = changes.labels.get("raise_caps", "raise cap")
             changed = raise_caps(changed, changes.raise_caps, label=label)
@@ -331,18 +371,25 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
             )
         return changed, tuple(lines)
 
-    def what_if(self, changes: ChangeSet, explanation: Explanation | None = None) -> WhatIf:
+    def what_if(
+        self,
+        changes: ChangeSet,
+        explanation: Explanation | None = None,
+        *,
+        menu: FixMenu | None = None,
+    ) -> WhatIf:
         """Plan the session as it is and as changed, both on copies; nothing is recorded.
 
         The changed copy is planned as the re-plan that accepting would install, so what the
-        preview shows is what the session gets.
+        preview shows is what the session gets; its `moves` say which pairs move from the
+        plan the reviewers know and whom to tell.
         """
         from review_alloc.plan.whatif import what_if
 
         if changes.is_empty():
             raise ChangeRefused(["a what-if needs at least one change"])
         base = self.session
-        changed, lines = self.changed_copy(changes, explanation)
+        changed, lines = self.changed_copy(changes, explanation, menu=menu)
         current = base.plan if base.plan is not None and self.plan_is_current() else None
         earlier = self.earlier_plan()
         result = what_if(

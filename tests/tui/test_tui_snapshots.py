@@ -10,6 +10,7 @@ from collections.abc import Callable
 from textual.pilot import Pilot
 
 from review_alloc.tui import ReviewAllocApp
+from tests.tui.conftest import FIXED_TIME
 
 Factory = Callable[..., ReviewAllocApp]
 
@@ -41,3 +42,19 @@ def test_papers_at_80_by_24(snap_compare, new_app: Factory) -> None:
 
 def test_help_screen(snap_compare, new_app: Factory) -> None:
     assert snap_compare(new_app(), terminal_size=(100, 40), press=["question_mark"])
+
+
+def test_plan_options_at_80_by_24(snap_compare, new_app: Factory) -> None:
+    # The chosen kind shows by its mark (●), not by colour alone; the caution under it.
+    assert snap_compare(new_app(), terminal_size=(80, 24), press=["o", "down", "enter"])
+
+
+def test_overview_of_a_randomised_plan(snap_compare, new_app: Factory) -> None:
+    async def run_before(pilot: Pilot) -> None:
+        app = pilot.app
+        assert isinstance(app, ReviewAllocApp)
+        app.workspace.solve(max_probability=0.5, seed=7, now=FIXED_TIME)
+        app._refresh_all()
+        await pilot.pause()
+
+    assert snap_compare(new_app(), terminal_size=(120, 36), run_before=run_before)
