@@ -1,10 +1,17 @@
-"""Seeded benchmark instances: invented venues of three families at three sizes.
+"""Seeded benchmark instances: invented venues of four families at three sizes, in three orders.
 
 Families (the issue's definitions):
 - *loose*: reviewer caps add up to about 1.4 times the reviews wanted;
 - *tight*: caps add up to exactly the reviews wanted;
 - *scarce*: caps as in *loose*, but one topic in ten has far too few candidate reviewers, so
-  its papers are left with gaps.
+  its papers are left with gaps;
+- *skewed*: caps as in *loose*, candidates shaped like real score files: paper popularity and
+  reviewer activity follow Zipf-like laws, so a few reviewers have scores for most papers, a
+  few papers have thousands of candidates and most have a few dozen or fewer.
+
+Orders (`ORDERS`, `edge_order`): the same edges listed *reviewer-major* (the order the
+instances are built in, and the planner's own), *paper-major* (edges grouped by the node they
+enter, as a scores file lists them paper by paper), or *shuffled* (a seeded permutation).
 
 Sizes: S = 500 papers x 300 reviewers with every pair a candidate; M = 3,000 x 2,000 with 100
 candidate reviewers per paper; L = 20,000 x 15,000 with 150 candidates per paper (3 million
@@ -27,10 +34,17 @@ SIZES: dict[str, tuple[int, int, int | None]] = {
 }
 """Size name -> (papers, reviewers, candidates per paper; None means every pair)."""
 
-FAMILIES = ("loose", "tight", "scarce")
+FAMILIES = ("loose", "tight", "scarce", "skewed")
+ORDERS = ("reviewer-major", "paper-major", "shuffled")
 REVIEWS, MIN_REVIEWS = 3, 2
 _TOPICS = 10
-_SEEDS = {"loose": 11, "tight": 23, "scarce": 37}
+_SEEDS = {"loose": 11, "tight": 23, "scarce": 37, "skewed": 41}
+_SKEW_MEAN = 100
+"""Mean candidates per paper of the *skewed* family at size S (where the others take every pair)."""
+_PAPER_ZIPF, _REVIEWER_ZIPF = 1.0, 0.9
+"""Zipf exponents of paper popularity and reviewer activity in the *skewed* family."""
+_SKEW_MIN = 4
+"""Fewest candidates a paper of the *skewed* family is drawn with (before repeats are dropped)."""
 
 
 @dataclass(frozen=True)
@@ -83,7 +97,9 @@ def make_instance(family: str, size: str) -> Instance:
         in_zero = np.flatnonzero(reviewer_topic == 0)
         reviewer_topic[in_zero[max(3, len(in_zero) // 12):]] = 1
 
-    if per_paper is None:
+    if family == "skewed":
+        paper, reviewer = _skewed_candidates(rng, n_p, n_r, per_paper or _SKEW_MEAN)
+    elif per_paper is None:
         paper = np.repeat(np.arange(n_p), n_r)
         reviewer = np.tile(np.arange(n_r), n_p)
     else:
@@ -142,6 +158,49 @@ def _candidates(
     flat = chosen.ravel()
     keep = flat >= 0
     return papers[keep], flat[keep]
+
+
+def _zipf_weights(rng: np.random.Generator, count: int, exponent: float) -> np.ndarray:
+    """Weights rank**-exponent, summing to 1, handed to the items in a random order."""
+    weights = np.arange(1, count + 1, dtype=np.float64) ** -exponent
+    return rng.permutation(weights / weights.sum())
+
+
+def _skewed_candidates(
+    rng: np.random.Generator, n_p: int, n_r: int, mean: int
+) -> tuple[np.ndarray, np.ndarray]:
+    """Candidate pairs whose paper and reviewer degrees follow Zipf-like laws (about `mean`
+    candidates per paper on average)."""
+    popularity = _zipf_weights(rng, n_p, _PAPER_ZIPF)
+    activity = _zipf_weights(rng, n_r, _REVIEWER_ZIPF)
+    degree = np.clip(np.round(popularity * mean * n_p), _SKEW_MIN, n_r // 2).astype(np.int64)
+    # Draw a third more than wanted per paper from the activity law and drop repeated pairs:
+    # the most active reviewers come up for nearly every paper, as in real score files.
+    draws = np.repeat(np.arange(n_p), np.ceil(degree * 4 / 3).astype(np.int64))
+    picked = rng.choice(n_r, size=len(draws), p=activity)
+    keys = np.unique(draws * n_r + picked)
+    paper, reviewer = keys // n_r, keys % n_r
+    # Keep at most `degree` candidates per paper (its first ones in a random order).
+    order = np.lexsort((rng.random(len(keys)), paper))
+    paper, reviewer = paper[order], reviewer[order]
+    first = np.searchsorted(paper, np.arange(n_p))
+    rank = np.arange(len(paper)) - first[paper]
+    keep = rank < degree[paper]
+    return paper[keep], reviewer[keep]
+
+
+def edge_order(tails: np.ndarray, heads: np.ndarray, order: str, seed: int = 7) -> np.ndarray:
+    """The permutation listing the edges in `order` (one of `ORDERS`); edges come built
+    reviewer-major, so that order is the identity."""
+    if order == "reviewer-major":
+        return np.arange(len(tails))
+    if order == "paper-major":
+        # Grouped by the node entered, in the order built within a group: pair edges come
+        # paper by paper, reviewers in order within a paper.
+        return np.argsort(heads, kind="stable")
+    if order == "shuffled":
+        return np.random.default_rng(seed).permutation(len(tails))
+    raise ValueError(f"unknown order {order!r}; choose from {', '.join(ORDERS)}")
 
 
 def max_flow_arrays(

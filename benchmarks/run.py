@@ -3,6 +3,7 @@
     python benchmarks/run.py                  # sizes S and M, every family
     python benchmarks/run.py --sizes L        # the large instances (a few minutes)
     python benchmarks/run.py --sizes S,M,L --write-results
+    python benchmarks/run.py --sizes L --only-orders   # engine vs references in every order
 
 Every comparison runs in this one process on the same arrays, after a warm-up run, and reports
 the median of `--repeats` runs (3 by default) and the ratio ours / reference (below 1: we are
@@ -24,6 +25,7 @@ import sys
 import tempfile
 import time
 from collections.abc import Callable
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -36,8 +38,10 @@ sys.path.insert(0, str(HERE))
 
 from instances import (  # noqa: E402
     FAMILIES,
+    ORDERS,
     SIZES,
     Instance,
+    edge_order,
     make_instance,
     make_session,
     max_flow_arrays,
@@ -77,6 +81,20 @@ def scipy_max_flow(n: int, tails: np.ndarray, heads: np.ndarray, caps: np.ndarra
     return lambda: int(maximum_flow(graph, s, t, method="dinic").flow_value)
 
 
+def scipy_max_flow_from_edges(n: int, tails: np.ndarray, heads: np.ndarray, caps: np.ndarray,
+                              s: int, t: int) -> Callable[[], int]:
+    """scipy's Dinic timed with its CSR built from the edge list, as ours is (for context)."""
+    from scipy.sparse import csr_matrix
+    from scipy.sparse.csgraph import maximum_flow
+
+    def run() -> int:
+        graph = csr_matrix((caps.astype(np.int32), (tails, heads)), shape=(n, n))
+        graph.sum_duplicates()
+        return int(maximum_flow(graph, s, t, method="dinic").flow_value)
+
+    return run
+
+
 def ortools_max_flow(n: int, tails: np.ndarray, heads: np.ndarray, caps: np.ndarray,
                      s: int, t: int) -> Callable[[], int]:
     """OR-Tools SimpleMaxFlow, arcs added from the same arrays on every run."""
@@ -92,7 +110,7 @@ def ortools_max_flow(n: int, tails: np.ndarray, heads: np.ndarray, caps: np.ndar
     return run
 
 
-def ortools_min_cost(net: PlanNetwork) -> Callable[[], int]:
+def ortools_min_cost(net: PlanNetwork | CostNetwork) -> Callable[[], int]:
     """OR-Tools SimpleMinCostFlow on the planner's circulation (lower bounds shifted out)."""
     from ortools.graph.python import min_cost_flow as ortools_mcf
 
@@ -113,6 +131,24 @@ def ortools_min_cost(net: PlanNetwork) -> Callable[[], int]:
         return int(solver.optimal_cost()) + int(low @ net.costs)
 
     return run
+
+
+@dataclass(frozen=True)
+class CostNetwork:
+    """The arrays of a circulation with costs: the planner's network with its edges reordered."""
+
+    n_nodes: int
+    tails: np.ndarray
+    heads: np.ndarray
+    capacities: np.ndarray
+    lower: np.ndarray
+    costs: np.ndarray
+
+    @classmethod
+    def reordered(cls, net: PlanNetwork, order: np.ndarray) -> CostNetwork:
+        """The same edges as `net`, listed in `order`."""
+        return cls(net.n_nodes, net.tails[order], net.heads[order], net.capacities[order],
+                   net.lower[order], net.costs[order])
 
 
 def highs_min_cost(net: PlanNetwork) -> Callable[[], int]:
@@ -257,7 +293,13 @@ def bench_commands(inst: Instance, repeats: int) -> tuple[float, float]:
 # --- one instance ------------------------------------------------------------------------------
 
 
-def ours_min_cost(net: PlanNetwork) -> Callable[[], int]:
+def ours_max_flow(n: int, tails: np.ndarray, heads: np.ndarray, caps: np.ndarray,
+                  s: int, t: int) -> Callable[[], int]:
+    """Our max_flow on the given edges; the value."""
+    return lambda: max_flow(n, tails, heads, caps, s, t).value
+
+
+def ours_min_cost(net: PlanNetwork | CostNetwork) -> Callable[[], int]:
     """Our min_cost_flow on the planner's network."""
     return lambda: min_cost_flow(
         net.n_nodes, net.tails, net.heads, net.capacities, net.costs, lower=net.lower
@@ -332,6 +374,48 @@ def bench_instance(family: str, size: str, repeats: int) -> list[dict[str, Any]]
     ).cost, repeats)
     assert warm_cost == cold_cost, (warm_cost, cold_cost)
     row("re-solve, 1% withdrawn", warm_t, "cold solve", cold_t)
+    return rows
+
+
+def bench_orders(family: str, size: str, repeats: int, orders: list[str],
+                 cost_repeats: int | None = None) -> list[dict[str, Any]]:
+    """The engine against scipy's Dinic (max flow) and OR-Tools (min-cost flow) on the same
+    instance with its edges listed in each order; one row per order. `cost_repeats` (default
+    `repeats`) sets the runs of the slower min-cost comparison."""
+    cost_repeats = repeats if cost_repeats is None else cost_repeats
+    inst = make_instance(family, size)
+    n, tails, heads, caps, s, t = max_flow_arrays(inst)
+    net = build_network(make_session(inst))
+    rows: list[dict[str, Any]] = []
+    values: set[int] = set()
+    costs: set[int] = set()
+    for order in orders:
+        perm = edge_order(tails, heads, order)
+        o_tails, o_heads, o_caps = tails[perm], heads[perm], caps[perm]
+        flow_t, ours = median_time(ours_max_flow(n, o_tails, o_heads, o_caps, s, t), repeats)
+        scipy_t, value = median_time(scipy_max_flow(n, o_tails, o_heads, o_caps, s, t), repeats)
+        assert value == ours, (order, value, ours)
+        values.add(value)
+        built_t, _ = median_time(
+            scipy_max_flow_from_edges(n, o_tails, o_heads, o_caps, s, t), repeats)
+
+        cost_net = CostNetwork.reordered(net, edge_order(net.tails, net.heads, order))
+        cost_t, cost = median_time(ours_min_cost(cost_net), cost_repeats)
+        ortools_t, ref_cost = median_time(ortools_min_cost(cost_net), cost_repeats)
+        assert cost == ref_cost, (order, cost, ref_cost)
+        costs.add(cost)
+        rows.append({
+            "instance": inst.name, "order": order, "edges": len(tails),
+            "max_flow_s": flow_t, "scipy_dinic_s": scipy_t, "max_flow_ratio": flow_t / scipy_t,
+            "scipy_with_csr_s": built_t,
+            "min_cost_s": cost_t, "ortools_s": ortools_t, "min_cost_ratio": cost_t / ortools_t,
+        })
+        print(f"  {inst.name:10s} {order:15s} max flow ours {flow_t:.3f}s scipy dinic "
+              f"{scipy_t:.3f}s ratio {flow_t / scipy_t:.2f} (with its CSR build {built_t:.3f}s, "
+              f"{flow_t / built_t:.2f}) | min-cost ours {cost_t:.3f}s "
+              f"OR-Tools {ortools_t:.3f}s ratio {cost_t / ortools_t:.2f}", flush=True)
+    # The order of the edges changes neither optimum.
+    assert len(values) == 1 and len(costs) == 1, (values, costs)
     return rows
 
 
@@ -493,6 +577,20 @@ def markdown(report: dict[str, Any]) -> str:
             f"| {r['instance']} | {r['task']} | {r['ours_s']:.3f} | {r['reference']} | "
             f"{r['reference_s']:.3f} | {r['ratio']:.2f} |"
         )
+    if report.get("orders"):
+        lines += ["", "The same instances with their edges in other orders (max flow: ours / "
+                  "scipy's Dinic on a CSR graph built beforehand, and for context scipy timed "
+                  "with that build from the same edge list; min-cost flow on the planner's "
+                  "network: ours / OR-Tools):", "",
+                  "| instance | order | max flow (s) | scipy dinic (s) | ratio | scipy with CSR "
+                  "build (s) | min-cost (s) | OR-Tools (s) | ratio |",
+                  "| --- | --- | ---: | ---: | ---: | ---: | ---: | ---: | ---: |"]
+        for r in report["orders"]:
+            lines.append(f"| {r['instance']} | {r['order']} | {r['max_flow_s']:.3f} | "
+                         f"{r['scipy_dinic_s']:.3f} | {r['max_flow_ratio']:.2f} | "
+                         f"{r['scipy_with_csr_s']:.3f} | "
+                         f"{r['min_cost_s']:.3f} | {r['ortools_s']:.3f} | "
+                         f"{r['min_cost_ratio']:.2f} |")
     if report.get("phases"):
         lines += ["", "Dinic phases on unit-capacity bipartite graphs (degree 4):", "",
                   "| V | E | phases | phases / sqrt(V) |", "| ---: | ---: | ---: | ---: |"]
@@ -520,6 +618,12 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--sizes", default="S,M", help="comma-separated: S, M, L")
     parser.add_argument("--families", default=",".join(FAMILIES))
     parser.add_argument("--repeats", type=int, default=3)
+    parser.add_argument("--orders", default=",".join(ORDERS),
+                        help="edge orders for the engine comparison: " + ", ".join(ORDERS))
+    parser.add_argument("--order-cost-repeats", type=int, default=None,
+                        help="runs of the min-cost comparison in every order (default --repeats)")
+    parser.add_argument("--only-orders", action="store_true",
+                        help="run only the engine comparison in every order (no extras)")
     parser.add_argument("--no-extras", action="store_true",
                         help="skip the phase scaling, memory and compile measurements")
     parser.add_argument("--write-results", action="store_true",
@@ -533,18 +637,27 @@ def main(argv: list[str] | None = None) -> None:
     for family in families:
         if family not in FAMILIES:
             parser.error(f"unknown family {family!r}; choose from {', '.join(FAMILIES)}")
+    orders = [o.strip() for o in args.orders.split(",") if o.strip()]
+    for order in orders:
+        if order not in ORDERS:
+            parser.error(f"unknown order {order!r}; choose from {', '.join(ORDERS)}")
 
     warm_up()
     report: dict[str, Any] = {
         "command": "python benchmarks/run.py " + " ".join(argv if argv is not None
                                                          else sys.argv[1:]),
         "date": time.strftime("%Y-%m-%d %H:%M UTC", time.gmtime()),
-        "machine": machine(), "repeats": args.repeats, "rows": [],
+        "machine": machine(), "repeats": args.repeats, "rows": [], "orders": [],
+        "order_cost_repeats": args.order_cost_repeats,
     }
     for size in sizes:
         for family in families:
-            report["rows"] += bench_instance(family, size, args.repeats)
-    if not args.no_extras:
+            if not args.only_orders:
+                report["rows"] += bench_instance(family, size, args.repeats)
+            if orders:
+                report["orders"] += bench_orders(family, size, args.repeats, orders,
+                                                 args.order_cost_repeats)
+    if not (args.no_extras or args.only_orders):
         report["phases"] = bench_phases([1_000, 4_000, 16_000, 64_000, 256_000])
         report["memory"] = bench_memory(sizes[-1])
         report["compile"] = bench_compile()

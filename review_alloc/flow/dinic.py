@@ -13,7 +13,12 @@ import numpy as np
 from numba import njit
 
 from review_alloc.flow._jit import HELPER_OPTIONS, KERNEL_OPTIONS
-from review_alloc.flow.residual import ResidualNetwork, scan_and_index_edges
+from review_alloc.flow.residual import (
+    ResidualNetwork,
+    index_by_head,
+    scan_edges,
+    sort_by_tail,
+)
 
 _INF = np.iinfo(np.int64).max
 
@@ -213,9 +218,7 @@ def reaching(net: ResidualNetwork, sink: int) -> np.ndarray:
 
 @njit(**HELPER_OPTIONS)
 def _edge_bfs(
-    identity: bool,
     out_start: np.ndarray,
-    out_edge: np.ndarray,
     in_start: np.ndarray,
     in_edge: np.ndarray,
     tails: np.ndarray,
@@ -241,8 +244,7 @@ def _edge_bfs(
         u = queue[q_head]
         q_head += 1
         next_level = level[u] + 1
-        for p in range(out_start[u], out_start[u + 1]):
-            e = p if identity else out_edge[p]
+        for e in range(out_start[u], out_start[u + 1]):
             v = heads[e]
             if level[v] < 0 and caps[e] > flow[e]:
                 level[v] = next_level
@@ -265,9 +267,7 @@ def _edge_bfs(
 
 @njit(**HELPER_OPTIONS)
 def _edge_blocking_flow(
-    identity: bool,
     out_start: np.ndarray,
-    out_edge: np.ndarray,
     in_start: np.ndarray,
     in_edge: np.ndarray,
     tails: np.ndarray,
@@ -324,14 +324,13 @@ def _edge_blocking_flow(
         advanced = False
         end = out_start[u + 1]
         while it_out[u] < end:
-            p = it_out[u]
-            e = p if identity else out_edge[p]
+            e = it_out[u]
             v = heads[e]
             if level[v] == next_level and caps[e] > flow[e]:
                 stack[depth] = e
                 advanced = True
                 break
-            it_out[u] = p + 1
+            it_out[u] = e + 1
         if not advanced:
             end = in_start[u + 1]
             while it_in[u] < end:
@@ -360,9 +359,7 @@ def _edge_blocking_flow(
 
 @njit(**HELPER_OPTIONS)
 def _edge_reaching(
-    identity: bool,
     out_start: np.ndarray,
-    out_edge: np.ndarray,
     in_start: np.ndarray,
     in_edge: np.ndarray,
     tails: np.ndarray,
@@ -391,13 +388,62 @@ def _edge_reaching(
                 seen[u] = True
                 queue[q_tail] = u
                 q_tail += 1
-        for p in range(out_start[v], out_start[v + 1]):
-            e = p if identity else out_edge[p]
+        for e in range(out_start[v], out_start[v + 1]):
             u = heads[e]
             if not seen[u] and flow[e] > 0:
                 seen[u] = True
                 queue[q_tail] = u
                 q_tail += 1
+
+
+@njit(**HELPER_OPTIONS)
+def _solve_by_tail(
+    n: int,
+    tails: np.ndarray,
+    heads: np.ndarray,
+    caps: np.ndarray,
+    out_start: np.ndarray,
+    in_start: np.ndarray,
+    source: int,
+    sink: int,
+    flow: np.ndarray,
+    carried: np.ndarray,
+    in_edge: np.ndarray,
+    in_pos: np.ndarray,
+) -> tuple[int, int, np.ndarray, np.ndarray]:
+    """Dinic on edges listed by tail (the edges leaving v are `out_start[v]:out_start[v + 1]`).
+
+    Returns (value, phases, source side, sink side) and leaves the flow in `flow`. The source
+    side comes from the last BFS, which could not reach the sink and so labelled every node
+    reachable in the final residual; the sink side (the nodes that can still reach the sink)
+    from a walk against the residual arcs.
+    """
+    index_by_head(n, heads, in_start, in_edge, in_pos)
+    level = np.empty(n, dtype=np.int32)
+    queue = np.empty(n, dtype=np.int32)
+    it_out = np.empty(n, dtype=np.int64)
+    it_in = np.empty(n, dtype=np.int64)
+    stack = np.empty(n, dtype=np.int64)
+    nodes = np.empty(n, dtype=np.int64)
+    value = 0
+    phases = 0
+    while _edge_bfs(
+        out_start, in_start, in_edge, tails, carried, heads, caps, flow, source, sink, level,
+        queue,
+    ):
+        for v in range(n):
+            it_out[v] = out_start[v]
+            it_in[v] = in_start[v]
+        value += _edge_blocking_flow(
+            out_start, in_start, in_edge, tails, in_pos, carried, heads, caps, flow, source,
+            sink, level, it_out, it_in, stack, nodes,
+        )
+        phases += 1
+    sink_side = np.zeros(n, dtype=np.bool_)
+    _edge_reaching(
+        out_start, in_start, in_edge, tails, heads, caps, flow, sink, sink_side, queue,
+    )
+    return value, phases, level >= 0, sink_side
 
 
 @njit(**KERNEL_OPTIONS)
@@ -412,46 +458,53 @@ def max_flow_kernel(
     flow: np.ndarray,
     carried: np.ndarray,
     index: np.ndarray,
+    work: np.ndarray,
 ) -> tuple[int, int, int, np.ndarray, np.ndarray]:
     """Check, index and solve a max flow without lower bounds in one call.
 
-    Takes zeroed `flow` (int64) and `carried` (bool) arrays with one entry per edge and an
-    int32 scratch `index` of shape (3, edges), all allocated by the caller. Returns (status,
-    value, phases, source side, sink side) and leaves the flow in `flow`; a nonzero status is
-    that of `scan_and_index_edges` and nothing was solved. The source side comes from the last
-    BFS, which could not reach the sink and so labelled every node reachable in the final
-    residual; the sink side (the nodes that can still reach the sink) from a walk against the
-    residual arcs.
+    Takes zeroed `flow` (int64) and `carried` (bool) arrays with one entry per edge, an int32
+    scratch `index` of shape (3, edges) and an int64 scratch `work` of shape (4, edges), all
+    allocated by the caller (`work` is written only when the edges come in no order, so an
+    `np.empty` costs nothing otherwise). Returns (status, value, phases, source side, sink side)
+    and leaves the flow in `flow`, one entry per edge in the caller's order; a nonzero status is
+    that of `scan_edges` and nothing was solved.
+
+    The kernels want every node's leaving edges together in memory. Edges listed by tail are
+    solved as they are; edges listed by head (a scores file lists pairs paper by paper) are
+    solved as they are too, as the reversed problem (sink to source on the reversed edges: the
+    same flow per edge, the two cut sides swapped); any other order is counting-sorted by tail
+    first and the flow mapped back.
     """
-    out_edge, in_edge, in_pos = index[0], index[1], index[2]
-    status, identity, out_start, in_start = scan_and_index_edges(
-        n, tails, heads, caps, total_checked, out_edge, in_edge, in_pos
+    in_edge, in_pos, order = index[0], index[1], index[2]
+    out_start = np.zeros(n + 1, dtype=np.int64)
+    in_start = np.zeros(n + 1, dtype=np.int64)
+    status, by_tail, by_head = scan_edges(
+        n, tails, heads, caps, total_checked, out_start, in_start
     )
-    level = np.empty(n, dtype=np.int32)
     if status != 0:
-        return status, 0, 0, level >= 0, level >= 0
-    queue = np.empty(n, dtype=np.int32)
-    it_out = np.empty(n, dtype=np.int64)
-    it_in = np.empty(n, dtype=np.int64)
-    stack = np.empty(n, dtype=np.int64)
-    nodes = np.empty(n, dtype=np.int64)
-    value = 0
-    phases = 0
-    while _edge_bfs(
-        identity, out_start, out_edge, in_start, in_edge, tails, carried, heads, caps, flow,
-        source, sink, level, queue,
-    ):
-        for v in range(n):
-            it_out[v] = out_start[v]
-            it_in[v] = in_start[v]
-        value += _edge_blocking_flow(
-            identity, out_start, out_edge, in_start, in_edge, tails, in_pos, carried, heads,
-            caps, flow, source, sink, level, it_out, it_in, stack, nodes,
+        nothing = np.zeros(n, dtype=np.bool_)
+        return status, 0, 0, nothing, nothing
+    if by_tail:
+        value, phases, source_side, sink_side = _solve_by_tail(
+            n, tails, heads, caps, out_start, in_start, source, sink, flow, carried, in_edge,
+            in_pos,
         )
-        phases += 1
-    sink_side = np.zeros(n, dtype=np.bool_)
-    _edge_reaching(
-        identity, out_start, out_edge, in_start, in_edge, tails, heads, caps, flow, sink,
-        sink_side, queue,
+        return 0, value, phases, source_side, sink_side
+    if by_head:
+        # In the reversed residual graph, what the sink reaches is what reaches it here.
+        value, phases, sink_side, source_side = _solve_by_tail(
+            n, heads, tails, caps, in_start, out_start, sink, source, flow, carried, in_edge,
+            in_pos,
+        )
+        return 0, value, phases, source_side, sink_side
+    sort_by_tail(n, tails, heads, caps, out_start, order, work)
+    solved = work[3]
+    value, phases, source_side, sink_side = _solve_by_tail(
+        n, work[0], work[1], work[2], out_start, in_start, source, sink, solved, carried,
+        in_edge, in_pos,
     )
-    return 0, value, phases, level >= 0, sink_side
+    # `flow` is zero: only the few edges that carry flow are written back.
+    for p in range(order.size):
+        if solved[p] != 0:
+            flow[order[p]] = solved[p]
+    return 0, value, phases, source_side, sink_side

@@ -182,67 +182,105 @@ def build_with_terminals(
 
 
 @njit(**HELPER_OPTIONS)
-def scan_and_index_edges(
+def scan_edges(
     n: int,
     tails: np.ndarray,
     heads: np.ndarray,
     caps: np.ndarray,
     total_checked: bool,
-    out_edge: np.ndarray,
-    in_edge: np.ndarray,
-    in_pos: np.ndarray,
-) -> tuple[int, bool, np.ndarray, np.ndarray]:
-    """Check a max-flow input in one pass and index its edges by tail and by head.
+    out_start: np.ndarray,
+    in_start: np.ndarray,
+) -> tuple[int, bool, bool]:
+    """Check a max-flow input in one pass and count its edges by tail and by head.
 
-    Fills the int32 arrays given (one entry per edge; the caller allocates them, as numpy's
-    large allocations fault in far fewer pages) and returns (status, identity, out_start,
-    in_start). Status 1: a node id is out of range or a capacity is negative (the caller re-runs
-    the full checks for the message); status 2: the capacities add up to 2**61 or more, which the
-    caller decides with the exact check and then calls again with `total_checked`; status 0: the
-    index is built. The edges leaving v are `out_edge[out_start[v]:out_start[v + 1]]` in edge
-    order, except that with `identity` (tails already sorted) they are the positions themselves
-    and `out_edge` is left untouched. The edges entering v are
-    `in_edge[in_start[v]:in_start[v + 1]]` in edge order; `in_pos[e]` is edge e's position in
-    `in_edge`.
+    Fills `out_start` and `in_start` (n + 1 zeros each) with the CSR offsets of the edges by
+    tail and by head, and returns (status, by_tail, by_head). Status 1: a node id is out of
+    range or a capacity is negative (the caller re-runs the full checks for the message; the
+    offsets are then incomplete); status 2: the capacities add up to 2**61 or more, which the
+    caller decides with the exact check and then calls again with `total_checked`; status 0:
+    counted. `by_tail` (`by_head`) says whether the tails (heads) never decrease along the edges.
     """
     m = tails.size
-    out_start = np.zeros(n + 1, dtype=np.int64)
-    in_start = np.zeros(n + 1, dtype=np.int64)
     total = 0
-    identity = True
-    previous = 0
+    by_tail = True
+    by_head = True
+    last_tail = 0
+    last_head = 0
     for e in range(m):
         t = tails[e]
         h = heads[e]
         c = caps[e]
         if t < 0 or t >= n or h < 0 or h >= n or c < 0:
-            return 1, identity, out_start, in_start
+            return 1, by_tail, by_head
         if not total_checked:
             # Stop adding before int64 could overflow; the exact check decides from there.
             if c >= 2**61 - total:
-                return 2, identity, out_start, in_start
+                return 2, by_tail, by_head
             total += c
-        if t < previous:
-            identity = False
-        previous = t
+        if t < last_tail:
+            by_tail = False
+        if h < last_head:
+            by_head = False
+        last_tail = t
+        last_head = h
         out_start[t + 1] += 1
         in_start[h + 1] += 1
     for v in range(n):
         out_start[v + 1] += out_start[v]
         in_start[v + 1] += in_start[v]
-    fill = in_start[:n].copy()
+    return 0, by_tail, by_head
+
+
+@njit(**HELPER_OPTIONS)
+def sort_by_tail(
+    n: int,
+    tails: np.ndarray,
+    heads: np.ndarray,
+    caps: np.ndarray,
+    out_start: np.ndarray,
+    order: np.ndarray,
+    work: np.ndarray,
+) -> None:
+    """Stable counting sort of the edges by tail, in O(n + m).
+
+    `order[p]` becomes the edge at sorted position p; rows 0-2 of `work` (int64, shape (4, m))
+    receive the sorted tails, heads and capacities, and row 3 zeros (the sorted flow). Heads and
+    capacities are written in the one pass that reads the edges (scattered writes do not stall
+    as gathered reads would); the tails follow from the offsets. A stable sort keeps the
+    caller's order among a node's edges.
+    """
+    m = tails.size
+    fill = np.empty(n, dtype=np.int64)
+    # A loop, not a slice copy, which would compile a costly shape-mismatch message.
+    for v in range(n):
+        fill[v] = out_start[v]
+    for e in range(m):
+        t = tails[e]
+        p = fill[t]
+        fill[t] = p + 1
+        order[p] = e
+        work[1, p] = heads[e]
+        work[2, p] = caps[e]
+    for v in range(n):
+        for p in range(out_start[v], out_start[v + 1]):
+            work[0, p] = v
+            work[3, p] = 0
+
+
+@njit(**HELPER_OPTIONS)
+def index_by_head(
+    n: int, heads: np.ndarray, in_start: np.ndarray, in_edge: np.ndarray, in_pos: np.ndarray
+) -> None:
+    """Fill the index of edges by head: the edges entering v are
+    `in_edge[in_start[v]:in_start[v + 1]]` in edge order, and `in_pos[e]` is e's position there.
+    """
+    m = heads.size
+    fill = np.empty(n, dtype=np.int64)
+    for v in range(n):
+        fill[v] = in_start[v]
     for e in range(m):
         h = heads[e]
         p = fill[h]
         fill[h] = p + 1
         in_edge[p] = e
         in_pos[e] = p
-    if not identity:
-        # A loop, not a slice copy, which would compile a costly shape-mismatch message.
-        for v in range(n):
-            fill[v] = out_start[v]
-        for e in range(m):
-            t = tails[e]
-            out_edge[fill[t]] = e
-            fill[t] += 1
-    return 0, identity, out_start, in_start

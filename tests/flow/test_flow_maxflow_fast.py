@@ -1,7 +1,8 @@
 """The fused max-flow kernel (no lower bounds) against scipy, networkx and HiGHS.
 
-The kernel checks, indexes and solves in one call, with a path for tails already sorted and one
-for any order, and hands inputs it refuses to the full checks for their message. These cases
+The kernel checks, indexes and solves in one call, with a path for tails already sorted, one for
+heads already sorted (the reversed problem) and one for any order (a sorted copy), and hands
+inputs it refuses to the full checks for their message. These cases
 cover both orders, parallel edges, self-loops, edges into the source, strided and int32 input,
 totals near the int64 guard and lower bounds (which take the circulation path).
 """
@@ -59,15 +60,18 @@ def networkx_minimal_source_side(
     return side
 
 
-@pytest.mark.parametrize("order", ["given", "sorted by tail"])
+@pytest.mark.parametrize("order", ["given", "sorted by tail", "sorted by head"])
 def test_random_multigraphs_match_scipy_and_networkx(order: str) -> None:
-    rng = np.random.default_rng(20261202 if order == "given" else 7)
+    rng = np.random.default_rng({"given": 20261202, "sorted by tail": 7}.get(order, 13))
     for _ in range(60):
         n = int(rng.integers(2, 14))
         tails, heads, capacities = multigraph(rng, n, int(rng.integers(0, 50)), 9)
         if order == "sorted by tail":
             by_tail = np.argsort(tails, kind="stable")
             tails, heads, capacities = tails[by_tail], heads[by_tail], capacities[by_tail]
+        if order == "sorted by head":
+            by_head = np.argsort(heads, kind="stable")
+            tails, heads, capacities = tails[by_head], heads[by_head], capacities[by_head]
         s, t = 0, int(rng.integers(1, n))
         value = certified_max_flow(n, tails, heads, capacities, s, t)
         # References: scipy.sparse.csgraph.maximum_flow (both methods) and networkx.
