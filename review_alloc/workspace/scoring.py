@@ -1,0 +1,101 @@
+"""Scores from the chair's signals: re-score as one recorded change, and one pair's report."""
+
+from __future__ import annotations
+
+import math
+
+from review_alloc.model import PART_NAMES, ScoreRecipe
+from review_alloc.plan.recipe import pair_breakdown, recipe_scores, session_signals
+from review_alloc.plan.rules import PairRules
+from review_alloc.plan.score_parts import PairReport, RuleCheck
+from review_alloc.workspace.base import ChangeRefused, WorkspaceBase, redoable
+from review_alloc.workspace.facts import Facts
+
+
+class ScoringMixin(WorkspaceBase):
+    """`rescore` (the recipe applied as one change) and `pair_report` (a pair explained)."""
+
+    def recipe_with(
+        self, weights: dict[str, float] | None = None, top: int | None = None
+    ) -> ScoreRecipe:
+        """The session's recipe (or the default one) with the given weights and `top`."""
+        base = self.session.policy.recipe or ScoreRecipe()
+        changes: dict[str, object] = {}
+        for name, value in (weights or {}).items():
+            if name not in PART_NAMES:
+                raise ChangeRefused(
+                    [f"weights: unknown part {name!r}; the parts are {', '.join(PART_NAMES)}"]
+                )
+            if not math.isfinite(value):
+                raise ChangeRefused([f"weights: {name}: {value!r} is not a finite number"])
+            changes[name] = value
+        if top is not None:
+            changes["top"] = top
+        try:
+            return ScoreRecipe.model_validate({**base.model_dump(), **changes})
+        except ValueError as error:
+            raise ChangeRefused([f"recipe: {error}".splitlines()[0]] + [
+                line.strip() for line in str(error).splitlines()[1:] if line.strip()
+            ]) from None
+
+    @redoable
+    def rescore(
+        self,
+        weights: dict[str, float] | None = None,
+        top: int | None = None,
+        reason: str = "",
+    ) -> int:
+        """Make the score table anew from the signals with the recipe (the session's, with
+        `weights` and `top` changed), recorded as one `rescore` event; returns the rows made.
+
+        A session that never had a recipe keeps its current scores as the given expertise.
+        """
+        recipe = self.recipe_with(weights, top)
+        signals = session_signals(self.session)
+        table = recipe_scores(self.session, recipe, signals)
+        shown = ", ".join(f"{name} {value:g}" for name, value in recipe.weights().items())
+        self._apply(
+            "rescore",
+            "scores",
+            f"{shown}, top {recipe.top}: {len(table)} pairs",
+            reason,
+            policy=self.session.policy.model_copy(update={"recipe": recipe}),
+            scores=table,
+            signals=signals,
+        )
+        return len(table)
+
+    def pair_report(self, reviewer_id: str, paper_id: str) -> PairReport:
+        """One pair: every pair rule and its verdict, its standing in the current plan, and
+        each part of its score with its weight."""
+        j, i = self._reviewer(reviewer_id), self._paper(paper_id)
+        s = self.session
+        rules = PairRules(s)
+        checks = tuple(
+            RuleCheck(str(rule), active, broken) for rule, active, broken in rules.pair_checks(j, i)
+        )
+        facts = Facts.of(s)
+        verdict = facts.pair_verdict(j, i)
+        assigned = any(r == j for r, _ in facts.assigned_of_paper[i])
+        score = rules.score(j, i)
+        breakdown = pair_breakdown(s, j, i)
+        stale = False
+        if breakdown is not None:
+            made = breakdown.score if breakdown.candidate else None
+            stale = (made is None) != (score is None) or (
+                made is not None and score is not None and abs(made - score) > 1e-9
+            )
+        return PairReport(
+            reviewer=s.reviewers[j].id,
+            paper=s.papers[i].id,
+            noun=s.noun,
+            rules=checks,
+            eligible=rules.why_not(j, i) is None,
+            standing=verdict.text,
+            assigned=assigned,
+            pinned=(j, i) in facts.pinned,
+            lead=facts.leads(j, i),
+            score=score,
+            breakdown=breakdown,
+            stale=stale,
+        )
