@@ -41,6 +41,7 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
     p.add_argument(
         "--scores", type=Path, help="scores CSV or workbook (reviewer_id, paper_id, score)"
     )
+    p.add_argument("--bids", type=Path, help="bids CSV or workbook (reviewer_id, paper_id, bid)")
     p.add_argument(
         "--sheet", metavar="NAME", help="read this sheet of each workbook (default: the first)"
     )
@@ -297,10 +298,12 @@ def _cmd_import(args: argparse.Namespace) -> int:
         replace=args.force,
         sheet=args.sheet,
         encoding=args.encoding,
+        bids=args.bids,
     ).session
     print(
         f"{args.output}: {len(session.papers)} {session.noun}s, {len(session.reviewers)} "
         f"reviewers, {len(session.conflicts)} declared conflicts, {len(session.scores)} scores"
+        + (" (made by the score recipe)" if session.policy.recipe is not None else "")
     )
     return EXIT_OK
 

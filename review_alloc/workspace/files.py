@@ -169,6 +169,7 @@ class FilesMixin(WorkspaceBase):
         replace: bool = False,
         sheet: str | None = None,
         encoding: str | None = None,
+        bids: Path | None = None,
     ) -> Self:
         """Build a session from CSV files or workbooks and save it to `target` (refused if it
         exists unless `replace`); every problem names its file, line (or sheet, row) and
@@ -188,6 +189,7 @@ class FilesMixin(WorkspaceBase):
             kind=kind,
             sheet=sheet,
             encoding=encoding,
+            bids=bids,
         )
         workspace = cls(session, None)
         workspace.save(target, replace=replace)
