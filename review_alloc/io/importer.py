@@ -15,7 +15,6 @@ from review_alloc.io.signals import read_bids
 from review_alloc.io.sources import ReadOptions
 from review_alloc.io.tables import read_conflicts, read_papers, read_reviewers
 from review_alloc.model import InputError, Policy, ScoreRecipe, ScoreTable, Session, Signals
-from review_alloc.plan.recipe import has_signals, recipe_scores
 
 _KINDS = ("conference", "panel")
 _PATH = re.compile(r"(papers|reviewers|conflicts)\.(\d+)(?:\.(\w+))?: (.*)")
@@ -112,6 +111,9 @@ def import_csv(
         )
     except ValidationError as error:
         raise InputError(_session_lines(error, sources)) from None
+    # Imported here: reading files must not load the planner (numba, scipy, scikit-learn).
+    from review_alloc.plan.recipe import has_signals, recipe_scores
+
     signals = Signals(expertise=table, bids=bid_table)
     if not has_signals(session, signals):
         return session
