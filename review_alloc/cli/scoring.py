@@ -7,14 +7,10 @@ import argparse
 import math
 from collections.abc import Callable
 from pathlib import Path
-from typing import TYPE_CHECKING
 
 from review_alloc.cli.common import EXIT_OK, emit_json, positive
 from review_alloc.model import PART_NAMES
 from review_alloc.model.text import nfc
-
-if TYPE_CHECKING:
-    from review_alloc.plan.score_parts import PairReport
 
 Handler = Callable[[argparse.Namespace], int]
 
@@ -101,39 +97,5 @@ def _cmd_pair(args: argparse.Namespace) -> int:
     if args.json:
         emit_json(report.to_json())
     else:
-        print("\n".join(pair_lines(report)))
+        print("\n".join(report.lines()))
     return EXIT_OK
-
-
-def pair_lines(report: PairReport) -> list[str]:
-    """The plain-text lines of a pair report (the app's pair view shows the same)."""
-    lines = [
-        f"reviewer {report.reviewer}, {report.noun} {report.paper}: "
-        + ("eligible" if report.eligible else "NOT eligible"),
-        "rules:",
-    ]
-    lines += [f"  {c.rule:<16} {c.verdict}" for c in report.rules]
-    state = "assigned" if report.assigned else "not assigned"
-    extras = [w for w, on in (("pinned", report.pinned), ("lead", report.lead)) if on]
-    lines.append(f"plan: {state}{' (' + ', '.join(extras) + ')' if extras else ''}: "
-                 f"{report.standing}")
-    score = "unscored" if report.score is None else f"{report.score:.4f}"
-    lines.append(f"score: {score}")
-    b = report.breakdown
-    if b is None:
-        lines.append("  as given in the scores file (no score recipe applied)")
-        return lines
-    lines.append(f"  {'part':<10} {'value':>8} {'weight':>7} {'adds':>8}")
-    for part in b.parts:
-        value = "-" if part.value is None else f"{part.value:.4f}"
-        lines.append(
-            f"  {part.name:<10} {value:>8} {part.weight:>7g} {part.contribution:>8.4f}"
-            + (f"  {part.note}" if part.note else "")
-        )
-    floor = " (below 0: counts as 0)" if b.total < 0 else ""
-    lines.append(f"  {'sum':<10} {'':>8} {'':>7} {b.total:>8.4f}{floor}")
-    rank = f"rank {b.rank} by text and topic" if b.rank is not None else "no text or topic match"
-    lines.append(f"  {rank}; " + ("has a score row" if b.candidate else "not a candidate"))
-    if report.stale:
-        lines.append("  the data changed since the last `review-alloc score`: run it again")
-    return lines

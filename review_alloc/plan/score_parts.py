@@ -91,9 +91,7 @@ class PairReport:
             "reviewer": self.reviewer,
             "paper": self.paper,
             "eligible": self.eligible,
-            "rules": [
-                {"rule": c.rule, "verdict": c.verdict} for c in self.rules
-            ],
+            "rules": [{"rule": c.rule, "verdict": c.verdict} for c in self.rules],
             "standing": self.standing,
             "assigned": self.assigned,
             "pinned": self.pinned,
@@ -121,3 +119,39 @@ class PairReport:
                 "stale": self.stale,
             }
         return out
+
+    def lines(self) -> list[str]:
+        """The report as plain-text lines (the command line and the app's pair view)."""
+        report = self
+        lines = [
+            f"reviewer {report.reviewer}, {report.noun} {report.paper}: "
+            + ("eligible" if report.eligible else "NOT eligible"),
+            "rules:",
+        ]
+        lines += [f"  {c.rule:<16} {c.verdict}" for c in report.rules]
+        state = "assigned" if report.assigned else "not assigned"
+        extras = [w for w, on in (("pinned", report.pinned), ("lead", report.lead)) if on]
+        shown = f" ({', '.join(extras)})" if extras else ""
+        lines.append(f"plan: {state}{shown}: {report.standing}")
+        score = "unscored" if report.score is None else f"{report.score:.4f}"
+        lines.append(f"score: {score}")
+        b = report.breakdown
+        if b is None:
+            lines.append("  as given in the scores file (no score recipe applied)")
+            return lines
+        lines.append(f"  {'part':<10} {'value':>8} {'weight':>7} {'adds':>8}")
+        for part in b.parts:
+            value = "-" if part.value is None else f"{part.value:.4f}"
+            lines.append(
+                f"  {part.name:<10} {value:>8} {part.weight:>7g} {part.contribution:>8.4f}"
+                + (f"  {part.note}" if part.note else "")
+            )
+        floor = " (below 0: counts as 0)" if b.total < 0 else ""
+        lines.append(f"  {'sum':<10} {'':>8} {'':>7} {b.total:>8.4f}{floor}")
+        rank = (
+            f"rank {b.rank} by text and topic" if b.rank is not None else "no text or topic match"
+        )
+        lines.append(f"  {rank}; " + ("has a score row" if b.candidate else "not a candidate"))
+        if report.stale:
+            lines.append("  the data changed since the last `review-alloc score`: run it again")
+        return lines
