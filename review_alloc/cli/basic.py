@@ -111,6 +111,9 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
         default="paper",
         help="the CSV's row order (a workbook has both)",
     )
+    p.add_argument(
+        "--parts", action="store_true", help="CSV of each assigned pair's score parts instead"
+    )
     add_output_options(p)
 
     p = sub.add_parser(
@@ -429,6 +432,10 @@ def _cmd_export(args: argparse.Namespace) -> int:
     from review_alloc.workspace import Workspace
 
     ws = Workspace.open(args.session)
+    if args.parts:
+        from review_alloc.cli.scoring import export_parts
+
+        return export_parts(ws, args)
     if args.target == "-":
         sys.stdout.write(ws.export_text(args.by, bom=args.bom))
         return EXIT_OK

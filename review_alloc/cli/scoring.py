@@ -5,12 +5,17 @@ from __future__ import annotations
 
 import argparse
 import math
+import sys
 from collections.abc import Callable
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from review_alloc.cli.common import EXIT_OK, emit_json, positive
-from review_alloc.model import PART_NAMES
+from review_alloc.model import PART_NAMES, InputError
 from review_alloc.model.text import nfc
+
+if TYPE_CHECKING:
+    from review_alloc.workspace import Workspace
 
 Handler = Callable[[argparse.Namespace], int]
 
@@ -98,4 +103,17 @@ def _cmd_pair(args: argparse.Namespace) -> int:
         emit_json(report.to_json())
     else:
         print("\n".join(report.lines()))
+    return EXIT_OK
+
+
+def export_parts(ws: Workspace, args: argparse.Namespace) -> int:
+    """`export --parts`: each assigned pair with the parts of its score, as CSV."""
+    if args.target == "-":
+        sys.stdout.write(ws.parts_text(bom=args.bom))
+        return EXIT_OK
+    target = Path(args.target)
+    if target.suffix.lower() != ".csv":
+        raise InputError([f"{target}: --parts writes a CSV file; name it FILE.csv"])
+    rows = ws.export_parts(target, force=args.force, bom=args.bom)
+    print(f"{target}: {rows} assigned pairs with the parts of their scores")
     return EXIT_OK

@@ -3,9 +3,12 @@
 from __future__ import annotations
 
 import math
+from pathlib import Path
 
-from review_alloc.model import PART_NAMES, ScoreRecipe
-from review_alloc.plan.recipe import pair_breakdown, recipe_scores, session_signals
+import numpy as np
+
+from review_alloc.model import PART_NAMES, InputError, ScoreRecipe
+from review_alloc.plan.recipe import pair_breakdown, pair_parts, recipe_scores, session_signals
 from review_alloc.plan.rules import PairRules
 from review_alloc.plan.score_parts import PairReport, RuleCheck
 from review_alloc.workspace.base import ChangeRefused, WorkspaceBase, redoable
@@ -101,3 +104,47 @@ class ScoringMixin(WorkspaceBase):
             breakdown=breakdown,
             stale=stale,
         )
+
+    def parts_table(self) -> tuple[tuple[str, ...], list[tuple[str | float, ...]]]:
+        """(header, rows) of the current plan's pairs with each part of their score, by paper:
+        the score in the table, then expertise, text, topic and bid as the recipe reads them
+        now (missing given scores and bids as 0), then the weighted sum before the floor."""
+        self.refuse_broken_plan()
+        s = self.session
+        recipe = s.policy.recipe
+        if recipe is None:
+            raise InputError(
+                [f"{s.name}: no score recipe was applied; the scores are the scores file's"]
+            )
+        if s.plan is None:
+            raise InputError([f"{s.name}: plan: the session has no plan to export; plan first"])
+        pairs = sorted((a.paper, a.reviewer, a.score) for a in s.plan.assignments)
+        paper_at, reviewer_at = s.paper_index(), s.reviewer_index()
+        reviewer = np.array([reviewer_at[r] for _, r, _ in pairs], dtype=np.int64)
+        paper = np.array([paper_at[p] for p, _, _ in pairs], dtype=np.int64)
+        parts = pair_parts(s, reviewer, paper)
+        total = parts.total(recipe)
+        header = ("paper_id", "reviewer_id", "score", *PART_NAMES, "weighted_sum")
+        rows = [
+            (p, r, float(score), *(float(getattr(parts, n)[k]) for n in PART_NAMES),
+             float(total[k]))
+            for k, (p, r, score) in enumerate(pairs)
+        ]
+        return header, rows
+
+    def parts_text(self, *, bom: bool = False) -> str:
+        """`parts_table` as CSV text (for standard output)."""
+        from review_alloc.io import csv_text
+
+        header, rows = self.parts_table()
+        return csv_text(header, rows, bom=bom)
+
+    def export_parts(self, target: Path, *, force: bool = False, bom: bool = False) -> int:
+        """Write `parts_table` as a CSV file (refused where `writable` refuses the target);
+        returns the pairs written."""
+        from review_alloc.io import write_table
+
+        header, rows = self.parts_table()
+        self.writable(target, force=force)  # type: ignore[attr-defined]
+        write_table(target, header, rows, bom=bom)
+        return len(rows)
