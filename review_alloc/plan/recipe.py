@@ -29,8 +29,8 @@ _WORD_OF_LEVEL = {level: word for word, level in BID_LEVELS.items()}
 
 
 def has_signals(session: Session, signals: Signals | None = None) -> bool:
-    """Whether the session holds anything a recipe reads beyond the given scores: texts,
-    keywords, topics on both sides, or bids."""
+    """Whether the session holds a signal beyond the given scores and topics: an abstract,
+    a profile, keywords, or bids (topics alone keep the scores file as it is)."""
     bids = signals.bids if signals is not None else None
     texts = any(p.abstract or p.keywords for p in session.papers) or any(
         r.profile or r.keywords for r in session.reviewers
@@ -122,13 +122,16 @@ def pair_parts(session: Session, reviewer: np.ndarray, paper: np.ndarray) -> Par
     return PartArrays(expertise, text, topic, bid)
 
 
-def pair_breakdown(session: Session, reviewer: int, paper: int) -> ScoreBreakdown | None:
-    """One pair's score part by part under the session's recipe (None without a recipe)."""
+def pair_breakdown(
+    session: Session, reviewer: int, paper: int, matrices: SignalMatrices | None = None
+) -> ScoreBreakdown | None:
+    """One pair's score part by part under the session's recipe (None without a recipe);
+    `matrices` are the session's `SignalMatrices` when the caller keeps them."""
     recipe = session.policy.recipe
     if recipe is None:
         return None
     signals = session_signals(session)
-    matrices = SignalMatrices.of(session)
+    matrices = matrices if matrices is not None else SignalMatrices.of(session)
     r, p = np.array([reviewer]), np.array([paper])
     text, topic = (float(v[0]) for v in matrices.pair_values(r, p))
     given = signals.expertise.get(reviewer, paper)

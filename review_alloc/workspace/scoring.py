@@ -11,6 +11,7 @@ from review_alloc.model import PART_NAMES, InputError, ScoreRecipe
 from review_alloc.plan.recipe import pair_breakdown, pair_parts, recipe_scores, session_signals
 from review_alloc.plan.rules import PairRules
 from review_alloc.plan.score_parts import PairReport, RuleCheck
+from review_alloc.plan.similarity import SignalMatrices
 from review_alloc.workspace.base import ChangeRefused, WorkspaceBase, redoable
 from review_alloc.workspace.facts import Facts
 
@@ -68,6 +69,19 @@ class ScoringMixin(WorkspaceBase):
         )
         return len(table)
 
+    def _signal_matrices(self) -> SignalMatrices | None:
+        """The session's text and topic matrices, kept while its paper and reviewer lists are
+        the same objects (fitting them takes seconds on a large venue; the app asks often)."""
+        s = self.session
+        if s.policy.recipe is None:
+            return None
+        kept = getattr(self, "_matrices", None)
+        if kept is not None and kept[0] is s.papers and kept[1] is s.reviewers:
+            return kept[2]
+        matrices = SignalMatrices.of(s)
+        self._matrices = (s.papers, s.reviewers, matrices)
+        return matrices
+
     def pair_report(self, reviewer_id: str, paper_id: str) -> PairReport:
         """One pair: every pair rule and its verdict, its standing in the current plan, and
         each part of its score with its weight."""
@@ -81,7 +95,7 @@ class ScoringMixin(WorkspaceBase):
         verdict = facts.pair_verdict(j, i)
         assigned = any(r == j for r, _ in facts.assigned_of_paper[i])
         score = rules.score(j, i)
-        breakdown = pair_breakdown(s, j, i)
+        breakdown = pair_breakdown(s, j, i, self._signal_matrices())
         stale = False
         if breakdown is not None:
             # The table's text and topic parts come from float32 block products (within 1e-5
