@@ -6,6 +6,7 @@ import math
 from pathlib import Path
 
 import numpy as np
+from pydantic import ValidationError
 
 from review_alloc.model import PART_NAMES, InputError, ScoreRecipe
 from review_alloc.plan.recipe import pair_breakdown, pair_parts, recipe_scores, session_signals
@@ -37,10 +38,13 @@ class ScoringMixin(WorkspaceBase):
             changes["top"] = top
         try:
             return ScoreRecipe.model_validate({**base.model_dump(), **changes})
-        except ValueError as error:
-            raise ChangeRefused([f"recipe: {error}".splitlines()[0]] + [
-                line.strip() for line in str(error).splitlines()[1:] if line.strip()
-            ]) from None
+        except ValidationError as error:
+            raise ChangeRefused(
+                [
+                    f"recipe: {'.'.join(str(x) for x in e['loc'])}: {e['msg']}"
+                    for e in error.errors(include_url=False)
+                ]
+            ) from None
 
     @redoable
     def rescore(
