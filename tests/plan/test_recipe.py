@@ -30,9 +30,10 @@ def test_cosine_matches_the_three_novels_example() -> None:
     # Manning, Raghavan and Schütze, Introduction to Information Retrieval (2008), ch. 6,
     # section 6.3 (the novels example, Figures 6.12 and 6.13): term counts of affection,
     # jealous, gossip, wuthering in SaS, PaP and WH; log frequency weighting, unit length;
-    # cos(SaS, PaP) = 0.94, cos(SaS, WH) = 0.79, cos(PaP, WH) = 0.69. The counts of the first
-    # two terms were checked against a copy of the section's own example table; the others
-    # and the three cosines are as recalled from the book (and agree with the counts).
+    # cos(SaS, PaP) = 0.94, cos(SaS, WH) = 0.79, cos(PaP, WH) = 0.69. The affection counts and
+    # the first two jealous counts were checked against a copy of the section's example table;
+    # the other counts, the weights and the three cosines are as recalled from the book (from
+    # memory), and they agree with one another: the counts give the book's rounded figures.
     counts = {"SaS": [115, 10, 2, 0], "PaP": [58, 7, 0, 0], "WH": [20, 11, 6, 38]}
     papers = _unit_log_rows([counts["SaS"], counts["PaP"]])
     reviewers = _unit_log_rows([counts["PaP"], counts["WH"]])
