@@ -10,15 +10,18 @@ from collections.abc import Callable
 
 import numpy as np
 
-from review_alloc.model import Conflict as DeclaredConflict
 from review_alloc.model import (
+    BID_LEVELS,
     ConflictRules,
     Paper,
     Policy,
     Reviewer,
+    ScoreRecipe,
     ScoreTable,
     Session,
+    Signals,
 )
+from review_alloc.model import Conflict as DeclaredConflict
 
 _GIVEN = (
     "Ada Bela Cyra Dario Eun Farid Greta Hiro Ines Jonas Kaia Lior Mina Noor Oskar Priya Quin "
@@ -87,6 +90,9 @@ def _build(
     declared: int = 0,
     title_words: tuple[str, ...] = (),
     id_prefix: str = "P",
+    signals: bool = False,
+    # signals: invent abstracts, profiles, keywords and bids, and make the scores with the
+    # default score recipe (the topic-driven scores above become its given expertise).
 ) -> Session:
     """One invented venue: topic-driven scores, some author reviewers, a few declared conflicts."""
     rng = np.random.default_rng(seed)
@@ -182,7 +188,7 @@ def _build(
                 )
             )
 
-    return Session(
+    session = Session(
         name=name,
         kind=kind,
         policy=policy,
@@ -192,6 +198,87 @@ def _build(
         scores=ScoreTable.from_arrays(
             np.array(r_idx, dtype=np.int32), np.array(p_idx, dtype=np.int32), np.array(values)
         ),
+    )
+    return _with_signals(session, topics, np.random.default_rng(seed + 1)) if signals else session
+
+
+_METHOD_WORDS = (
+    "bayesian kalman spectral wavelet ensemble lagrangian finite-volume particle regression "
+    "clustering variational sparse-coding hierarchical stochastic adjoint multigrid "
+    "reinforcement graph-based causal bootstrap"
+).split()
+_TOPIC_JARGON = (
+    "hydrophone turbidity bathymetry salinity swell estuary plume transect mooring drifter "
+    "backscatter altimeter geoid radiometer tidal harmonic surge gauge thermistor biofouling "
+    "acidity sediment-flux dune ripple glider thruster tether sonar beamforming echosounder "
+    "reanalysis innovation covariance assimilation drift offset linearity hysteresis "
+    "permafrost aquifer runoff stormwater mycorrhiza nitrogen carbonate alkalinity moraine "
+    "crevasse firn albedo heatwave resilience retrofit greywater isotope"
+).split()
+_ABSTRACT = (
+    "We study {a} and {b} for {topic}. Using {m1} methods with {c}, we show how {d} "
+    "improves {topic2} in field trials. Our {m2} analysis covers {e} and {a}."
+)
+_PROFILE = "Work on {topic} with {m1} methods: {a}, {b}, {c}. Also {topic2}, {d} and {m2} analysis."
+
+
+def _with_signals(session: Session, topics: list[str], rng: np.random.Generator) -> Session:
+    """The session with invented abstracts, profiles, keywords and bids, scored by the recipe."""
+    from review_alloc.plan.recipe import recipe_scores
+
+    jargon = {t: list(rng.choice(_TOPIC_JARGON, size=6, replace=False)) for t in topics}
+
+    def words(own: list[str], count: int) -> list[str]:
+        pool = [w for t in own for w in jargon[t]]
+        return [str(w) for w in rng.choice(pool, size=count)]
+
+    papers = []
+    for paper in session.papers:
+        a, b, c, d, e = words(paper.topics, 5)
+        m1, m2 = (str(m) for m in rng.choice(_METHOD_WORDS, size=2, replace=False))
+        topic2 = paper.topics[-1]
+        abstract = _ABSTRACT.format(
+            a=a, b=b, c=c, d=d, e=e, m1=m1, m2=m2, topic=paper.topics[0], topic2=topic2
+        )
+        papers.append(paper.model_copy(update={"abstract": abstract, "keywords": [a, m1]}))
+    reviewers = []
+    for reviewer in session.reviewers:
+        a, b, c, d = words(reviewer.topics, 4)
+        m1, m2 = (str(m) for m in rng.choice(_METHOD_WORDS, size=2, replace=False))
+        profile = _PROFILE.format(
+            a=a, b=b, c=c, d=d, m1=m1, m2=m2, topic=reviewer.topics[0], topic2=reviewer.topics[-1]
+        )
+        reviewers.append(reviewer.model_copy(update={"profile": profile, "keywords": [b]}))
+    # Each reviewer bids on a few papers: keen on some of their topics, against one or two.
+    r_idx: list[int] = []
+    p_idx: list[int] = []
+    levels: list[float] = []
+    levels_of = [BID_LEVELS[w] for w in ("eager", "willing", "neutral", "reluctant")]
+    for j, reviewer in enumerate(reviewers):
+        mine = set(reviewer.topics)
+        near = [i for i, p in enumerate(papers) if mine & set(p.topics)]
+        chosen = rng.choice(near, size=min(3, len(near)), replace=False) if near else []
+        against = rng.choice(len(papers), size=2, replace=False)
+        bids = {int(i): float(rng.choice(levels_of)) for i in chosen}
+        bids.update({int(i): float(BID_LEVELS["against"]) for i in against if int(i) not in bids})
+        for i, level in sorted(bids.items()):
+            r_idx.append(j)
+            p_idx.append(i)
+            levels.append(level)
+    signals = Signals(
+        expertise=session.scores,
+        bids=ScoreTable.from_arrays(
+            np.array(r_idx, dtype=np.int32), np.array(p_idx, dtype=np.int32), np.array(levels)
+        ),
+    )
+    recipe = ScoreRecipe()
+    with_texts = session.model_copy(update={"papers": papers, "reviewers": reviewers})
+    return with_texts.model_copy(
+        update={
+            "policy": session.policy.model_copy(update={"recipe": recipe}),
+            "signals": signals,
+            "scores": recipe_scores(with_texts, recipe, signals),
+        }
     )
 
 
@@ -240,6 +327,7 @@ def workshop() -> Session:
         declared=6,
         title_words=tuple(_WORDS),
         id_prefix="W",
+        signals=True,
     )
 
 
@@ -324,6 +412,7 @@ def panel() -> Session:
         declared=20,
         title_words=tuple(_WORDS),
         id_prefix="G",
+        signals=True,
     )
 
 

@@ -23,7 +23,7 @@ from collections.abc import Callable, Sequence
 from typing import NoReturn
 
 from review_alloc import __version__
-from review_alloc.cli import app, basic, changes, explain
+from review_alloc.cli import app, basic, changes, explain, scoring
 from review_alloc.cli.common import (
     EXIT_CHECK,
     EXIT_INPUT,
@@ -35,7 +35,7 @@ from review_alloc.cli.common import (
 )
 from review_alloc.model import InputError
 
-_MODULES = (basic, explain, changes, app)
+_MODULES = (basic, explain, changes, scoring, app)
 _DEFAULT_COMMAND = "app"
 
 

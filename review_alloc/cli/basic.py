@@ -44,6 +44,7 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
     p.add_argument(
         "--scores", type=Path, help="scores CSV or workbook (reviewer_id, paper_id, score)"
     )
+    p.add_argument("--bids", type=Path, help="bids CSV or workbook (reviewer_id, paper_id, bid)")
     p.add_argument(
         "--sheet", metavar="NAME", help="read this sheet of each workbook (default: the first)"
     )
@@ -122,6 +123,9 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
         choices=("paper", "reviewer"),
         default="paper",
         help="the CSV's row order (a workbook has both)",
+    )
+    p.add_argument(
+        "--parts", action="store_true", help="CSV of each assigned pair's score parts instead"
     )
     add_output_options(p)
     p.add_argument("--json", action="store_true", help="print one JSON object")
@@ -322,6 +326,7 @@ def _cmd_import(args: argparse.Namespace) -> int:
             sheet=args.sheet,
             encoding=args.encoding,
             columns=columns,
+            bids=args.bids,
         )
     session = workspace.session
     if args.json:
@@ -335,12 +340,14 @@ def _cmd_import(args: argparse.Namespace) -> int:
                 "conflicts": len(session.conflicts),
                 "scores": len(session.scores),
                 "columns": session.import_columns,
+                "recipe": session.policy.recipe is not None,
             },
         )
         return EXIT_OK
     print(
         f"{args.output}: {len(session.papers)} {session.noun}s, {len(session.reviewers)} "
         f"reviewers, {len(session.conflicts)} declared conflicts, {len(session.scores)} scores"
+        + (" (made by the score recipe)" if session.policy.recipe is not None else "")
     )
     if session.import_columns:
         mapped = ", ".join(
@@ -502,6 +509,10 @@ def _cmd_export(args: argparse.Namespace) -> int:
     if args.target == "-" and args.json:
         raise UsageError("--json prints the result on standard output; give --to a file")
     ws = Workspace.open(args.session)
+    if args.parts:
+        from review_alloc.cli.scoring import export_parts
+
+        return export_parts(ws, args)
     if args.target == "-":
         sys.stdout.write(ws.export_text(args.by, bom=args.bom))
         return EXIT_OK

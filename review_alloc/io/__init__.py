@@ -5,9 +5,11 @@ from review_alloc.io.export import export_plan_csv, plan_table, write_table
 from review_alloc.io.importer import import_csv
 from review_alloc.io.reading import FileSpec
 from review_alloc.io.score_rows import SCORES
+from review_alloc.io.signals import BIDS
 from review_alloc.io.tables import CONFLICTS, PAPERS, REVIEWERS
 
 __all__ = [
+    "BIDS",
     "CONFLICTS",
     "PAPERS",
     "REVIEWERS",

@@ -13,9 +13,10 @@ from pydantic import ValidationError
 from review_alloc.io.columns import map_problems
 from review_alloc.io.reading import FileProblems
 from review_alloc.io.score_rows import read_scores
+from review_alloc.io.signals import read_bids
 from review_alloc.io.sources import ReadOptions
 from review_alloc.io.tables import read_conflicts, read_papers, read_reviewers
-from review_alloc.model import InputError, Policy, ScoreTable, Session
+from review_alloc.model import InputError, Policy, ScoreRecipe, ScoreTable, Session, Signals
 
 _KINDS = ("conference", "panel")
 _PATH = re.compile(r"(papers|reviewers|conflicts)\.(\d+)(?:\.(\w+))?: (.*)")
@@ -34,6 +35,8 @@ def import_csv(
     sheet: str | None = None,
     encoding: str | None = None,
     columns: Mapping[str, Mapping[str, str]] | None = None,
+    bids: str | os.PathLike[str] | None = None,
+    recipe: ScoreRecipe | None = None,
 ) -> Session:
     """Read the CSV files into a session; raises `InputError` listing every problem found.
 
@@ -43,6 +46,10 @@ def import_csv(
     file may use `,` `;` or tab and be UTF-8 or UTF-16 with a BOM, or in `encoding`.
     `columns` maps our fields to other names the files use (`io.columns`); the session keeps
     it. Nothing is written.
+
+    When the papers or reviewers carry abstracts, profiles or keywords, or a bids file is
+    given, the scores are made by the score recipe (`recipe`, else the policy's, else the
+    default one; see `model.signals`) from those signals and the scores file as given.
     """
     if kind not in _KINDS:
         raise InputError([f"kind: {kind!r} is not one of {', '.join(_KINDS)}"])
@@ -65,6 +72,7 @@ def import_csv(
     reviewer_problems = FileProblems(str(reviewers))
     conflict_problems = FileProblems(str(conflicts)) if conflicts is not None else None
     score_problems = FileProblems(str(scores)) if scores is not None else None
+    bid_problems = FileProblems(str(bids)) if bids is not None else None
 
     paper_rows = read_papers(papers, policy, options, paper_problems)
     reviewer_rows = read_reviewers(reviewers, policy, options, reviewer_problems)
@@ -83,12 +91,18 @@ def import_csv(
         if scores is not None and score_problems is not None
         else ScoreTable.empty()
     )
+    bid_table = (
+        read_bids(bids, options, reviewer_at, paper_at, bid_problems)
+        if bids is not None and bid_problems is not None
+        else ScoreTable.empty()
+    )
 
-    every = [paper_problems, reviewer_problems, conflict_problems, score_problems]
+    every = [paper_problems, reviewer_problems, conflict_problems, score_problems, bid_problems]
     lines = [line for found in every if found is not None for line in found.lines()]
     if lines:
         raise InputError(lines)
     assert paper_rows is not None and reviewer_rows is not None and table is not None
+    assert bid_table is not None
 
     sources = {
         "papers": (str(papers), paper_rows.lines),
@@ -96,7 +110,7 @@ def import_csv(
         "conflicts": (str(conflicts), conflict_rows.lines if conflict_rows else []),
     }
     try:
-        return Session(
+        session = Session(
             name=name or _default_name(papers),
             kind=kind,
             policy=policy,
@@ -108,6 +122,21 @@ def import_csv(
         )
     except ValidationError as error:
         raise InputError(_session_lines(error, sources)) from None
+    # Imported here: reading files must not load the planner (numba, scipy, scikit-learn).
+    from review_alloc.plan.recipe import has_signals, recipe_scores
+
+    signals = Signals(expertise=table, bids=bid_table)
+    if not has_signals(session, signals):
+        return session
+    # The recipe's table replaces the given scores; they stay in `signals` as its expertise.
+    chosen = recipe or policy.recipe or ScoreRecipe()
+    return session.model_copy(
+        update={
+            "policy": policy.model_copy(update={"recipe": chosen}),
+            "signals": signals,
+            "scores": recipe_scores(session, chosen, signals),
+        }
+    )
 
 
 def _default_name(papers: str | os.PathLike[str]) -> str:

@@ -40,6 +40,7 @@ from review_alloc.model import (
     MAX_COUNT,
     MAX_LINES_PER_FILE,
     MAX_SCORE,
+    MAX_TEXT_CHARS,
 )
 from review_alloc.model.base import check_email
 
@@ -230,6 +231,11 @@ def records(source: Source, problems: FileProblems) -> Iterator[tuple[int, list[
 def _csv_message(text: str) -> str:
     if text.startswith("unexpected end of data"):
         return 'a quoted cell is not closed before the end of the file (check the " marks)'
+    if text.startswith("field larger than field limit"):
+        return (
+            f"a cell holds more than {csv.field_size_limit():,} characters; an abstract or "
+            f"profile may hold at most {MAX_TEXT_CHARS:,}"
+        )
     if "expected after" in text:
         return f"malformed quoting ({text}); a quote inside a quoted cell must be doubled"
     return f"malformed CSV ({text})"

@@ -28,14 +28,23 @@ from review_alloc.model import Conflict, Paper, Policy, Reviewer, matched_text_p
 PAPERS = FileSpec(
     "papers",
     ("paper_id",),
-    ("title", "topics", "reviews", "min_reviews", "authors", "institutions"),
-    frozenset({"paper_id", "topics", "authors", "institutions"}),
+    (
+        "title",
+        "topics",
+        "reviews",
+        "min_reviews",
+        "authors",
+        "institutions",
+        "abstract",
+        "keywords",
+    ),
+    frozenset({"paper_id", "topics", "authors", "institutions", "keywords"}),
 )
 REVIEWERS = FileSpec(
     "reviewers",
     ("reviewer_id",),
-    ("name", "email", "institution", "topics", "cap", "floor", "senior"),
-    frozenset({"reviewer_id", "email", "institution", "topics"}),
+    ("name", "email", "institution", "topics", "cap", "floor", "senior", "profile", "keywords"),
+    frozenset({"reviewer_id", "email", "institution", "topics", "keywords"}),
 )
 CONFLICTS = FileSpec(
     "conflicts", ("reviewer_id", "paper_id"), ("reason",), frozenset({"reviewer_id", "paper_id"})
@@ -169,6 +178,8 @@ def read_papers(
             "min_reviews": minimum,
             "authors": row.read("authors", emails),
             "institutions": listing(row.text("institutions")),
+            "abstract": row.text("abstract"),
+            "keywords": listing(row.text("keywords")),
         }
         if reviews_read:
             _check_lower_limit(row, "min_reviews", minimum, "reviews", reviews, policy.reviews)
@@ -204,6 +215,8 @@ def read_reviewers(
             "cap": cap,
             "floor": floor,
             "senior": row.read("senior", yes_no) or False,
+            "profile": row.text("profile"),
+            "keywords": listing(row.text("keywords")),
         }
         if cap_read:
             _check_lower_limit(row, "floor", floor, "cap", cap, policy.cap)

@@ -18,6 +18,15 @@ from review_alloc.model.policy import DEFAULT_PUBLIC_MAIL_DOMAINS, ConflictRules
 from review_alloc.model.scores import ENCODING as SCORE_ENCODING
 from review_alloc.model.scores import ScoreTable
 from review_alloc.model.session import FORMAT_VERSION, Session
+from review_alloc.model.signals import (
+    BID_LEVELS,
+    MAX_BID,
+    MAX_TEXT_CHARS,
+    PART_NAMES,
+    ScoreRecipe,
+    Signals,
+    bid_part,
+)
 from review_alloc.model.storage import (
     atomic_write_bytes,
     atomic_write_text,
@@ -30,6 +39,13 @@ from review_alloc.model.storage import (
 from review_alloc.model.text import free_text, matched_text, matched_text_problem
 
 __all__ = [
+    "BID_LEVELS",
+    "MAX_BID",
+    "MAX_TEXT_CHARS",
+    "PART_NAMES",
+    "ScoreRecipe",
+    "Signals",
+    "bid_part",
     "DEFAULT_PUBLIC_MAIL_DOMAINS",
     "FORMAT_VERSION",
     "MAX_COUNT",

@@ -18,6 +18,7 @@ from review_alloc.model.base import (
     TextList,
 )
 from review_alloc.model.limits import MAX_COUNT
+from review_alloc.model.signals import LongText
 
 
 class Paper(DocumentModel):
@@ -36,6 +37,10 @@ class Paper(DocumentModel):
     senior_min: int | None = Field(default=None, ge=0, le=MAX_COUNT)
     """Senior reviewers wanted; `None` means the policy's, clamped to this paper's reviews."""
     withdrawn: bool = False
+    abstract: LongText = ""
+    """The paper's abstract, read by the text part of the score recipe."""
+    keywords: TextList = Field(default_factory=list)
+    """Free keywords; the recipe's text and topic parts read them beside the topics."""
 
 
 class Reviewer(DocumentModel):
@@ -55,6 +60,11 @@ class Reviewer(DocumentModel):
     `overload_allowance`."""
     senior: bool = False
     withdrawn: bool = False
+    profile: LongText = ""
+    """Free text about the reviewer's work (keywords, titles and abstracts of their papers),
+    read by the text part of the score recipe."""
+    keywords: TextList = Field(default_factory=list)
+    """Free keywords; the recipe's text and topic parts read them beside the topics."""
 
 
 class Conflict(DocumentModel):

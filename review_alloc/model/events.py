@@ -29,6 +29,7 @@ Action = Literal[
     "accept-fix",
     "accept-whatif",
     "set-policy",
+    "rescore",
 ]
 
 

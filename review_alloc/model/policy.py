@@ -8,6 +8,7 @@ from pydantic import AfterValidator, Field, model_validator
 
 from review_alloc.model.base import DocumentModel
 from review_alloc.model.limits import MAX_COUNT, MAX_SCORE
+from review_alloc.model.signals import ScoreRecipe
 from review_alloc.model.text import matched_text_problem, nfc
 
 DEFAULT_PUBLIC_MAIL_DOMAINS: tuple[str, ...] = (
@@ -98,6 +99,9 @@ class Policy(DocumentModel):
     lower), after coverage and before floors and total score."""
     max_leads: int = Field(default=3, ge=0, le=MAX_COUNT)
     """Most papers one reviewer leads."""
+    recipe: ScoreRecipe | None = None
+    """How the scores were made from the chair's signals (`model.signals`); `None`: the
+    scores file is used as it is."""
 
     @model_validator(mode="after")
     def _limits_agree(self) -> Self:

@@ -22,6 +22,7 @@ from review_alloc.model.history import Revision, history_problems
 from review_alloc.model.plans import Plan
 from review_alloc.model.policy import Policy
 from review_alloc.model.scores import ScoreTable
+from review_alloc.model.signals import MAX_BID, Signals
 
 FORMAT_VERSION = 1
 """The session file format this version reads and writes."""
@@ -71,6 +72,9 @@ class Session(DocumentModel):
     conflicts: list[Conflict] = Field(default_factory=list)
     """Declared conflicts only; inferred ones follow from `policy.conflict_rules`."""
     scores: ScoreTable = Field(default_factory=ScoreTable.empty)
+    signals: Signals | None = None
+    """The given expertise scores and the bids that `policy.recipe` combines (None: no
+    recipe was ever applied, and `scores` is the scores file as given)."""
     pins: list[PairRule] = Field(default_factory=list)
     blocks: list[PairRule] = Field(default_factory=list)
     plan: Plan | None = None
@@ -179,8 +183,20 @@ class Session(DocumentModel):
         return problems
 
     def _score_problems(self) -> list[str]:
+        problems = self._table_problems("scores", self.scores)
+        if self.signals is not None:
+            problems += self._table_problems("signals.expertise", self.signals.expertise)
+            problems += self._table_problems("signals.bids", self.signals.bids)
+            bids = self.signals.bids.value
+            if len(bids) and float(bids.max()) > MAX_BID:
+                row = int(np.argmax(bids > MAX_BID))
+                problems.append(
+                    f"signals.bids: row {row}: bid {float(bids[row])!r} is above {MAX_BID:g}"
+                )
+        return problems
+
+    def _table_problems(self, field: str, table: ScoreTable) -> list[str]:
         problems: list[str] = []
-        table = self.scores
         if not len(table):
             return problems
         for column, count, noun in (
@@ -191,7 +207,7 @@ class Session(DocumentModel):
             if len(outside):
                 row = int(outside[0])
                 problems.append(
-                    f"scores: row {row}: {noun[:-1]} index {int(column[row])} is out of range; "
+                    f"{field}: row {row}: {noun[:-1]} index {int(column[row])} is out of range; "
                     f"the session has {count} {noun}"
                     + (f" ({len(outside)} rows are out of range)" if len(outside) > 1 else "")
                 )

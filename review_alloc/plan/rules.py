@@ -381,6 +381,16 @@ class PairRules:
     ) -> np.ndarray:
         """Per pair of index arrays, the first pair rule it breaks, as an index into
         `PAIR_RULES` (0: none). `score` defaults to the session's (0 where unscored)."""
+        broken = self._broken(reviewer, paper, score)
+        code = np.zeros(len(broken[0]), dtype=np.int8)
+        for k in range(len(broken), 0, -1):  # the first rule broken wins
+            code[broken[k - 1]] = k
+        return code
+
+    def _broken(
+        self, reviewer: np.ndarray, paper: np.ndarray, score: np.ndarray | None
+    ) -> list[np.ndarray]:
+        """Per rule of `PAIR_RULES[1:]`, which of the pairs break it."""
         reviewer = np.asarray(reviewer, dtype=np.int64)
         paper = np.asarray(paper, dtype=np.int64)
         keys = pair_keys(reviewer, paper, self.n_papers)
@@ -389,7 +399,7 @@ class PairRules:
         pinned = contains(keys, self._pinned[1])
         gone_r, gone_p = self._withdrawn
         low, no_topic = self._score_and_topic(reviewer, paper, score)
-        broken = [
+        return [
             contains(keys, self._conflict_keys),
             contains(keys, self._blocked[1]),
             gone_r[reviewer] | gone_p[paper],
@@ -397,10 +407,24 @@ class PairRules:
             low & ~pinned,
             no_topic & ~pinned,
         ]
-        code = np.zeros(len(keys), dtype=np.int8)
-        for k in range(len(broken), 0, -1):  # the first rule broken wins
-            code[broken[k - 1]] = k
-        return code
+
+    def pair_checks(self, reviewer: int, paper: int) -> list[tuple[Rule, bool, bool]]:
+        """Every pair rule for one pair, in the order asked: (rule, whether the policy has it
+        on, whether the pair breaks it). A pin lifts the score and topic rules."""
+        policy = self.session.policy
+        on = (
+            True,
+            True,
+            True,
+            policy.unscored == "exclude",
+            policy.min_score is not None,
+            policy.require_shared_topic,
+        )
+        broken = self._broken(np.array([reviewer]), np.array([paper]), None)
+        return [
+            (rule, active, bool(hit[0]))
+            for rule, active, hit in zip(PAIR_RULES[1:], on, broken, strict=True)
+        ]
 
     def forbidden(
         self, reviewer: np.ndarray, paper: np.ndarray, score: np.ndarray | None = None

@@ -48,6 +48,7 @@ from review_alloc.tui.entity_views import EntityView, GapView, PaperView, Review
 from review_alloc.tui.gapfix import ExplainView, PaneHint
 from review_alloc.tui.grid import RowTable
 from review_alloc.tui.overview import Overview
+from review_alloc.tui.pairview import show_pair
 from review_alloc.tui.planopts import PlanChoice, PlanOptions
 from review_alloc.tui.records import ConflictView, HistoryView
 from review_alloc.tui.scenarios import ScenarioScreen, parse_pairs
@@ -112,6 +113,7 @@ class ReviewAllocApp(App[None]):
         Binding("ctrl+z", "undo", "Undo"),
         Binding("ctrl+y", "redo", "Redo", show=False),
         Binding("i", "import", "Import CSV", show=False),
+        Binding("l", "pair_view", "Look at the pair: rules and score parts", show=False),
         Binding("question_mark,f1", "help", "Keys"),
         Binding("1", "tab('overview')", "Overview", show=False),
         Binding("2", "tab('papers')", "Papers", show=False),
@@ -1186,6 +1188,10 @@ class ReviewAllocApp(App[None]):
     def action_help(self) -> None:
         """Show every key."""
         self.push_screen(HelpScreen(self.key_sections()))
+
+    def action_pair_view(self) -> None:
+        """Show the pair under the pair list's cursor: its rules, standing and score parts."""
+        show_pair(self)
 
     def key_sections(self) -> list[tuple[str, list[tuple[str, str]]]]:
         """Every binding of the app and its views, grouped by where it works."""

@@ -21,9 +21,10 @@ from review_alloc.workspace.files import (
 from review_alloc.workspace.history import HistoryEntry
 from review_alloc.workspace.planning import ChangeSet, PlanningMixin, PlanRequest, prepare_solver
 from review_alloc.workspace.recruits import RecruitsMixin
+from review_alloc.workspace.scoring import ScoringMixin
 
 
-class Workspace(FilesMixin, PlanningMixin, RecruitsMixin):
+class Workspace(FilesMixin, PlanningMixin, RecruitsMixin, ScoringMixin):
     """An open session with its file path, its unsaved-changes mark, its changes and services."""
 
 

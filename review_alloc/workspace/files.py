@@ -172,6 +172,7 @@ class FilesMixin(WorkspaceBase):
         sheet: str | None = None,
         encoding: str | None = None,
         columns: Mapping[str, Mapping[str, str]] | None = None,
+        bids: Path | None = None,
     ) -> Self:
         """Build a session from CSV files or workbooks and save it to `target` (refused if it
         exists unless `replace`); every problem names its file, line (or sheet, row) and
@@ -193,6 +194,7 @@ class FilesMixin(WorkspaceBase):
             sheet=sheet,
             encoding=encoding,
             columns=columns,
+            bids=bids,
         )
         workspace = cls(session, None)
         workspace.save(target, replace=replace)

@@ -3,6 +3,7 @@ re-import needs no retyping, and the header lists the app's import dialog shows.
 
 from __future__ import annotations
 
+import csv
 import json
 from pathlib import Path
 
@@ -28,9 +29,14 @@ MAPPING = [
 
 def _their_papers(folder: Path) -> Path:
     """The sample papers as another system exports them: its own names for three columns."""
-    lines = (SAMPLE / "papers.csv").read_text(encoding="utf-8").splitlines()
+    # Their system keeps no abstracts or keywords: the sample's columns up to institutions.
+    with (SAMPLE / "papers.csv").open(encoding="utf-8", newline="") as handle:
+        rows = [row[:7] for row in csv.reader(handle)][1:]
     path = folder / "submissions.csv"
-    path.write_text("\n".join([THEIR_HEADER, *lines[1:]]) + "\n", encoding="utf-8")
+    with path.open("w", encoding="utf-8", newline="") as handle:
+        writer = csv.writer(handle, lineterminator="\n")
+        writer.writerow(THEIR_HEADER.split(","))
+        writer.writerows(rows)
     return path
 
 
@@ -56,7 +62,9 @@ def test_mapped_columns_import_as_our_own_and_are_kept(
     assert payload["columns"] == {"papers": expected}
     session = load_session(out)
     assert session.import_columns == {"papers": expected}
-    assert session.papers == load_session(plain).papers
+    # The same papers as the sample's own file gives, but for the two columns left out.
+    blank = {"abstract": "", "keywords": []}
+    assert session.papers == [p.model_copy(update=blank) for p in load_session(plain).papers]
 
     # A re-import of newer files onto the session needs no mapping again.
     assert main(_import(theirs, out, "--force")) == 0

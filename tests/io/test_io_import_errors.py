@@ -180,7 +180,8 @@ def test_extra_column_without_ignore_extra(tmp_path: Path) -> None:
     assert lines == [
         f"{f['papers']}: line 1: unknown column 'colour' (separator ','); known columns are "
         "paper_id, title, "
-        "topics, reviews, min_reviews, authors, institutions (--ignore-extra skips unknown columns)"
+        "topics, reviews, min_reviews, authors, institutions, abstract, keywords "
+        "(--ignore-extra skips unknown columns)"
     ]
 
 

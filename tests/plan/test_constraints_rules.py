@@ -261,7 +261,9 @@ def test_plan_json_has_the_rule_keys(tmp_path: Path, capsys: pytest.CaptureFixtu
     for key in ("assignments", "coverage", "required_coverage", "total_score", "gaps"):
         assert key in summary
     assert {"spread", "histogram", "min", "max"} <= set(summary["load"])
-    assert summary["bottleneck"] == summary["lowest_unpinned_score"]
+    # The bottleneck is found on the planner's score grid (1 / SCORE_RESOLUTION); the
+    # workshop's scores, made by the score recipe, lie between its steps.
+    assert summary["bottleneck"] == pytest.approx(summary["lowest_unpinned_score"], abs=1e-4)
     first = summary["per_paper"][0]
     assert {"reviewers", "lead", "seniors", "institutions"} <= set(first)
     assert summary["seniors"]["met"] == summary["seniors"]["wanted"]

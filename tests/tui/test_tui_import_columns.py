@@ -4,6 +4,7 @@ import."""
 
 from __future__ import annotations
 
+import csv
 from collections.abc import Callable
 from pathlib import Path
 
@@ -20,9 +21,14 @@ HEADER = "Submission ID,Paper Title,Keywords,reviews,min_reviews,authors,institu
 
 
 def _their_papers(folder: Path) -> Path:
-    lines = (SAMPLE / "papers.csv").read_text(encoding="utf-8").splitlines()
+    # Their system keeps no abstracts or keywords: the sample's columns up to institutions.
+    with (SAMPLE / "papers.csv").open(encoding="utf-8", newline="") as handle:
+        rows = [row[:7] for row in csv.reader(handle)][1:]
     path = folder / "submissions.csv"
-    path.write_text("\n".join([HEADER, *lines[1:]]) + "\n", encoding="utf-8")
+    with path.open("w", encoding="utf-8", newline="") as handle:
+        writer = csv.writer(handle, lineterminator="\n")
+        writer.writerow(HEADER.split(","))
+        writer.writerows(rows)
     return path
 
 
