@@ -86,7 +86,9 @@ def _cmd_score(args: argparse.Namespace) -> int:
         recipe = ws.session.policy.recipe
         assert recipe is not None
         if args.json:
-            emit_json({"scores": rows, "recipe": recipe.model_dump()})
+            emit_json(
+                args, {"session": ws.session.name, "scores": rows, "recipe": recipe.model_dump()}
+            )
         else:
             shown = ", ".join(f"{k} {v:g}" for k, v in recipe.weights().items())
             print(f"{args.session}: {rows} scores made by the recipe ({shown}; top {recipe.top})")
@@ -98,9 +100,10 @@ def _cmd_score(args: argparse.Namespace) -> int:
 def _cmd_pair(args: argparse.Namespace) -> int:
     from review_alloc.workspace import Workspace
 
-    report = Workspace.open(args.session).pair_report(args.reviewer, args.paper)
+    ws = Workspace.open(args.session)
+    report = ws.pair_report(args.reviewer, args.paper)
     if args.json:
-        emit_json(report.to_json())
+        emit_json(args, {"session": ws.session.name, **report.to_json()})
     else:
         print("\n".join(report.lines()))
     return EXIT_OK
@@ -115,5 +118,11 @@ def export_parts(ws: Workspace, args: argparse.Namespace) -> int:
     if target.suffix.lower() != ".csv":
         raise InputError([f"{target}: --parts writes a CSV file; name it FILE.csv"])
     rows = ws.export_parts(target, force=args.force, bom=args.bom)
-    print(f"{target}: {rows} assigned pairs with the parts of their scores")
+    if args.json:
+        emit_json(
+            args,
+            {"session": ws.session.name, "to": str(target), "format": "csv-parts", "pairs": rows},
+        )
+    else:
+        print(f"{target}: {rows} assigned pairs with the parts of their scores")
     return EXIT_OK

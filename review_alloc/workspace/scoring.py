@@ -4,17 +4,22 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 from pydantic import ValidationError
 
 from review_alloc.model import PART_NAMES, InputError, ScoreRecipe
-from review_alloc.plan.recipe import pair_breakdown, pair_parts, recipe_scores, session_signals
 from review_alloc.plan.rules import PairRules
 from review_alloc.plan.score_parts import PairReport, RuleCheck
-from review_alloc.plan.similarity import SignalMatrices
 from review_alloc.workspace.base import ChangeRefused, WorkspaceBase, redoable
 from review_alloc.workspace.facts import Facts
+
+if TYPE_CHECKING:
+    from review_alloc.plan.similarity import SignalMatrices
+
+# The recipe's modules bring scikit-learn and scipy: they load when a score is made or
+# explained, so that commands which only read a session start without them.
 
 
 class ScoringMixin(WorkspaceBase):
@@ -59,6 +64,8 @@ class ScoringMixin(WorkspaceBase):
         A session that never had a recipe keeps its current scores as the given expertise.
         """
         recipe = self.recipe_with(weights, top)
+        from review_alloc.plan.recipe import recipe_scores, session_signals
+
         signals = session_signals(self.session)
         table = recipe_scores(self.session, recipe, signals)
         shown = ", ".join(f"{name} {value:g}" for name, value in recipe.weights().items())
@@ -82,6 +89,8 @@ class ScoringMixin(WorkspaceBase):
         kept = getattr(self, "_matrices", None)
         if kept is not None and kept[0] is s.papers and kept[1] is s.reviewers:
             return kept[2]
+        from review_alloc.plan.similarity import SignalMatrices
+
         matrices = SignalMatrices.of(s)
         self._matrices = (s.papers, s.reviewers, matrices)
         return matrices
@@ -99,6 +108,8 @@ class ScoringMixin(WorkspaceBase):
         verdict = facts.pair_verdict(j, i)
         assigned = any(r == j for r, _ in facts.assigned_of_paper[i])
         score = rules.score(j, i)
+        from review_alloc.plan.recipe import pair_breakdown
+
         breakdown = pair_breakdown(s, j, i, self._signal_matrices())
         stale = False
         if breakdown is not None:
@@ -140,6 +151,8 @@ class ScoringMixin(WorkspaceBase):
         paper_at, reviewer_at = s.paper_index(), s.reviewer_index()
         reviewer = np.array([reviewer_at[r] for _, r, _ in pairs], dtype=np.int64)
         paper = np.array([paper_at[p] for p, _, _ in pairs], dtype=np.int64)
+        from review_alloc.plan.recipe import pair_parts
+
         parts = pair_parts(s, reviewer, paper)
         total = parts.total(recipe)
         header = ("paper_id", "reviewer_id", "score", *PART_NAMES, "weighted_sum")

@@ -11,8 +11,9 @@ from pathlib import Path
 import pytest
 
 from review_alloc.cli import main
-from review_alloc.model import load_session
+from review_alloc.model import load_session, save_session
 from review_alloc.plan.rules import PAIR_RULES
+from review_alloc.samples import workshop
 from review_alloc.workspace import Workspace
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -129,3 +130,19 @@ def test_export_parts(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> Non
     target = tmp_path / "parts.csv"
     assert main(["export", str(path), "--to", str(target), "--parts"]) == 0
     assert target.read_text().startswith("paper_id,reviewer_id,score,expertise,text,topic,bid")
+
+
+def test_export_parts_prints_one_json_object(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    path = tmp_path / "w.json"
+    save_session(workshop(), path)
+    assert main(["plan", str(path)]) == 0
+    capsys.readouterr()
+    target = tmp_path / "parts.csv"
+    assert main(["export", str(path), "--parts", "--to", str(target), "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["command"] == "export" and out["ok"] and out["pairs"] == len(
+        load_session(path).plan.assignments
+    )
+    assert len(target.read_text().splitlines()) == out["pairs"] + 1
