@@ -348,9 +348,15 @@ def _bottleneck(
 def _proof_note(proof: ExactResult) -> str:
     """The method's note on the crossing rules: the MIP's status and gap."""
     if proof.proven:
+        linear = (
+            f"; {', '.join(proof.by_bound)} proven by the linear relaxation's checked bound, "
+            "met by an integral solution"
+            if proof.by_bound
+            else ""
+        )
         return (
             "; institution groups that mix seniors and juniors shared out by a lexicographic MIP "
-            f"(HiGHS: optimal, gap 0, {len(proof.solved)} tier(s) solved)"
+            f"(HiGHS: optimal, gap 0, {len(proof.solved)} tier(s) solved{linear})"
         )
     if not proof.solved:
         return (
