@@ -53,7 +53,8 @@ def assert_explanation_holds(session: Session) -> None:
 
 @pytest.mark.parametrize("seed", range(20))
 def test_institution_limit_explanations_match_highs(seed: int) -> None:
-    assert_explanation_holds(rules_session(900 + seed, (8, 10), max_per_institution=1, min_reviews=2))
+    session = rules_session(900 + seed, (8, 10), max_per_institution=1, min_reviews=2)
+    assert_explanation_holds(session)
 
 
 @pytest.mark.parametrize("seed", range(10))
@@ -71,9 +72,8 @@ def test_limit_with_shared_topics_and_bottleneck_explanations_match_highs(seed: 
 
 @pytest.mark.parametrize("seed", range(10))
 def test_limit_with_seniors_explanations_hold(seed: int) -> None:
-    assert_explanation_holds(
-        rules_session(980 + seed, (8, 10), max_per_institution=1, min_reviews=2, senior_min=1)
-    )
+    session = rules_session(980 + seed, (8, 10), max_per_institution=1, min_reviews=2, senior_min=1)
+    assert_explanation_holds(session)
 
 
 def test_the_limit_changes_the_figures_on_some_sessions() -> None:
