@@ -158,3 +158,28 @@ def _check_pair(rules: tuple[str, str], seed: int) -> None:
 @pytest.mark.parametrize(("first", "second"), PAIRS, ids=["+".join(p) for p in PAIRS])
 def test_every_pair_of_rules_more_seeds(first: str, second: str, round_: int) -> None:
     _check_pair((first, second), 5000 + 100 * round_ + PAIRS.index((first, second)))
+
+
+def _crossing_matches(seed: int, size: tuple[int, int]) -> None:
+    session = rules_session(seed, size, senior_min=1, max_per_institution=1, min_reviews=2)
+    # Reference: HiGHS via scipy.optimize.milp, one stage per README tier (matrix_reference).
+    ref = matrix_optimum(matrix_instance(session))
+    assert ref is not None
+    outcome = make_plan(session)
+    assert outcome.proven_optimal and outcome.plan.bound is None
+    got = plan_tiers(session, outcome.plan, None)
+    for name in (*COUNT_TIERS, "score"):
+        assert got[name] == pytest.approx(ref[name], abs=1e-6), name
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_crossing_rules_with_two_required_reviews_at_46_papers(seed: int) -> None:
+    # With two required reviews the relaxation breaks the crossing rule on nearly every seed,
+    # so the exact program decides the plan.
+    _crossing_matches(7700 + seed, (19, 46))
+
+
+@pytest.mark.large
+@pytest.mark.parametrize("seed", range(4))
+def test_crossing_rules_at_200_papers(seed: int) -> None:
+    _crossing_matches(8800 + seed, (60, 200))
