@@ -28,6 +28,7 @@ from scipy.sparse.csgraph import connected_components
 from review_alloc.flow import max_flow
 from review_alloc.model import Session
 from review_alloc.plan.figures import active_demands
+from review_alloc.plan.institutions import reviewer_institutions
 from review_alloc.plan.network import PlanNetwork, build_network
 from review_alloc.plan.overload import overload_allowances
 from review_alloc.plan.pairkeys import contains
@@ -62,6 +63,14 @@ class CoverageNetwork:
     """Nodes the source can still reach in the residual graph (the smallest source side)."""
     sink_reach: np.ndarray
     """Nodes that can still reach the sink in the residual graph (the smallest sink side)."""
+    group_paper: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
+    """Paper of each (paper, institution) group node (node `sink + 1 + k`), as the planner
+    caps them; their arcs to the papers are the last block."""
+
+    @property
+    def sink(self) -> int:
+        """The sink's node id (group nodes, when any, come after it)."""
+        return 1 + self.plan_net.n_reviewers + self.plan_net.n_papers
 
     @property
     def n_reviewers(self) -> int:
@@ -121,18 +130,31 @@ def coverage_network(
         pinned = np.concatenate([pinned, np.zeros(len(extra_pairs[0]), np.int64)])
     r_nodes = 1 + np.arange(n_r, dtype=np.int64)
     p_nodes = 1 + n_r + np.arange(n_p, dtype=np.int64)
-    tails = np.concatenate([np.zeros(n_r, np.int64), 1 + reviewer, p_nodes, p_nodes])
+    # The institution limit as the planner states it: a (paper, institution) group with more
+    # candidates than the limit passes through one node whose arc to the paper carries it.
+    pair_group, group_paper = limited_groups(session, reviewer, paper)
+    n_g = len(group_paper)
+    g_nodes = sink + 1 + np.arange(n_g, dtype=np.int64)
+    pair_head = np.where(pair_group >= 0, sink + 1 + pair_group, 1 + n_r + paper)
+    limit = int(session.policy.max_per_institution or 0)
+    tails = np.concatenate([np.zeros(n_r, np.int64), 1 + reviewer, p_nodes, p_nodes, g_nodes])
     heads = np.concatenate(
-        [r_nodes, 1 + n_r + paper, np.full(n_p, sink, np.int64), np.zeros(n_p, np.int64)]
+        [
+            r_nodes,
+            pair_head,
+            np.full(n_p, sink, np.int64),
+            np.zeros(n_p, np.int64),
+            1 + n_r + group_paper,
+        ]
     )
     # The arcs back to the source take pinned reviews above the tier's demand, uncounted.
     capacities = np.concatenate(
-        [capacity, np.ones(len(reviewer), np.int64), demand, reviews - demand]
+        [capacity, np.ones(len(reviewer), np.int64), demand, reviews - demand, np.full(n_g, limit)]
     ).astype(np.int64)
-    lower = np.concatenate([np.zeros(n_r, np.int64), pinned, np.zeros(2 * n_p, np.int64)]).astype(
-        np.int64
-    )
-    n_nodes = n_r + n_p + 2
+    lower = np.concatenate(
+        [np.zeros(n_r, np.int64), pinned, np.zeros(2 * n_p + n_g, np.int64)]
+    ).astype(np.int64)
+    n_nodes = n_r + n_p + 2 + n_g
     result = max_flow(
         n_nodes, tails, heads, capacities, source, sink, lower=lower if lower.any() else None
     )
@@ -152,7 +174,31 @@ def coverage_network(
         value=int(result.value),
         source_reach=np.asarray(result.source_side, dtype=bool),
         sink_reach=np.asarray(result.sink_side, dtype=bool),
+        group_paper=group_paper,
     )
+
+
+def limited_groups(
+    session: Session, reviewer: np.ndarray, paper: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """(per pair its crowded (paper, institution) group or -1, the paper of each group).
+
+    A group is crowded when it has more candidate pairs than `max_per_institution`; reviewers
+    without an institution belong to none (as in `plan.institutions`).
+    """
+    none = np.full(len(reviewer), -1, dtype=np.int64)
+    m = session.policy.max_per_institution
+    if m is None or len(reviewer) == 0:
+        return none, np.zeros(0, np.int64)
+    inst, names = reviewer_institutions(session)
+    n_inst = max(len(names), 1)
+    g_inst = inst[reviewer]
+    key = np.where(g_inst >= 0, paper * n_inst + g_inst, -1)
+    uniq, inverse, counts = np.unique(key, return_inverse=True, return_counts=True)
+    crowded = (uniq >= 0) & (counts > m)
+    number = np.cumsum(crowded) - 1
+    pair_group = np.where(crowded[inverse], number[inverse], -1).astype(np.int64)
+    return pair_group, (uniq[crowded] // n_inst).astype(np.int64)
 
 
 @dataclass(frozen=True)
@@ -186,17 +232,26 @@ def shortfall_groups(cov: CoverageNetwork, *, with_gains: bool = True) -> list[S
         return []
     on_t = cov.sink_reach
     pr, pp = net.pair_reviewer, net.pair_paper
-    pinned = net.lower[net.pair_arcs]
-    inner = on_t[1 + pr] & on_t[1 + n_r + pp]
-    # Components over reviewer and paper nodes joined by pair arcs inside the sink side.
+    sink = cov.sink
+    # Components over the sink side's reviewer, paper and group nodes, joined by any arc with
+    # both ends there (pair arcs and the institution groups' arcs; never through the sink).
+    inner_arc = on_t[cov.tails] & on_t[cov.heads] & (cov.tails != sink) & (cov.heads != sink)
+    inner_arc &= (cov.tails != 0) & (cov.heads != 0)
     graph = coo_matrix(
-        (np.ones(int(inner.sum()), np.int8), (pr[inner], n_r + pp[inner])),
-        shape=(n_r + n_p, n_r + n_p),
+        (np.ones(int(inner_arc.sum()), np.int8), (cov.tails[inner_arc], cov.heads[inner_arc])),
+        shape=(cov.n_nodes, cov.n_nodes),
     )
     _, label = connected_components(graph, directed=False)
-    paper_label = label[n_r:]
-    reviewer_label = label[:n_r]
+    paper_label = label[1 + n_r : 1 + n_r + n_p]
+    reviewer_label = label[1 : 1 + n_r]
     reviewers_t = cov.reviewers_on_sink_side()
+    # The cut's capacity into each component: arcs from the source side into it, less the
+    # lower bounds (pins) of arcs leaving it for the source side.
+    entering = ~on_t[cov.tails] & on_t[cov.heads] & (cov.heads != sink)
+    leaving = on_t[cov.tails] & ~on_t[cov.heads] & (cov.tails != sink)
+    into = np.bincount(
+        label[cov.heads[entering]], weights=cov.capacities[entering], minlength=cov.n_nodes
+    ) - np.bincount(label[cov.tails[leaving]], weights=cov.lower[leaving], minlength=cov.n_nodes)
 
     groups: list[ShortfallGroup] = []
     for comp in np.unique(paper_label[papers_t]):
@@ -204,13 +259,7 @@ def shortfall_groups(cov: CoverageNetwork, *, with_gains: bool = True) -> list[S
         g_saturated = reviewers_t[reviewer_label[reviewers_t] == comp]
         in_group = np.zeros(n_p, dtype=bool)
         in_group[g_papers] = True
-        # The cut's capacity into the group: saturated reviewers' capacity less the pins they
-        # must give papers outside the sink side, plus one review per arc from the other side.
-        sat_mask = np.zeros(n_r, dtype=bool)
-        sat_mask[g_saturated] = True
-        pinned_out = int(pinned[sat_mask[pr] & ~on_t[1 + n_r + pp]].sum())
-        from_outside = int((in_group[pp] & ~on_t[1 + pr]).sum())
-        available = int(cov.capacity[g_saturated].sum()) - pinned_out + from_outside
+        available = int(round(into[comp]))
         needed = int(cov.demand[g_papers].sum())
         eligible = np.unique(pr[in_group[pp]])
         topics = Counter(t for i in g_papers for t in session.papers[i].topics)

@@ -6,8 +6,10 @@ JSON `report`); the Workspace computes it once per session and plan.
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, field
 from typing import Any
+
+import numpy as np
 
 from review_alloc.model import Plan, Session
 from review_alloc.plan.cautions import FIX_CAUTIONS
@@ -46,6 +48,10 @@ class Explanation:
     """Per coverage tier: the maximum coverage."""
     demand: dict[str, int]
     """Per coverage tier: the total demand."""
+    exact: dict[str, bool] = field(default_factory=dict)
+    """Per coverage tier: whether `best` is every optimal plan's coverage (the network states
+    every rule above the tier), or only an upper bound (a senior rule ranks above the tier or
+    binds it, and no flow states seniors and coverage together)."""
 
     def groups_of(self, tier: str) -> tuple[ShortfallGroup, ...]:
         """The groups of one coverage tier, in the order they are numbered."""
@@ -87,7 +93,23 @@ def explain(session: Session, network: PlanNetwork | None = None) -> Explanation
         shortfall={tier: cov.shortfall for tier, cov in covs.items()},
         best={tier: cov.value for tier, cov in covs.items()},
         demand={tier: int(cov.demand.sum()) for tier, cov in covs.items()},
+        exact=exact_tiers(session, net),
     )
+
+
+def exact_tiers(session: Session, net: PlanNetwork) -> dict[str, bool]:
+    """Which coverage tiers the coverage network solves exactly for this session.
+
+    The coverage network states caps, overload allowances, pins, eligibility and the
+    institution limit, as the planner does. Seniors as a tier rank between the two coverage
+    tiers, so the `reviews` tier's maximum flow may exceed what the plan can keep with its
+    seniors; hard seniors restrict both tiers.
+    """
+    seniors = bool(len(net.senior_paper)) and bool(np.any(net.senior_need > 0))
+    return {
+        "min_reviews": not (seniors and net.senior_hard),
+        "reviews": not seniors,
+    }
 
 
 def best_fixes(cov: CoverageNetwork) -> tuple[CapRaiseFix, RecruitFix, tuple[PairLoss, ...]]:
@@ -103,10 +125,17 @@ def report(explanation: Explanation, plan: Plan) -> dict[str, Any]:
     """
     session = explanation.session
     got = {"min_reviews": plan.figures.required_coverage, "reviews": plan.figures.coverage}
+    # A bound that the plan reaches is the optimum itself.
+    exact = {
+        tier: explanation.exact.get(tier, True) or got[tier] == explanation.best[tier]
+        for tier in TIERS
+    }
+    # Where the maximum flow is only a bound (seniors), the plan may stay below it, never above.
     wrong = [
         f"{tier} coverage: plan {got[tier]}, maximum flow {explanation.best[tier]}"
         for tier in TIERS
-        if got[tier] != explanation.best[tier]
+        if got[tier] > explanation.best[tier]
+        or (exact[tier] and got[tier] != explanation.best[tier])
     ]
     if wrong:
         raise PlanCheckError(wrong)
@@ -135,6 +164,16 @@ def report(explanation: Explanation, plan: Plan) -> dict[str, Any]:
                 "best": explanation.best[tier],
                 "shortfall": explanation.shortfall[tier],
                 "groups_shortfall": sum(g.shortfall for g in explanation.groups_of(tier)),
+                "exact": exact[tier],
+                "planned": got[tier],
+                **(
+                    {}
+                    if exact[tier]
+                    else {
+                        "note": "best is an upper bound: the senior rule ranks above this tier "
+                        "and may keep the plan below it; the groups explain the bound"
+                    }
+                ),
             }
             for tier in TIERS
         },

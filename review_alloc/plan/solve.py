@@ -318,29 +318,44 @@ def _bottleneck(
     if len(thresholds) == 0:
         result = _run(session, net)
         return None, net, result, split, {}, proof
-    # The max-flow pruning runs on the relaxed network, so it never rejects a reachable threshold.
+    # The max-flow pruning runs on the relaxed network without seniors, whose maximum flows
+    # bound the plan's coverage tiers from above: a threshold is reachable only if they still
+    # reach the plan's figures (the relaxation's own maximum may lie above the real optimum
+    # where the rules cross or seniors rank above coverage, so it is not the target).
     relaxed = build_network(session, conflicts=net.conflicts) if split else net
-    target = coverage_flows(relaxed, None)
-    top = highest_threshold(thresholds, lambda t: coverage_flows(relaxed, t) == target)
+    target = (base["required"], base["coverage"])
+    top = highest_threshold(
+        thresholds,
+        lambda t: all(a >= b for a, b in zip(coverage_flows(relaxed, t), target, strict=True)),
+    )
 
-    def solved(t: float) -> tuple:
-        return _solve_rules(session, t, {}, net.conflicts, earlier)
+    def solved(t: float) -> tuple | None:
+        try:
+            return _solve_rules(session, t, {}, net.conflicts, earlier)
+        except PlanInputError:
+            # A hard senior rule that the remaining pairs cannot meet: the threshold is too high.
+            return None
 
-    def keeps(values: dict[str, float]) -> bool:
+    def keeps(attempt: tuple | None) -> bool:
+        if attempt is None:
+            return False
+        values = tier_values(attempt[0], attempt[1].flow[attempt[0].pair_arcs] > 0)
         return all(values[k] >= base[k] for k in ("required", "seniors", "coverage"))
 
     attempt = solved(float(thresholds[top]))
-    if not keeps(tier_values(attempt[0], attempt[1].flow[attempt[0].pair_arcs] > 0)):
-        cache: dict[int, tuple] = {}
+    if not keeps(attempt):
+        cache: dict[int, tuple | None] = {}
 
         def reaches(t: float) -> bool:
             k = int(np.searchsorted(thresholds, t))
             cache[k] = solved(t)
-            net_k, res_k = cache[k][0], cache[k][1]
-            return keeps(tier_values(net_k, res_k.flow[net_k.pair_arcs] > 0))
+            return keeps(cache[k])
 
         top = highest_threshold(thresholds[:top], reaches)
-        attempt = cache.get(top) or solved(float(thresholds[top]))
+        attempt = cache.get(top)
+        if attempt is None:
+            # The lowest threshold keeps every unpinned pair, so it is always feasible.
+            attempt = _solve_rules(session, float(thresholds[top]), {}, net.conflicts, earlier)
     net_t, result_t, split_t, bound_t, proof_t = attempt
     return float(thresholds[top]), net_t, result_t, split_t, bound_t, proof_t
 
@@ -348,9 +363,15 @@ def _bottleneck(
 def _proof_note(proof: ExactResult) -> str:
     """The method's note on the crossing rules: the MIP's status and gap."""
     if proof.proven:
+        linear = (
+            f"; {', '.join(proof.by_bound)} proven by the linear relaxation's checked bound, "
+            "met by an integral solution"
+            if proof.by_bound
+            else ""
+        )
         return (
             "; institution groups that mix seniors and juniors shared out by a lexicographic MIP "
-            f"(HiGHS: optimal, gap 0, {len(proof.solved)} tier(s) solved)"
+            f"(HiGHS: optimal, gap 0, {len(proof.solved)} tier(s) solved{linear})"
         )
     if not proof.solved:
         return (

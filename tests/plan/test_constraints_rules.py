@@ -272,8 +272,13 @@ def test_plan_json_has_the_rule_keys(tmp_path: Path, capsys: pytest.CaptureFixtu
 def test_conference_sample_meets_every_rule() -> None:
     session = load_session(SAMPLES / "conference.json")
     assert (session.policy.senior_min, session.policy.max_per_institution) == (1, 1)
-    plan = make_plan(session).plan
+    outcome = make_plan(session)
+    plan = outcome.plan
     assert plan.checked
+    # The crossing rules leave too many arcs free for the integer program; the linear
+    # relaxation with the group limits is integral and meets its checked bound: proven optimal.
+    assert outcome.proven_optimal and plan.bound is None
+    assert outcome.proof is not None and outcome.proof.proven and outcome.proof.gap == 0
     senior = {r.id for r in session.reviewers if r.senior}
     where = {r.id: r.institution for r in session.reviewers}
     by_paper: dict[str, list[str]] = {}
@@ -330,21 +335,42 @@ def test_crossing_rules_on_the_panel_are_proven_optimal_by_the_mip() -> None:
     assert plan_summary(session, outcome.plan)["optimality"]["proven"]
 
 
-def test_a_venue_too_large_for_the_mip_reports_its_bound_and_gap() -> None:
-    from review_alloc.plan import exact, solve
-
+def _crossing_panel() -> Session:
     session = load_session(SAMPLES / "panel.json")
-    session = session.model_copy(
+    return session.model_copy(
         update={
             "policy": session.policy.model_copy(update={"senior_min": 1, "max_per_institution": 1})
         }
     )
-    limit = exact.MAX_FREE_ARCS
-    exact.MAX_FREE_ARCS = 0
-    try:
-        outcome = make_plan(session)
-    finally:
-        exact.MAX_FREE_ARCS = limit
+
+
+def test_a_venue_too_large_for_the_mip_is_proven_by_the_checked_linear_bound(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    from review_alloc.plan import exact
+
+    session = _crossing_panel()
+    # The reference: the integer program on the reduced-cost-fixed arcs (HiGHS, status optimal).
+    reference = make_plan(session)
+    assert reference.proof is not None and reference.proof.proven
+    monkeypatch.setattr(exact, "MAX_FREE_ARCS", 0)
+    outcome = make_plan(session)
+    assert outcome.proven_optimal and outcome.plan.bound is None
+    assert outcome.proof is not None and outcome.proof.proven and outcome.proof.by_bound
+    assert "checked bound" in outcome.plan.method
+    assert outcome.tiers == reference.tiers
+
+
+def test_a_venue_too_large_for_the_mip_reports_its_bound_and_gap(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    from review_alloc.plan import exact, solve
+
+    session = _crossing_panel()
+    monkeypatch.setattr(exact, "MAX_FREE_ARCS", 0)
+    # The linear stage out of time: the relaxation's bound and the dive's plan, gap measured.
+    monkeypatch.setattr(exact, "_lp_stage", lambda *args: None)
+    outcome = make_plan(session)
     bound = outcome.plan.bound
     assert bound is not None and not outcome.proven_optimal and bound["gap"] >= 0
     for name in solve.OBJECTIVE_TIERS:

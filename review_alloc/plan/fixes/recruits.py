@@ -198,7 +198,7 @@ def _with_recruits(
         heads,
         caps,
         0,
-        cov.n_nodes - 1,
+        cov.sink,
         lower=lower if lower.any() else None,
     )
     return int(result.value), np.asarray(result.flow)[len(cov.tails) + n_topics :]
