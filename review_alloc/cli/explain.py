@@ -103,6 +103,29 @@ def _cmd_explain(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _target_lines(targets: list[dict[str, Any]], source: str, word: str) -> list[str]:
+    """One line per fix and target, the minimum first, with its cost in people and caps."""
+    if not targets:
+        return []
+    aim = {
+        "minimum": f"every {word} at its minimum (required reviews)",
+        "full": f"every {word} fully reviewed",
+    }
+    lines = ["", "Fixes by target (each computed exactly; cost in people and caps):"]
+    for t in targets:
+        if t["kind"] == "raise-caps":
+            cost = f"ask {t['people']} reviewers to take {t['caps']} more in all"
+        else:
+            cost = f"recruit {t['people']} new reviewers, no cap raised"
+        reach = "reached" if t["reaches"] else "as near as it can get"
+        lines.append(
+            f"  {aim[t['target']]}: {cost} ({t['coverage_before']} -> {t['coverage_after']} "
+            f"of {t['demand']}, {reach}); try it: review-alloc whatif {source} "
+            f"--apply-fix {t['key']}"
+        )
+    return lines
+
+
 class _Names:
     """Ids with the name or title beside them, and lists cut at the chair's `--limit`."""
 
@@ -189,6 +212,7 @@ def explain_lines(
             lines += [f"  {more}"] if more else []
     fixes = report["fixes"]
     if gaps:
+        lines += _target_lines(report.get("targets", []), source, word)
         lines += ["", "Smallest fixes (computed exactly):"]
         lines += _cap_lines(fixes["raise_caps"], source, names)
         lines += _recruit_lines(fixes["recruit"], source, word, names)

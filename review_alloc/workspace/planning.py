@@ -311,7 +311,26 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
         from review_alloc.plan.explanation import report
 
         plan = self.current_plan()
-        return report(self.explain(), plan)
+        explanation = self.explain()
+        result = report(explanation, plan)
+        # Both targets' fixes, smaller target first: reaching every paper's minimum often
+        # asks far less of people than full coverage does.
+        result["targets"] = [
+            {
+                "key": fix.key,
+                "target": fix.target,
+                "kind": fix.kind,
+                "people": fix.people,
+                "caps": fix.caps,
+                "coverage_before": fix.coverage_before,
+                "coverage_after": fix.coverage_after,
+                "demand": fix.demand,
+                "reaches": fix.reaches,
+                "changes": list(fix.changes()),
+            }
+            for fix in self.fixes(explanation=explanation).offered()
+        ]
+        return result
 
     # -- what-ifs and fixes ---------------------------------------------------------------
 

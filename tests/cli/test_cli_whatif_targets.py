@@ -47,3 +47,28 @@ def test_minimum_fix_reaches_every_minimum_and_names_whom_to_tell(
     out = capsys.readouterr().out
     assert f"reviewers to tell: {len(told)}" in out
     assert "pairs moved: " in out
+
+
+def test_explain_offers_both_targets_and_each_reaches_what_it_says(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    path = tmp_path / "venue.json"
+    save_session(topic_session({"quantum sensing": (8, 3, 4), "soil chemistry": (6, 6, 6)}), path)
+    assert main(["plan", str(path)]) == 0
+    capsys.readouterr()
+    targets = run_json(capsys, ["explain", str(path)])["targets"]
+    assert [t["key"] for t in targets] == ["raise-caps-min", "recruit-min", "raise-caps", "recruit"]
+    # Worked by hand (as above): the minimum needs 4 more pairs, full coverage 8 more (8 papers
+    # want 3 reviews each, 24, from 3 reviewers at cap 4, 12; required 16).
+    assert {t["key"]: t["caps"] for t in targets if t["kind"] == "raise-caps"} == {
+        "raise-caps-min": 4,
+        "raise-caps": 12,
+    }
+    for t in targets:
+        after = run_json(capsys, ["whatif", str(path), "--apply-fix", t["key"]])["after"]
+        got = after["required_coverage" if t["target"] == "minimum" else "coverage"]
+        assert got == t["coverage_after"] == t["demand"]
+    assert main(["explain", str(path)]) == 0
+    text = capsys.readouterr().out
+    assert "every paper at its minimum (required reviews): ask" in text
+    assert "--apply-fix raise-caps-min" in text and "--apply-fix recruit-min" in text
