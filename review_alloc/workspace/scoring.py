@@ -4,17 +4,19 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 from pydantic import ValidationError
 
 from review_alloc.model import PART_NAMES, InputError, ScoreRecipe
-from review_alloc.plan.recipe import pair_breakdown, pair_parts, recipe_scores, session_signals
 from review_alloc.plan.rules import PairRules
 from review_alloc.plan.score_parts import PairReport, RuleCheck
-from review_alloc.plan.similarity import SignalMatrices
 from review_alloc.workspace.base import ChangeRefused, WorkspaceBase, redoable
 from review_alloc.workspace.facts import Facts
+
+if TYPE_CHECKING:
+    from review_alloc.plan.similarity import SignalMatrices
 
 
 class ScoringMixin(WorkspaceBase):
@@ -58,6 +60,9 @@ class ScoringMixin(WorkspaceBase):
 
         A session that never had a recipe keeps its current scores as the given expertise.
         """
+        # The recipe's modules import scipy: load them when scoring, not for every command.
+        from review_alloc.plan.recipe import recipe_scores, session_signals
+
         recipe = self.recipe_with(weights, top)
         signals = session_signals(self.session)
         table = recipe_scores(self.session, recipe, signals)
@@ -79,6 +84,8 @@ class ScoringMixin(WorkspaceBase):
         s = self.session
         if s.policy.recipe is None:
             return None
+        from review_alloc.plan.similarity import SignalMatrices
+
         kept = getattr(self, "_matrices", None)
         if kept is not None and kept[0] is s.papers and kept[1] is s.reviewers:
             return kept[2]
@@ -89,6 +96,8 @@ class ScoringMixin(WorkspaceBase):
     def pair_report(self, reviewer_id: str, paper_id: str) -> PairReport:
         """One pair: every pair rule and its verdict, its standing in the current plan, and
         each part of its score with its weight."""
+        from review_alloc.plan.recipe import pair_breakdown
+
         j, i = self._reviewer(reviewer_id), self._paper(paper_id)
         s = self.session
         rules = PairRules(s)
@@ -127,6 +136,8 @@ class ScoringMixin(WorkspaceBase):
         """(header, rows) of the current plan's pairs with each part of their score, by paper:
         the score in the table, then expertise, text, topic and bid as the recipe reads them
         now (missing given scores and bids as 0), then the weighted sum before the floor."""
+        from review_alloc.plan.recipe import pair_parts
+
         self.refuse_broken_plan()
         s = self.session
         recipe = s.policy.recipe
