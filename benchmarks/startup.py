@@ -18,6 +18,7 @@ from __future__ import annotations
 import argparse
 import os
 import platform
+import resource
 import shutil
 import statistics
 import subprocess
@@ -48,16 +49,29 @@ def _env(cache: Path | None = None) -> dict[str, str]:
     return env
 
 
-def _timed(argv: list[str], env: dict[str, str], cwd: Path) -> float:
-    """Wall-clock seconds of one fresh process (which must succeed)."""
-    start = time.perf_counter()
+def _cpu() -> float:
+    usage = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return usage.ru_utime + usage.ru_stime
+
+
+def _run(argv: list[str], env: dict[str, str], cwd: Path) -> tuple[float, float]:
+    """Wall-clock and CPU seconds of one fresh process (which must succeed)."""
+    start, cpu = time.perf_counter(), _cpu()
     subprocess.run(argv, env=env, cwd=cwd, check=True, stdout=subprocess.DEVNULL,
                    stderr=subprocess.DEVNULL)
-    return time.perf_counter() - start
+    return time.perf_counter() - start, _cpu() - cpu
 
 
-def small_commands(repeats: int, folder: Path) -> dict[str, float]:
-    """Median seconds of the baseline and of each small command, run round-robin."""
+def _timed(argv: list[str], env: dict[str, str], cwd: Path) -> float:
+    """Wall-clock seconds of one fresh process (which must succeed)."""
+    return _run(argv, env, cwd)[0]
+
+
+def small_commands(repeats: int, folder: Path) -> dict[str, tuple[float, float]]:
+    """Median wall-clock and CPU seconds of the baseline and each small command, round-robin.
+
+    CPU seconds are the process's own, so a machine busy with other work shifts them less.
+    """
     session = folder / "startup.json"
     shutil.copy(WORKSHOP, session)
     env = _env()
@@ -65,7 +79,7 @@ def small_commands(repeats: int, folder: Path) -> dict[str, float]:
     for fresh in ([], ["--fresh"]):
         subprocess.run([sys.executable, "-m", "review_alloc", "plan", str(session), *fresh],
                        env=env, cwd=folder, check=True, capture_output=True)
-    runs: dict[str, list[float]] = {"baseline": [], **{name: [] for name in COMMANDS}}
+    runs: dict[str, list[tuple[float, float]]] = {"baseline": [], **{n: [] for n in COMMANDS}}
     argvs = {"baseline": [sys.executable, "-c", BASELINE]}
     for name, args in COMMANDS.items():
         filled = [a.format(session=session, folder=folder) for a in args]
@@ -74,8 +88,11 @@ def small_commands(repeats: int, folder: Path) -> dict[str, float]:
         _timed(argv, env, folder)  # bytecode written and files in the page cache
     for _ in range(repeats):
         for name, argv in argvs.items():
-            runs[name].append(_timed(argv, env, folder))
-    return {name: statistics.median(times) for name, times in runs.items()}
+            runs[name].append(_run(argv, env, folder))
+    return {
+        name: (statistics.median(t[0] for t in times), statistics.median(t[1] for t in times))
+        for name, times in runs.items()
+    }
 
 
 def _ready(cache: Path) -> bool:
@@ -102,9 +119,9 @@ def first_plans(repeats: int, folder: Path) -> list[dict[str, float]]:
     return results
 
 
-def section(small: dict[str, float], plans: list[dict[str, float]]) -> str:
+def section(small: dict[str, tuple[float, float]], plans: list[dict[str, float]]) -> str:
     """The RESULTS.md section for this run."""
-    base = small["baseline"]
+    base, base_cpu = small["baseline"]
     load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
     lines = [
         SECTION,
@@ -113,12 +130,14 @@ def section(small: dict[str, float], plans: list[dict[str, float]]) -> str:
         f"{platform.python_version()}; load average {load:.1f} when it ended. Each figure is "
         "a fresh process; small commands are the median of round-robin runs.",
         "",
-        "| command | seconds | / `python -c \"import numpy, pydantic\"` (target <= 2x) |",
-        "| --- | ---: | ---: |",
-        f"| baseline `{BASELINE}` | {base:.3f} | 1.00 |",
+        "| command | seconds | ratio (target <= 2x) | CPU seconds | CPU ratio |",
+        "| --- | ---: | ---: | ---: | ---: |",
+        f"| baseline `python -c \"{BASELINE}\"` | {base:.3f} | 1.00 | {base_cpu:.3f} | 1.00 |",
     ]
     for name in COMMANDS:
-        lines.append(f"| `review-alloc {name}` | {small[name]:.3f} | {small[name] / base:.2f} |")
+        wall, cpu = small[name]
+        lines.append(f"| `review-alloc {name}` | {wall:.3f} | {wall / base:.2f} | {cpu:.3f} | "
+                     f"{cpu / base_cpu:.2f} |")
     firsts = [p["first"] for p in plans]
     lines += [
         "",

@@ -11,6 +11,11 @@ process compiles the kernels of cost scaling (the largest group, sharing no call
 into the on-disk cache while this process compiles the others; this process then loads the
 child's kernels from the cache. Should the child fail (no second CPU, no way to start a process),
 this process compiles them itself.
+
+`prepare()` is what the workspace calls before a plan: on a warm cache it is `warm_up()`; on a
+cold one it starts a detached, low-priority process that runs `warm_up()` for the next run
+(`compile_claimed`; a claim file beside the marker keeps two runs from compiling at once) and
+lets small solves run the kernels uncompiled meanwhile (`flow.interpreted`).
 """
 
 from __future__ import annotations

@@ -35,9 +35,11 @@ KERNEL_MODULES = (
 )
 """The modules of `review_alloc.flow` that define kernels or bind them by name."""
 
-SMALL_ELEMENTS = 60_000
-"""Most array elements a kernel call may take and still run uncompiled: the demo workshop's
-largest call takes about 4,000, and plain Python solves a few thousand arcs per second."""
+SMALL_ELEMENTS = 50_000
+"""Most array elements a kernel call may take and still run uncompiled. The demo workshop's
+largest call takes about 15,000 (its whole uncompiled solve about 0.25 s of kernel time); a
+min-cost flow of 50,000 elements (about 3,000 reviewer-paper pairs) takes about 1 s uncompiled,
+and one plan makes at most four such calls, still well below a cold compile's 10-30 s."""
 
 
 def trailing_zeros(word: Any) -> int:
