@@ -26,6 +26,7 @@ import platform
 import subprocess
 import sys
 import threading
+from collections.abc import Callable
 from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -306,18 +307,25 @@ def _finish_background() -> None:
     warm_up()
 
 
-def prepare(small_first: bool = True) -> bool:
-    """Make the kernels ready to solve; whether that means compiling them (a cold cache).
+def prepare(
+    announce: Callable[[bool], None] | None = None, small_first: bool = True
+) -> bool:
+    """Make the kernels ready to solve; whether the cache was cold (the kernels not compiled).
 
     On a cold cache with `small_first`, a detached process compiles the kernels into the cache
     while small solves in this process run them uncompiled (`flow.interpreted`); the first large
-    solve waits for that compile and loads its kernels. Otherwise this is `warm_up()`.
+    solve waits for that compile and loads its kernels. Otherwise this is `warm_up()`. On a cold
+    cache `announce(in_background)` is called first, before anything waits.
     """
     cold = not solver_cache_ready() and not kernels_ready()
     if cold and small_first and _start_background():
         from review_alloc.flow import interpreted
 
         interpreted.enter(solver_cache_ready, _finish_background)
+        if announce is not None:
+            announce(True)
         return cold
+    if cold and announce is not None:
+        announce(False)
     warm_up()
     return cold

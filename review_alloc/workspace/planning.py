@@ -34,16 +34,23 @@ def prepare_solver(say: Callable[[str], None] | None = None) -> None:
     """Ready the flow kernels: load them, or on a cold machine compile them in the background.
 
     On a cold machine small plans run at once with the kernels uncompiled while a detached
-    process compiles them for the next run; a large plan waits for that compile (said once
-    through `say`).
+    process compiles them for the next run, and a large plan waits for that compile; `say`
+    hears about it once.
     """
     from review_alloc.flow.compile import prepare
 
-    if prepare() and say is not None:
-        say(
-            "Compiling the solver in the background (first run on this machine; later runs "
-            "start at once). Small plans go ahead now; large ones wait for it."
-        )
+    def announce(in_background: bool) -> None:
+        if say is None:
+            return
+        if in_background:
+            say(
+                "Preparing the solver in the background (first run on this machine; later "
+                "runs start at once). Small plans go ahead now; large ones wait for it."
+            )
+        else:
+            say("Preparing the solver (first run on this machine; later runs start at once)...")
+
+    prepare(announce)
 
 
 @dataclass(frozen=True)
