@@ -11,6 +11,11 @@ process compiles the kernels of cost scaling (the largest group, sharing no call
 into the on-disk cache while this process compiles the others; this process then loads the
 child's kernels from the cache. Should the child fail (no second CPU, no way to start a process),
 this process compiles them itself.
+
+`prepare()` is what the workspace calls before a plan: on a warm cache it is `warm_up()`; on a
+cold one it starts a detached, low-priority process that runs `warm_up()` for the next run
+(`compile_claimed`; a claim file beside the marker keeps two runs from compiling at once) and
+lets small solves run the kernels uncompiled meanwhile (`flow.interpreted`).
 """
 
 from __future__ import annotations
@@ -21,6 +26,7 @@ import platform
 import subprocess
 import sys
 import threading
+from collections.abc import Callable
 from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -47,7 +53,7 @@ def _kernels() -> tuple[Any, ...]:
     from review_alloc.flow.primal_dual import primal_dual_kernel
     from review_alloc.flow.residual import _csr_kernel
 
-    return (
+    kernels = (
         _csr_kernel,
         max_flow_kernel,
         dinic_kernel,
@@ -57,6 +63,8 @@ def _kernels() -> tuple[Any, ...]:
         cost_scaling_kernel,
         exact_potentials,
     )
+    # While small calls run uncompiled, the module names hold switches around the kernels.
+    return tuple(getattr(kernel, "kernel", kernel) for kernel in kernels)
 
 
 def kernels_ready() -> bool:
@@ -114,6 +122,11 @@ _CHILD_GROUPS = ("cost scaling",)
 
 _CHILD = "import sys; from review_alloc.flow.compile import exercise; exercise(sys.argv[1])"
 
+_BACKGROUND = "from review_alloc.flow.compile import compile_claimed; compile_claimed()"
+
+_CLAIM_AGE = 900.0
+"""Seconds after which a background compile's claim file counts as left over by a dead run."""
+
 # Path 0 -> 1 -> 2 plus a direct edge; the lower bound exercises the circulation stage.
 _TAILS = (0, 1, 0)
 _HEADS = (1, 2, 2)
@@ -163,16 +176,22 @@ def exercise(group: str) -> None:
         optimal_potentials(_two_node_circulation())
 
 
-def _start_children(groups: tuple[str, ...]) -> list[subprocess.Popen[bytes]]:
-    """Start one child process per group compiling it into the cache; [] if none can start."""
-    if (os.cpu_count() or 1) < 2 or not sys.executable:
-        return []
+def _child_env() -> dict[str, str]:
+    """The environment of a compiling child: this copy of the package and this cache folder."""
     env = dict(os.environ)
     # The children must import this very copy of the package and write the same cache; they
     # get the folder through their environment, this process keeps its own untouched.
     package_root = str(Path(__file__).resolve().parents[2])
     env["PYTHONPATH"] = os.pathsep.join(p for p in (package_root, env.get("PYTHONPATH")) if p)
     env["NUMBA_CACHE_DIR"] = str(_cache_in_force())
+    return env
+
+
+def _start_children(groups: tuple[str, ...]) -> list[subprocess.Popen[bytes]]:
+    """Start one child process per group compiling it into the cache; [] if none can start."""
+    if (os.cpu_count() or 1) < 2 or not sys.executable:
+        return []
+    env = _child_env()
     children = []
     for group in groups:
         try:
@@ -223,3 +242,90 @@ def warm_up(parallel: bool = True) -> None:
             except OSError:
                 # A read-only cache folder only costs the message being shown again.
                 return
+
+
+_background: list[subprocess.Popen[bytes]] = []
+"""The background compile this process started, if any."""
+
+
+def _claim_file() -> Path:
+    marker = _marker()
+    return marker.with_name(marker.name.replace("-ready-", "-compiling-"))
+
+
+def _claim() -> bool:
+    """Claim the background compile of this installation; False if a live run holds it."""
+    import time
+
+    claim = _claim_file()
+    try:
+        claim.parent.mkdir(parents=True, exist_ok=True)
+        if claim.exists() and time.time() - claim.stat().st_mtime > _CLAIM_AGE:
+            claim.unlink(missing_ok=True)
+        claim.touch(exist_ok=False)
+    except OSError:
+        return False
+    return True
+
+
+def _start_background() -> bool:
+    """Start a detached process compiling every kernel into the cache; whether one now runs.
+
+    The process outlives this one (a command that plans a small session exits long before the
+    compile ends), so the next run loads the kernels from the cache.
+    """
+    if not sys.executable:
+        return False
+    if not _claim():
+        # Another process is compiling already: the cache fills all the same.
+        return True
+    try:
+        _background.append(subprocess.Popen(
+            [sys.executable, "-c", _BACKGROUND], env=_child_env(), start_new_session=True,
+            stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+        ))
+    except OSError:
+        return False
+    return True
+
+
+def compile_claimed() -> None:
+    """Compile every kernel into the cache, then drop the claim (the background process's job)."""
+    if hasattr(os, "nice"):
+        # The plan that started this one runs meanwhile on the same cores; it goes first.
+        os.nice(19)
+    try:
+        warm_up()
+    finally:
+        _claim_file().unlink(missing_ok=True)
+
+
+def _finish_background() -> None:
+    """Wait for the background compile (if this process started one) and load its kernels."""
+    _wait(_background)
+    _background.clear()
+    warm_up()
+
+
+def prepare(
+    announce: Callable[[bool], None] | None = None, small_first: bool = True
+) -> bool:
+    """Make the kernels ready to solve; whether the cache was cold (the kernels not compiled).
+
+    On a cold cache with `small_first`, a detached process compiles the kernels into the cache
+    while small solves in this process run them uncompiled (`flow.interpreted`); the first large
+    solve waits for that compile and loads its kernels. Otherwise this is `warm_up()`. On a cold
+    cache `announce(in_background)` is called first, before anything waits.
+    """
+    cold = not solver_cache_ready() and not kernels_ready()
+    if cold and small_first and _start_background():
+        from review_alloc.flow import interpreted
+
+        interpreted.enter(solver_cache_ready, _finish_background)
+        if announce is not None:
+            announce(True)
+        return cold
+    if cold and announce is not None:
+        announce(False)
+    warm_up()
+    return cold

@@ -31,12 +31,26 @@ if TYPE_CHECKING:
 
 
 def prepare_solver(say: Callable[[str], None] | None = None) -> None:
-    """Compile the flow kernels on a cold machine (saying so once through `say`), else load them."""
-    from review_alloc.flow import solver_cache_ready, warm_up
+    """Ready the flow kernels: load them, or on a cold machine compile them in the background.
 
-    if not solver_cache_ready() and say is not None:
-        say("Preparing the solver (first run on this machine; later runs start at once)...")
-    warm_up()
+    On a cold machine small plans run at once with the kernels uncompiled while a detached
+    process compiles them for the next run, and a large plan waits for that compile; `say`
+    hears about it once.
+    """
+    from review_alloc.flow.compile import prepare
+
+    def announce(in_background: bool) -> None:
+        if say is None:
+            return
+        if in_background:
+            say(
+                "Preparing the solver in the background (first run on this machine; later "
+                "runs start at once). Small plans go ahead now; large ones wait for it."
+            )
+        else:
+            say("Preparing the solver (first run on this machine; later runs start at once)...")
+
+    prepare(announce)
 
 
 @dataclass(frozen=True)

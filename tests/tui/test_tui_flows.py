@@ -562,17 +562,21 @@ async def test_gaps_and_raising_a_full_cap_from_one(new_app: Factory) -> None:
 async def test_a_cold_solver_cache_is_announced_once(
     new_app: Factory, monkeypatch
 ) -> None:
-    import review_alloc.flow as flow
+    import review_alloc.flow.compile as kernels
 
     ready = {"value": False}
     warmed: list[bool] = []
 
-    def fake_warm_up(parallel: bool = True) -> None:
-        warmed.append(parallel)
+    def fake_prepare(announce: Callable[[bool], None] | None = None) -> bool:
+        # Only the first call finds the cache cold, and only then is anything announced.
+        warmed.append(True)
+        cold = not ready["value"]
+        if cold and announce is not None:
+            announce(True)
         ready["value"] = True
+        return cold
 
-    monkeypatch.setattr(flow, "solver_cache_ready", lambda: ready["value"])
-    monkeypatch.setattr(flow, "warm_up", fake_warm_up)
+    monkeypatch.setattr(kernels, "prepare", fake_prepare)
     for expected in (1, 0):
         app = new_app()
         async with app.run_test(size=SIZE) as pilot:
