@@ -164,7 +164,7 @@ class ReviewAllocApp(App[None]):
         super().__init__()
         self.workspace = workspace
         self.clock = clock
-        self.facts = Facts.of(workspace.session)
+        self.facts = Facts.of(workspace.session, rules=workspace.rules())
         self._generation = 0
         self._planning_since: float | None = None
         self._shown_version: dict[str, int] = {}
@@ -237,7 +237,7 @@ class ReviewAllocApp(App[None]):
 
     def _refresh_all(self) -> None:
         """New facts after a change; redraw the bar and the visible view now, others on show."""
-        self.facts = Facts.of(self.workspace.session, self.facts)
+        self.facts = Facts.of(self.workspace.session, self.facts, rules=self.workspace.rules())
         self._version += 1
         self._draw_bar()
         history = self.query_one(HistoryView)

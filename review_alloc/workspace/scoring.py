@@ -10,7 +10,6 @@ from pydantic import ValidationError
 
 from review_alloc.model import PART_NAMES, InputError, ScoreRecipe
 from review_alloc.plan.recipe import pair_breakdown, pair_parts, recipe_scores, session_signals
-from review_alloc.plan.rules import PairRules
 from review_alloc.plan.score_parts import PairReport, RuleCheck
 from review_alloc.plan.similarity import SignalMatrices
 from review_alloc.workspace.base import ChangeRefused, WorkspaceBase, redoable
@@ -91,11 +90,11 @@ class ScoringMixin(WorkspaceBase):
         each part of its score with its weight."""
         j, i = self._reviewer(reviewer_id), self._paper(paper_id)
         s = self.session
-        rules = PairRules(s)
+        rules = self.rules()
         checks = tuple(
             RuleCheck(str(rule), active, broken) for rule, active, broken in rules.pair_checks(j, i)
         )
-        facts = Facts.of(s)
+        facts = Facts.of(s, rules=rules)
         verdict = facts.pair_verdict(j, i)
         assigned = any(r == j for r, _ in facts.assigned_of_paper[i])
         score = rules.score(j, i)
