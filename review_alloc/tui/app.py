@@ -1125,7 +1125,9 @@ class ReviewAllocApp(App[None]):
 
     def _open_imported(self, files: ImportFiles) -> list[str]:
         """Import through the Workspace and show the new session; problems stay in the form."""
+        options = files.options
         try:
+            # The same arguments the command line's `import` passes for the same options.
             workspace = Workspace.import_csv(
                 files.target,
                 files.papers,
@@ -1134,6 +1136,12 @@ class ReviewAllocApp(App[None]):
                 files.scores,
                 kind="panel" if files.panel else "conference",
                 columns=files.columns,
+                policy=options.make_policy() if options is not None else None,
+                ignore_extra=options.ignore_extra if options is not None else False,
+                name=options.name if options is not None else None,
+                sheet=options.sheet if options is not None else None,
+                encoding=options.encoding if options is not None else None,
+                bids=options.bids if options is not None else None,
             )
         except InputError as error:
             return list(error.lines)
