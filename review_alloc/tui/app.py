@@ -1217,11 +1217,18 @@ class ReviewAllocApp(App[None]):
                 out.append((key.replace("question_mark", "?").replace("slash", "/"), desc))
             return out
 
+        # `l` is an app key only so that every pair list shares it; it acts on a pair list.
+        pair_keys = [b for b in self.BINDINGS if b.key == "l"]
         return [
-            ("Everywhere", rows(self.BINDINGS) + [("ctrl+p", "command palette")]),
+            (
+                "Everywhere",
+                rows([b for b in self.BINDINGS if b not in pair_keys])
+                + [("ctrl+p", "command palette")],
+            ),
             (
                 f"{self.noun.capitalize()}s, Reviewers, Gaps",
                 rows(EntityView.BINDINGS)
+                + [(key, f"{desc} (in the pair list)") for key, desc in rows(pair_keys)]
                 + [
                     ("enter", "from the table to its pair list"),
                     ("tab", "next part of the view"),

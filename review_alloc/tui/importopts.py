@@ -14,9 +14,13 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from pydantic import ValidationError
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.containers import Horizontal
+from textual.widgets import Button, Input, Label, Static
 
 from review_alloc.model import Policy
-from review_alloc.tui.dialogs import Field, Form
+from review_alloc.tui.dialogs import DialogScroll, Field, Form
 
 _DEFAULT = ("", "default", "-")
 _YES = ("yes", "y", "on", "true", "1")
@@ -69,23 +73,23 @@ def _shown(value: object) -> str:
 
 # (name, label, kind): kind says how the text is read; policy fields carry their Policy name.
 _OPTIONS: tuple[tuple[str, str, str], ...] = (
-    ("bids", "bids CSV or workbook (reviewer_id, paper_id, bid)", "path"),
-    ("sheet", "sheet of each workbook to read (default: the first)", "text"),
-    ("encoding", "encoding of CSV files not in UTF-8/UTF-16 (e.g. cp1252)", "text"),
-    ("reviews", "reviews wanted per paper (default 3)", "whole"),
-    ("min_reviews", "reviews each paper must get (default 2)", "whole"),
-    ("cap", "most papers per reviewer (default 6)", "whole"),
-    ("floor", "fewest papers per reviewer (default 0)", "whole"),
-    ("unscored", "a pair with no score row: zero (eligible) or exclude", "unscored"),
-    ("senior_min", "senior reviewers wanted per paper (0: off)", "whole"),
-    ("senior_hard", "senior rule hard, fail if unmet (yes/no)", "yesno"),
-    ("max_per_institution", "most reviewers of one institution per paper (off)", "limit"),
-    ("require_shared_topic", "only pairs that share a topic (yes/no)", "yesno"),
-    ("min_score", "pairs scoring below this are not eligible (off)", "score"),
-    ("balance", "load-balance strength in score units (0: off)", "number"),
-    ("bottleneck", "raise the lowest unpinned score first (yes/no)", "yesno"),
-    ("max_leads", "most papers one reviewer leads (0: no leads)", "whole"),
-    ("ignore_extra", "ignore unknown columns (yes/no)", "yesno"),
+    ("bids", "bids file (reviewer_id, paper_id, bid)", "path"),
+    ("sheet", "workbook sheet (default: the first)", "text"),
+    ("encoding", "CSV encoding if not UTF-8/16 (e.g. cp1252)", "text"),
+    ("reviews", "reviews per paper (default 3)", "whole"),
+    ("min_reviews", "min reviews per paper (default 2)", "whole"),
+    ("cap", "cap: most papers per reviewer (default 6)", "whole"),
+    ("floor", "floor: fewest per reviewer (default 0)", "whole"),
+    ("unscored", "unscored pairs: zero or exclude", "unscored"),
+    ("senior_min", "seniors wanted per paper (default 0: off)", "whole"),
+    ("senior_hard", "senior rule hard: yes/no (default no)", "yesno"),
+    ("max_per_institution", "most per institution per paper (off)", "limit"),
+    ("require_shared_topic", "only pairs sharing a topic: yes/no", "yesno"),
+    ("min_score", "min score to be eligible (default off)", "score"),
+    ("balance", "load balance, score units (default 0)", "number"),
+    ("bottleneck", "raise the lowest score first: yes/no", "yesno"),
+    ("max_leads", "most papers one reviewer leads (default 3)", "whole"),
+    ("ignore_extra", "ignore unknown columns: yes/no", "yesno"),
     ("name", "session name (default: the file's name)", "text"),
 )
 _NOT_POLICY = ("bids", "sheet", "encoding", "ignore_extra", "name")
@@ -124,7 +128,7 @@ def read_options(values: dict[str, str]) -> tuple[ImportOptions | None, list[str
     """The options typed into the form, checked as the command line checks them."""
     problems: list[str] = []
     given: dict[str, object] = {}
-    labels = {name: label.split(" (")[0] for name, label, _ in _OPTIONS}
+    labels = {name: label.split(" (")[0].split(":")[0] for name, label, _ in _OPTIONS}
     for name, _, kind in _OPTIONS:
         text = values.get(name, "").strip()
         if text.lower() in _DEFAULT:
@@ -164,6 +168,14 @@ def read_options(values: dict[str, str]) -> tuple[ImportOptions | None, list[str
 class ImportOptionsForm(Form):
     """The import options, one line each; OK keeps them for the import, escape drops edits."""
 
+    # One row per option, its label beside its input, so that all of them fit a 24-line
+    # screen at once (the labels are kept within the label column's width).
+    DEFAULT_CSS = """
+    ImportOptionsForm .option-row { height: 1; }
+    ImportOptionsForm .option-row Label { width: 44; }
+    ImportOptionsForm .option-row Input { width: 1fr; }
+    """
+
     def __init__(self, current: ImportOptions, chosen: Callable[[ImportOptions], None]) -> None:
         fields = [
             Field(name, label, current.text.get(name, ""), optional=True)
@@ -173,9 +185,28 @@ class ImportOptionsForm(Form):
             "Import options (empty: the default)",
             fields,
             self._check,
-            hint="the command line's import options; yes/no and off are typed as words",
+            hint="as `review-alloc import`; yes/no and off are words; escape: back",
         )
         self.chosen = chosen
+
+    def compose(self) -> ComposeResult:
+        """Title, hint, one row per option, the problems line and the buttons."""
+        with DialogScroll(classes="dialog form"):
+            yield Static(Text(self.title_text, style="bold"))
+            yield Static(Text(self.hint, style="dim"))
+            kinds = {name: kind for name, _, kind in _OPTIONS}
+            for f in self.fields:
+                # An empty line shows what it means: no bids file, or the default.
+                empty = "none" if kinds[f.name] == "path" else "default"
+                with Horizontal(classes="option-row"):
+                    yield Label(f.label)
+                    yield Input(
+                        value=f.value, placeholder=empty, id=f"field-{f.name}", compact=True
+                    )
+            yield Static("", classes="problems")
+            with Horizontal(classes="buttons"):
+                yield Button("OK", variant="primary", id="ok")
+                yield Button("Cancel", id="cancel")
 
     def _check(self, values: dict[str, str]) -> list[str]:
         options, problems = read_options(values)

@@ -76,7 +76,8 @@ async def test_options_reach_the_session_as_on_the_command_line(
         options.query_one("#field-cap", Input).value = "4"
         options.query_one("#ok", Button).press()
         await pilot.pause()
-        assert "reviews wanted per paper" in str(options.query_one(".problems").render())
+        problems = str(options.query_one(".problems", Static).render())
+        assert "reviews per paper: Input should be greater" in problems
         options.query_one("#field-reviews", Input).value = ""
         for name, value in OPTIONS.items():
             options.query_one(f"#field-{name}", Input).value = value
@@ -121,4 +122,4 @@ def test_off_and_zero_mean_no_limit_and_empty_means_the_default() -> None:
     assert options.policy == {"max_per_institution": None, "min_score": None}
     assert options.make_policy().cap == 6  # the command line's default (--help)
     options, problems = read_options({"sheet": "Sheet2", "encoding": "cp1252", "floor": "-1"})
-    assert options is None and problems == ["fewest papers per reviewer: -1 is negative"]
+    assert options is None and problems == ["floor: -1 is negative"]
