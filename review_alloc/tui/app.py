@@ -1228,7 +1228,7 @@ class ReviewAllocApp(App[None]):
             (
                 f"{self.noun.capitalize()}s, Reviewers, Gaps",
                 rows(EntityView.BINDINGS)
-                + [(key, f"{desc} (in the pair list)") for key, desc in rows(pair_keys)]
+                + [(k, "the pair list's pair: its rules, score parts") for k, _ in rows(pair_keys)]
                 + [
                     ("enter", "from the table to its pair list"),
                     ("tab", "next part of the view"),
