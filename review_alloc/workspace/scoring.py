@@ -4,16 +4,18 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 from pydantic import ValidationError
 
 from review_alloc.model import PART_NAMES, InputError, ScoreRecipe
-from review_alloc.plan.recipe import pair_breakdown, pair_parts, recipe_scores, session_signals
 from review_alloc.plan.score_parts import PairReport, RuleCheck
-from review_alloc.plan.similarity import SignalMatrices
 from review_alloc.workspace.base import ChangeRefused, WorkspaceBase, redoable
 from review_alloc.workspace.facts import Facts
+
+if TYPE_CHECKING:
+    from review_alloc.plan.similarity import SignalMatrices
 
 
 class ScoringMixin(WorkspaceBase):
@@ -57,6 +59,10 @@ class ScoringMixin(WorkspaceBase):
 
         A session that never had a recipe keeps its current scores as the given expertise.
         """
+        # The recipe's text scores load scipy: only when used, so that the commands that solve
+        # nothing start without it (tests/cli/test_cli_conventions.py).
+        from review_alloc.plan.recipe import recipe_scores, session_signals
+
         recipe = self.recipe_with(weights, top)
         signals = session_signals(self.session)
         table = recipe_scores(self.session, recipe, signals)
@@ -78,6 +84,8 @@ class ScoringMixin(WorkspaceBase):
         s = self.session
         if s.policy.recipe is None:
             return None
+        from review_alloc.plan.similarity import SignalMatrices
+
         kept = getattr(self, "_matrices", None)
         if kept is not None and kept[0] is s.papers and kept[1] is s.reviewers:
             return kept[2]
@@ -98,6 +106,8 @@ class ScoringMixin(WorkspaceBase):
         verdict = facts.pair_verdict(j, i)
         assigned = any(r == j for r, _ in facts.assigned_of_paper[i])
         score = rules.score(j, i)
+        from review_alloc.plan.recipe import pair_breakdown
+
         breakdown = pair_breakdown(s, j, i, self._signal_matrices())
         stale = False
         if breakdown is not None:
@@ -139,6 +149,8 @@ class ScoringMixin(WorkspaceBase):
         paper_at, reviewer_at = s.paper_index(), s.reviewer_index()
         reviewer = np.array([reviewer_at[r] for _, r, _ in pairs], dtype=np.int64)
         paper = np.array([paper_at[p] for p, _, _ in pairs], dtype=np.int64)
+        from review_alloc.plan.recipe import pair_parts
+
         parts = pair_parts(s, reviewer, paper)
         total = parts.total(recipe)
         header = ("paper_id", "reviewer_id", "score", *PART_NAMES, "weighted_sum")
