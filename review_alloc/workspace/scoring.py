@@ -10,12 +10,16 @@ import numpy as np
 from pydantic import ValidationError
 
 from review_alloc.model import PART_NAMES, InputError, ScoreRecipe
+from review_alloc.plan.rules import PairRules
 from review_alloc.plan.score_parts import PairReport, RuleCheck
 from review_alloc.workspace.base import ChangeRefused, WorkspaceBase, redoable
 from review_alloc.workspace.facts import Facts
 
 if TYPE_CHECKING:
     from review_alloc.plan.similarity import SignalMatrices
+
+# The recipe's modules bring scikit-learn and scipy: they load when a score is made or
+# explained, so that commands which only read a session start without them.
 
 
 class ScoringMixin(WorkspaceBase):
@@ -59,11 +63,9 @@ class ScoringMixin(WorkspaceBase):
 
         A session that never had a recipe keeps its current scores as the given expertise.
         """
-        # The recipe's text scores load scipy: only when used, so that the commands that solve
-        # nothing start without it (tests/cli/test_cli_conventions.py).
+        recipe = self.recipe_with(weights, top)
         from review_alloc.plan.recipe import recipe_scores, session_signals
 
-        recipe = self.recipe_with(weights, top)
         signals = session_signals(self.session)
         table = recipe_scores(self.session, recipe, signals)
         shown = ", ".join(f"{name} {value:g}" for name, value in recipe.weights().items())
@@ -84,11 +86,11 @@ class ScoringMixin(WorkspaceBase):
         s = self.session
         if s.policy.recipe is None:
             return None
-        from review_alloc.plan.similarity import SignalMatrices
-
         kept = getattr(self, "_matrices", None)
         if kept is not None and kept[0] is s.papers and kept[1] is s.reviewers:
             return kept[2]
+        from review_alloc.plan.similarity import SignalMatrices
+
         matrices = SignalMatrices.of(s)
         self._matrices = (s.papers, s.reviewers, matrices)
         return matrices
@@ -98,7 +100,8 @@ class ScoringMixin(WorkspaceBase):
         each part of its score with its weight."""
         j, i = self._reviewer(reviewer_id), self._paper(paper_id)
         s = self.session
-        rules = self.rules()
+        # The workspace's rules: their conflicts are derived once per session, not per pair.
+        rules: PairRules = self.rules()
         checks = tuple(
             RuleCheck(str(rule), active, broken) for rule, active, broken in rules.pair_checks(j, i)
         )
