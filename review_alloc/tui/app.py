@@ -113,7 +113,7 @@ class ReviewAllocApp(App[None]):
         Binding("ctrl+z", "undo", "Undo"),
         Binding("ctrl+y", "redo", "Redo", show=False),
         Binding("i", "import", "Import CSV", show=False),
-        Binding("l", "pair_view", "Look at the pair: rules and score parts", show=False),
+        Binding("l", "pair_view", "Look at the pair: its rules, score parts", show=False),
         Binding("question_mark,f1", "help", "Keys"),
         Binding("1", "tab('overview')", "Overview", show=False),
         Binding("2", "tab('papers')", "Papers", show=False),
@@ -1228,7 +1228,7 @@ class ReviewAllocApp(App[None]):
             (
                 f"{self.noun.capitalize()}s, Reviewers, Gaps",
                 rows(EntityView.BINDINGS)
-                + [(k, "the pair list's pair: its rules, score parts") for k, _ in rows(pair_keys)]
+                + rows(pair_keys)
                 + [
                     ("enter", "from the table to its pair list"),
                     ("tab", "next part of the view"),
