@@ -113,7 +113,7 @@ class ReviewAllocApp(App[None]):
         Binding("ctrl+z", "undo", "Undo"),
         Binding("ctrl+y", "redo", "Redo", show=False),
         Binding("i", "import", "Import CSV", show=False),
-        Binding("l", "pair_view", "Look at the pair: rules and score parts", show=False),
+        Binding("l", "pair_view", "Look at the pair: its rules, score parts", show=False),
         Binding("question_mark,f1", "help", "Keys"),
         Binding("1", "tab('overview')", "Overview", show=False),
         Binding("2", "tab('papers')", "Papers", show=False),
@@ -164,7 +164,7 @@ class ReviewAllocApp(App[None]):
         super().__init__()
         self.workspace = workspace
         self.clock = clock
-        self.facts = Facts.of(workspace.session)
+        self.facts = Facts.of(workspace.session, rules=workspace.rules())
         self._generation = 0
         self._planning_since: float | None = None
         self._shown_version: dict[str, int] = {}
@@ -237,7 +237,7 @@ class ReviewAllocApp(App[None]):
 
     def _refresh_all(self) -> None:
         """New facts after a change; redraw the bar and the visible view now, others on show."""
-        self.facts = Facts.of(self.workspace.session, self.facts)
+        self.facts = Facts.of(self.workspace.session, self.facts, rules=self.workspace.rules())
         self._version += 1
         self._draw_bar()
         history = self.query_one(HistoryView)
@@ -1125,7 +1125,9 @@ class ReviewAllocApp(App[None]):
 
     def _open_imported(self, files: ImportFiles) -> list[str]:
         """Import through the Workspace and show the new session; problems stay in the form."""
+        options = files.options
         try:
+            # The same arguments the command line's `import` passes for the same options.
             workspace = Workspace.import_csv(
                 files.target,
                 files.papers,
@@ -1134,6 +1136,12 @@ class ReviewAllocApp(App[None]):
                 files.scores,
                 kind="panel" if files.panel else "conference",
                 columns=files.columns,
+                policy=options.make_policy() if options is not None else None,
+                ignore_extra=options.ignore_extra if options is not None else False,
+                name=options.name if options is not None else None,
+                sheet=options.sheet if options is not None else None,
+                encoding=options.encoding if options is not None else None,
+                bids=options.bids if options is not None else None,
             )
         except InputError as error:
             return list(error.lines)
@@ -1209,11 +1217,18 @@ class ReviewAllocApp(App[None]):
                 out.append((key.replace("question_mark", "?").replace("slash", "/"), desc))
             return out
 
+        # `l` is an app key only so that every pair list shares it; it acts on a pair list.
+        pair_keys = [b for b in self.BINDINGS if b.key == "l"]
         return [
-            ("Everywhere", rows(self.BINDINGS) + [("ctrl+p", "command palette")]),
+            (
+                "Everywhere",
+                rows([b for b in self.BINDINGS if b not in pair_keys])
+                + [("ctrl+p", "command palette")],
+            ),
             (
                 f"{self.noun.capitalize()}s, Reviewers, Gaps",
                 rows(EntityView.BINDINGS)
+                + rows(pair_keys)
                 + [
                     ("enter", "from the table to its pair list"),
                     ("tab", "next part of the view"),

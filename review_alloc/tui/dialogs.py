@@ -1,11 +1,12 @@
 """Small modal forms: confirm, change two limits, declare a conflict, import CSV (with the
-files' own column names mapped to ours), help."""
+files' own column names mapped to ours, and the other import options), help."""
 
 from __future__ import annotations
 
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from rich.text import Text
 from textual import on
@@ -17,6 +18,9 @@ from textual.widgets import Button, Checkbox, Input, Label, Select, Static
 
 from review_alloc.model import InputError
 from review_alloc.workspace import Workspace
+
+if TYPE_CHECKING:
+    from review_alloc.tui.importopts import ImportOptions
 
 ColumnMap = dict[str, dict[str, str]]
 """Kind of file -> our field -> the file's own column name (see `io.columns`)."""
@@ -168,6 +172,9 @@ class ImportFiles:
     panel: bool
     columns: ColumnMap = field(default_factory=dict)
     """The files' own column names for our fields, chosen in `ColumnsForm`."""
+    options: ImportOptions | None = None
+    """The command line's other import options, chosen in `ImportOptionsForm` (None: the
+    defaults)."""
 
 
 _FILE_KINDS = ("papers", "reviewers", "conflicts", "scores")
@@ -294,7 +301,10 @@ class ImportForm(Form):
     the mapping starts from the open session's, so newer files from the same system need no
     mapping again."""
 
-    BINDINGS = [Binding("ctrl+o", "columns", "Columns")]
+    BINDINGS = [
+        Binding("ctrl+o", "columns", "Columns"),
+        Binding("ctrl+t", "options", "Options"),
+    ]
 
     def __init__(
         self,
@@ -311,6 +321,7 @@ class ImportForm(Form):
         super().__init__("Import a session from CSV files", fields, self._import)
         self.importer = importer
         self.columns: ColumnMap = {k: dict(v) for k, v in (columns or {}).items() if v}
+        self.options = _import_options()()
 
     def on_mount(self) -> None:
         """Add the panel switch and the column mapping above the problems line, and the
@@ -319,7 +330,10 @@ class ImportForm(Form):
         body = self.query_one(".dialog", DialogScroll)
         body.mount(Checkbox(panel_label(False), id="panel"), before=problems)
         body.mount(Static(self._columns_text(), id="columns-said"), before=problems)
-        self.query_one(".buttons", Horizontal).mount(Button("Columns…", id="columns"))
+        body.mount(Static(Text(self.options.said()), id="options-said"), before=problems)
+        buttons = self.query_one(".buttons", Horizontal)
+        buttons.mount(Button("Columns…", id="columns"))
+        buttons.mount(Button("Options…", id="options"))
 
     def _columns_text(self) -> Text:
         return Text(columns_said(self.columns))
@@ -349,6 +363,20 @@ class ImportForm(Form):
             ColumnsForm(headers, Workspace.import_fields(), self.columns), self._mapped
         )
 
+    @on(Button.Pressed, "#options")
+    def _options_button(self) -> None:
+        self.action_options()
+
+    def action_options(self) -> None:
+        """Open the command line's other import options (figures, chair rules, bids, ...)."""
+        from review_alloc.tui.importopts import ImportOptionsForm
+
+        self.app.push_screen(ImportOptionsForm(self.options, self._options_chosen))
+
+    def _options_chosen(self, options: ImportOptions) -> None:
+        self.options = options
+        self.query_one("#options-said", Static).update(Text(options.said()))
+
     def _mapped(self, mapping: ColumnMap | None) -> None:
         if mapping is None:
             return
@@ -371,8 +399,16 @@ class ImportForm(Form):
                 target=Path(values["target"]).expanduser(),
                 panel=self.query_one("#panel", Checkbox).value,
                 columns=self.columns,
+                options=self.options,
             )
         )
+
+
+def _import_options() -> type[ImportOptions]:
+    """The options class, imported when first used: its module builds on this one's `Form`."""
+    from review_alloc.tui.importopts import ImportOptions
+
+    return ImportOptions
 
 
 class HelpScreen(ModalScreen[None]):

@@ -148,6 +148,10 @@ class EntityView(Widget):
         """The heading and pair list of one row."""
         raise ValueError(f"{type(self).__name__} has no detail for {key}")
 
+    def empty_note(self, facts: Facts) -> str:
+        """What the detail says when the table has no rows at all (no filter)."""
+        return ""
+
     def pair_columns(self) -> tuple[str, ...]:
         """Columns of the detail's pair table."""
         return ("Id", "Score", "Standing", "Name")
@@ -207,7 +211,8 @@ class EntityView(Widget):
         key = self._current_key()
         facts = self.facts
         if key is None or facts is None:
-            head.update(Text("Nothing matches the filter." if self._filter else "", style="dim"))
+            empty = self.empty_note(facts) if facts is not None else ""
+            head.update(Text("Nothing matches the filter." if self._filter else empty, style="dim"))
             pairs.fill(self.pair_columns(), [])
             self._pairs = []
             self._show_pair_note()
@@ -548,6 +553,12 @@ class GapView(PaperView):
         ]
         rows.sort(key=lambda r: (not _cell_text(r[1][4]).startswith("BELOW"), r[0]))
         return rows
+
+    def empty_note(self, facts: Facts) -> str:
+        """No gaps: say why the table is empty, in words."""
+        if facts.session.plan is None:
+            return "No plan yet: press r to plan, then the short ones are listed here."
+        return f"No {facts.noun}s are short of reviews in this plan."
 
     def detail(self, facts: Facts, key: str) -> tuple[Text, list[Candidate]]:
         """The paper's heading and a hint at the fixes the pair list suggests."""

@@ -85,6 +85,17 @@ class WorkspaceBase:
         self.unsaved: list[Step] = []
         """The changes, plans and undos made since the file was read or written, in order."""
         self._nesting = 0
+        self._rules: PairRules | None = None
+
+    def rules(self) -> PairRules:
+        """The rules of the session as it is now, keeping what the last ones derived from the
+        very same lists (the conflicts of a large venue take a fraction of a second, and every
+        change and screen asks for them)."""
+        last = self._rules
+        if last is not None and last.session is self.session:
+            return last
+        self._rules = PairRules.renewed(self.session, last)
+        return self._rules
 
     @property
     def noun(self) -> str:
@@ -181,7 +192,7 @@ class WorkspaceBase:
         plan = s.plan
         if plan is None or not plan.assignments:
             return
-        rules = PairRules(s)
+        rules = self.rules()
         reviewer, paper, score = assignment_indices(s, plan.assignments)
         keep = rules.plan_keep(reviewer, paper, score, self._pinned(plan))
         if keep.all():
@@ -211,7 +222,7 @@ class WorkspaceBase:
         if not plan.assignments:
             return self._stale(plan, np.zeros(0, dtype=bool))
         reviewer, paper, score = assignment_indices(s, plan.assignments)
-        return self._stale(plan, PairRules(s).plan_keep(reviewer, paper, score, self._pinned(plan)))
+        return self._stale(plan, self.rules().plan_keep(reviewer, paper, score, self._pinned(plan)))
 
     def _stale(self, plan: Plan, keep: np.ndarray) -> Plan:
         """The plan with only the `keep` pairs, its figures recomputed, marked not checked."""

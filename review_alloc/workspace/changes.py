@@ -21,7 +21,6 @@ from review_alloc.model import (
     ScoreTable,
     Session,
 )
-from review_alloc.plan.rules import PairRules
 from review_alloc.workspace.base import DATA_FIELDS, ChangeRefused, WorkspaceBase, redoable
 
 
@@ -256,7 +255,7 @@ class ChangesMixin(WorkspaceBase):
         pin = PairRule(reviewer=reviewer_id, paper=paper_id, reason=reason)
         # The planner's own pin rules, asked for the pins with and without this one: only
         # what the new pin adds is its refusal (older pins may break a rule changed since).
-        rules = PairRules(s)
+        rules = self.rules()
         before = set(rules.pin_problems(s.pins))
         added = [line for line in rules.pin_problems([*s.pins, pin]) if line not in before]
         if added:

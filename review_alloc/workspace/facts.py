@@ -66,12 +66,15 @@ class Facts:
     probability_values: np.ndarray = field(default_factory=lambda: np.zeros(0))
 
     @classmethod
-    def of(cls, session: Session, previous: Facts | None = None) -> Facts:
+    def of(
+        cls, session: Session, previous: Facts | None = None, *, rules: PairRules | None = None
+    ) -> Facts:
         """Compute the facts of `session` as it is now.
 
         Conflicts, the sorted score table and the other facts of the rules are taken over from
         `previous` when the lists they depend on are the very same objects (a pin, a block or a
-        plan leaves them alone), which spares a large session most of the work of a refresh.
+        plan leaves them alone), which spares a large session most of the work of a refresh;
+        `rules` (the Workspace's own, `Workspace.rules()`) is used as it is when given.
         """
         n_p, n_r = len(session.papers), len(session.reviewers)
         paper_at, reviewer_at = session.paper_index(), session.reviewer_index()
@@ -92,7 +95,8 @@ class Facts:
         loads = np.array([len(x) for x in by_reviewer], dtype=np.int64)
         counts = np.array([len(x) for x in by_paper], dtype=np.int64)
         reviews, minimum, cap, floor = active_demands(session)
-        rules = PairRules.renewed(session, previous.rules if previous is not None else None)
+        if rules is None or rules.session is not session:
+            rules = PairRules.renewed(session, previous.rules if previous is not None else None)
         pair_keys, pair_values = rules.sorted_scores()
         prob_keys, prob_values = _probabilities(session)
         return cls(

@@ -100,11 +100,12 @@ class ScoringMixin(WorkspaceBase):
         each part of its score with its weight."""
         j, i = self._reviewer(reviewer_id), self._paper(paper_id)
         s = self.session
-        rules = PairRules(s)
+        # The workspace's rules: their conflicts are derived once per session, not per pair.
+        rules: PairRules = self.rules()
         checks = tuple(
             RuleCheck(str(rule), active, broken) for rule, active, broken in rules.pair_checks(j, i)
         )
-        facts = Facts.of(s)
+        facts = Facts.of(s, rules=rules)
         verdict = facts.pair_verdict(j, i)
         assigned = any(r == j for r, _ in facts.assigned_of_paper[i])
         score = rules.score(j, i)

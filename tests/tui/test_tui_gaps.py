@@ -157,3 +157,20 @@ async def test_conflicts_are_information_only_and_recruits_are_added(new_app: Fa
         await pilot.press("x")
         await pilot.pause()
         assert not view.display
+
+
+async def test_an_empty_gap_list_says_why_in_words(new_app: Factory, tmp_path: Path) -> None:
+    from textual.widgets import Static
+
+    from review_alloc.tui.entity_views import GapView
+
+    path = tmp_path / "panel.json"
+    shutil.copy(REPO / "sample_sessions" / "panel.json", path)
+    app = new_app(path)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await pilot.press("5")
+        await settle(app, pilot)
+        view = app.query_one(GapView)
+        head = str(view.query_one(".detail-head", Static).render())
+        assert view.query_one(".main", RowTable).row_count == 0
+        assert "No plan yet: press r" in head

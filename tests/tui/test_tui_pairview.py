@@ -42,3 +42,9 @@ async def test_o_opens_the_pair_under_the_cursor_with_its_score_parts(new_app: F
         await pilot.press("escape")
         await pilot.pause()
         assert not isinstance(app.screen, PairView)
+
+
+def test_the_help_lists_l_with_the_pair_lists_it_acts_on(new_app: Factory) -> None:
+    sections = dict(new_app().key_sections())
+    assert "l" not in [key for key, _ in sections["Everywhere"]]
+    assert "l" in [key for key, _ in sections["Papers, Reviewers, Gaps"]]
