@@ -7,9 +7,9 @@ import pytest
 
 from review_alloc.model import Session
 from review_alloc.plan import find_gaps, make_plan
-from review_alloc.plan.explain import coverage_network
+from review_alloc.plan.explain import CoverageNetwork, coverage_network
 from review_alloc.plan.explanation import explain, report
-from review_alloc.plan.whatif import apply_cap_fix
+from review_alloc.plan.whatif import apply_cap_fix, apply_recruit_fix
 from tests.plan.constraint_reference import lexicographic_rules_optimum, rule_instance
 from tests.plan.test_constraints_reference import rules_session
 
@@ -100,3 +100,59 @@ def test_the_cap_raise_under_the_limit_reaches_what_it_claims(seed: int) -> None
     after = make_plan(changed).plan
     # The re-plan of the changed copy reaches the coverage the fix promises, under the limit.
     assert after.figures.coverage == fix.coverage_after
+
+
+def _no_seniors(session: Session) -> Session:
+    papers = [p.model_copy(update={"senior_min": None}) for p in session.papers]
+    policy = session.policy.model_copy(update={"senior_min": 0})
+    return session.model_copy(update={"papers": papers, "policy": policy})
+
+
+def _coverage_with(cov: CoverageNetwork, topics: list[str], counts: tuple[int, ...]) -> int:
+    """Reference: networkx's maximum flow on the coverage network with `counts` recruits per
+    topic, each able to take the policy's cap and one review per paper of its topic."""
+    import networkx as nx
+
+    net = cov.plan_net
+    graph = nx.DiGraph()
+    arcs = zip(cov.tails.tolist(), cov.heads.tolist(), cov.capacities.tolist(), strict=True)
+    for t, h, c in arcs:
+        if graph.has_edge(t, h):
+            graph[t][h]["capacity"] += c
+        else:
+            graph.add_edge(t, h, capacity=c)
+    cap = cov.session.policy.cap
+    for k, (topic, n) in enumerate(zip(topics, counts, strict=True)):
+        node = ("recruits", k)
+        graph.add_edge(0, node, capacity=n * cap)
+        for i, paper in enumerate(cov.session.papers):
+            if topic in paper.topics:
+                graph.add_edge(node, 1 + net.n_reviewers + i, capacity=n)
+    return int(nx.maximum_flow_value(graph, 0, cov.sink))
+
+
+@pytest.mark.parametrize("seed", range(8))
+def test_the_fewest_recruits_under_the_limit_are_the_fewest(seed: int) -> None:
+    from itertools import product
+
+    from review_alloc.plan.fixes import recruit_fix
+
+    session = rules_session(2000 + seed, (6, 10), max_per_institution=1, min_reviews=2)
+    session = _no_seniors(session)
+    cov = coverage_network(session, "reviews")
+    if cov.lower.any() or not len(cov.group_paper):
+        pytest.skip("pins (lower bounds) or no crowded group: not the case under test")
+    fix = recruit_fix(cov)
+    assert not fix.note
+    topics = sorted({t for p in session.papers for t in p.topics})
+    counts = tuple(next((n.recruits for n in fix.needs if n.topic == t), 0) for t in topics)
+    # The fix reaches what it claims, and a re-plan of the changed session reaches it too.
+    assert _coverage_with(cov, topics, counts) == fix.coverage_after
+    changed = make_plan(apply_recruit_fix(session, fix)).plan
+    assert changed.figures.coverage == fix.coverage_after
+    # No smaller number of recruits, however spread over the topics, reaches it.
+    if fix.total:
+        fewer = fix.total - 1
+        for spread in product(range(fewer + 1), repeat=len(topics)):
+            if sum(spread) == fewer:
+                assert _coverage_with(cov, topics, spread) < fix.coverage_after

@@ -22,6 +22,9 @@ from review_alloc.plan.fixes.common import Unclosable, paper_inflow
 RECRUIT_SECONDS = 10.0
 """Time the integer program for several topics may take; past it the answer is flagged."""
 
+MAX_NETWORK_MODEL_ARCS = 60_000
+"""Under the institution limit, the largest coverage network the whole-network model takes."""
+
 MAX_RECRUIT_PAIRS = 200_000
 """Above this many pairs on the groups' side of the cut the recruit model is not attempted."""
 
@@ -97,7 +100,12 @@ def recruit_fix(cov: CoverageNetwork) -> RecruitFix:
     if len(topics) == 1:
         counts, bound, exact = _fewest_of_one_topic(cov, y_topic, y_paper, best), None, True
     else:
-        found = _fewest_recruits(cov, papers_t, inner, y_topic, y_paper, len(topics), target)
+        if len(cov.group_paper) and len(cov.tails) + 2 * len(y_topic) <= MAX_NETWORK_MODEL_ARCS:
+            # Crowded (paper, institution) groups cap what the reviewers inside the cut give,
+            # which the cut-side model below cannot state: model the whole network instead.
+            found = _fewest_recruits_on_network(cov, y_topic, y_paper, len(topics), best)
+        else:
+            found = _fewest_recruits(cov, papers_t, inner, y_topic, y_paper, len(topics), target)
         if found is None:
             return _no_recruits(
                 cov, f"the recruit model found no answer within {RECRUIT_SECONDS:g} s"
@@ -296,6 +304,96 @@ def _fewest_recruits(
     if found.x is None:
         return None
     counts = np.rint(found.x[n0:]).astype(np.int64)
+    if found.success:
+        return counts, int(counts.sum()), True
+    bound = getattr(found, "mip_dual_bound", None)
+    lower = int(np.ceil(bound - 1e-6)) if bound is not None and np.isfinite(bound) else 0
+    return counts, lower, False
+
+
+def _fewest_recruits_on_network(
+    cov: CoverageNetwork,
+    y_topic: np.ndarray,
+    y_paper: np.ndarray,
+    n_topics: int,
+    best: int,
+) -> tuple[np.ndarray, int, bool] | None:
+    """Fewest recruits per topic for coverage `best`, as one program over the whole network.
+
+    Variables: the flow on every arc of the coverage network (bounded by its lower bound and
+    capacity, group arcs included), on each source -> topic arc (at most cap x n_t) and topic
+    -> paper arc (at most n_t), and the integer recruit numbers n_t. Flow is conserved at every
+    node but the source and the sink, and the sink receives at least `best`. For integer n_t the
+    flow part is a network matrix, so its optimum is integral: only the n_t need branching.
+    """
+    net = cov.plan_net
+    cap = float(cov.session.policy.cap)
+    n_a, n_y = len(cov.tails), len(y_topic)
+    source, sink = 0, cov.sink
+    topic_node = cov.n_nodes + np.arange(n_topics, dtype=np.int64)
+    n_nodes = cov.n_nodes + n_topics
+    tails = np.concatenate([cov.tails, np.full(n_topics, source), topic_node[y_topic]])
+    heads = np.concatenate([cov.heads, topic_node, 1 + net.n_reviewers + y_paper])
+    n_f = n_a + n_topics + n_y
+    n_var = n_f + n_topics
+    arcs = np.arange(n_f)
+    # Conservation: inflow - outflow = 0 at every node but the source and the sink.
+    inner = np.ones(n_nodes, dtype=bool)
+    inner[[source, sink]] = False
+    row_of = np.full(n_nodes, -1, dtype=np.int64)
+    row_of[inner] = np.arange(int(inner.sum()))
+    into, out = inner[heads], inner[tails]
+    rows = [row_of[heads[into]], row_of[tails[out]]]
+    cols = [arcs[into], arcs[out]]
+    vals = [np.ones(int(into.sum())), -np.ones(int(out.sum()))]
+    n_rows = int(inner.sum())
+    low = [np.zeros(n_rows)]
+    high = [np.zeros(n_rows)]
+    # Coverage: the flow into the sink is at least `best`.
+    to_sink = np.flatnonzero(heads == sink)
+    from_sink = np.flatnonzero(tails == sink)
+    rows += [np.full(len(to_sink), n_rows), np.full(len(from_sink), n_rows)]
+    cols += [to_sink, from_sink]
+    vals += [np.ones(len(to_sink)), -np.ones(len(from_sink))]
+    low.append(np.array([float(best)]))
+    high.append(np.array([np.inf]))
+    n_rows += 1
+    # A recruit takes at most the cap, and gives a paper at most one review.
+    k = np.arange(n_topics)
+    rows += [n_rows + k, n_rows + k]
+    cols += [n_a + k, n_f + k]
+    vals += [np.ones(n_topics), -cap * np.ones(n_topics)]
+    n_rows += n_topics
+    y = np.arange(n_y)
+    rows += [n_rows + y, n_rows + y]
+    cols += [n_a + n_topics + y, n_f + y_topic]
+    vals += [np.ones(n_y), -np.ones(n_y)]
+    n_rows += n_y
+    low.append(np.full(n_topics + n_y, -np.inf))
+    high.append(np.zeros(n_topics + n_y))
+    matrix = coo_matrix(
+        (np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
+        shape=(n_rows, n_var),
+    ).tocsr()
+    most = float(cov.demand.sum())
+    lo = np.concatenate([cov.lower.astype(float), np.zeros(n_topics + n_y + n_topics)])
+    hi = np.concatenate(
+        [cov.capacities.astype(float), np.full(n_topics + n_y, most), np.full(n_topics, most)]
+    )
+    objective = np.zeros(n_var)
+    objective[n_f:] = 1.0
+    integral = np.zeros(n_var)
+    integral[n_f:] = 1
+    found = milp(
+        objective,
+        constraints=[LinearConstraint(matrix, np.concatenate(low), np.concatenate(high))],
+        integrality=integral,
+        bounds=Bounds(lo, hi),
+        options={"time_limit": RECRUIT_SECONDS},
+    )
+    if found.x is None:
+        return None
+    counts = np.rint(found.x[n_f:]).astype(np.int64)
     if found.success:
         return counts, int(counts.sum()), True
     bound = getattr(found, "mip_dual_bound", None)
