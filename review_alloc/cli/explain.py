@@ -214,6 +214,11 @@ def explain_lines(
     if gaps:
         lines += _target_lines(report.get("targets", []), source, word)
         lines += ["", "Smallest fixes (computed exactly):"]
+        if not fixes.get("coverage_after_exact", True):
+            lines.append(
+                "  (the senior rule ranks above all reviews, so the coverage after each fix "
+                "is at most the figure shown; `whatif` shows what a re-plan reaches)"
+            )
         lines += _cap_lines(fixes["raise_caps"], source, names)
         lines += _recruit_lines(fixes["recruit"], source, word, names)
         losses = fixes["conflicts_and_blocks"]["pairs"]

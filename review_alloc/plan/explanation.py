@@ -182,6 +182,9 @@ def report(explanation: Explanation, plan: Plan) -> dict[str, Any]:
         "overloads": [asdict(x) for x in over],
         "underloads": [asdict(x) for x in under],
         "fixes": {
+            # Under the senior rule the all-reviews figure is a bound, and so is each fix's
+            # coverage_after; a what-if preview shows what a re-plan reaches.
+            "coverage_after_exact": explanation.exact["reviews"],
             "raise_caps": asdict(explanation.caps),
             "recruit": asdict(explanation.recruits),
             "conflicts_and_blocks": {

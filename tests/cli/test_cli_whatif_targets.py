@@ -72,3 +72,19 @@ def test_explain_offers_both_targets_and_each_reaches_what_it_says(
     text = capsys.readouterr().out
     assert "every paper at its minimum (required reviews): ask" in text
     assert "--apply-fix raise-caps-min" in text and "--apply-fix recruit-min" in text
+
+
+def test_under_the_senior_rule_a_fixs_coverage_is_said_to_be_a_bound(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    from tests.plan.test_constraints_reference import rules_session
+
+    # Papers with their own senior rule: seniors rank above all reviews, which no flow states.
+    session = rules_session(2015, (6, 10), max_per_institution=1, min_reviews=2)
+    assert any(p.senior_min for p in session.papers)
+    path = tmp_path / "venue.json"
+    save_session(session, path)
+    report = run_json(capsys, ["explain", str(path)])
+    assert report["fixes"]["coverage_after_exact"] is False
+    assert main(["explain", str(path)]) == 0
+    assert "is at most the figure shown" in capsys.readouterr().out
