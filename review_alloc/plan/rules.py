@@ -156,16 +156,24 @@ class PairRules:
 
     @classmethod
     def renewed(cls, session: Session, previous: PairRules | None) -> PairRules:
-        """Rules of `session`, keeping whatever `previous` derived from the very same lists
-        (a pin, a block or a new plan leaves conflicts, scores and topics alone)."""
+        """Rules of `session`, keeping whatever `previous` derived from the same lists (a pin,
+        a block or a new plan leaves conflicts, scores and topics alone; an undo brings back
+        equal lists as new objects). Every fact is a pure function of its fields, so equal
+        fields give equal facts."""
         rules = cls(session)
         if previous is None:
             return rules
         old = previous.session
+        same: dict[str, bool] = {}
+
+        def unchanged(field: str) -> bool:
+            if field not in same:
+                a, b = getattr(old, field), getattr(session, field)
+                same[field] = a is b or a == b
+            return same[field]
+
         for name, fields in _DEPENDS.items():
-            if name in previous.__dict__ and all(
-                getattr(old, f) is getattr(session, f) for f in fields
-            ):
+            if name in previous.__dict__ and all(unchanged(f) for f in fields):
                 rules.__dict__[name] = previous.__dict__[name]
         return rules
 

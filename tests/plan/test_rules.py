@@ -462,3 +462,26 @@ def test_renewed_rules_keep_what_the_changed_lists_do_not_touch() -> None:
     assert np.array_equal(
         fresh.forbidden(reviewer, paper), PairRules(moved).forbidden(reviewer, paper)
     )
+
+
+def test_renewed_rules_keep_conflicts_for_equal_lists_and_only_for_them() -> None:
+    from review_alloc.samples import workshop
+
+    session = workshop()
+    rules = PairRules(session)
+    first = rules.conflicts
+    # An undo brings back equal lists as new objects: the conflicts need not be derived again.
+    copy = session.model_copy(
+        update={
+            "papers": [p.model_copy() for p in session.papers],
+            "reviewers": [r.model_copy() for r in session.reviewers],
+        }
+    )
+    assert PairRules.renewed(copy, rules).__dict__.get("conflicts") is first
+    # A changed institution is a changed list: derived again, and the new conflict appears.
+    r0 = session.reviewers[0]
+    moved = [r0.model_copy(update={"institution": "Harbourlight Lab"}), *session.reviewers[1:]]
+    changed = session.model_copy(update={"reviewers": moved})
+    renewed = PairRules.renewed(changed, rules)
+    assert "conflicts" not in renewed.__dict__
+    assert renewed.conflicts.reason_of() == PairRules(changed).conflicts.reason_of()
