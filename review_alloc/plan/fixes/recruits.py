@@ -290,20 +290,29 @@ def _fewest_recruits(
     most = float(demand_t.sum())
     lo = np.concatenate([pinned[inner].astype(float), np.zeros(n_y + n_z + n_n)])
     hi = np.concatenate([np.ones(n_x), np.full(n_y, most), demand_t, np.full(n_n, most)])
-    objective = np.zeros(n_var)
-    objective[n0:] = 1.0
-    integral = np.zeros(n_var)
-    integral[n0:] = 1
+    constraint = LinearConstraint(matrix, -np.inf, np.concatenate(upper))
+    return _fewest_counts(constraint, lo, hi, n0)
+
+
+def _fewest_counts(
+    constraint: LinearConstraint, lo: np.ndarray, hi: np.ndarray, first: int
+) -> tuple[np.ndarray, int, bool] | None:
+    """Minimise the recruit numbers (the integer variables from `first` on) within the time
+    limit: (counts, lower bound, proved optimal), or None when nothing was found in time."""
+    objective = np.zeros(len(lo))
+    objective[first:] = 1.0
+    integral = np.zeros(len(lo))
+    integral[first:] = 1
     found = milp(
         objective,
-        constraints=[LinearConstraint(matrix, -np.inf, np.concatenate(upper))],
+        constraints=[constraint],
         integrality=integral,
         bounds=Bounds(lo, hi),
         options={"time_limit": RECRUIT_SECONDS},
     )
     if found.x is None:
         return None
-    counts = np.rint(found.x[n0:]).astype(np.int64)
+    counts = np.rint(found.x[first:]).astype(np.int64)
     if found.success:
         return counts, int(counts.sum()), True
     bound = getattr(found, "mip_dual_bound", None)
@@ -380,25 +389,8 @@ def _fewest_recruits_on_network(
     hi = np.concatenate(
         [cov.capacities.astype(float), np.full(n_topics + n_y, most), np.full(n_topics, most)]
     )
-    objective = np.zeros(n_var)
-    objective[n_f:] = 1.0
-    integral = np.zeros(n_var)
-    integral[n_f:] = 1
-    found = milp(
-        objective,
-        constraints=[LinearConstraint(matrix, np.concatenate(low), np.concatenate(high))],
-        integrality=integral,
-        bounds=Bounds(lo, hi),
-        options={"time_limit": RECRUIT_SECONDS},
-    )
-    if found.x is None:
-        return None
-    counts = np.rint(found.x[n_f:]).astype(np.int64)
-    if found.success:
-        return counts, int(counts.sum()), True
-    bound = getattr(found, "mip_dual_bound", None)
-    lower = int(np.ceil(bound - 1e-6)) if bound is not None and np.isfinite(bound) else 0
-    return counts, lower, False
+    constraint = LinearConstraint(matrix, np.concatenate(low), np.concatenate(high))
+    return _fewest_counts(constraint, lo, hi, n_f)
 
 
 def _no_recruits(cov: CoverageNetwork, note: str) -> RecruitFix:
