@@ -397,30 +397,26 @@ def _print_changes(
 
 
 def _cmd_undo(args: argparse.Namespace) -> int:
-    from review_alloc.workspace import Workspace
-
-    ws = Workspace.open(args.session)
-    left = ws.session.revision
-    target = ws.undo(args.reason)
-    ws.save()
-    if args.json:
-        emit_json(args, {"session": ws.session.name, "from": left, "revision": target})
-    else:
-        print(f"{args.session}: back to revision {target} (plan and data) from revision {left}")
-    return EXIT_OK
+    return _step(args, forward=False)
 
 
 def _cmd_redo(args: argparse.Namespace) -> int:
+    return _step(args, forward=True)
+
+
+def _step(args: argparse.Namespace, *, forward: bool) -> int:
+    """`undo` or `redo`: one step through the revisions, saved, said in words or JSON."""
     from review_alloc.workspace import Workspace
 
     ws = Workspace.open(args.session)
     left = ws.session.revision
-    target = ws.redo(args.reason)
+    target = ws.redo(args.reason) if forward else ws.undo(args.reason)
     ws.save()
     if args.json:
         emit_json(args, {"session": ws.session.name, "from": left, "revision": target})
     else:
-        print(f"{args.session}: forward to revision {target} (plan and data) from revision {left}")
+        way = "forward" if forward else "back"
+        print(f"{args.session}: {way} to revision {target} (plan and data) from revision {left}")
     return EXIT_OK
 
 

@@ -27,14 +27,13 @@ import numpy as np
 
 from review_alloc.flow import CostFlowResult, InfeasibleError, min_cost_flow
 from review_alloc.model import Plan, Session
-from review_alloc.model.plans import trusted_assignments, trusted_plan
+from review_alloc.plan.assemble import assemble_plan
 from review_alloc.plan.checker import check_plan
 from review_alloc.plan.conflicts import ConflictSet, conflict_pairs
 from review_alloc.plan.errors import PlanInputError
 from review_alloc.plan.exact import EXACT_TIERS, ExactResult, exact_tiers, solve_exact
 from review_alloc.plan.fairness import coverage_flows, highest_threshold, score_thresholds
-from review_alloc.plan.figures import plan_figures
-from review_alloc.plan.leads import LeadChoice, LeadState, lead_choice, lead_mask_warm
+from review_alloc.plan.leads import LeadChoice, LeadState
 from review_alloc.plan.network import PlanNetwork, build_network
 from review_alloc.plan.warmstart import same_cost_scale, warm_start_for
 from review_alloc.plan.weights import SCORE_RESOLUTION
@@ -396,24 +395,7 @@ def _decode(
     reviewer = net.pair_reviewer[chosen]
     paper = net.pair_paper[chosen]
     score = net.pair_score[chosen]
-    order = np.lexsort((reviewer, paper))
-    reviewer, paper, score = reviewer[order], paper[order], score[order]
-    leads = None
-    state = None
-    lead = np.zeros(len(paper), dtype=bool)
-    if session.policy.max_leads > 0:
-        lead, state = lead_mask_warm(session, reviewer, paper, score, warm_leads)
-        leads = lead_choice(session, reviewer, paper, lead)
-    paper_ids = [p.id for p in session.papers]
-    reviewer_ids = [r.id for r in session.reviewers]
-    assignments = trusted_assignments(
-        [paper_ids[i] for i in paper.tolist()],
-        [reviewer_ids[j] for j in reviewer.tolist()],
-        score.tolist(),
-        lead.tolist(),
-    )
-    plan = trusted_plan(assignments, plan_figures(session, reviewer, paper, score), now, METHOD)
-    return plan, leads, state
+    return assemble_plan(session, reviewer, paper, score, now, METHOD, warm_leads)
 
 
 def make_plan(
