@@ -2,18 +2,106 @@
 
 The plain planner's decoded flow (`plan.solve`) and the plans that are not one min-cost flow
 (a draw, the fairest plan) are all assembled here, then handed to the independent checker.
+A re-plan of the same entities may hand in the earlier plan's rows (`PlanRows`): unchanged
+assignments are then the earlier (immutable) objects, and only the changed ones are built.
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from datetime import datetime
 
 import numpy as np
 
-from review_alloc.model import Plan, Session
+from review_alloc.model import Assignment, Plan, Session
 from review_alloc.model.plans import trusted_assignments, trusted_plan
 from review_alloc.plan.figures import plan_figures
 from review_alloc.plan.leads import LeadChoice, LeadState, lead_choice, lead_mask_warm
+
+
+@dataclass(frozen=True)
+class PlanRows:
+    """A plan's assignments with their positions: reviewer, paper (session positions), score
+    and lead per row, in the plan's order (by paper, then reviewer)."""
+
+    reviewer: np.ndarray
+    paper: np.ndarray
+    score: np.ndarray
+    lead: np.ndarray
+    assignments: list[Assignment]
+
+
+def _row_keys(rows_reviewer: np.ndarray, rows_paper: np.ndarray, n_reviewers: int) -> np.ndarray:
+    # Paper-major keys: a plan's rows are sorted by (paper, reviewer), so these increase.
+    return rows_paper.astype(np.int64) * max(n_reviewers, 1) + rows_reviewer
+
+
+def _assignments(
+    session: Session,
+    reviewer: np.ndarray,
+    paper: np.ndarray,
+    score: np.ndarray,
+    lead: np.ndarray,
+    reuse: PlanRows | None,
+) -> list[Assignment]:
+    """The rows as Assignment objects, taking equal rows of `reuse` as they are."""
+    if reuse is None or not len(reuse.reviewer) or not len(reviewer):
+        paper_ids = [p.id for p in session.papers]
+        reviewer_ids = [r.id for r in session.reviewers]
+        return trusted_assignments(
+            [paper_ids[i] for i in paper.tolist()],
+            [reviewer_ids[j] for j in reviewer.tolist()],
+            score.tolist(),
+            lead.tolist(),
+        )
+    n_r = len(session.reviewers)
+    old = _row_keys(reuse.reviewer, reuse.paper, n_r)
+    at = np.minimum(np.searchsorted(old, _row_keys(reviewer, paper, n_r)), len(old) - 1)
+    same = (
+        (reuse.reviewer[at] == reviewer)
+        & (reuse.paper[at] == paper)
+        & (reuse.lead[at] == lead)
+        & (reuse.score[at] == score)
+    )
+    out = [reuse.assignments[k] for k in at.tolist()]
+    new = np.flatnonzero(~same)
+    if len(new):
+        made = trusted_assignments(
+            [session.papers[i].id for i in paper[new].tolist()],
+            [session.reviewers[j].id for j in reviewer[new].tolist()],
+            score[new].tolist(),
+            lead[new].tolist(),
+        )
+        for k, a in zip(new.tolist(), made, strict=True):
+            out[k] = a
+    return out
+
+
+def assemble_rows(
+    session: Session,
+    reviewer: np.ndarray,
+    paper: np.ndarray,
+    score: np.ndarray,
+    now: datetime,
+    method: str,
+    warm_leads: LeadState | None = None,
+    reuse: PlanRows | None = None,
+) -> tuple[Plan, LeadChoice | None, LeadState | None, PlanRows]:
+    """`assemble_plan`, also returning the plan's rows; `reuse` (rows of a plan of a session
+    with the same reviewers and papers, in the same order) supplies unchanged assignments."""
+    order = np.lexsort((reviewer, paper))
+    reviewer, paper, score = reviewer[order], paper[order], score[order]
+    lead = np.zeros(len(paper), dtype=bool)
+    leads = None
+    state = None
+    if session.policy.max_leads > 0:
+        lead, state = lead_mask_warm(session, reviewer, paper, score, warm_leads)
+        leads = lead_choice(session, reviewer, paper, lead)
+    lead = np.asarray(lead, dtype=bool)
+    assignments = _assignments(session, reviewer, paper, score, lead, reuse)
+    figures = plan_figures(session, reviewer, paper, score)
+    rows = PlanRows(reviewer, paper, score, lead, assignments)
+    return trusted_plan(assignments, figures, now, method), leads, state, rows
 
 
 def assemble_plan(
@@ -27,21 +115,7 @@ def assemble_plan(
 ) -> tuple[Plan, LeadChoice | None, LeadState | None]:
     """The unchecked plan of the given pairs (session positions), leads chosen when asked for
     (warm-started from `warm_leads`), and the lead state a later plan can start from."""
-    order = np.lexsort((reviewer, paper))
-    reviewer, paper, score = reviewer[order], paper[order], score[order]
-    lead = np.zeros(len(paper), dtype=bool)
-    leads = None
-    state = None
-    if session.policy.max_leads > 0:
-        lead, state = lead_mask_warm(session, reviewer, paper, score, warm_leads)
-        leads = lead_choice(session, reviewer, paper, lead)
-    paper_ids = [p.id for p in session.papers]
-    reviewer_ids = [r.id for r in session.reviewers]
-    assignments = trusted_assignments(
-        [paper_ids[i] for i in paper.tolist()],
-        [reviewer_ids[j] for j in reviewer.tolist()],
-        score.tolist(),
-        lead.tolist(),
+    plan, leads, state, _ = assemble_rows(
+        session, reviewer, paper, score, now, method, warm_leads
     )
-    figures = plan_figures(session, reviewer, paper, score)
-    return trusted_plan(assignments, figures, now, method), leads, state
+    return plan, leads, state

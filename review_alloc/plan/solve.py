@@ -25,9 +25,9 @@ from datetime import UTC, datetime
 
 import numpy as np
 
-from review_alloc.flow import CostFlowResult, InfeasibleError, min_cost_flow
+from review_alloc.flow import CostFlowResult, InfeasibleError, WarmStart, min_cost_flow
 from review_alloc.model import Plan, Session
-from review_alloc.plan.assemble import assemble_plan
+from review_alloc.plan.assemble import PlanRows, assemble_rows
 from review_alloc.plan.checker import check_plan
 from review_alloc.plan.conflicts import ConflictSet, conflict_pairs
 from review_alloc.plan.errors import PlanInputError
@@ -35,6 +35,7 @@ from review_alloc.plan.exact import EXACT_TIERS, ExactResult, exact_tiers, solve
 from review_alloc.plan.fairness import coverage_flows, highest_threshold, score_thresholds
 from review_alloc.plan.leads import LeadChoice, LeadState
 from review_alloc.plan.network import PlanNetwork, build_network
+from review_alloc.plan.patch import NetworkPatch, patched_network
 from review_alloc.plan.warmstart import same_cost_scale, warm_start_for
 from review_alloc.plan.weights import SCORE_RESOLUTION
 
@@ -68,6 +69,14 @@ class PlanOutcome:
     proof: ExactResult | None = None
     """The exact program's proof where the institution and senior rules cross (None where the
     flow network alone is exact and its dual certificate is the proof)."""
+    planned: Session | None = None
+    """The session this outcome was planned on: the next plan compares its session with it to
+    patch `network` instead of building anew (`plan.patch`)."""
+    rows: PlanRows | None = None
+    """The plan's rows with their positions, so that a patched re-plan reuses unchanged
+    assignments."""
+    patched: bool = False
+    """Whether `network` was derived from the previous outcome's by a patch."""
 
     @property
     def proven_optimal(self) -> bool:
@@ -101,6 +110,27 @@ def _run(session: Session, net: PlanNetwork, warm: PlanOutcome | None = None) ->
     start = None
     if warm is not None and warm.flow is not None and same_cost_scale(warm.network, net):
         start = warm_start_for(warm.network, warm.flow, warm.potentials, net)
+    return _solve_network(session, net, start)
+
+
+def _resolve(session: Session, warm: PlanOutcome, patch: NetworkPatch) -> CostFlowResult:
+    """Solve a patched network from the earlier optimum on the same arcs.
+
+    The one place a patched network is solved: `patch.arcs` with their new capacities, lower
+    bounds and costs are all that differ from `warm.network`, so the earlier flow (clipped into
+    the new bounds) and potentials are the start, without matching two networks.
+    """
+    assert warm.flow is not None
+    net = patch.network
+    flow = warm.flow.copy()
+    flow[patch.arcs] = np.clip(flow[patch.arcs], patch.lower, patch.capacities)
+    return _solve_network(session, net, WarmStart(flow=flow, potentials=warm.potentials))
+
+
+def _solve_network(
+    session: Session, net: PlanNetwork, start: WarmStart | None
+) -> CostFlowResult:
+    """One min-cost flow solve of `net` from `start`; an unmet hard rule is a PlanInputError."""
     try:
         return min_cost_flow(
             net.n_nodes,
@@ -389,13 +419,46 @@ def _decode(
     result: CostFlowResult,
     now: datetime,
     warm_leads: LeadState | None = None,
-) -> tuple[Plan, LeadChoice | None, LeadState | None]:
-    """The plan of an optimal flow, its leads chosen when the policy asks for them."""
+    reuse: PlanRows | None = None,
+) -> tuple[Plan, LeadChoice | None, LeadState | None, PlanRows]:
+    """The plan of an optimal flow (pair arcs with flow > 0 only), its leads chosen when the
+    policy asks for them; `reuse` holds an earlier plan's rows of the same entities."""
     chosen = np.flatnonzero(result.flow[net.pair_arcs] > 0)
     reviewer = net.pair_reviewer[chosen]
     paper = net.pair_paper[chosen]
     score = net.pair_score[chosen]
-    return assemble_plan(session, reviewer, paper, score, now, METHOD, warm_leads)
+    return assemble_rows(session, reviewer, paper, score, now, METHOD, warm_leads, reuse)
+
+
+def _patched_solve(
+    session: Session, keep_from: Plan | None, warm: PlanOutcome | None
+) -> tuple[PlanNetwork, CostFlowResult] | None:
+    """The solve of the warm outcome's network patched for this session, when a patch can
+    follow the change and the patched optimum keeps the institution rule (else None)."""
+    if (
+        warm is None
+        or warm.planned is None
+        or warm.flow is None
+        or warm.proof is not None
+        or warm.bottleneck is not None
+    ):
+        return None
+    patch = patched_network(
+        warm.network,
+        warm.planned,
+        session,
+        keep_from,
+        old_plan=warm.plan,
+        old_flow=warm.flow,
+    )
+    if patch is None:
+        return None
+    result = _resolve(session, warm, patch)
+    net = patch.network
+    if _violated_splits(session, net, result.flow[net.pair_arcs] > 0):
+        # Mixed institution groups to share out: the exact path works on built networks.
+        return None
+    return net, result
 
 
 def make_plan(
@@ -405,6 +468,7 @@ def make_plan(
     earlier: Plan | None = None,
     now: datetime | None = None,
     warm: PlanOutcome | None = None,
+    patch: bool = True,
 ) -> PlanOutcome:
     """Solve the session's lexicographic objective exactly and return the checked plan.
 
@@ -412,12 +476,20 @@ def make_plan(
     above score, so it moves as few reviews as coverage and floors allow; `fresh` ignores it.
     With `warm` (the outcome of an earlier plan, before a small change such as a withdrawal, a
     cap change or a new conflict) the solver restarts from that plan's flow and potentials; the
-    result is just as optimal and checked.
+    result is just as optimal and checked. Where `plan.patch` can follow the change (and
+    `patch` is on), the earlier network is patched instead of built anew.
     """
     keep_from = None if fresh else (earlier if earlier is not None else session.plan)
-    net, result, split, bound, proof = _solve_rules(
-        session, None, {}, conflict_pairs(session), keep_from, warm
-    )
+    patched = _patched_solve(session, keep_from, warm) if patch else None
+    if patched is not None:
+        net, result = patched
+        split: dict[tuple[int, str], int] = {}
+        bound: dict[str, float] = {}
+        proof: ExactResult | None = None
+    else:
+        net, result, split, bound, proof = _solve_rules(
+            session, None, {}, conflict_pairs(session), keep_from, warm
+        )
     bottleneck = None
     if session.policy.bottleneck:
         base = tier_values(net, result.flow[net.pair_arcs] > 0)
@@ -427,8 +499,13 @@ def make_plan(
     used = result.flow[net.pair_arcs] > 0
     final = tier_values(net, used)
     relaxed = bound if bound != final else {}
-    plan, leads, lead_state = _decode(
-        session, net, result, now or datetime.now(UTC), warm.lead_state if warm else None
+    plan, leads, lead_state, rows = _decode(
+        session,
+        net,
+        result,
+        now or datetime.now(UTC),
+        warm.lead_state if warm else None,
+        warm.rows if patched is not None and warm is not None else None,
     )
     if proof is not None:
         plan = plan.model_copy(update={"method": plan.method + _proof_note(proof)})
@@ -473,4 +550,7 @@ def make_plan(
         tiers=final,
         lead_state=lead_state,
         proof=proof,
+        planned=session,
+        rows=rows,
+        patched=patched is not None,
     )
