@@ -1,0 +1,235 @@
+"""Re-plans on a patched network (plan.patch): the same optimum as a network built anew.
+
+Every check of an optimum is against OR-Tools' SimpleMinCostFlow (solved on both the patched
+and the freshly built arrays) or against a cold `make_plan`, whose own optimality the planner's
+tests check against HiGHS.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from ortools.graph.python import min_cost_flow as ortools_mcf
+
+from review_alloc.model import Policy, Session
+from review_alloc.plan import check_plan, make_plan
+from review_alloc.plan.errors import PlanCheckError
+from review_alloc.plan.network import PlanNetwork, build_network
+from review_alloc.plan.patch import patched_network, session_change
+from review_alloc.plan.solve import PlanOutcome, tier_values
+from review_alloc.workspace import ChangeRefused, Workspace
+from tests.plan.test_planner import random_session
+
+
+def _ortools_optimum(net: PlanNetwork) -> tuple[int, np.ndarray]:
+    """(optimal cost, an optimal flow) of the network's circulation by OR-Tools'
+    SimpleMinCostFlow; lower bounds are shifted out (x = lower + y)."""
+    low = net.lower
+    need = np.zeros(net.n_nodes, np.int64)
+    np.subtract.at(need, net.tails, low)
+    np.add.at(need, net.heads, low)
+    solver = ortools_mcf.SimpleMinCostFlow()
+    arcs = solver.add_arcs_with_capacity_and_unit_cost(
+        net.tails, net.heads, net.capacities - low, net.costs
+    )
+    solver.set_nodes_supplies(np.arange(net.n_nodes), need)
+    assert solver.solve() == solver.OPTIMAL
+    flow = low + np.array([solver.flow(int(a)) for a in arcs], dtype=np.int64)
+    return int(solver.optimal_cost()) + int(low @ net.costs), flow
+
+
+def _change(ws: Workspace, rng: np.random.Generator) -> str:
+    """One random change of a kind a patch follows; refused ones are simply not made."""
+    s = ws.session
+    r = s.reviewers[int(rng.integers(len(s.reviewers)))].id
+    p = s.papers[int(rng.integers(len(s.papers)))].id
+    plan = s.plan
+    kind = int(rng.integers(8))
+    try:
+        if kind == 0:
+            ws.withdraw_reviewer(r, "illness")
+        elif kind == 1:
+            ws.withdraw_paper(p, "withdrawn by authors")
+        elif kind == 2:
+            ws.set_reviewer(r, cap=int(rng.integers(0, 5)), floor=0)
+        elif kind == 3:
+            ws.set_paper(p, reviews=int(rng.integers(1, 5)), min_reviews=1)
+        elif kind == 4 and plan is not None and plan.assignments:
+            a = plan.assignments[int(rng.integers(len(plan.assignments)))]
+            ws.declare_conflict(a.reviewer, a.paper, "declared late")
+        elif kind == 5 and plan is not None and plan.assignments:
+            a = plan.assignments[int(rng.integers(len(plan.assignments)))]
+            ws.block(a.reviewer, a.paper, "asked not to")
+        elif kind == 6:
+            ws.pin(r, p, "chair's choice")
+        elif s.pins:
+            pin = s.pins[0]
+            ws.unpin(pin.reviewer, pin.paper)
+    except ChangeRefused:
+        return "refused"
+    return str(kind)
+
+
+def _assert_same_optimum(patched: PlanNetwork, fresh: PlanNetwork) -> None:
+    """Both networks' optima, by OR-Tools: equal cost and tier values; no closed arc used."""
+    cost_p, flow_p = _ortools_optimum(patched)
+    cost_f, flow_f = _ortools_optimum(fresh)
+    assert cost_p == cost_f
+    tiers_p = tier_values(patched, flow_p[patched.pair_arcs] > 0)
+    tiers_f = tier_values(fresh, flow_f[fresh.pair_arcs] > 0)
+    assert {k: v for k, v in tiers_p.items() if k != "score"} == {
+        k: v for k, v in tiers_f.items() if k != "score"
+    }
+    # Ties finer than a score step may be broken apart: one step per assigned pair at most.
+    assert tiers_p["score"] == pytest.approx(
+        tiers_f["score"], abs=len(flow_f) / patched.resolution
+    )
+    assert not (flow_p[patched.capacities == 0] > 0).any()
+
+
+@pytest.mark.parametrize("seed", range(40))
+def test_a_patched_replan_has_the_optimum_of_a_network_built_anew(seed: int) -> None:
+    rng = np.random.default_rng(7000 + seed)
+    session = random_session(7100 + seed, unscored="exclude" if seed % 2 else "zero")
+    ws = Workspace(session)
+    ws.solve(fresh=seed % 3 == 0)
+    for _ in range(4):
+        for _ in range(int(rng.integers(1, 3))):
+            _change(ws, rng)
+        earlier = ws.earlier_plan()
+        outcome = ws.solve()
+        assert outcome.plan.checked
+        fresh_net = build_network(ws.session, earlier=earlier)
+        if outcome.patched:
+            _assert_same_optimum(outcome.network, fresh_net)
+            # The patched outcome's potentials certify the freshly built network too.
+            check_plan(ws.session, outcome.plan, outcome.potentials, network=fresh_net)
+        # The plan equals a cold plan in every tier (make_plan's optimum, checked vs HiGHS in
+        # tests/plan/test_replan_random.py).
+        cold = make_plan(ws.session, earlier=earlier, patch=False)
+        assert outcome.tiers["required"] == cold.tiers["required"]
+        assert outcome.tiers["coverage"] == cold.tiers["coverage"]
+        assert outcome.tiers["floors"] == cold.tiers["floors"]
+        assert outcome.tiers["seniors"] == cold.tiers["seniors"]
+        assert outcome.tiers["score"] == pytest.approx(cold.tiers["score"], abs=1e-6)
+
+
+def test_most_random_changes_are_patched() -> None:
+    """The patch is not a path that never runs: most changes of these kinds are followed."""
+    patched = tried = 0
+    for seed in range(20):
+        rng = np.random.default_rng(9000 + seed)
+        ws = Workspace(random_session(9100 + seed, unscored="exclude"))
+        ws.solve()
+        ws.solve()  # the keep tier on, as in every re-plan after the first
+        for _ in range(3):
+            if _change(ws, rng) == "refused":
+                continue
+            tried += 1
+            patched += ws.solve().patched
+    assert patched >= tried // 2
+
+
+def _withdrawn(session: Session, j: int) -> Session:
+    reviewers = list(session.reviewers)
+    reviewers[j] = reviewers[j].model_copy(update={"withdrawn": True})
+    return session.model_copy(update={"reviewers": reviewers})
+
+
+def test_a_withdrawal_closes_the_pairs_and_keeps_the_arcs() -> None:
+    session = random_session(31, unscored="exclude")
+    first = make_plan(session, fresh=True)
+    loads = np.bincount(first.rows.reviewer, minlength=len(session.reviewers))
+    j = int(np.argmax(loads))
+    after = _withdrawn(session, j)
+    patch = patched_network(first.network, session, after, None)
+    assert patch is not None
+    net = patch.network
+    assert len(net.tails) == len(first.network.tails)
+    mine = net.pair_reviewer == j
+    assert (net.capacities[net.pair_arcs][mine] == 0).all()
+    outcome = make_plan(after, fresh=True, warm=first)
+    assert outcome.patched
+    assert not (outcome.flow[net.pair_arcs][mine] > 0).any()
+    assert all(a.reviewer != session.reviewers[j].id for a in outcome.plan.assignments)
+    _assert_same_optimum(net, build_network(after))
+
+
+def test_unchanged_assignments_are_the_earlier_objects() -> None:
+    session = random_session(44, unscored="exclude")
+    first = make_plan(session, fresh=True)
+    j = int(first.rows.reviewer[0])
+    outcome = make_plan(_withdrawn(session, j), fresh=True, warm=first)
+    assert outcome.patched
+    before = {(a.reviewer, a.paper): a for a in first.plan.assignments}
+    same = [a for a in outcome.plan.assignments if (a.reviewer, a.paper) in before]
+    assert same and all(a is before[(a.reviewer, a.paper)] for a in same)
+    cold = make_plan(_withdrawn(session, j), fresh=True)
+    assert outcome.plan.figures == cold.plan.figures
+
+
+def test_a_plan_on_a_closed_pair_is_rejected_by_the_checker() -> None:
+    session = random_session(52, unscored="exclude")
+    first = make_plan(session, fresh=True)
+    a = first.plan.assignments[0]
+    j = session.reviewer_index()[a.reviewer]
+    after = _withdrawn(session, j)
+    outcome = make_plan(after, fresh=True, warm=first)
+    assert outcome.patched
+    # The earlier plan still holds the withdrawn reviewer's pair, now an arc of capacity 0.
+    with pytest.raises(PlanCheckError, match="withdrawn reviewer"):
+        check_plan(after, first.plan, outcome.potentials, network=outcome.network)
+
+
+@pytest.mark.parametrize(
+    "edit",
+    [
+        "reinstate",
+        "policy",
+        "attribute",
+    ],
+)
+def test_changes_a_patch_cannot_follow_build_anew(edit: str) -> None:
+    session = random_session(61, unscored="exclude")
+    if edit == "reinstate":
+        before = _withdrawn(session, 0)
+        after = session
+    elif edit == "policy":
+        before = session
+        after = session.model_copy(
+            update={"policy": Policy(**{**session.policy.model_dump(), "reviews": 2})}
+        )
+    else:
+        before = session
+        reviewers = list(session.reviewers)
+        reviewers[0] = reviewers[0].model_copy(update={"institution": "Invented Institute"})
+        after = session.model_copy(update={"reviewers": reviewers})
+    first = make_plan(before, fresh=True)
+    assert patched_network(first.network, before, after, None) is None
+    outcome = make_plan(after, fresh=True, warm=first)
+    assert not outcome.patched
+    assert outcome.tiers == make_plan(after, fresh=True).tiers
+
+
+def test_the_session_change_names_what_moved() -> None:
+    session = random_session(70, unscored="exclude")
+    after = _withdrawn(session, 1)
+    change = session_change(session, after)
+    assert change is not None
+    assert change.reviewers.tolist() == [1] and not len(change.papers)
+    assert change.conflicts_same and change.pairs == ()
+
+
+def test_a_warm_start_from_a_patched_outcome_maps_onto_a_built_network() -> None:
+    """warm_start_for reads a patched network (capacity-0 arcs) like any other."""
+    session = random_session(83, unscored="exclude")
+    first = make_plan(session, fresh=True)
+    second = make_plan(_withdrawn(session, 0), fresh=True, warm=first)
+    assert second.patched
+    grown = _withdrawn(session, 0).model_copy(
+        update={"policy": Policy(**{**session.policy.model_dump(), "cap": 4})}
+    )
+    third = make_plan(grown, fresh=True, warm=second)
+    assert not third.patched
+    assert third.tiers == make_plan(grown, fresh=True).tiers
+    assert isinstance(third, PlanOutcome)
