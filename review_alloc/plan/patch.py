@@ -14,12 +14,15 @@ eligible without an arc, weights that no longer agree) `patched_network` returns
 planner builds the network anew. Which pairs are forbidden is asked of `plan.rules.PairRules`,
 never derived here.
 
-A patch is made only where the result is a freshly built network plus zero-capacity arcs:
-the same nodes (senior nodes and crowded institution groups unchanged), the same costs on every
-arc a fresh build has (the same top score among the open pairs, so the same tier weights from
-`plan.weights.fitting_weights`), the same capacities. Zero-capacity arcs carry no flow and put
-no condition on the potentials, so the optimum, its cost and its dual certificate are those of
-the fresh network too.
+A patched network has the optimum of a freshly built one. Zero-capacity arcs carry no flow
+and put no condition on the potentials. A senior node whose paper needs no senior now (need 0)
+and a crowded institution group's node that lost candidates constrain nothing a fresh build
+would not: the group's cap binds at most what the group still holds, and a mixed group's parts
+stay capped at m each as a fresh build's relaxation caps them. The tier weights are checked to
+be the earlier network's, computed by `plan.weights.fitting_weights` for the kept structure and
+the top score among the pairs still open, so they separate the tiers of this network (a
+structure with more nodes only widens the bounds). Where no node fell idle, the patched network
+is exactly a fresh one plus zero-capacity arcs, with the same cost and dual certificate.
 """
 
 from __future__ import annotations
@@ -230,10 +233,6 @@ def patched_network(
             )
         )
         pinned = positions_in(keys[arcs], pinned_keys)[0] & allowed
-        closing = ~allowed & (capacities[pair_block[arcs]] > 0)
-        if len(old.part_paper) and (old.pair_part[arcs[closing]] >= 0).any():
-            # A crowded institution group loses candidates: its parts may change shape.
-            return None
         capacities[pair_block[arcs]] = allowed.astype(np.int64)
         lower[pair_block[arcs]] = pinned.astype(np.int64)
         pair_pinned[arcs] = pinned
@@ -254,7 +253,7 @@ def patched_network(
     capacities[old.overload_arcs] = allowance[old.overload_reviewers]
 
     need_all = paper_senior_need(new)
-    if not np.array_equal(np.flatnonzero(need_all > 0), old.senior_paper):
+    if not np.isin(np.flatnonzero(need_all > 0), old.senior_paper).all():
         return None
     need = need_all[old.senior_paper]
     capacities[old.senior_required_arcs] = need
