@@ -37,19 +37,26 @@ def check_plan(
     *,
     network: PlanNetwork | None = None,
     earlier: Plan | None = None,
-) -> None:
+    conflicts: ConflictSet | None = None,
+) -> ConflictSet:
     """Raise PlanCheckError unless the plan keeps every rule and, given potentials, is optimal.
 
     A re-plan's certificate is checked against the network with `earlier`'s keep tier.
+    `conflicts` is the set an earlier check derived for a session whose declared conflicts and
+    the attributes conflicts are inferred from are the same (the caller knows: a re-plan on a
+    patched network); the set this check used is returned for the next one.
     """
     arrays = assignment_arrays(session, plan.assignments)
-    problems = _hard_rule_problems(session, plan, *arrays)
+    if conflicts is None:
+        conflicts = conflict_pairs(session)
+    problems = _hard_rule_problems(session, plan, *arrays, conflicts=conflicts)
     if not problems and potentials is not None:
         if network is None:
             network = build_network(session, earlier=earlier)
         problems = _certificate_problems(arrays[0], arrays[1], potentials, network)
     if problems:
         raise PlanCheckError(problems[:_MAX_LISTED])
+    return conflicts
 
 
 def _rule_keys(session: Session, rows: list, n_p: int) -> np.ndarray:
@@ -100,15 +107,21 @@ class PairFlags:
 
 
 def pair_flags(
-    session: Session, reviewer: np.ndarray, paper: np.ndarray, score: np.ndarray
+    session: Session,
+    reviewer: np.ndarray,
+    paper: np.ndarray,
+    score: np.ndarray,
+    conflicts: ConflictSet | None = None,
 ) -> PairFlags:
-    """The pair rules each (reviewer, paper, score) breaks, derived by the checker alone."""
+    """The pair rules each (reviewer, paper, score) breaks, derived by the checker alone
+    (`conflicts`: the session's conflict set when already derived)."""
     reviewer = np.asarray(reviewer, dtype=np.int64)
     paper = np.asarray(paper, dtype=np.int64)
     score = np.asarray(score, dtype=np.float64)
     n_p = max(len(session.papers), 1)
     keys = pair_keys(reviewer, paper, n_p)
-    conflicts = conflict_pairs(session)
+    if conflicts is None:
+        conflicts = conflict_pairs(session)
     gone_r = np.array([r.withdrawn for r in session.reviewers], dtype=bool)
     gone_p = np.array([p.withdrawn for p in session.papers], dtype=bool)
     table = session.scores
@@ -168,7 +181,13 @@ def _shares_topic(session: Session, reviewer: np.ndarray, paper: np.ndarray) -> 
 
 
 def _hard_rule_problems(
-    session: Session, plan: Plan, reviewer: np.ndarray, paper: np.ndarray, score: np.ndarray
+    session: Session,
+    plan: Plan,
+    reviewer: np.ndarray,
+    paper: np.ndarray,
+    score: np.ndarray,
+    *,
+    conflicts: ConflictSet | None = None,
 ) -> list[str]:
     problems: list[str] = []
     # Every test below is on whole arrays: a large plan has tens of thousands of assignments.
@@ -189,7 +208,7 @@ def _hard_rule_problems(
             f"pair ({_rid(session, key, n_p)}, {_pid(session, key, n_p)}) is assigned twice"
         )
 
-    flags = pair_flags(session, reviewer, paper, score)
+    flags = pair_flags(session, reviewer, paper, score, conflicts)
     if (flags.conflicted | flags.gone_reviewer | flags.gone_paper).any():
         reasons = flags.conflicts.reason_of()
         for k in np.flatnonzero(

@@ -77,6 +77,9 @@ class PlanOutcome:
     assignments."""
     patched: bool = False
     """Whether `network` was derived from the previous outcome's by a patch."""
+    checked_conflicts: ConflictSet | None = None
+    """The conflict set the checker derived for `planned`, reused by the next check when the
+    changes since leave every conflict input alone."""
 
     @property
     def proven_optimal(self) -> bool:
@@ -195,7 +198,11 @@ def _violated_splits(
     seniors = np.bincount(net.pair_senior[in_senior], minlength=len(net.senior_paper))
     senior_of_paper = {int(i): k for k, i in enumerate(net.senior_paper.tolist())}
     parts: dict[tuple[int, str], dict[int, int]] = {}
-    for g in net.relaxed_groups:
+    # A part carries at most m, so only a group whose two parts both carry flow can exceed m:
+    # the rest are skipped before the loop (tens of thousands of parts on a large venue).
+    relaxed = np.asarray(net.relaxed_groups, dtype=np.int64)
+    carrying = relaxed[flow[relaxed] > 0]
+    for g in carrying.tolist():
         key = (int(net.part_paper[g]), net.part_institution[g])
         parts.setdefault(key, {})[int(net.part_senior[g])] = g
     chosen: dict[tuple[int, str], tuple[int, int, int]] = {}
@@ -432,7 +439,7 @@ def _decode(
 
 def _patched_solve(
     session: Session, keep_from: Plan | None, warm: PlanOutcome | None
-) -> tuple[PlanNetwork, CostFlowResult] | None:
+) -> tuple[PlanNetwork, CostFlowResult, NetworkPatch] | None:
     """The solve of the warm outcome's network patched for this session, when a patch can
     follow the change and the patched optimum keeps the institution rule (else None)."""
     if (
@@ -458,7 +465,7 @@ def _patched_solve(
     if _violated_splits(session, net, result.flow[net.pair_arcs] > 0):
         # Mixed institution groups to share out: the exact path works on built networks.
         return None
-    return net, result
+    return net, result, patch
 
 
 def make_plan(
@@ -482,7 +489,7 @@ def make_plan(
     keep_from = None if fresh else (earlier if earlier is not None else session.plan)
     patched = _patched_solve(session, keep_from, warm) if patch else None
     if patched is not None:
-        net, result = patched
+        net, result, _ = patched
         split: dict[tuple[int, str], int] = {}
         bound: dict[str, float] = {}
         proof: ExactResult | None = None
@@ -521,7 +528,12 @@ def make_plan(
                 )
             }
         )
-    check_plan(session, plan, result.potentials, network=net)
+    reuse_conflicts = None
+    if patched is not None and patched[2].change.conflicts_same and warm is not None:
+        reuse_conflicts = warm.checked_conflicts
+    checked_conflicts = check_plan(
+        session, plan, result.potentials, network=net, conflicts=reuse_conflicts
+    )
     before = None
     if session.policy.balance > 0:
         plain = session.model_copy(
@@ -553,4 +565,5 @@ def make_plan(
         planned=session,
         rows=rows,
         patched=patched is not None,
+        checked_conflicts=checked_conflicts,
     )

@@ -141,16 +141,18 @@ class PlanningMixin(HistoryMixin, ChangesMixin):
         plain: bool = False,
     ) -> PlanRequest:
         """A snapshot for one plan: a re-plan keeps the current revision's pairs unless `fresh`;
-        the last outcome warm-starts it.
+        the last outcome warm-starts it (and, where `plan.patch` follows the changes since, its
+        network is patched rather than built anew).
 
         `max_probability` draws a new randomised plan (`seed` fixes the draw). Without it, a
         re-plan of a randomised plan stays randomised: same cap, same seed, and the earlier
         draw's allowed pairs kept (all redrawn when `fresh`) unless `plain` or `fair` asks
         for a plain or a fair plan instead.
         """
-        earlier = None if fresh else self.earlier_plan()
-        keep_draw = None
+        # One rebuild of the revision's plan serves both uses (it validates every row).
         current = self.earlier_plan()
+        earlier = None if fresh else current
+        keep_draw = None
         draw = current.draw if current is not None else None
         if max_probability is None and draw is not None and not (plain or fair):
             max_probability = draw.max_probability
