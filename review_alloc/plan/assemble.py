@@ -86,9 +86,11 @@ def assemble_rows(
     method: str,
     warm_leads: LeadState | None = None,
     reuse: PlanRows | None = None,
+    demands: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray] | None = None,
 ) -> tuple[Plan, LeadChoice | None, LeadState | None, PlanRows]:
     """`assemble_plan`, also returning the plan's rows; `reuse` (rows of a plan of a session
-    with the same reviewers and papers, in the same order) supplies unchanged assignments."""
+    with the same reviewers and papers, in the same order) supplies unchanged assignments, and
+    `demands` the session's `active_demands` when already computed."""
     order = np.lexsort((reviewer, paper))
     reviewer, paper, score = reviewer[order], paper[order], score[order]
     lead = np.zeros(len(paper), dtype=bool)
@@ -99,7 +101,7 @@ def assemble_rows(
         leads = lead_choice(session, reviewer, paper, lead)
     lead = np.asarray(lead, dtype=bool)
     assignments = _assignments(session, reviewer, paper, score, lead, reuse)
-    figures = plan_figures(session, reviewer, paper, score)
+    figures = plan_figures(session, reviewer, paper, score, demands=demands)
     rows = PlanRows(reviewer, paper, score, lead, assignments)
     return trusted_plan(assignments, figures, now, method), leads, state, rows
 

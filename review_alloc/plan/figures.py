@@ -34,11 +34,17 @@ def active_demands(session: Session) -> tuple[np.ndarray, np.ndarray, np.ndarray
 
 
 def plan_figures(
-    session: Session, reviewer: np.ndarray, paper: np.ndarray, score: np.ndarray
+    session: Session,
+    reviewer: np.ndarray,
+    paper: np.ndarray,
+    score: np.ndarray,
+    *,
+    demands: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray] | None = None,
 ) -> PlanFigures:
-    """Tier figures of DESIGN.md's objective for assignments given as index arrays."""
+    """Tier figures of DESIGN.md's objective for assignments given as index arrays
+    (`demands`: the session's `active_demands` when already computed)."""
     loads, counts = loads_and_counts(session, reviewer, paper)
-    reviews, minimum, _, floor = active_demands(session)
+    reviews, minimum, _, floor = active_demands(session) if demands is None else demands
     return PlanFigures(
         required_coverage=int(np.minimum(counts, minimum).sum()),
         required_demand=int(minimum.sum()),

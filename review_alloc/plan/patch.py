@@ -127,6 +127,8 @@ class NetworkPatch:
     costs: np.ndarray
     """The new values of `arcs` (also in `network`'s arrays)."""
     change: SessionChange
+    demands: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]
+    """The new session's `active_demands` (reviews, min_reviews, cap, floor)."""
 
 
 def network_pair_keys(net: PlanNetwork) -> np.ndarray:
@@ -237,7 +239,8 @@ def patched_network(
         lower[pair_block[arcs]] = pinned.astype(np.int64)
         pair_pinned[arcs] = pinned
 
-    reviews, minimum, cap, floor = active_demands(new)
+    demands = active_demands(new)
+    reviews, minimum, cap, floor = demands
     allowance = overload_allowances(new)
     over = np.flatnonzero(allowance > 0)
     if not np.isin(over, old.overload_reviewers).all() or (len(over) > 0) != (
@@ -294,6 +297,7 @@ def patched_network(
         lower=lower[changed],
         costs=costs[changed],
         change=change,
+        demands=demands,
     )
 
 

@@ -427,6 +427,7 @@ def _decode(
     now: datetime,
     warm_leads: LeadState | None = None,
     reuse: PlanRows | None = None,
+    demands: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray] | None = None,
 ) -> tuple[Plan, LeadChoice | None, LeadState | None, PlanRows]:
     """The plan of an optimal flow (pair arcs with flow > 0 only), its leads chosen when the
     policy asks for them; `reuse` holds an earlier plan's rows of the same entities."""
@@ -434,7 +435,9 @@ def _decode(
     reviewer = net.pair_reviewer[chosen]
     paper = net.pair_paper[chosen]
     score = net.pair_score[chosen]
-    return assemble_rows(session, reviewer, paper, score, now, METHOD, warm_leads, reuse)
+    return assemble_rows(
+        session, reviewer, paper, score, now, METHOD, warm_leads, reuse, demands
+    )
 
 
 def _patched_solve(
@@ -513,6 +516,7 @@ def make_plan(
         now or datetime.now(UTC),
         warm.lead_state if warm else None,
         warm.rows if patched is not None and warm is not None else None,
+        patched[2].demands if patched is not None else None,
     )
     if proof is not None:
         plan = plan.model_copy(update={"method": plan.method + _proof_note(proof)})
