@@ -89,22 +89,24 @@ class PlanOutcome:
 
 def tier_values(net: PlanNetwork, used: np.ndarray) -> dict[str, float]:
     """The objective's tier values of the pairs `used` (boolean per pair arc) in `net`."""
-    loads = np.bincount(net.pair_reviewer[used], minlength=net.n_reviewers)
-    counts = np.bincount(net.pair_paper[used], minlength=net.n_papers)
+    # One pass over the pair mask; the rest works on the few chosen pairs.
+    chosen = np.flatnonzero(used)
+    loads = np.bincount(net.pair_reviewer[chosen], minlength=net.n_reviewers)
+    counts = np.bincount(net.pair_paper[chosen], minlength=net.n_papers)
     minimum = net.capacities[net.required_arcs]
     reviews = minimum + net.capacities[net.extra_arcs]
     floor = np.bincount(
         net.floor_arc_reviewer, weights=net.capacities[net.floor_arcs], minlength=net.n_reviewers
     )
-    in_senior = used & (net.pair_senior >= 0)
-    seniors = np.bincount(net.pair_senior[in_senior], minlength=len(net.senior_paper))
+    senior = net.pair_senior[chosen]
+    seniors = np.bincount(senior[senior >= 0], minlength=len(net.senior_paper))
     penalty = net.balance_step * float(np.sum(loads * (loads - 1) // 2)) / net.resolution
     return {
         "required": float(np.minimum(counts, minimum).sum()),
         "seniors": float(np.minimum(seniors, net.senior_need).sum()),
         "coverage": float(np.minimum(counts, reviews).sum()),
         "floors": float(np.minimum(loads, floor).sum()),
-        "score": round(float(net.pair_score[used].sum()) - penalty, 6),
+        "score": round(float(net.pair_score[chosen].sum()) - penalty, 6),
     }
 
 
