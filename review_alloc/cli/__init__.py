@@ -33,7 +33,7 @@ from review_alloc.cli.common import (
     UsageError,
     emit_failure,
 )
-from review_alloc.model import InputError
+from review_alloc.model.errors import InputError
 
 _MODULES = (basic, explain, changes, scoring, app)
 _DEFAULT_COMMAND = "app"

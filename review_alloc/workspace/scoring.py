@@ -10,16 +10,16 @@ import numpy as np
 from pydantic import ValidationError
 
 from review_alloc.model import PART_NAMES, InputError, ScoreRecipe
-from review_alloc.plan.rules import PairRules
-from review_alloc.plan.score_parts import PairReport, RuleCheck
 from review_alloc.workspace.base import ChangeRefused, WorkspaceBase, redoable
-from review_alloc.workspace.facts import Facts
 
 if TYPE_CHECKING:
+    from review_alloc.plan.rules import PairRules
+    from review_alloc.plan.score_parts import PairReport
     from review_alloc.plan.similarity import SignalMatrices
 
 # The recipe's modules bring scikit-learn and scipy: they load when a score is made or
-# explained, so that commands which only read a session start without them.
+# explained, so that commands which only read a session start without them. The pair
+# report's modules load when a pair is asked about, so that the small commands start faster.
 
 
 class ScoringMixin(WorkspaceBase):
@@ -98,6 +98,9 @@ class ScoringMixin(WorkspaceBase):
     def pair_report(self, reviewer_id: str, paper_id: str) -> PairReport:
         """One pair: every pair rule and its verdict, its standing in the current plan, and
         each part of its score with its weight."""
+        from review_alloc.plan.score_parts import PairReport, RuleCheck
+        from review_alloc.workspace.facts import Facts
+
         j, i = self._reviewer(reviewer_id), self._paper(paper_id)
         s = self.session
         # The workspace's rules: their conflicts are derived once per session, not per pair.
