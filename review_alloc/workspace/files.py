@@ -8,6 +8,8 @@ this workspace read or wrote it.
 
 from __future__ import annotations
 
+import hashlib
+import json
 import os
 import re
 import threading
@@ -25,6 +27,11 @@ if TYPE_CHECKING:
     from review_alloc.io.report_html import ReportData
 
 DEMO_FILE = "demo-workshop.json"
+DEMO_STAMP = ".demo-workshop.stamp.json"
+"""Which built-in sample the demo copy came from, and the digest of the bytes written."""
+DEMO_FRESH = "demo-workshop-{key}.json"
+"""Where a version's demo goes when the chair's copy may hold their changes (`key`: the start
+of the sample's `workshop_key`)."""
 
 LOCK_WAIT_SECONDS = 120.0
 """How long a change waits for another program's change to the same session to finish."""
@@ -174,17 +181,74 @@ def data_folder() -> Path:
 
 
 def demo_session_path() -> Path:
-    """The user's own copy of the demo workshop, written from the built-in sample if missing.
+    """The user's own copy of the demo workshop, written from the built-in sample if missing
+    and brought up to date with it as `refresh_demo` says.
 
     The chair edits and saves this copy; the sample shipped with the program never changes.
     """
-    path = data_folder() / DEMO_FILE
-    if not path.exists():
-        from review_alloc.samples import workshop
+    return refresh_demo()[0]
 
-        path.parent.mkdir(parents=True, exist_ok=True)
-        save_session(workshop(), path)
-    return path
+
+def refresh_demo() -> tuple[Path, str | None]:
+    """The user's copy of the demo workshop, and what to tell the chair about it (or None).
+
+    The copy is written from the built-in sample when missing. A stamp beside it
+    (`DEMO_STAMP`) records which sample it came from (`samples.workshop_key`) and the digest
+    of the bytes written. When this version's sample differs from the one the copy came
+    from: a copy still exactly as written is replaced by the new sample; a copy the chair
+    changed (or one with no stamp, whose origin is unknown) is never touched, and the new
+    sample is written beside it (`DEMO_FRESH`), which the message names.
+    """
+    from review_alloc.samples import workshop_key
+
+    folder = data_folder()
+    path, stamp_path = folder / DEMO_FILE, folder / DEMO_STAMP
+    key = workshop_key()
+    stamp = _read_stamp(stamp_path)
+    if path.exists() and stamp.get("sample") == key:
+        return path, None
+    from review_alloc.model import atomic_write_text, session_bytes
+    from review_alloc.samples import workshop
+
+    sample = session_bytes(workshop())
+    written = _digest(sample)
+    folder.mkdir(parents=True, exist_ok=True)
+    try:
+        current = path.read_bytes()
+    except FileNotFoundError:
+        current = None
+    note = None
+    if current is None or (stamp.get("written") == _digest(current) and current != sample):
+        _write_bytes(path, sample)
+        if current is not None:
+            note = f"{path}: the demo workshop is this version's sample now (yours was unchanged)"
+    elif current != sample:
+        # Named by the sample, and written only when missing: a copy of an earlier fresh
+        # demo that the chair took up is never written over either.
+        fresh = folder / DEMO_FRESH.format(key=key[:10])
+        if not fresh.exists():
+            _write_bytes(fresh, sample)
+        note = (
+            f"{path}: kept as it is (changed since it was written, or written by an earlier "
+            f"version); this version's demo workshop is in {fresh}"
+        )
+        written = None  # theirs: never replaced by a later sample
+    atomic_write_text(stamp_path, json.dumps({"sample": key, "written": written}) + "\n")
+    return path, note
+
+
+def _digest(data: bytes) -> str:
+    return hashlib.sha256(data).hexdigest()
+
+
+def _read_stamp(path: Path) -> dict[str, str | None]:
+    """The demo copy's stamp; empty when there is none or it cannot be read (the copy is then
+    of unknown origin and never replaced)."""
+    try:
+        found = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return {}
+    return found if isinstance(found, dict) else {}
 
 
 class FilesMixin(WorkspaceBase):
