@@ -239,3 +239,23 @@ def test_one_misspelt_id_is_reported_once_with_its_count(
         f"error: {scores}: line {last + 1}: column 'score': 'high' is not a number >= 0",
     ]
     assert not out.exists()
+
+
+def test_only_the_program_itself_freezes_what_is_left_at_its_end(
+    monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # `main()` reading sys.argv is the program, which ends right after: it freezes the objects
+    # left so that the interpreter's final collection skips them. A caller passing argv (a
+    # test, a script) goes on running and keeps its collections.
+    import gc
+
+    gc.unfreeze()
+    assert main(["schema"]) == 0
+    assert gc.get_freeze_count() == 0
+    monkeypatch.setattr(sys, "argv", ["review-alloc", "schema"])
+    try:
+        assert main() == 0
+        assert gc.get_freeze_count() > 0
+    finally:
+        gc.unfreeze()
+    capsys.readouterr()
