@@ -300,6 +300,39 @@ _WORDS = (
 ).split()
 
 
+WORKSHOP_SOURCES = (
+    "review_alloc.samples",
+    "review_alloc.plan.recipe",
+    "review_alloc.plan.similarity",
+    "review_alloc.plan.rules",
+    "review_alloc.model.scores",
+    "review_alloc.model.session",
+    "review_alloc.model.signals",
+    "review_alloc.model.storage",
+)
+"""The modules whose code makes the demo workshop's document (its people, scores and format)."""
+
+
+def workshop_key() -> str:
+    """A digest that changes whenever the built-in demo workshop may: the code that makes it
+    and the versions of the libraries behind its scores. Cheap (no module is imported, no
+    sample is built), so the user's demo copy can be checked on every start."""
+    import hashlib
+    from importlib.metadata import version
+    from importlib.util import find_spec
+    from pathlib import Path
+
+    digest = hashlib.sha256()
+    for name in WORKSHOP_SOURCES:
+        spec = find_spec(name)
+        origin = spec.origin if spec is not None else None
+        digest.update(name.encode())
+        digest.update(Path(origin).read_bytes() if origin else b"missing")
+    for package in ("scikit-learn", "scipy", "numpy"):
+        digest.update(f"{package} {version(package)}".encode())
+    return digest.hexdigest()
+
+
 def workshop() -> Session:
     """A 40-paper workshop with 24 reviewers, every pair scored."""
     topics = [

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import sys
 from collections.abc import Callable
 from pathlib import Path
 
@@ -31,5 +32,11 @@ def _cmd_open(args: argparse.Namespace) -> int:
 
 
 def _cmd_app(args: argparse.Namespace) -> int:
-    """No command given: the app on the user's copy of the demo workshop."""
+    """No command given: the app on the user's copy of the demo workshop (brought up to date
+    with this version's sample unless the chair changed it; what was done is said first)."""
+    from review_alloc.workspace import refresh_demo
+
+    _, note = refresh_demo()
+    if note:
+        print(f"review-alloc: {note}", file=sys.stderr)
     return _run(None)

@@ -21,7 +21,7 @@ from review_alloc.cli.common import (
     write_json,
 )
 from review_alloc.cli.progress import Steps, progress
-from review_alloc.model import InputError, Policy, load_session
+from review_alloc.model.errors import InputError
 
 if TYPE_CHECKING:
     from review_alloc.workspace import Workspace
@@ -307,6 +307,8 @@ def _cmd_import(args: argparse.Namespace) -> int:
     overrides.update(rule_overrides(args))
     stored = _stored_columns(args.output) if args.force else {}
     columns = Workspace.column_map(args.column, stored)
+    from review_alloc.model import Policy
+
     try:
         policy = Policy(**overrides)
     except ValueError as error:
@@ -362,6 +364,8 @@ def _cmd_import(args: argparse.Namespace) -> int:
 
 def _stored_columns(path: Path) -> dict[str, dict[str, str]]:
     """The column mapping of the session a re-import replaces (none when it is no session)."""
+    from review_alloc.model import load_session
+
     if not path.is_file():
         return {}
     try:

@@ -23,10 +23,11 @@ from review_alloc.cli.common import (
     positive,
     whole,
 )
-from review_alloc.model import InputError, Paper, Reviewer
+from review_alloc.model.errors import InputError
 from review_alloc.model.text import nfc
 
 if TYPE_CHECKING:
+    from review_alloc.model import Paper, Reviewer
     from review_alloc.workspace import Workspace
 
 Handler = Callable[[argparse.Namespace], int]
@@ -299,6 +300,8 @@ def _cmd_add_reviewer(args: argparse.Namespace) -> int:
         "floor": args.floor,
         "senior": args.senior,
     }
+    from review_alloc.model import Reviewer
+
     reviewer = _entity(Reviewer, fields)
     scores = _scores(args.score)
     ws, before = _open(args)
@@ -316,6 +319,8 @@ def _cmd_add_paper(args: argparse.Namespace) -> int:
         "reviews": args.reviews,
         "min_reviews": args.min_reviews,
     }
+    from review_alloc.model import Paper
+
     paper = _entity(Paper, fields)
     scores = _scores(args.score)
     ws, before = _open(args)

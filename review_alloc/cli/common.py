@@ -5,9 +5,12 @@ from __future__ import annotations
 import argparse
 import json
 import sys
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from review_alloc.model import MAX_COUNT, Session
+from review_alloc.model.limits import MAX_COUNT
+
+if TYPE_CHECKING:
+    from review_alloc.model import Session
 
 EXIT_OK, EXIT_INPUT, EXIT_USAGE, EXIT_CHECK = 0, 1, 2, 3
 EXIT_INTERRUPTED = 130

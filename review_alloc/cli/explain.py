@@ -8,9 +8,9 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from review_alloc.cli.common import EXIT_OK, UsageError, caution, emit_json, positive, whole
-from review_alloc.model import Session
 
 if TYPE_CHECKING:
+    from review_alloc.model import Session
     from review_alloc.plan.whatif import WhatIf
     from review_alloc.workspace import ChangeSet, Workspace
 

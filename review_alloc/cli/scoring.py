@@ -11,7 +11,8 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from review_alloc.cli.common import EXIT_OK, emit_json, positive
-from review_alloc.model import PART_NAMES, InputError
+from review_alloc.model.errors import InputError
+from review_alloc.model.parts import PART_NAMES
 from review_alloc.model.text import nfc
 
 if TYPE_CHECKING:

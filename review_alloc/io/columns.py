@@ -14,11 +14,14 @@ from collections.abc import Iterable, Mapping
 
 from review_alloc.io.reading import FileProblems, FileSpec, is_blank, open_source, records
 from review_alloc.io.score_rows import SCORES
+from review_alloc.io.signals import BIDS
 from review_alloc.io.sources import ReadOptions
 from review_alloc.io.tables import CONFLICTS, PAPERS, REVIEWERS
 from review_alloc.model import InputError
 
-FILE_KINDS: dict[str, FileSpec] = {s.kind: s for s in (PAPERS, REVIEWERS, CONFLICTS, SCORES)}
+FILE_KINDS: dict[str, FileSpec] = {
+    s.kind: s for s in (PAPERS, REVIEWERS, CONFLICTS, SCORES, BIDS)
+}
 """Each kind of input file and its columns (our field names)."""
 
 ColumnMap = dict[str, dict[str, str]]

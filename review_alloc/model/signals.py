@@ -98,10 +98,6 @@ class ScoreRecipe(DocumentModel):
         }
 
 
-PART_NAMES: tuple[str, ...] = ("expertise", "text", "topic", "bid")
-"""The score parts, in the order reports show them."""
-
-
 class Signals(DocumentModel):
     """The signals a recipe combines that are not stored on papers and reviewers: the scores
     file as given, and the bids (levels 0 to 4)."""

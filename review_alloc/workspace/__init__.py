@@ -16,6 +16,7 @@ from review_alloc.workspace.files import (
     data_folder,
     demo_session_path,
     files_written,
+    refresh_demo,
     session_lock,
 )
 from review_alloc.workspace.history import HistoryEntry
@@ -55,5 +56,6 @@ __all__ = [
     "demo_session_path",
     "files_written",
     "prepare_solver",
+    "refresh_demo",
     "session_lock",
 ]

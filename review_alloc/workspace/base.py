@@ -17,7 +17,17 @@ from typing import TYPE_CHECKING, Any, TypeVar
 import numpy as np
 from pydantic import ValidationError
 
-from review_alloc.model import Action, Event, InputError, Paper, Plan, Reviewer, Session
+from review_alloc.model import (
+    Action,
+    Event,
+    InputError,
+    Paper,
+    Plan,
+    Reviewer,
+    ScoreTable,
+    Session,
+    Signals,
+)
 from review_alloc.model.history import SessionData, rebase_root_scores
 from review_alloc.plan.figures import assignment_indices, plan_figures
 from review_alloc.plan.rules import PairRules
@@ -151,6 +161,9 @@ class WorkspaceBase:
     ) -> None:
         """Validate the changed session as a whole, prune the plan, record the event."""
         candidate = self.session.model_copy(update=fields)
+        given = _given_with_new_rows(self.session, candidate) if "scores" in fields else None
+        if given is not None:
+            candidate = candidate.model_copy(update={"signals": given})
         problems = candidate.validation_problems()
         if problems:
             raise ChangeRefused(problems)
@@ -182,6 +195,9 @@ class WorkspaceBase:
         self.session = self.session.model_copy(
             update={"events": [*self.session.events, event], "plan": plan, **fields}
         )
+        within = _signals_within_lists(self.session)
+        if within is not None:
+            self.session = self.session.model_copy(update={"signals": within})
         self.dirty = True
 
     def _recheck_stored_plan(self) -> None:
@@ -295,3 +311,51 @@ DATA_FIELDS = ("policy", "papers", "reviewers", "conflicts", "pins", "blocks", "
 def same_data(a: Session, b: Session) -> bool:
     """Whether two session objects hold the very same data lists (so one plan fits both)."""
     return all(getattr(a, name) is getattr(b, name) for name in DATA_FIELDS)
+
+
+def _given_with_new_rows(before: Session, after: Session) -> Signals | None:
+    """The signals with the score rows of reviewers and papers new in `after` added to the
+    given expertise, when the session's scores come from a recipe (it has signals); None when
+    nothing changes.
+
+    Scores typed in with a new reviewer or paper are the chair's given expertise, like the
+    scores file's: kept only in the score table, the next `score` would make the table anew
+    from the signals without them.
+    """
+    signals = before.signals
+    if signals is None:
+        # Without signals the score table itself is the given expertise (`session_signals`).
+        return None
+    table = after.scores
+    new = (table.reviewer >= len(before.reviewers)) | (table.paper >= len(before.papers))
+    if not new.any():
+        return None
+    given = signals.expertise
+    expertise = ScoreTable.from_arrays(
+        np.concatenate([given.reviewer, table.reviewer[new]]),
+        np.concatenate([given.paper, table.paper[new]]),
+        np.concatenate([given.value, table.value[new]]),
+    )
+    return signals.model_copy(update={"expertise": expertise})
+
+
+def _signals_within_lists(session: Session) -> Signals | None:
+    """The signals without rows of reviewers or papers the lists no longer hold (an undo past
+    an added reviewer or paper takes it away again); None when every row is within them."""
+    signals = session.signals
+    if signals is None:
+        return None
+    n_reviewers, n_papers = len(session.reviewers), len(session.papers)
+    tables = {"expertise": signals.expertise, "bids": signals.bids}
+    keep = {
+        name: (t.reviewer < n_reviewers) & (t.paper < n_papers) for name, t in tables.items()
+    }
+    if all(k.all() for k in keep.values()):
+        return None
+    return signals.model_copy(
+        update={
+            name: ScoreTable.from_arrays(t.reviewer[keep[name]], t.paper[keep[name]],
+                                         t.value[keep[name]])
+            for name, t in tables.items()
+        }
+    )

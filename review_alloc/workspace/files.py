@@ -8,22 +8,30 @@ this workspace read or wrote it.
 
 from __future__ import annotations
 
+import hashlib
+import json
 import os
 import re
+import threading
 from collections.abc import Iterator, Mapping
 from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING, Literal, Self
 
-from filelock import FileLock, Timeout
-
 from review_alloc.model import InputError, Policy, load_session, save_session
 from review_alloc.workspace.base import Step, WorkspaceBase
 
 if TYPE_CHECKING:
+    from filelock import FileLock
+
     from review_alloc.io.report_html import ReportData
 
 DEMO_FILE = "demo-workshop.json"
+DEMO_STAMP = ".demo-workshop.stamp.json"
+"""Which built-in sample the demo copy came from, and the digest of the bytes written."""
+DEMO_FRESH = "demo-workshop-{key}.json"
+"""Where a version's demo goes when the chair's copy may hold their changes (`key`: the start
+of the sample's `workshop_key`)."""
 
 LOCK_WAIT_SECONDS = 120.0
 """How long a change waits for another program's change to the same session to finish."""
@@ -42,19 +50,73 @@ class FileChanged(InputError):
     """The session file changed on disk since this workspace read or wrote it."""
 
 
-def _lock_of(path: Path) -> FileLock:
-    """The one lock object of a session file in this process (re-entrant), beside the file.
-
-    The lock file is named after the file a symbolic link points to, so that a link and its
-    target share one lock; it is removed when released.
-    """
+def _lock_file(path: Path) -> Path:
+    """Where a session file's lock lives: beside the file a symbolic link points to, so that a
+    link and its target share one lock (the lock file stays when released)."""
     real = Path(os.path.realpath(path))
+    return real.parent / f".{real.name}.lock"
+
+
+def _lock_of(path: Path) -> FileLock:
+    """The one lock object of a session file in this process (re-entrant), beside the file."""
+    from filelock import FileLock
+
     return FileLock(
-        real.parent / f".{real.name}.lock",
+        _lock_file(path),
         timeout=LOCK_WAIT_SECONDS,
         thread_local=False,
         is_singleton=True,
     )
+
+
+_DIRECT: dict[Path, list[int]] = {}
+"""Lock files this process holds by a direct `flock`: [descriptor, holds] (re-entrant)."""
+_DIRECT_GUARD = threading.Lock()
+
+
+def _hold_directly(lock_file: Path, *, take: bool) -> bool:
+    """Hold the lock directly: once more when this process holds it so already, else, when
+    `take`, by an exclusive `flock` without waiting, as `filelock` takes it on POSIX. False
+    when it is not held so (held elsewhere, also by this process's own `FileLock`, or no
+    `flock` here): the caller then goes through `filelock`. An `OSError` when the lock file
+    cannot be opened.
+
+    A reader's lock is nearly always free; taking it directly spares every command that only
+    reads a session, and every change command, the import of `filelock` (a tenth of its
+    start-up).
+    """
+    with _DIRECT_GUARD:
+        held = _DIRECT.get(lock_file)
+        if held is not None:
+            held[1] += 1
+            return True
+        if not take or os.name != "posix":
+            return False
+        import fcntl
+
+        fd = os.open(lock_file, os.O_RDWR | os.O_CREAT, 0o644)
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError:
+            os.close(fd)
+            return False
+        _DIRECT[lock_file] = [fd, 1]
+        return True
+
+
+def _release_directly(lock_file: Path) -> None:
+    with _DIRECT_GUARD:
+        held = _DIRECT[lock_file]
+        held[1] -= 1
+        if held[1]:
+            return
+        del _DIRECT[lock_file]
+        import fcntl
+
+        try:
+            fcntl.flock(held[0], fcntl.LOCK_UN)
+        finally:
+            os.close(held[0])
 
 
 @contextmanager
@@ -63,6 +125,21 @@ def session_lock(path: Path, *, required: bool = True) -> Iterator[None]:
 
     A reader (`required=False`) of a file in a folder it cannot write goes on without it.
     """
+    lock_file = _lock_file(path)
+    try:
+        direct = _hold_directly(lock_file, take=not required)
+    except OSError:
+        # Only a reader opens the lock file here; it goes on without the lock.
+        yield
+        return
+    if direct:
+        try:
+            yield
+        finally:
+            _release_directly(lock_file)
+        return
+    from filelock import Timeout
+
     lock = _lock_of(path)
     try:
         lock.acquire()
@@ -104,17 +181,74 @@ def data_folder() -> Path:
 
 
 def demo_session_path() -> Path:
-    """The user's own copy of the demo workshop, written from the built-in sample if missing.
+    """The user's own copy of the demo workshop, written from the built-in sample if missing
+    and brought up to date with it as `refresh_demo` says.
 
     The chair edits and saves this copy; the sample shipped with the program never changes.
     """
-    path = data_folder() / DEMO_FILE
-    if not path.exists():
-        from review_alloc.samples import workshop
+    return refresh_demo()[0]
 
-        path.parent.mkdir(parents=True, exist_ok=True)
-        save_session(workshop(), path)
-    return path
+
+def refresh_demo() -> tuple[Path, str | None]:
+    """The user's copy of the demo workshop, and what to tell the chair about it (or None).
+
+    The copy is written from the built-in sample when missing. A stamp beside it
+    (`DEMO_STAMP`) records which sample it came from (`samples.workshop_key`) and the digest
+    of the bytes written. When this version's sample differs from the one the copy came
+    from: a copy still exactly as written is replaced by the new sample; a copy the chair
+    changed (or one with no stamp, whose origin is unknown) is never touched, and the new
+    sample is written beside it (`DEMO_FRESH`), which the message names.
+    """
+    from review_alloc.samples import workshop_key
+
+    folder = data_folder()
+    path, stamp_path = folder / DEMO_FILE, folder / DEMO_STAMP
+    key = workshop_key()
+    stamp = _read_stamp(stamp_path)
+    if path.exists() and stamp.get("sample") == key:
+        return path, None
+    from review_alloc.model import atomic_write_text, session_bytes
+    from review_alloc.samples import workshop
+
+    sample = session_bytes(workshop())
+    written = _digest(sample)
+    folder.mkdir(parents=True, exist_ok=True)
+    try:
+        current = path.read_bytes()
+    except FileNotFoundError:
+        current = None
+    note = None
+    if current is None or (stamp.get("written") == _digest(current) and current != sample):
+        _write_bytes(path, sample)
+        if current is not None:
+            note = f"{path}: the demo workshop is this version's sample now (yours was unchanged)"
+    elif current != sample:
+        # Named by the sample, and written only when missing: a copy of an earlier fresh
+        # demo that the chair took up is never written over either.
+        fresh = folder / DEMO_FRESH.format(key=key[:10])
+        if not fresh.exists():
+            _write_bytes(fresh, sample)
+        note = (
+            f"{path}: kept as it is (changed since it was written, or written by an earlier "
+            f"version); this version's demo workshop is in {fresh}"
+        )
+        written = None  # theirs: never replaced by a later sample
+    atomic_write_text(stamp_path, json.dumps({"sample": key, "written": written}) + "\n")
+    return path, note
+
+
+def _digest(data: bytes) -> str:
+    return hashlib.sha256(data).hexdigest()
+
+
+def _read_stamp(path: Path) -> dict[str, str | None]:
+    """The demo copy's stamp; empty when there is none or it cannot be read (the copy is then
+    of unknown origin and never replaced)."""
+    try:
+        found = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return {}
+    return found if isinstance(found, dict) else {}
 
 
 class FilesMixin(WorkspaceBase):

@@ -2,24 +2,29 @@
 
 from __future__ import annotations
 
+import contextlib
+import hashlib
+import io
 import math
+import os
+import zipfile
 from pathlib import Path
 from typing import TYPE_CHECKING
 
 import numpy as np
 from pydantic import ValidationError
 
-from review_alloc.model import PART_NAMES, InputError, ScoreRecipe
-from review_alloc.plan.rules import PairRules
-from review_alloc.plan.score_parts import PairReport, RuleCheck
+from review_alloc.model import PART_NAMES, InputError, ScoreRecipe, Session
 from review_alloc.workspace.base import ChangeRefused, WorkspaceBase, redoable
-from review_alloc.workspace.facts import Facts
 
 if TYPE_CHECKING:
+    from review_alloc.plan.rules import PairRules
+    from review_alloc.plan.score_parts import PairReport
     from review_alloc.plan.similarity import SignalMatrices
 
 # The recipe's modules bring scikit-learn and scipy: they load when a score is made or
-# explained, so that commands which only read a session start without them.
+# explained, so that commands which only read a session start without them. The pair
+# report's modules load when a pair is asked about, so that the small commands start faster.
 
 
 class ScoringMixin(WorkspaceBase):
@@ -89,15 +94,16 @@ class ScoringMixin(WorkspaceBase):
         kept = getattr(self, "_matrices", None)
         if kept is not None and kept[0] is s.papers and kept[1] is s.reviewers:
             return kept[2]
-        from review_alloc.plan.similarity import SignalMatrices
-
-        matrices = SignalMatrices.of(s)
+        matrices = cached_signal_matrices(s)
         self._matrices = (s.papers, s.reviewers, matrices)
         return matrices
 
     def pair_report(self, reviewer_id: str, paper_id: str) -> PairReport:
         """One pair: every pair rule and its verdict, its standing in the current plan, and
         each part of its score with its weight."""
+        from review_alloc.plan.score_parts import PairReport, RuleCheck
+        from review_alloc.workspace.facts import Facts
+
         j, i = self._reviewer(reviewer_id), self._paper(paper_id)
         s = self.session
         # The workspace's rules: their conflicts are derived once per session, not per pair.
@@ -180,3 +186,117 @@ class ScoringMixin(WorkspaceBase):
         self.writable(target, force=force)  # type: ignore[attr-defined]
         write_table(target, header, rows, bom=bom)
         return len(rows)
+
+
+SIGNAL_CACHE_KEEP = 8
+"""Fitted signal matrices kept in the cache folder (the most recently used; a large venue's
+take tens of MB)."""
+
+_MATRIX_NAMES = ("paper_text", "reviewer_text", "paper_topics", "reviewer_topics")
+
+
+def signal_cache_folder() -> Path:
+    """Where fitted signal matrices are cached: the per-user cache folder from platformdirs
+    (`$XDG_CACHE_HOME/review-alloc/signals`, else `~/.cache/review-alloc/signals` on Linux)."""
+    from platformdirs import user_cache_path
+
+    return user_cache_path("review-alloc", appauthor=False) / "signals"
+
+
+def signal_key(session: Session) -> str:
+    """A digest of everything the signal matrices are made from: every paper's and reviewer's
+    text and folded topic set, the code that fits them and the versions of the libraries it
+    calls. Equal digests give equal matrices, so a cached fit is exactly a fresh one."""
+    from importlib.metadata import version
+
+    from review_alloc.plan import similarity
+
+    digest = hashlib.sha256()
+
+    def add(text: str) -> None:
+        data = text.encode("utf-8", "surrogatepass")
+        digest.update(len(data).to_bytes(8, "little"))
+        digest.update(data)
+
+    add(Path(similarity.__file__).read_text(encoding="utf-8"))
+    for package in ("scikit-learn", "scipy", "numpy"):
+        add(f"{package} {version(package)}")
+    papers, reviewers = similarity.topic_sets(session)
+    add(f"{len(papers)} papers, {len(reviewers)} reviewers")
+    for i in range(len(papers)):
+        add(similarity.paper_text(session, i))
+        add("\n".join(sorted(papers[i])))
+    for j in range(len(reviewers)):
+        add(similarity.reviewer_text(session, j))
+        add("\n".join(sorted(reviewers[j])))
+    return digest.hexdigest()
+
+
+def cached_signal_matrices(session: Session) -> SignalMatrices:
+    """The session's signal matrices from the cache folder when a fit of the very same texts
+    and topics is there, else fitted (seconds on a large venue) and cached, written
+    atomically. Every command that explains a pair fits them otherwise; a cache that cannot be
+    read or written is passed by."""
+    from review_alloc.plan.similarity import SignalMatrices
+
+    folder = signal_cache_folder()
+    path = folder / f"{signal_key(session)}.npz"
+    found = _read_matrices(path)
+    if found is not None:
+        return found
+    matrices = SignalMatrices.of(session)
+    try:
+        _write_matrices(path, matrices)
+    except OSError:
+        return matrices
+    _prune(folder)
+    return matrices
+
+
+def _read_matrices(path: Path) -> SignalMatrices | None:
+    from scipy.sparse import csr_matrix
+
+    from review_alloc.plan.similarity import SignalMatrices
+
+    try:
+        with np.load(path, allow_pickle=False) as arrays:
+            parts = {
+                name: csr_matrix(
+                    (arrays[f"{name}.data"], arrays[f"{name}.indices"], arrays[f"{name}.indptr"]),
+                    shape=tuple(int(n) for n in arrays[f"{name}.shape"]),
+                )
+                for name in _MATRIX_NAMES
+            }
+    except (OSError, ValueError, KeyError, zipfile.BadZipFile):
+        # Missing, or written by something else: fitted again and written anew.
+        return None
+    with contextlib.suppress(OSError):
+        os.utime(path)  # the most recently used are the ones kept
+    return SignalMatrices(**parts)
+
+
+def _write_matrices(path: Path, matrices: SignalMatrices) -> None:
+    from review_alloc.model import atomic_write_bytes
+
+    arrays: dict[str, np.ndarray] = {}
+    for name in _MATRIX_NAMES:
+        matrix = getattr(matrices, name)
+        arrays[f"{name}.data"] = matrix.data
+        arrays[f"{name}.indices"] = matrix.indices
+        arrays[f"{name}.indptr"] = matrix.indptr
+        arrays[f"{name}.shape"] = np.array(matrix.shape, dtype=np.int64)
+    buffer = io.BytesIO()
+    np.savez(buffer, **arrays)  # type: ignore[arg-type]
+    path.parent.mkdir(parents=True, exist_ok=True)
+    atomic_write_bytes(path, buffer.getvalue())
+
+
+def _prune(folder: Path) -> None:
+    """Keep the `SIGNAL_CACHE_KEEP` most recently used fits."""
+    try:
+        found = sorted(folder.glob("*.npz"), key=lambda p: p.stat().st_mtime, reverse=True)
+        for old in found[SIGNAL_CACHE_KEEP:]:
+            old.unlink(missing_ok=True)
+    except OSError:
+        # Another program pruned at the same moment; the next fit prunes again.
+        return

@@ -110,3 +110,20 @@ def test_the_dialog_reads_each_files_header(tmp_path: Path) -> None:
     fields = Workspace.import_fields()
     assert fields["scores"] == ("reviewer_id", "paper_id", "score")
     assert fields["papers"][0] == "paper_id"
+
+
+def test_the_bids_file_is_mapped_like_the_others(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    bids = tmp_path / "preferences.csv"
+    bids.write_text("Member,Submission,Preference\nR0001,W0001,eager\nR0002,W0001,1\n")
+    out = tmp_path / "s.json"
+    argv = [*_import(SAMPLE / "papers.csv", out), "--bids", str(bids)]
+    assert main(argv) == 1
+    assert "found 'Member', 'Submission', 'Preference'" in capsys.readouterr().err
+    mapping = ["bids.reviewer_id=Member", "bids.paper_id=Submission", "bids.bid=Preference"]
+    assert main([*argv, *(w for m in mapping for w in ("--column", m))]) == 0
+    session = load_session(out)
+    assert session.signals is not None
+    assert session.signals.bids.get(0, 0) == 4.0 and session.signals.bids.get(1, 0) == 1.0
+    assert session.import_columns["bids"]["bid"] == "Preference"

@@ -108,13 +108,18 @@ def test_help_version_and_schema_load_no_solver(argv: list[str]) -> None:
         "    code = main(sys.argv[1:])\n"
         "except SystemExit as stop:\n"
         "    code = stop.code\n"
-        "heavy = sorted(m for m in ('numba', 'scipy', 'textual') if m in sys.modules)\n"
+        "heavy = sorted(m for m in ('numba', 'scipy', 'sklearn', 'textual') if m in sys.modules)\n"
         "print('LOADED', heavy, file=sys.stderr)\n"
+        "models = sorted(m for m in ('numpy', 'review_alloc.model.session') if m in sys.modules)\n"
+        "print('MODELS', models, file=sys.stderr)\n"
         "sys.exit(code)\n"
     )
     run = _python(code, *argv)
     assert run.returncode == 0, run.stderr
     assert "LOADED []" in run.stderr
+    if argv != ["schema"]:
+        # Help and the version need no document model and no numpy (a tenth of a second).
+        assert "MODELS []" in run.stderr
     if argv == ["schema"]:
         assert json.loads(run.stdout)["type"] == "object"
 
@@ -189,10 +194,13 @@ def test_commands_that_solve_nothing_load_no_solver(
         "import sys\n"
         "from review_alloc.cli import main\n"
         "code = main(sys.argv[1:])\n"
-        "heavy = sorted(m for m in ('numba', 'scipy', 'textual') if m in sys.modules)\n"
+        "heavy = sorted(\n"
+        "    m for m in ('numba', 'scipy', 'sklearn', 'textual', 'filelock') if m in sys.modules\n"
+        ")\n"
         "print('LOADED', heavy, file=sys.stderr)\n"
         "sys.exit(code)\n"
     )
+    # filelock too: a reader takes the session's lock directly (`workspace.files`).
     run = _python(code, *words)
     assert run.returncode == 0, run.stderr
     assert "LOADED []" in run.stderr
@@ -231,3 +239,23 @@ def test_one_misspelt_id_is_reported_once_with_its_count(
         f"error: {scores}: line {last + 1}: column 'score': 'high' is not a number >= 0",
     ]
     assert not out.exists()
+
+
+def test_only_the_program_itself_freezes_what_is_left_at_its_end(
+    monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # `main()` reading sys.argv is the program, which ends right after: it freezes the objects
+    # left so that the interpreter's final collection skips them. A caller passing argv (a
+    # test, a script) goes on running and keeps its collections.
+    import gc
+
+    gc.unfreeze()
+    assert main(["schema"]) == 0
+    assert gc.get_freeze_count() == 0
+    monkeypatch.setattr(sys, "argv", ["review-alloc", "schema"])
+    try:
+        assert main() == 0
+        assert gc.get_freeze_count() > 0
+    finally:
+        gc.unfreeze()
+    capsys.readouterr()

@@ -142,3 +142,29 @@ def test_keywords_refuse_invisible_characters(tmp_path: Path) -> None:
     with pytest.raises(InputError) as caught:
         import_csv(_write(tmp_path, "p.csv", PAPERS), _write(tmp_path, "r.csv", reviewers))
     assert any("line 2: column 'keywords'" in line for line in caught.value.lines)
+
+
+def test_the_bids_file_takes_a_column_mapping_like_the_others(tmp_path: Path) -> None:
+    from review_alloc.io.columns import column_map, import_fields
+
+    # Another system's bids export: its own names for all three columns.
+    theirs = _write(
+        tmp_path, "prefs.csv", "Member,Submission,Preference\nR1,P1,Eager\nR2,P1,1.5\n"
+    )
+    assert import_fields()["bids"] == ("reviewer_id", "paper_id", "bid")
+    mapping = column_map(
+        ["bids.reviewer_id=Member", "bids.paper_id=submission", "bids.bid=Preference"]
+    )
+    papers, reviewers = _write(tmp_path, "p.csv", PAPERS), _write(tmp_path, "r.csv", REVIEWERS)
+    with pytest.raises(InputError, match="found 'Member', 'Submission', 'Preference'"):
+        import_csv(papers, reviewers, bids=theirs)
+    session = import_csv(papers, reviewers, bids=theirs, columns=mapping)
+    assert session.signals is not None
+    assert session.signals.bids.get(0, 0) == 4.0 and session.signals.bids.get(1, 0) == 1.5
+    assert session.import_columns["bids"] == {
+        "reviewer_id": "Member",
+        "paper_id": "submission",
+        "bid": "Preference",
+    }
+    with pytest.raises(InputError, match="bids files have no field 'score'"):
+        column_map(["bids.score=Preference"])

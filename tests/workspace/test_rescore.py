@@ -61,3 +61,39 @@ def test_rescore_refuses_unknown_parts_and_weights_out_of_range() -> None:
         ws.rescore({"text": 1e9})
     with pytest.raises(ChangeRefused, match="unknown reviewer 'nobody'"):
         ws.pair_report("nobody", ws.session.papers[0].id)
+
+
+def test_scores_typed_in_with_a_new_entity_survive_a_later_score() -> None:
+    from review_alloc.model import Paper, Reviewer
+
+    ws = Workspace(workshop(), None)
+    ws.solve()
+    assert ws.session.signals is not None and ws.session.policy.recipe is not None
+    first, events = ws.session.papers[0].id, len(ws.session.events)
+    ws.add_reviewer(Reviewer(id="R-NEW", name="Ilse Varkonyi"), scores={first: 0.9})
+    j = len(ws.session.reviewers) - 1
+    ws.add_paper(Paper(id="P-NEW", title="Tidal lagoons"), scores={"R-NEW": 0.7})
+    i = len(ws.session.papers) - 1
+    s = ws.session
+    # One recorded change each, as before; the typed scores are in the table as given and
+    # are now also the given expertise the recipe reads.
+    assert [e.action for e in s.events[events:]] == ["add-reviewer", "add-paper"]
+    assert s.scores.get(j, 0) == 0.9 and s.scores.get(j, i) == 0.7
+    assert s.signals is not None
+    assert s.signals.expertise.get(j, 0) == 0.9 and s.signals.expertise.get(j, i) == 0.7
+    # Expertise alone, weight 1: the recomputed table gives the typed scores back.
+    ws.rescore({"expertise": 1.0, "text": 0.0, "topic": 0.0, "bid": 0.0})
+    assert ws.session.scores.get(j, 0) == 0.9 and ws.session.scores.get(j, i) == 0.7
+    assert not ws.session.validation_problems()
+
+
+def test_undo_past_an_added_reviewer_drops_its_given_scores() -> None:
+    from review_alloc.model import Reviewer
+
+    ws = Workspace(workshop(), None)
+    ws.solve()
+    given = ws.session.signals.expertise if ws.session.signals else None
+    ws.add_reviewer(Reviewer(id="R-NEW"), scores={ws.session.papers[0].id: 0.9})
+    ws.undo()  # the change is dropped: the reviewer leaves, and so do its given scores
+    assert ws.session.signals is not None and ws.session.signals.expertise == given
+    assert not ws.session.validation_problems()
