@@ -284,3 +284,33 @@ def index_by_head(
         fill[h] = p + 1
         in_edge[p] = e
         in_pos[e] = p
+
+
+@njit(**HELPER_OPTIONS)
+def index_heads_with_tails(
+    n: int,
+    tails: np.ndarray,
+    heads: np.ndarray,
+    in_start: np.ndarray,
+    in_edge: np.ndarray,
+    in_pos: np.ndarray,
+    in_tail: np.ndarray,
+) -> None:
+    """`index_by_head`, also filling `in_tail[p]`, the tail of edge `in_edge[p]`.
+
+    Walks against the edges read a node's entering tails in memory order from `in_tail`
+    instead of gathering `tails[in_edge[p]]` from all over the edge arrays (a cache miss per
+    entering edge, which made the walk from the sink several times slower than the one from
+    the source on large networks).
+    """
+    m = heads.size
+    fill = np.empty(n, dtype=np.int64)
+    for v in range(n):
+        fill[v] = in_start[v]
+    for e in range(m):
+        h = heads[e]
+        p = fill[h]
+        fill[h] = p + 1
+        in_edge[p] = e
+        in_pos[e] = p
+        in_tail[p] = tails[e]
