@@ -121,7 +121,7 @@ def solver_cache_ready() -> bool:
 _GROUPS = ("max flow", "lower bounds, primal-dual", "cost scaling")
 """Kernel groups that share no callee across groups, so that two processes compiling different
 groups never compile the same function twice. "max flow": the fused kernel and its helpers
-(`dinic.max_flow_kernel`, `residual.scan_edges`, `sort_by_tail`, `index_heads_with_tails`);
+(`dinic.max_flow_kernel`, `residual.scan_edges`, `sort_by_tail_packed`, `index_entering`);
 "lower bounds, primal-dual": the residual CSR, Dinic, both reachability walks and the primal-dual
 kernel with its Dijkstra and heap; "cost scaling": the push-relabel kernel and Bellman-Ford
 (`potentials.py`)."""

@@ -286,31 +286,83 @@ def index_by_head(
         in_pos[e] = p
 
 
+_PACKED_CAP = 2**31
+"""Capacities below this travel through `sort_by_tail_packed` in one word with their head."""
+
+
 @njit(**HELPER_OPTIONS)
-def index_heads_with_tails(
+def sort_by_tail_packed(
     n: int,
     tails: np.ndarray,
     heads: np.ndarray,
-    in_start: np.ndarray,
-    in_edge: np.ndarray,
-    in_pos: np.ndarray,
-    in_tail: np.ndarray,
+    caps: np.ndarray,
+    out_start: np.ndarray,
+    order: np.ndarray,
+    packed: np.ndarray,
+    sorted_heads: np.ndarray,
+    sorted_caps: np.ndarray,
 ) -> None:
-    """`index_by_head`, also filling `in_tail[p]`, the tail of edge `in_edge[p]`.
+    """Stable counting sort of the edges by tail, in O(n + m), into `sorted_heads` and
+    `sorted_caps`; `order[p]` becomes the edge at sorted position p.
 
-    Walks against the edges read a node's entering tails in memory order from `in_tail`
-    instead of gathering `tails[in_edge[p]]` from all over the edge arrays (a cache miss per
-    entering edge, which made the walk from the sink several times slower than the one from
-    the source on large networks).
+    The scattered writes are what cost (every tail's bucket is a different cache line, and
+    there are too many for any cache): each edge writes its position's `order` and one int64
+    word `packed` holding capacity and head (`cap << 32 | head`), which a sequential pass then
+    splits. A capacity of 2**31 or more is marked by a negative word (`~head`) and read back
+    through `order`. Node ids must be below 2**31 (the kernels index nodes in int32 anyway).
     """
-    m = heads.size
+    m = tails.size
+    fill = np.empty(n, dtype=np.int64)
+    # A loop, not a slice copy, which would compile a costly shape-mismatch message.
+    for v in range(n):
+        fill[v] = out_start[v]
+    for e in range(m):
+        t = tails[e]
+        p = fill[t]
+        fill[t] = p + 1
+        order[p] = e
+        c = caps[e]
+        packed[p] = (c << 32) | heads[e] if c < _PACKED_CAP else ~heads[e]
+    for p in range(m):
+        word = packed[p]
+        if word >= 0:
+            sorted_heads[p] = word & 0xFFFFFFFF
+            sorted_caps[p] = word >> 32
+        else:
+            sorted_heads[p] = ~word
+            sorted_caps[p] = caps[order[p]]
+
+
+TAIL_MASK = 0xFFFFFFFF
+"""`index_entering`'s word for an entering edge e with tail v is `e << 32 | v`."""
+
+
+@njit(**HELPER_OPTIONS)
+def index_entering(
+    n: int,
+    out_start: np.ndarray,
+    heads: np.ndarray,
+    in_start: np.ndarray,
+    in_arc: np.ndarray,
+    in_pos: np.ndarray,
+) -> None:
+    """Index edges listed by tail (v's are `out_start[v]:out_start[v + 1]`) by head.
+
+    The edges entering v are at `in_start[v]:in_start[v + 1]` of `in_arc`, in edge order, each
+    as one word `e << 32 | tail` (`TAIL_MASK` takes the tail); `in_pos[e]` is e's position.
+    Walks against the edges read a node's entering tails in memory order instead of gathering
+    `tails[e]` from all over the edge arrays (a cache miss per entering edge, which made the
+    walk from the sink several times slower than the one from the source on large networks);
+    one word per edge is one scattered write instead of two. The tails come from the offsets,
+    so no array of them is read. Edge and node ids must be below 2**31.
+    """
     fill = np.empty(n, dtype=np.int64)
     for v in range(n):
         fill[v] = in_start[v]
-    for e in range(m):
-        h = heads[e]
-        p = fill[h]
-        fill[h] = p + 1
-        in_edge[p] = e
-        in_pos[e] = p
-        in_tail[p] = tails[e]
+    for v in range(n):
+        for e in range(out_start[v], out_start[v + 1]):
+            h = heads[e]
+            p = fill[h]
+            fill[h] = p + 1
+            in_arc[p] = (e << 32) | v
+            in_pos[e] = p
