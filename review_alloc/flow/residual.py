@@ -231,61 +231,6 @@ def scan_edges(
     return 0, by_tail, by_head
 
 
-@njit(**HELPER_OPTIONS)
-def sort_by_tail(
-    n: int,
-    tails: np.ndarray,
-    heads: np.ndarray,
-    caps: np.ndarray,
-    out_start: np.ndarray,
-    order: np.ndarray,
-    work: np.ndarray,
-) -> None:
-    """Stable counting sort of the edges by tail, in O(n + m).
-
-    `order[p]` becomes the edge at sorted position p; rows 0-2 of `work` (int64, shape (4, m))
-    receive the sorted tails, heads and capacities, and row 3 zeros (the sorted flow). Heads and
-    capacities are written in the one pass that reads the edges (scattered writes do not stall
-    as gathered reads would); the tails follow from the offsets. A stable sort keeps the
-    caller's order among a node's edges.
-    """
-    m = tails.size
-    fill = np.empty(n, dtype=np.int64)
-    # A loop, not a slice copy, which would compile a costly shape-mismatch message.
-    for v in range(n):
-        fill[v] = out_start[v]
-    for e in range(m):
-        t = tails[e]
-        p = fill[t]
-        fill[t] = p + 1
-        order[p] = e
-        work[1, p] = heads[e]
-        work[2, p] = caps[e]
-    for v in range(n):
-        for p in range(out_start[v], out_start[v + 1]):
-            work[0, p] = v
-            work[3, p] = 0
-
-
-@njit(**HELPER_OPTIONS)
-def index_by_head(
-    n: int, heads: np.ndarray, in_start: np.ndarray, in_edge: np.ndarray, in_pos: np.ndarray
-) -> None:
-    """Fill the index of edges by head: the edges entering v are
-    `in_edge[in_start[v]:in_start[v + 1]]` in edge order, and `in_pos[e]` is e's position there.
-    """
-    m = heads.size
-    fill = np.empty(n, dtype=np.int64)
-    for v in range(n):
-        fill[v] = in_start[v]
-    for e in range(m):
-        h = heads[e]
-        p = fill[h]
-        fill[h] = p + 1
-        in_edge[p] = e
-        in_pos[e] = p
-
-
 _PACKED_CAP = 2**31
 """Capacities below this travel through `sort_by_tail_packed` in one word with their head."""
 
