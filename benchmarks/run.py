@@ -7,8 +7,9 @@
 
 Every comparison runs in this one process on the same arrays, after a warm-up run, and reports
 the median of `--repeats` runs (3 by default) and the ratio ours / reference (below 1: we are
-faster). Results go to `benchmarks/results/latest.json`; `--write-results` also rewrites
-`benchmarks/RESULTS.md` with the table and the machine it ran on. Timings are wall-clock
+faster). Results go to `benchmarks/results/latest.json`; `--write-results` also puts the
+tables and the machine they ran on into `benchmarks/RESULTS.md`, each between its marker
+comments (`marker`), keeping every hand-written line outside them. Timings are wall-clock
 seconds; a busy machine makes them noisy, which is why every pair runs back to back.
 """
 
@@ -65,6 +66,22 @@ def median_time(
         result = run()
         times.append(time.perf_counter() - began)
     return statistics.median(times), result
+
+
+def median_times(run: Callable[[], Any], repeats: int) -> tuple[float, float, Any]:
+    """`median_time` with this thread's CPU seconds too: (median wall, median CPU, result).
+
+    On a machine shared with other work the wall-clock time includes waiting for a core; the
+    thread's CPU time does not (every solver compared runs in one thread).
+    """
+    result = run()
+    walls, cpus = [], []
+    for _ in range(repeats):
+        began, began_cpu = time.perf_counter(), time.thread_time()
+        result = run()
+        cpus.append(time.thread_time() - began_cpu)
+        walls.append(time.perf_counter() - began)
+    return statistics.median(walls), statistics.median(cpus), result
 
 
 # --- reference solvers -------------------------------------------------------------------------
@@ -392,28 +409,32 @@ def bench_orders(family: str, size: str, repeats: int, orders: list[str],
     for order in orders:
         perm = edge_order(tails, heads, order)
         o_tails, o_heads, o_caps = tails[perm], heads[perm], caps[perm]
-        flow_t, ours = median_time(ours_max_flow(n, o_tails, o_heads, o_caps, s, t), repeats)
-        scipy_t, value = median_time(scipy_max_flow(n, o_tails, o_heads, o_caps, s, t), repeats)
+        flow_t, flow_cpu, ours = median_times(
+            ours_max_flow(n, o_tails, o_heads, o_caps, s, t), repeats)
+        scipy_t, scipy_cpu, value = median_times(
+            scipy_max_flow(n, o_tails, o_heads, o_caps, s, t), repeats)
         assert value == ours, (order, value, ours)
         values.add(value)
         built_t, _ = median_time(
             scipy_max_flow_from_edges(n, o_tails, o_heads, o_caps, s, t), repeats)
 
         cost_net = CostNetwork.reordered(net, edge_order(net.tails, net.heads, order))
-        cost_t, cost = median_time(ours_min_cost(cost_net), cost_repeats)
-        ortools_t, ref_cost = median_time(ortools_min_cost(cost_net), cost_repeats)
+        cost_t, cost_cpu, cost = median_times(ours_min_cost(cost_net), cost_repeats)
+        ortools_t, ortools_cpu, ref_cost = median_times(ortools_min_cost(cost_net), cost_repeats)
         assert cost == ref_cost, (order, cost, ref_cost)
         costs.add(cost)
         rows.append({
             "instance": inst.name, "order": order, "edges": len(tails),
             "max_flow_s": flow_t, "scipy_dinic_s": scipy_t, "max_flow_ratio": flow_t / scipy_t,
-            "scipy_with_csr_s": built_t,
+            "max_flow_cpu_ratio": flow_cpu / scipy_cpu, "scipy_with_csr_s": built_t,
             "min_cost_s": cost_t, "ortools_s": ortools_t, "min_cost_ratio": cost_t / ortools_t,
+            "min_cost_cpu_ratio": cost_cpu / ortools_cpu,
         })
         print(f"  {inst.name:10s} {order:15s} max flow ours {flow_t:.3f}s scipy dinic "
-              f"{scipy_t:.3f}s ratio {flow_t / scipy_t:.2f} (with its CSR build {built_t:.3f}s, "
-              f"{flow_t / built_t:.2f}) | min-cost ours {cost_t:.3f}s "
-              f"OR-Tools {ortools_t:.3f}s ratio {cost_t / ortools_t:.2f}", flush=True)
+              f"{scipy_t:.3f}s ratio {flow_t / scipy_t:.2f} (CPU {flow_cpu / scipy_cpu:.2f}; "
+              f"with its CSR build {built_t:.3f}s, {flow_t / built_t:.2f}) | min-cost ours "
+              f"{cost_t:.3f}s OR-Tools {ortools_t:.3f}s ratio {cost_t / ortools_t:.2f} (CPU "
+              f"{cost_cpu / ortools_cpu:.2f})", flush=True)
     # The order of the edges changes neither optimum.
     assert len(values) == 1 and len(costs) == 1, (values, costs)
     return rows
@@ -555,16 +576,19 @@ def machine() -> dict[str, Any]:
     return {"cpus": os.cpu_count(), "cpu": cpu, "system": platform.platform(), **versions}
 
 
-def markdown(report: dict[str, Any]) -> str:
-    """The RESULTS.md text: machine, the comparison table, scaling, memory and compile."""
+def _machine_line(report: dict[str, Any]) -> str:
     m = report["machine"]
+    return (f"Machine: {m['cpus']} CPUs, {m['cpu']}; {m['system']}; Python {m['python']}, "
+            f"numpy {m['numpy']}, numba {m['numba']}, scipy {m['scipy']}, "
+            f"OR-Tools {m['ortools']}.")
+
+
+def main_block(report: dict[str, Any]) -> str:
+    """The generated text of the main comparison: machine, table, scaling, memory, compile."""
     lines = [
-        "# Benchmark results",
-        "",
         f"Command: `{report['command']}` ({report['date']}).",
         "",
-        f"Machine: {m['cpus']} CPUs, {m['cpu']}; {m['system']}; Python {m['python']}, "
-        f"numpy {m['numpy']}, numba {m['numba']}, scipy {m['scipy']}, OR-Tools {m['ortools']}.",
+        _machine_line(report),
         "",
         f"Median wall-clock seconds of {report['repeats']} runs after a warm-up, in one process "
         "on the same arrays; ratio = ours / reference (below 1: ours is faster).",
@@ -577,20 +601,6 @@ def markdown(report: dict[str, Any]) -> str:
             f"| {r['instance']} | {r['task']} | {r['ours_s']:.3f} | {r['reference']} | "
             f"{r['reference_s']:.3f} | {r['ratio']:.2f} |"
         )
-    if report.get("orders"):
-        lines += ["", "The same instances with their edges in other orders (max flow: ours / "
-                  "scipy's Dinic on a CSR graph built beforehand, and for context scipy timed "
-                  "with that build from the same edge list; min-cost flow on the planner's "
-                  "network: ours / OR-Tools):", "",
-                  "| instance | order | max flow (s) | scipy dinic (s) | ratio | scipy with CSR "
-                  "build (s) | min-cost (s) | OR-Tools (s) | ratio |",
-                  "| --- | --- | ---: | ---: | ---: | ---: | ---: | ---: | ---: |"]
-        for r in report["orders"]:
-            lines.append(f"| {r['instance']} | {r['order']} | {r['max_flow_s']:.3f} | "
-                         f"{r['scipy_dinic_s']:.3f} | {r['max_flow_ratio']:.2f} | "
-                         f"{r['scipy_with_csr_s']:.3f} | "
-                         f"{r['min_cost_s']:.3f} | {r['ortools_s']:.3f} | "
-                         f"{r['min_cost_ratio']:.2f} |")
     if report.get("phases"):
         lines += ["", "Dinic phases on unit-capacity bipartite graphs (degree 4):", "",
                   "| V | E | phases | phases / sqrt(V) |", "| ---: | ---: | ---: | ---: |"]
@@ -612,6 +622,65 @@ def markdown(report: dict[str, Any]) -> str:
     return "\n".join(lines) + "\n"
 
 
+def orders_block(report: dict[str, Any]) -> str:
+    """The generated text of the comparison in every edge order."""
+    cost_repeats = report.get("order_cost_repeats") or report["repeats"]
+    lines = [
+        f"Command: `{report['command']}` ({report['date']}).",
+        "",
+        _machine_line(report),
+        "",
+        f"Max flow: median of {report['repeats']} runs after a warm-up, ours / scipy's Dinic on "
+        "a CSR graph built beforehand (and, for context, scipy timed with that build from the "
+        f"same edge list); min-cost flow on the planner's network: median of {cost_repeats}, "
+        "ours / OR-Tools. Ratios of wall-clock seconds, and of the solving thread's CPU "
+        "seconds (which leave out waiting for a core on a shared machine).",
+        "",
+        "| instance | order | max flow (s) | scipy dinic (s) | ratio | ratio (CPU) | scipy with "
+        "CSR build (s) | min-cost (s) | OR-Tools (s) | ratio | ratio (CPU) |",
+        "| --- | --- | ---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: |",
+    ]
+    for r in report["orders"]:
+        lines.append(f"| {r['instance']} | {r['order']} | {r['max_flow_s']:.3f} | "
+                     f"{r['scipy_dinic_s']:.3f} | {r['max_flow_ratio']:.2f} | "
+                     f"{r['max_flow_cpu_ratio']:.2f} | {r['scipy_with_csr_s']:.3f} | "
+                     f"{r['min_cost_s']:.3f} | {r['ortools_s']:.3f} | "
+                     f"{r['min_cost_ratio']:.2f} | {r['min_cost_cpu_ratio']:.2f} |")
+    return "\n".join(lines) + "\n"
+
+
+def generated_blocks(report: dict[str, Any]) -> dict[str, str]:
+    """Block name -> generated text, for the parts this run measured."""
+    blocks = {}
+    if report["rows"]:
+        blocks["main"] = main_block(report)
+    if report.get("orders"):
+        blocks["orders"] = orders_block(report)
+    return blocks
+
+
+def marker(name: str, edge: str) -> str:
+    """The comment line that opens (`edge` "begin") or closes ("end") a generated block."""
+    return f"<!-- benchmarks/run.py {name} {edge}: generated, edit outside these lines -->"
+
+
+def merge_results(text: str, blocks: dict[str, str]) -> str:
+    """`text` (RESULTS.md) with each block put between its markers; everything else is kept.
+
+    A block whose markers are not in the text yet is added at the end, markers included.
+    """
+    for name, body in blocks.items():
+        begin, end = marker(name, "begin"), marker(name, "end")
+        framed = f"{begin}\n{body}{end}"
+        at = text.find(begin)
+        until = text.find(end, at + len(begin)) if at >= 0 else -1
+        if at >= 0 and until >= 0:
+            text = text[:at] + framed + text[until + len(end):]
+        else:
+            text = text.rstrip("\n") + "\n\n" + framed + "\n"
+    return text
+
+
 def main(argv: list[str] | None = None) -> None:
     """Run the chosen benchmarks, print the table, write the JSON (and RESULTS.md)."""
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
@@ -627,7 +696,8 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--no-extras", action="store_true",
                         help="skip the phase scaling, memory and compile measurements")
     parser.add_argument("--write-results", action="store_true",
-                        help="also rewrite benchmarks/RESULTS.md")
+                        help="also put the tables into benchmarks/RESULTS.md (between their "
+                             "markers; the rest of the file is kept)")
     args = parser.parse_args(argv)
     sizes = [s.strip().upper() for s in args.sizes.split(",") if s.strip()]
     families = [f.strip() for f in args.families.split(",") if f.strip()]
@@ -668,11 +738,13 @@ def main(argv: list[str] | None = None) -> None:
     out = HERE / "results"
     out.mkdir(exist_ok=True)
     (out / "latest.json").write_text(json.dumps(report, indent=2) + "\n")
-    text = markdown(report)
+    blocks = generated_blocks(report)
     print()
-    print(text)
+    print("\n".join(blocks.values()))
     if args.write_results:
-        (HERE / "RESULTS.md").write_text(text)
+        path = HERE / "RESULTS.md"
+        old = path.read_text() if path.exists() else "# Benchmark results\n"
+        path.write_text(merge_results(old, blocks))
 
 
 if __name__ == "__main__":

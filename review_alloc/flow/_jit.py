@@ -28,6 +28,15 @@ def configure_numba_cache() -> str:
 
 configure_numba_cache()
 
+if config.DISABLE_JIT:
+    # With NUMBA_DISABLE_JIT=1 every kernel runs as plain Python, which cannot call numba's
+    # intrinsics: kernels take `trailing_zeros` from here and so get the plain-Python version.
+    from review_alloc.flow.interpreted import trailing_zeros
+else:
+    from numba.cpython.unsafe.numbers import trailing_zeros
+
+__all__ = ["HELPER_OPTIONS", "KERNEL_OPTIONS", "configure_numba_cache", "trailing_zeros"]
+
 KERNEL_OPTIONS: dict[str, bool] = {"cache": True, "nogil": True, "no_cfunc_wrapper": True}
 """numba options of a kernel called from Python.
 

@@ -67,9 +67,18 @@ def _kernels() -> tuple[Any, ...]:
     return tuple(getattr(kernel, "kernel", kernel) for kernel in kernels)
 
 
+def jit_disabled() -> bool:
+    """Whether numba runs every kernel as plain Python (NUMBA_DISABLE_JIT=1): nothing compiles."""
+    from numba.core import config
+
+    return bool(config.DISABLE_JIT)
+
+
 def kernels_ready() -> bool:
     """Whether every kernel is already compiled or loaded in this process."""
-    return all(kernel.signatures for kernel in _kernels())
+    kernels = _kernels()
+    # With the JIT disabled the kernels are plain functions, ready as they are.
+    return jit_disabled() or all(kernel.signatures for kernel in kernels)
 
 
 def _numba_version() -> str:
@@ -112,8 +121,8 @@ def solver_cache_ready() -> bool:
 _GROUPS = ("max flow", "lower bounds, primal-dual", "cost scaling")
 """Kernel groups that share no callee across groups, so that two processes compiling different
 groups never compile the same function twice. "max flow": the fused kernel and its helpers
-(`dinic.max_flow_kernel`, `residual.scan_edges`, `sort_by_tail`, `index_by_head`); "lower
-bounds, primal-dual": the residual CSR, Dinic, both reachability walks and the primal-dual
+(`dinic.max_flow_kernel`, `residual.scan_edges`, `sort_by_tail_packed`, `index_entering`);
+"lower bounds, primal-dual": the residual CSR, Dinic, both reachability walks and the primal-dual
 kernel with its Dijkstra and heap; "cost scaling": the push-relabel kernel and Bellman-Ford
 (`potentials.py`)."""
 
@@ -223,8 +232,11 @@ def warm_up(parallel: bool = True) -> None:
 
     With `parallel` and an empty cache, a child process compiles the cost-scaling kernels while
     this one compiles the rest; this process then loads the child's kernels (or, if the child
-    failed, compiles them).
+    failed, compiles them). With the JIT disabled there is nothing to compile, and no cache
+    marker is written (it would tell a later process with the JIT on that the cache is filled).
     """
+    if jit_disabled():
+        return
     with _lock:
         children: list[subprocess.Popen[bytes]] = []
         if parallel and not kernels_ready() and not solver_cache_ready():

@@ -20,9 +20,8 @@ from typing import cast
 
 import numpy as np
 from numba import njit
-from numba.cpython.unsafe.numbers import trailing_zeros
 
-from review_alloc.flow._jit import HELPER_OPTIONS, KERNEL_OPTIONS
+from review_alloc.flow._jit import HELPER_OPTIONS, KERNEL_OPTIONS, trailing_zeros
 from review_alloc.flow.circulation import unmet_supplies
 from review_alloc.flow.dinic import dinic
 from review_alloc.flow.potentials import NO_FLOOR, bellman_ford, exact_potentials

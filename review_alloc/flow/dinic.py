@@ -14,10 +14,11 @@ from numba import njit
 
 from review_alloc.flow._jit import HELPER_OPTIONS, KERNEL_OPTIONS
 from review_alloc.flow.residual import (
+    TAIL_MASK,
     ResidualNetwork,
-    index_by_head,
+    index_entering,
     scan_edges,
-    sort_by_tail,
+    sort_by_tail_packed,
 )
 
 _INF = np.iinfo(np.int64).max
@@ -220,8 +221,7 @@ def reaching(net: ResidualNetwork, sink: int) -> np.ndarray:
 def _edge_bfs(
     out_start: np.ndarray,
     in_start: np.ndarray,
-    in_edge: np.ndarray,
-    tails: np.ndarray,
+    in_arc: np.ndarray,
     carried: np.ndarray,
     heads: np.ndarray,
     caps: np.ndarray,
@@ -233,8 +233,8 @@ def _edge_bfs(
 ) -> bool:
     """`bfs_levels` on the edge index: forward arcs (caps - flow) first, then reverse arcs.
 
-    `carried[p]` tells whether edge `in_edge[p]` carries flow, so reverse arcs are tested in
-    memory order; only those that carry flow look up their edge's tail.
+    `carried[p]` tells whether the edge of `in_arc[p]` (see `index_entering`) carries flow, so
+    reverse arcs are tested in memory order and their tails read from the same index.
     """
     level[:] = -1
     level[source] = 0
@@ -255,7 +255,7 @@ def _edge_bfs(
         for p in range(in_start[u], in_start[u + 1]):
             # Few edges carry flow: test the flag first and read the tail only for those.
             if carried[p]:
-                v = tails[in_edge[p]]
+                v = in_arc[p] & TAIL_MASK
                 if level[v] < 0:
                     level[v] = next_level
                     if v == sink:
@@ -269,8 +269,7 @@ def _edge_bfs(
 def _edge_blocking_flow(
     out_start: np.ndarray,
     in_start: np.ndarray,
-    in_edge: np.ndarray,
-    tails: np.ndarray,
+    in_arc: np.ndarray,
     in_pos: np.ndarray,
     carried: np.ndarray,
     heads: np.ndarray,
@@ -286,7 +285,7 @@ def _edge_blocking_flow(
 ) -> int:
     """`blocking_flow` on the edge index, trying arcs in the same order; returns its value.
 
-    A stack entry is an edge e pushed forward, or ~p for the reverse arc of edge `in_edge[p]`;
+    A stack entry is an edge e pushed forward, or ~p for the reverse arc of `in_arc[p]`'s edge;
     `nodes` holds the tail of each stack entry, so a retreat needs no lookup. `carried` follows
     every change of `flow`.
     """
@@ -298,7 +297,7 @@ def _edge_blocking_flow(
             push = _INF
             for i in range(depth):
                 a = stack[i]
-                residual = caps[a] - flow[a] if a >= 0 else flow[in_edge[~a]]
+                residual = caps[a] - flow[a] if a >= 0 else flow[in_arc[~a] >> 32]
                 if residual < push:
                     push = residual
             first_full = -1
@@ -309,7 +308,7 @@ def _edge_blocking_flow(
                     carried[in_pos[a]] = True
                     residual = caps[a] - flow[a]
                 else:
-                    e = in_edge[~a]
+                    e = in_arc[~a] >> 32
                     flow[e] -= push
                     residual = flow[e]
                     carried[~a] = residual > 0
@@ -335,7 +334,7 @@ def _edge_blocking_flow(
             end = in_start[u + 1]
             while it_in[u] < end:
                 p = it_in[u]
-                v = tails[in_edge[p]] if carried[p] else -1
+                v = in_arc[p] & TAIL_MASK if carried[p] else -1
                 if v >= 0 and level[v] == next_level:
                     stack[depth] = ~p
                     advanced = True
@@ -361,8 +360,7 @@ def _edge_blocking_flow(
 def _edge_reaching(
     out_start: np.ndarray,
     in_start: np.ndarray,
-    in_edge: np.ndarray,
-    tails: np.ndarray,
+    in_arc: np.ndarray,
     heads: np.ndarray,
     caps: np.ndarray,
     flow: np.ndarray,
@@ -382,12 +380,15 @@ def _edge_reaching(
         v = queue[q_head]
         q_head += 1
         for p in range(in_start[v], in_start[v + 1]):
-            e = in_edge[p]
-            u = tails[e]
-            if not seen[u] and caps[e] > flow[e]:
-                seen[u] = True
-                queue[q_tail] = u
-                q_tail += 1
+            word = in_arc[p]
+            u = word & TAIL_MASK
+            # The tails come in memory order; only an unseen one costs a look at its edge.
+            if not seen[u]:
+                e = word >> 32
+                if caps[e] > flow[e]:
+                    seen[u] = True
+                    queue[q_tail] = u
+                    q_tail += 1
         for e in range(out_start[v], out_start[v + 1]):
             u = heads[e]
             if not seen[u] and flow[e] > 0:
@@ -399,7 +400,6 @@ def _edge_reaching(
 @njit(**HELPER_OPTIONS)
 def _solve_by_tail(
     n: int,
-    tails: np.ndarray,
     heads: np.ndarray,
     caps: np.ndarray,
     out_start: np.ndarray,
@@ -408,7 +408,7 @@ def _solve_by_tail(
     sink: int,
     flow: np.ndarray,
     carried: np.ndarray,
-    in_edge: np.ndarray,
+    in_arc: np.ndarray,
     in_pos: np.ndarray,
 ) -> tuple[int, int, np.ndarray, np.ndarray]:
     """Dinic on edges listed by tail (the edges leaving v are `out_start[v]:out_start[v + 1]`).
@@ -418,7 +418,7 @@ def _solve_by_tail(
     reachable in the final residual; the sink side (the nodes that can still reach the sink)
     from a walk against the residual arcs.
     """
-    index_by_head(n, heads, in_start, in_edge, in_pos)
+    index_entering(n, out_start, heads, in_start, in_arc, in_pos)
     level = np.empty(n, dtype=np.int32)
     queue = np.empty(n, dtype=np.int32)
     it_out = np.empty(n, dtype=np.int64)
@@ -428,20 +428,19 @@ def _solve_by_tail(
     value = 0
     phases = 0
     while _edge_bfs(
-        out_start, in_start, in_edge, tails, carried, heads, caps, flow, source, sink, level,
-        queue,
+        out_start, in_start, in_arc, carried, heads, caps, flow, source, sink, level, queue,
     ):
         for v in range(n):
             it_out[v] = out_start[v]
             it_in[v] = in_start[v]
         value += _edge_blocking_flow(
-            out_start, in_start, in_edge, tails, in_pos, carried, heads, caps, flow, source,
-            sink, level, it_out, it_in, stack, nodes,
+            out_start, in_start, in_arc, in_pos, carried, heads, caps, flow, source, sink,
+            level, it_out, it_in, stack, nodes,
         )
         phases += 1
     sink_side = np.zeros(n, dtype=np.bool_)
     _edge_reaching(
-        out_start, in_start, in_edge, tails, heads, caps, flow, sink, sink_side, queue,
+        out_start, in_start, in_arc, heads, caps, flow, sink, sink_side, queue,
     )
     return value, phases, level >= 0, sink_side
 
@@ -458,16 +457,18 @@ def max_flow_kernel(
     flow: np.ndarray,
     carried: np.ndarray,
     index: np.ndarray,
+    in_arc: np.ndarray,
     work: np.ndarray,
 ) -> tuple[int, int, int, np.ndarray, np.ndarray]:
     """Check, index and solve a max flow without lower bounds in one call.
 
     Takes zeroed `flow` (int64) and `carried` (bool) arrays with one entry per edge, an int32
-    scratch `index` of shape (3, edges) and an int64 scratch `work` of shape (4, edges), all
-    allocated by the caller (`work` is written only when the edges come in no order, so an
-    `np.empty` costs nothing otherwise). Returns (status, value, phases, source side, sink side)
-    and leaves the flow in `flow`, one entry per edge in the caller's order; a nonzero status is
-    that of `scan_edges` and nothing was solved.
+    scratch `index` of shape (2, edges), an int64 scratch `in_arc` (one entry per edge) and a
+    zeroed int64 scratch `work` of shape (4, edges), all allocated by the caller (`work` is
+    written only when the edges come in no order, so pages of an `np.zeros` that nothing writes
+    cost nothing; its row 3 is the sorted copy's flow). Returns (status, value, phases, source
+    side, sink side) and leaves the flow in `flow`, one entry per edge in the caller's order; a
+    nonzero status is that of `scan_edges` and nothing was solved.
 
     The kernels want every node's leaving edges together in memory. Edges listed by tail are
     solved as they are; edges listed by head (a scores file lists pairs paper by paper) are
@@ -475,7 +476,7 @@ def max_flow_kernel(
     same flow per edge, the two cut sides swapped); any other order is counting-sorted by tail
     first and the flow mapped back.
     """
-    in_edge, in_pos, order = index[0], index[1], index[2]
+    in_pos, order = index[0], index[1]
     out_start = np.zeros(n + 1, dtype=np.int64)
     in_start = np.zeros(n + 1, dtype=np.int64)
     status, by_tail, by_head = scan_edges(
@@ -486,22 +487,22 @@ def max_flow_kernel(
         return status, 0, 0, nothing, nothing
     if by_tail:
         value, phases, source_side, sink_side = _solve_by_tail(
-            n, tails, heads, caps, out_start, in_start, source, sink, flow, carried, in_edge,
+            n, heads, caps, out_start, in_start, source, sink, flow, carried, in_arc,
             in_pos,
         )
         return 0, value, phases, source_side, sink_side
     if by_head:
         # In the reversed residual graph, what the sink reaches is what reaches it here.
         value, phases, sink_side, source_side = _solve_by_tail(
-            n, heads, tails, caps, in_start, out_start, sink, source, flow, carried, in_edge,
+            n, tails, caps, in_start, out_start, sink, source, flow, carried, in_arc,
             in_pos,
         )
         return 0, value, phases, source_side, sink_side
-    sort_by_tail(n, tails, heads, caps, out_start, order, work)
+    sort_by_tail_packed(n, tails, heads, caps, out_start, order, work[0], work[1], work[2])
     solved = work[3]
     value, phases, source_side, sink_side = _solve_by_tail(
-        n, work[0], work[1], work[2], out_start, in_start, source, sink, solved, carried,
-        in_edge, in_pos,
+        n, work[1], work[2], out_start, in_start, source, sink, solved, carried,
+        in_arc, in_pos,
     )
     # `flow` is zero: only the few edges that carry flow are written back.
     for p in range(order.size):

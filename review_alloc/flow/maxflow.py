@@ -128,9 +128,10 @@ def _solve_without_lower(
         checked,
         flow,
         np.zeros(m, dtype=np.bool_),
-        np.empty((3, m), dtype=np.int32),
-        # Touched only for edges out of tail order: untouched pages of np.empty cost nothing.
-        np.empty((4, m), dtype=np.int64),
+        np.empty((2, m), dtype=np.int32),
+        np.empty(m, dtype=np.int64),
+        # Touched only for edges out of tail order: untouched pages of np.zeros cost nothing.
+        np.zeros((4, m), dtype=np.int64),
     )
     if status != 0:
         return None

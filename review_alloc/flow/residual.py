@@ -231,23 +231,30 @@ def scan_edges(
     return 0, by_tail, by_head
 
 
+_PACKED_CAP = 2**31
+"""Capacities below this travel through `sort_by_tail_packed` in one word with their head."""
+
+
 @njit(**HELPER_OPTIONS)
-def sort_by_tail(
+def sort_by_tail_packed(
     n: int,
     tails: np.ndarray,
     heads: np.ndarray,
     caps: np.ndarray,
     out_start: np.ndarray,
     order: np.ndarray,
-    work: np.ndarray,
+    packed: np.ndarray,
+    sorted_heads: np.ndarray,
+    sorted_caps: np.ndarray,
 ) -> None:
-    """Stable counting sort of the edges by tail, in O(n + m).
+    """Stable counting sort of the edges by tail, in O(n + m), into `sorted_heads` and
+    `sorted_caps`; `order[p]` becomes the edge at sorted position p.
 
-    `order[p]` becomes the edge at sorted position p; rows 0-2 of `work` (int64, shape (4, m))
-    receive the sorted tails, heads and capacities, and row 3 zeros (the sorted flow). Heads and
-    capacities are written in the one pass that reads the edges (scattered writes do not stall
-    as gathered reads would); the tails follow from the offsets. A stable sort keeps the
-    caller's order among a node's edges.
+    The scattered writes are what cost (every tail's bucket is a different cache line, and
+    there are too many for any cache): each edge writes its position's `order` and one int64
+    word `packed` holding capacity and head (`cap << 32 | head`), which a sequential pass then
+    splits. A capacity of 2**31 or more is marked by a negative word (`~head`) and read back
+    through `order`. Node ids must be below 2**31 (the kernels index nodes in int32 anyway).
     """
     m = tails.size
     fill = np.empty(n, dtype=np.int64)
@@ -259,28 +266,48 @@ def sort_by_tail(
         p = fill[t]
         fill[t] = p + 1
         order[p] = e
-        work[1, p] = heads[e]
-        work[2, p] = caps[e]
-    for v in range(n):
-        for p in range(out_start[v], out_start[v + 1]):
-            work[0, p] = v
-            work[3, p] = 0
+        c = caps[e]
+        packed[p] = (c << 32) | heads[e] if c < _PACKED_CAP else ~heads[e]
+    for p in range(m):
+        word = packed[p]
+        if word >= 0:
+            sorted_heads[p] = word & 0xFFFFFFFF
+            sorted_caps[p] = word >> 32
+        else:
+            sorted_heads[p] = ~word
+            sorted_caps[p] = caps[order[p]]
+
+
+TAIL_MASK = 0xFFFFFFFF
+"""`index_entering`'s word for an entering edge e with tail v is `e << 32 | v`."""
 
 
 @njit(**HELPER_OPTIONS)
-def index_by_head(
-    n: int, heads: np.ndarray, in_start: np.ndarray, in_edge: np.ndarray, in_pos: np.ndarray
+def index_entering(
+    n: int,
+    out_start: np.ndarray,
+    heads: np.ndarray,
+    in_start: np.ndarray,
+    in_arc: np.ndarray,
+    in_pos: np.ndarray,
 ) -> None:
-    """Fill the index of edges by head: the edges entering v are
-    `in_edge[in_start[v]:in_start[v + 1]]` in edge order, and `in_pos[e]` is e's position there.
+    """Index edges listed by tail (v's are `out_start[v]:out_start[v + 1]`) by head.
+
+    The edges entering v are at `in_start[v]:in_start[v + 1]` of `in_arc`, in edge order, each
+    as one word `e << 32 | tail` (`TAIL_MASK` takes the tail); `in_pos[e]` is e's position.
+    Walks against the edges read a node's entering tails in memory order instead of gathering
+    `tails[e]` from all over the edge arrays (a cache miss per entering edge, which made the
+    walk from the sink several times slower than the one from the source on large networks);
+    one word per edge is one scattered write instead of two. The tails come from the offsets,
+    so no array of them is read. Edge and node ids must be below 2**31.
     """
-    m = heads.size
     fill = np.empty(n, dtype=np.int64)
     for v in range(n):
         fill[v] = in_start[v]
-    for e in range(m):
-        h = heads[e]
-        p = fill[h]
-        fill[h] = p + 1
-        in_edge[p] = e
-        in_pos[e] = p
+    for v in range(n):
+        for e in range(out_start[v], out_start[v + 1]):
+            h = heads[e]
+            p = fill[h]
+            fill[h] = p + 1
+            in_arc[p] = (e << 32) | v
+            in_pos[e] = p

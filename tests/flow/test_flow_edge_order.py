@@ -77,6 +77,26 @@ def test_a_flow_on_a_sorted_copy_lands_on_the_callers_edges() -> None:
     assert result.flow.tolist() == [0, 2, 1, 2, 1]
 
 
+@pytest.mark.parametrize("seed", range(12))
+def test_capacities_beyond_32_bits_survive_the_sorted_copy(seed: int) -> None:
+    # The sorted copy packs a capacity below 2**31 with its head into one word; larger ones
+    # take another way back. Mixed sizes, listed in no order (neither by tail nor by head).
+    rng = np.random.default_rng(4400 + seed)
+    n = int(rng.integers(3, 14))
+    tails, heads, caps = multigraph(rng, n, int(rng.integers(4, 50)), 9)
+    big = rng.random(len(caps)) < 0.5
+    caps[big] = rng.integers(2**31 - 2, 2**45, int(big.sum()))
+    order = np.random.default_rng(seed).permutation(len(tails))
+    ot, oh, oc = tails[order], heads[order], caps[order]
+    s, t = 0, n - 1
+    result = max_flow(n, ot, oh, oc, s, t)
+    # networkx (Python integers, no 32-bit limit) is the reference value.
+    assert result.value == networkx_value(n, ot, oh, oc, s, t)
+    assert check_flow(n, ot, oh, oc, result.flow, s, t) == result.value
+    check_cut(n, ot, oh, oc, result.source_side, result.value, s, t)
+    check_cut(n, ot, oh, oc, ~result.sink_side, result.value, s, t)
+
+
 @pytest.mark.parametrize("family", ["tight", "scarce", "skewed"])
 def test_benchmark_orders_give_scipys_max_flow(family: str) -> None:
     inst = make_instance(family, "S")
