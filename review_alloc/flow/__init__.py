@@ -11,7 +11,7 @@ or a check is first needed. The modules: `maxflow` and `mincost` are the front d
 `cost_scaling`, `primal_dual`, `tier_start` (the pre-pass of cost scaling) and `potentials`
 (Bellman-Ford) hold one algorithm each; `circulation` reduces lower bounds; `residual` builds the
 residual network the kernels share; `checks` holds the certificate checks; `compile` warms the
-kernels up.
+kernels up; `kept` keeps a solved flow to patch and re-solve locally (`KeptFlow`).
 """
 
 from __future__ import annotations

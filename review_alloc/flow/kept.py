@@ -283,6 +283,8 @@ def _push_from(
     pot: np.ndarray,
     ex: np.ndarray,
     bits: np.ndarray,
+    arc_edge: np.ndarray,
+    flow: np.ndarray,
     phase: int,
     mark: np.ndarray,
     level: np.ndarray,
@@ -317,6 +319,12 @@ def _push_from(
                     bits[b >> 6] &= ~(_ONE << np.uint64(b & 63))
                     if first_full == depth:
                         first_full = i
+                # The flow per edge is kept up to date, so a result needs no pass over the arcs.
+                e = arc_edge[a]
+                if e >= 0:
+                    flow[e] += push
+                else:
+                    flow[~e] -= push
             ex[x] -= push
             ex[u] += push
             routed += push
@@ -368,6 +376,8 @@ def kept_route_kernel(
     pot: np.ndarray,
     ex: np.ndarray,
     bits: np.ndarray,
+    arc_edge: np.ndarray,
+    flow: np.ndarray,
     candidates: np.ndarray,
     budget: int,
     side: np.ndarray,
@@ -453,8 +463,8 @@ def kept_route_kernel(
                 x = queue[k]
                 if ex[x] > 0 and mark[x] == phase:
                     remaining -= _push_from(
-                        x, start, head, cap, rev, cost, pot, ex, bits, phase, mark, level, it,
-                        it_mark, stack, work,
+                        x, start, head, cap, rev, cost, pot, ex, bits, arc_edge, flow, phase,
+                        mark, level, it, it_mark, stack, work,
                     )
                     if remaining == 0:
                         break
@@ -470,8 +480,8 @@ def kept_route_kernel(
     # The violated cut: the nodes that reach no stuck deficit (one search from all of them).
     stamp += 1
     status, count, reach = _search(
-        start, head, cap, rev, cost, pot, ex, bits, stuck, 0, n_stuck, stamp, seen, settled,
-        dist, keys, nodes, pos, order, work, budget,
+        start, head, cap, rev, cost, pot, ex, bits, stuck, np.int64(0), n_stuck, stamp, seen,
+        settled, dist, keys, nodes, pos, order, work, budget,
     )
     if status == 2:
         return 1, work[0], rounds
@@ -513,10 +523,12 @@ class KeptFlow:
     """
 
     __slots__ = (
+        "_arc_edge",
         "_backward",
         "_cap",
         "_cost",
         "_edge_costs",
+        "_edge_flow",
         "_error",
         "_ex",
         "_forward",
@@ -525,6 +537,7 @@ class KeptFlow:
         "_inbits",
         "_lock",
         "_lower",
+        "_max_cost",
         "_pending",
         "_pot",
         "_result",
@@ -546,9 +559,10 @@ class KeptFlow:
         self,
         n: int,
         n_edges: int,
-        topology: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray],
+        topology: tuple[np.ndarray, ...],
         cap: np.ndarray,
         inbits: np.ndarray,
+        edge_flow: np.ndarray,
         cost: np.ndarray,
         edge_costs: np.ndarray,
         lower: np.ndarray,
@@ -556,12 +570,16 @@ class KeptFlow:
         ex: np.ndarray,
         pending: np.ndarray,
         total_upper: int,
+        max_cost: int,
         from_patch: bool,
     ) -> None:
         """Assemble a state from its arrays; use `from_solution`, `solve` or `patched` instead."""
         self.n = n
         self.n_edges = n_edges
-        self._start, self._head, self._rev, self._forward, self._backward = topology
+        self._start, self._head, self._rev, self._forward, self._backward, self._arc_edge = (
+            topology
+        )
+        self._edge_flow = edge_flow
         self._cap = cap
         self._inbits = inbits
         self._cost = cost
@@ -571,6 +589,7 @@ class KeptFlow:
         self._ex = ex
         self._pending = pending
         self._total_upper = total_upper
+        self._max_cost = max_cost
         self._result: CostFlowResult | None = None
         self._error: InfeasibleError | None = None
         self._spent = False
@@ -626,12 +645,18 @@ class KeptFlow:
         net = build_residual(n, edges.tails, edges.heads, edges.upper, edges.lower, x, costs_in)
         forward = net.arc_of_edge
         backward = net.rev[forward].astype(np.int64)
-        topology = tuple(_readonly(a) for a in (net.start, net.head, net.rev, forward, backward))
+        # Arc -> edge: e for the forward arc of edge e, ~e for its reverse.
+        arc_edge = np.empty(2 * m, dtype=np.int32)
+        arc_edge[forward] = np.arange(m, dtype=np.int32)
+        arc_edge[backward] = ~np.arange(m, dtype=np.int32)
+        topology = tuple(
+            _readonly(a) for a in (net.start, net.head, net.rev, forward, backward, arc_edge)
+        )
         return cls(
-            n, m, topology, net.cap, _in_bits(net.cap, net.rev), _readonly(net.cost),
+            n, m, topology, net.cap, _in_bits(net.cap, net.rev), x.copy(), _readonly(net.cost),
             _readonly(costs_in.copy()), _readonly(edges.lower.copy()), pot.copy(),
             np.zeros(n, dtype=np.int64), np.zeros(0, dtype=np.int64), int(edges.upper.sum()),
-            False,
+            int(np.abs(costs_in).max(initial=0)), False,
         )
 
     @classmethod
@@ -684,7 +709,7 @@ class KeptFlow:
 
     def _flow(self) -> np.ndarray:
         """The current flow per edge (within the bounds; pending excesses not yet routed)."""
-        return self._lower + self._cap[self._backward]
+        return self._edge_flow
 
     def patched(
         self,
@@ -779,10 +804,14 @@ class KeptFlow:
             _readonly(low)
         moved = delta != 0
         pending = np.concatenate([self._pending, tail[moved], head[moved]])
-        topology = (self._start, self._head, self._rev, self._forward, self._backward)
+        topology = (
+            self._start, self._head, self._rev, self._forward, self._backward, self._arc_edge
+        )
+        edge_flow = self._edge_flow.copy()
+        edge_flow[edges] = new_flow
         return KeptFlow(
-            self.n, m, topology, cap, inbits, cost, edge_costs, low, self._pot.copy(), ex, pending,
-            total_upper, True,
+            self.n, m, topology, cap, inbits, edge_flow, cost, edge_costs, low, self._pot.copy(),
+            ex, pending, total_upper, max(self._max_cost, int(np.abs(c).max(initial=0))), True,
         )
 
     def default_budget(self) -> int:
@@ -807,7 +836,8 @@ class KeptFlow:
             side = np.zeros(self.n, dtype=np.bool_)
             status, work, _ = kept_route_kernel(
                 self._start, self._head, self._cap, self._rev, self._cost, self._pot, self._ex,
-                self._inbits, self._pending, np.int64(limit), side,
+                self._inbits, self._arc_edge, self._edge_flow, self._pending, np.int64(limit),
+                side,
             )
             self.last_work = int(work)
             if status == 1:
@@ -828,7 +858,10 @@ class KeptFlow:
                 self._pot -= self._pot.min()
             self._pending = np.zeros(0, dtype=np.int64)
             flow = self._flow()
-            self._result = CostFlowResult(
-                flow=flow, cost=_total_cost(flow, self._edge_costs), potentials=self._pot.copy()
-            )
+            if self._total_upper * self._max_cost < 2**63:
+                # Every |flow| * |cost| sum stays within int64: one exact integer dot product.
+                total = int(flow @ self._edge_costs)
+            else:
+                total = _total_cost(flow, self._edge_costs)
+            self._result = CostFlowResult(flow=flow, cost=total, potentials=self._pot.copy())
             return self._result

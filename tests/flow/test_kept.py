@@ -204,8 +204,10 @@ def run_sequence(rng: np.random.Generator, net: Network, planner: bool, steps: i
         assert result is not None
         check_result(trial, result, reference)
         assert np.array_equal(state._cap, cap_before)
-        # The bitmap of arcs with residual partners stays in step with the capacities.
+        # The bitmap of arcs with residual partners and the flow per edge stay in step with
+        # the residual capacities.
         assert np.array_equal(nxt._inbits, _in_bits(nxt._cap, nxt._rev))
+        assert np.array_equal(result.flow, nxt._lower + nxt._cap[nxt._backward])
         state, net = nxt, trial
     return infeasible
 
@@ -351,8 +353,9 @@ def test_the_uncompiled_twin_routes_like_the_kernel() -> None:
     state = KeptFlow.solve(net.n, net.tails, net.heads, net.caps, net.costs)
     edges, values = random_patch(rng, net, planner=True)
     a, b = state.patched(edges, **values), state.patched(edges, **values)
-    args = [(s._start, s._head, s._cap, s._rev, s._cost, s._pot, s._ex, s._inbits, s._pending,
-             np.int64(10**12), np.zeros(s.n, np.bool_)) for s in (a, b)]
+    args = [(s._start, s._head, s._cap, s._rev, s._cost, s._pot, s._ex, s._inbits, s._arc_edge,
+             s._edge_flow, s._pending, np.int64(10**12), np.zeros(s.n, np.bool_))
+            for s in (a, b)]
     assert kept.kept_route_kernel(*args[0]) == twin(*args[1])
     assert np.array_equal(a._cap, b._cap) and np.array_equal(a._pot, b._pot)
-    assert np.array_equal(a._inbits, b._inbits)
+    assert np.array_equal(a._inbits, b._inbits) and np.array_equal(a._edge_flow, b._edge_flow)
