@@ -145,6 +145,7 @@ def _search(
     seen: np.ndarray,
     settled: np.ndarray,
     dist: np.ndarray,
+    parent: np.ndarray,
     keys: np.ndarray,
     nodes: np.ndarray,
     pos: np.ndarray,
@@ -157,13 +158,15 @@ def _search(
     `dist[v]` becomes the length of a shortest residual path from v to a deficit. Returns
     (status, settled count, reach): status 1 when a node with an excess was settled at distance
     `reach`, 0 when none can reach a deficit, 2 when the work went over the budget. The settled
-    nodes are `order[:count]` and carry `settled[v] == stamp`.
+    nodes are `order[:count]` and carry `settled[v] == stamp`; `parent[v]` is the arc leaving v
+    on its shortest path (-1 at the deficits).
     """
     size = 0
     for k in range(first, last):
         v = deficits[k]
         seen[v] = stamp
         dist[v] = 0
+        parent[v] = -1
         # Equal keys: appending keeps the heap ordered.
         keys[size] = 0
         nodes[size] = v
@@ -184,25 +187,27 @@ def _search(
         pv = pot[v]
         a = _next_in(bits, start[v], end)
         while a < end:
-            b = rev[a]
+            # The bit says the partner b = rev[a] (u -> v) has residual capacity, and its cost is
+            # -cost[a]: neither needs a read far away in the arrays (a cache miss each).
             u = head[a]
             work[0] += 1
-            if cap[b] > 0:
-                if settled[u] != stamp:
-                    # Arc b runs u -> v; its reduced cost is >= 0, so distances only grow.
-                    candidate = d + cost[b] + pot[u] - pv
-                    if seen[u] != stamp:
-                        seen[u] = stamp
-                        dist[u] = candidate
-                        keys[size] = candidate
-                        nodes[size] = u
-                        _sift_up(keys, nodes, pos, size)
-                        size += 1
-                    elif candidate < dist[u]:
-                        dist[u] = candidate
-                        i = pos[u]
-                        keys[i] = candidate
-                        _sift_up(keys, nodes, pos, i)
+            if settled[u] != stamp:
+                # Reduced costs are >= 0, so distances only grow.
+                candidate = d - cost[a] + pot[u] - pv
+                if seen[u] != stamp:
+                    seen[u] = stamp
+                    dist[u] = candidate
+                    parent[u] = rev[a]
+                    keys[size] = candidate
+                    nodes[size] = u
+                    _sift_up(keys, nodes, pos, size)
+                    size += 1
+                elif candidate < dist[u]:
+                    dist[u] = candidate
+                    parent[u] = rev[a]
+                    i = pos[u]
+                    keys[i] = candidate
+                    _sift_up(keys, nodes, pos, i)
             a = _next_in(bits, a + 1, end)
     return 0, count, 0
 
@@ -258,16 +263,15 @@ def _levels(
         while a < end:
             u = head[a]
             work[0] += 1
-            if mark[u] != phase and settled[u] == stamp:
-                b = rev[a]
-                if cap[b] > 0 and cost[b] + pot[u] - pv == 0:
-                    mark[u] = phase
-                    level[u] = next_level
-                    queue[count] = u
-                    count += 1
-                    if ex[u] > 0 and not found:
-                        found = True
-                        limit = next_level
+            # As in `_search`: the bit stands for cap[rev[a]] > 0, and cost[rev[a]] is -cost[a].
+            if mark[u] != phase and settled[u] == stamp and pot[u] - pv == cost[a]:
+                mark[u] = phase
+                level[u] = next_level
+                queue[count] = u
+                count += 1
+                if ex[u] > 0 and not found:
+                    found = True
+                    limit = next_level
             a = _next_in(bits, a + 1, end)
     return found, count
 
@@ -395,6 +399,7 @@ def kept_route_kernel(
     mark = np.zeros(n, dtype=np.int64)
     it_mark = np.zeros(n, dtype=np.int64)
     dist = np.empty(n, dtype=np.int64)
+    parent = np.empty(n, dtype=np.int64)
     keys = np.empty(n, dtype=np.int64)
     nodes = np.empty(n, dtype=np.int64)
     pos = np.empty(n, dtype=np.int64)
@@ -433,7 +438,7 @@ def kept_route_kernel(
         # the union of their regions (2-3x the work on the benchmark's withdrawals).
         status, count, reach = _search(
             start, head, cap, rev, cost, pot, ex, bits, deficits, n_def - 1, n_def, stamp, seen,
-            settled, dist, keys, nodes, pos, order, work, budget,
+            settled, dist, parent, keys, nodes, pos, order, work, budget,
         )
         if status == 2:
             return 1, work[0], rounds
@@ -451,7 +456,39 @@ def kept_route_kernel(
         for k in range(count):
             v = order[k]
             pot[v] += reach - dist[v]
-        while remaining > 0:
+        # First along the search's own shortest path (its arcs now have reduced cost 0): most
+        # rounds route one unit, and need no level graph.
+        x = order[count - 1]
+        push = ex[x]
+        u = x
+        while parent[u] >= 0:
+            a = parent[u]
+            if cap[a] < push:
+                push = cap[a]
+            u = head[a]
+        if -ex[u] < push:
+            push = -ex[u]
+        target = u
+        u = x
+        while parent[u] >= 0:
+            a = parent[u]
+            b = rev[a]
+            cap[a] -= push
+            cap[b] += push
+            bits[a >> 6] |= _ONE << np.uint64(a & 63)
+            if cap[a] == 0:
+                bits[b >> 6] &= ~(_ONE << np.uint64(b & 63))
+            e = arc_edge[a]
+            if e >= 0:
+                flow[e] += push
+            else:
+                flow[~e] -= push
+            u = head[a]
+        ex[x] -= push
+        ex[target] += push
+        remaining -= push
+        # More units at the same distance: Dinic's phases over the admissible arcs.
+        while remaining > 0 and ex[target] < 0:
             phase += 1
             found, labelled = _levels(
                 start, head, cap, rev, cost, pot, ex, bits, deficits, n_def, stamp, settled, phase,
@@ -481,7 +518,7 @@ def kept_route_kernel(
     stamp += 1
     status, count, reach = _search(
         start, head, cap, rev, cost, pot, ex, bits, stuck, np.int64(0), n_stuck, stamp, seen,
-        settled, dist, keys, nodes, pos, order, work, budget,
+        settled, dist, parent, keys, nodes, pos, order, work, budget,
     )
     if status == 2:
         return 1, work[0], rounds
