@@ -769,7 +769,7 @@ class KeptFlow:
         if len(edges) and (int(edges.min()) < 0 or int(edges.max()) >= m):
             bad = int(np.argmax((edges < 0) | (edges >= m)))
             raise FlowInputError(f"arcs[{bad}] is {edges[bad]}; edges are 0..{m - 1}")
-        if len(np.unique(edges)) != len(edges):
+        if len(edges) > 1 and not np.diff(np.sort(edges)).all():
             raise FlowInputError("arcs lists an edge more than once")
         k = len(edges)
 
@@ -827,7 +827,8 @@ class KeptFlow:
         np.subtract.at(ex, tail, delta)
         np.add.at(ex, head, delta)
         cost, edge_costs, low = self._cost, self._edge_costs, self._lower
-        if new_costs is not None:
+        # The arrays shared with this state are copied only when a value really changes.
+        if new_costs is not None and (new_costs != self._edge_costs[edges]).any():
             cost = cost.copy()
             cost[forward] = c
             cost[backward] = -c
@@ -835,7 +836,7 @@ class KeptFlow:
             edge_costs[edges] = c
             _readonly(cost)
             _readonly(edge_costs)
-        if new_lower is not None:
+        if new_lower is not None and (new_lower != old_lower).any():
             low = low.copy()
             low[edges] = lo
             _readonly(low)
