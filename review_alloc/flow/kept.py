@@ -9,12 +9,16 @@ change, on the very same arrays, without terminal arcs and without rebuilding an
    asks for (negative: at the upper bound; positive: at the lower bound; zero: the old flow,
    clipped), so every residual arc keeps reduced cost >= 0 under the kept potentials. The flow
    moved there leaves an excess at one end and a deficit at the other.
-2. Re-solving routes the excesses to the deficits by successive shortest paths: a multi-source
-   Dijkstra on reduced costs from the deficits *backwards* (the arcs into v are the partners
-   `rev[a]` of v's own arcs a), stopped at the first node holding an excess; only the nodes it
-   settled get new potentials (`pot[v] += reach - dist[v]`, which keeps every residual reduced
-   cost >= 0); then Dinic's phases restricted to the settled nodes and arcs of zero reduced cost
-   push as much as they can. Round stamps, not O(n) resets, tell which nodes a search touched.
+2. Re-solving routes the excesses to the deficits by successive shortest paths: a Dijkstra on
+   reduced costs from a deficit *backwards* (the arcs into v are the partners `rev[a]` of v's
+   own arcs a; a bitmap says which of them have residual capacity), stopped at the first node
+   holding an excess; only the nodes it settled get new potentials (`pot[v] += reach -
+   dist[v]`, which keeps every residual reduced cost >= 0). The search's own path then takes
+   what it can, and Dinic's phases, restricted to the settled nodes and arcs of zero reduced
+   cost, push what is left at the same distance. Round stamps, not O(n) resets, tell which
+   nodes a search touched. The search can start from several deficits at once, but on the
+   benchmark's withdrawals that covered the union of their regions in every round (2-3x the
+   work), so each round starts from one.
 
 After a small change the deficits are few and local (the papers that lost a reviewer), while
 the excess may sit at a hub (the source); searching from the deficits keeps each search small.
@@ -42,13 +46,14 @@ from review_alloc.flow.validate import (
     check_n,
 )
 
-KEPT_WORK_LIMIT = 6
+KEPT_WORK_LIMIT = 2
 """By default `resolve()` gives up once its searches have done this many times as much work as
 the network has arcs and nodes (one unit per arc read, `SETTLE_WORK` per node settled), or as
 soon as the work per unit routed so far says they would: a re-solve that needs more is no
-longer local, and the cold solver is then the better bet. On the L benchmark a 1 % withdrawal
-takes 2.7-3.3 times the arcs on the loose and scarce families; on the tight one, where each
-unit's search covers most of the network, about 135 times."""
+longer local, and the cold solver is then the better bet. On the M and L benchmarks a 1 %
+withdrawal takes about 0.05 times the arcs on the loose and scarce families; on the tight one,
+where each unit's search covers much of the network (every reviewer is full, so the unit a
+paper lost is won back from the cheapest of all papers), about 33 times."""
 
 KEPT_WORK_FLOOR = 1 << 16
 """The least default budget: on a small network a long re-solve still costs next to nothing."""
@@ -132,7 +137,6 @@ def _pop(keys: np.ndarray, nodes: np.ndarray, pos: np.ndarray, size: int) -> tup
 def _search(
     start: np.ndarray,
     head: np.ndarray,
-    cap: np.ndarray,
     rev: np.ndarray,
     cost: np.ndarray,
     pot: np.ndarray,
@@ -216,8 +220,6 @@ def _search(
 def _levels(
     start: np.ndarray,
     head: np.ndarray,
-    cap: np.ndarray,
-    rev: np.ndarray,
     cost: np.ndarray,
     pot: np.ndarray,
     ex: np.ndarray,
@@ -437,7 +439,7 @@ def kept_route_kernel(
         # One deficit per search: the searches from several deficits at once each covered
         # the union of their regions (2-3x the work on the benchmark's withdrawals).
         status, count, reach = _search(
-            start, head, cap, rev, cost, pot, ex, bits, deficits, n_def - 1, n_def, stamp, seen,
+            start, head, rev, cost, pot, ex, bits, deficits, n_def - 1, n_def, stamp, seen,
             settled, dist, parent, keys, nodes, pos, order, work, budget,
         )
         if status == 2:
@@ -491,7 +493,7 @@ def kept_route_kernel(
         while remaining > 0 and ex[target] < 0:
             phase += 1
             found, labelled = _levels(
-                start, head, cap, rev, cost, pot, ex, bits, deficits, n_def, stamp, settled, phase,
+                start, head, cost, pot, ex, bits, deficits, n_def, stamp, settled, phase,
                 mark, level, queue, work,
             )
             if not found:
@@ -517,7 +519,7 @@ def kept_route_kernel(
     # The violated cut: the nodes that reach no stuck deficit (one search from all of them).
     stamp += 1
     status, count, reach = _search(
-        start, head, cap, rev, cost, pot, ex, bits, stuck, np.int64(0), n_stuck, stamp, seen,
+        start, head, rev, cost, pot, ex, bits, stuck, np.int64(0), n_stuck, stamp, seen,
         settled, dist, parent, keys, nodes, pos, order, work, budget,
     )
     if status == 2:
