@@ -359,3 +359,50 @@ def test_the_uncompiled_twin_routes_like_the_kernel() -> None:
     assert kept.kept_route_kernel(*args[0]) == twin(*args[1])
     assert np.array_equal(a._cap, b._cap) and np.array_equal(a._pot, b._pot)
     assert np.array_equal(a._inbits, b._inbits) and np.array_equal(a._edge_flow, b._edge_flow)
+
+
+@pytest.mark.parametrize("family", ["loose", "tight", "scarce"])
+def test_the_planners_own_network_after_a_withdrawal_a_pin_and_new_costs(family: str) -> None:
+    # The benchmark's S venue as `build_network` makes it; the changes a re-plan patches.
+    from benchmarks.instances import make_instance, make_session, withdrawal
+    from review_alloc.plan import build_network
+
+    inst = make_instance(family, "S")
+    plan_net = build_network(make_session(inst))
+    net = Network(plan_net.n_nodes, plan_net.tails, plan_net.heads,
+                  plan_net.capacities.copy(), plan_net.costs.copy(), plan_net.lower.copy(),
+                  np.zeros(plan_net.n_nodes, np.int64))
+    state = KeptFlow.solve(net.n, net.tails, net.heads, net.caps, net.costs, lower=net.lower)
+    first = state.resolve()
+    pairs = np.arange(plan_net.pair_arcs.start, plan_net.pair_arcs.stop)
+    gone = withdrawal(inst, share=0.05)
+    steps = [
+        # Withdrawn reviewers: their source and pair arcs closed.
+        np.concatenate([
+            np.arange(plan_net.floor_arcs.start, plan_net.floor_arcs.stop)[
+                np.isin(plan_net.floor_arc_reviewer, gone)],
+            np.arange(plan_net.rest_arcs.start, plan_net.rest_arcs.stop)[
+                np.isin(plan_net.rest_arc_reviewer, gone)],
+            pairs[np.isin(plan_net.pair_reviewer, gone)],
+        ]),
+        # A pin on a pair the plan did not choose, of a reviewer still there.
+        pairs[(first.flow[pairs] == 0) & ~np.isin(plan_net.pair_reviewer, gone)][:1],
+        # The keep tier: the pairs of the earlier plan get cheaper.
+        pairs[first.flow[pairs] > 0],
+    ]
+    for step, edges in enumerate(steps):
+        values: dict[str, np.ndarray] = {}
+        if step == 0:
+            values["capacities"] = np.zeros(len(edges), np.int64)
+            net.caps[edges] = 0
+        elif step == 1:
+            values["lower"] = np.ones(len(edges), np.int64)
+            net.lower[edges] = 1
+        else:
+            values["costs"] = net.costs[edges] - 50
+            net.costs[edges] -= 50
+        state = state.patched(edges, **values)
+        result = state.resolve(budget=10**12)
+        # OR-Tools SimpleMinCostFlow is the reference optimum.
+        reference = ortools_cost(net.n, net.tails, net.heads, net.caps, net.costs, None, net.lower)
+        check_result(net, result, reference)
