@@ -549,8 +549,10 @@ class KeptFlow:
     """A min-cost flow's residual state, patched and re-solved in work proportional to a change.
 
     Frozen-ish: a state is never changed by another state's patches. `patched()` returns a new
-    *pending* state that owns copies of the residual capacities, potentials and excesses and
-    shares the topology (CSR offsets, heads, pairings) and every unchanged array read-only;
+    *pending* state that owns copies of the residual capacities, the flow per edge, the bitmap
+    of arcs with residual partners, the potentials and the excesses (two arrays of 2m and one
+    of m int64 values: about 20 ms on the L benchmark), and shares read-only the topology (CSR
+    offsets, heads, pairings, arc -> edge map) and the lower bounds and costs unless they change;
     `resolve()` turns a pending state into an *optimal* one, in place (that is the only change a
     state ever sees), and returns its `CostFlowResult`. A resolve that gives up (work budget) or
     finds the supplies cannot be met leaves the state *spent*: resolving it again returns None
@@ -592,7 +594,7 @@ class KeptFlow:
     n: int
     n_edges: int
     last_work: int
-    """Arcs the last `resolve()` of this state scanned (0 before any)."""
+    """Work units the last `resolve()` of this state spent (see `KEPT_WORK_LIMIT`; 0 before)."""
 
     def __init__(
         self,
@@ -861,9 +863,11 @@ class KeptFlow:
     def resolve(self, budget: int | None = None) -> CostFlowResult | None:
         """Restore optimality after the patches; None when the work goes over `budget`.
 
-        `budget` counts arcs scanned (default `default_budget()`). Raises `InfeasibleError`
-        with a violated cut, as `min_cost_flow` does, when the supplies cannot be met. The
-        result's potentials certify optimality (see `CostFlowResult`); its flow is per edge.
+        `budget` counts work units (see `KEPT_WORK_LIMIT`; default `default_budget()`); a
+        resolve also gives up early once its work per unit routed projects past it. Raises
+        `InfeasibleError` with a violated cut, as `min_cost_flow` does, when the supplies cannot
+        be met. The result's potentials certify optimality (see `CostFlowResult`); its flow is
+        per edge (the state's own array, read-only from then on).
         """
         limit = self.default_budget() if budget is None else int(budget)
         with self._lock:
