@@ -550,7 +550,7 @@ class KeptFlow:
 
     Frozen-ish: a state is never changed by another state's patches. `patched()` returns a new
     *pending* state that owns copies of the residual capacities, the flow per edge, the bitmap
-    of arcs with residual partners, the potentials and the excesses (two arrays of 2m and one
+    of arcs with residual partners, the potentials and the excesses (one array of 2m and one
     of m int64 values: about 20 ms on the L benchmark), and shares read-only the topology (CSR
     offsets, heads, pairings, arc -> edge map) and the lower bounds and costs unless they change;
     `resolve()` turns a pending state into an *optimal* one, in place (that is the only change a
