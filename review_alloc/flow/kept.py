@@ -165,7 +165,9 @@ def _search(
     nodes are `order[:count]` and carry `settled[v] == stamp`; `parent[v]` is the arc leaving v
     on its shortest path (-1 at the deficits).
     """
-    size = 0
+    # Typed zeros: a counter that starts at a literal 0 reaches a callee as Literal[int](0) on
+    # one path and int64 on another, and numba compiles the callee twice.
+    size = np.int64(0)
     for k in range(first, last):
         v = deficits[k]
         seen[v] = stamp
@@ -413,8 +415,9 @@ def kept_route_kernel(
     work = np.zeros(1, dtype=np.int64)
     # The deficits, each once (a candidate may be listed twice); `seen` doubles as the mark.
     deficits = np.empty(candidates.size, dtype=np.int64)
-    n_def = 0
-    remaining = 0
+    # Typed zeros, as in `_search`: these counters are passed on to the helpers.
+    n_def = np.int64(0)
+    remaining = np.int64(0)
     for k in range(candidates.size):
         v = candidates[k]
         if ex[v] < 0 and seen[v] == 0:
@@ -423,13 +426,12 @@ def kept_route_kernel(
             n_def += 1
             remaining -= ex[v]
     total = remaining
-    stuck = np.empty(candidates.size, dtype=np.int64)
-    n_stuck = 0
-    stamp = 0
-    phase = 0
-    rounds = 0
+    n_stuck = np.int64(0)
+    stamp = np.int64(0)
+    phase = np.int64(0)
+    rounds = np.int64(0)
     while remaining > 0:
-        kept = 0
+        kept = np.int64(0)
         for k in range(n_def):
             if ex[deficits[k]] < 0:
                 deficits[kept] = deficits[k]
@@ -447,9 +449,10 @@ def kept_route_kernel(
         if status == 0:
             # No excess reaches this deficit, and routing the others cannot change that: no
             # residual arc enters the nodes that reach it, so no augmenting path passes there.
+            # Kept at the back of the same array (the active deficits stay at the front).
             v = deficits[n_def - 1]
-            stuck[n_stuck] = v
             n_stuck += 1
+            deficits[deficits.size - n_stuck] = v
             n_def -= 1
             remaining += ex[v]
             continue
@@ -519,8 +522,8 @@ def kept_route_kernel(
     # The violated cut: the nodes that reach no stuck deficit (one search from all of them).
     stamp += 1
     status, count, reach = _search(
-        start, head, rev, cost, pot, ex, bits, stuck, np.int64(0), n_stuck, stamp, seen,
-        settled, dist, parent, keys, nodes, pos, order, work, budget,
+        start, head, rev, cost, pot, ex, bits, deficits, deficits.size - n_stuck, deficits.size,
+        stamp, seen, settled, dist, parent, keys, nodes, pos, order, work, budget,
     )
     if status == 2:
         return 1, work[0], rounds
