@@ -157,9 +157,9 @@ def main() -> None:
             + (f"  gave up after {r['attempt']:.3f} s, then cold" if r["gave_up"] else "")
         )
     print(
-        "patch: the copy-on-write patch alone (in kept); kept work: arcs the re-solve scanned, "
-        "as a multiple of the network's arcs. Keeping a cold optimum (one CSR build and a "
-        "certificate check) took "
+        "patch: the copy-on-write patch alone (in kept); kept work: the re-solve's work units "
+        "(arcs read, 32 per node settled) as a multiple of the network's arcs. Keeping a cold "
+        "optimum (one CSR build and a certificate check) took "
         + ", ".join(f"{r['instance']} {r['keep']:.2f} s" for r in rows)
         + "."
     )
