@@ -11,7 +11,7 @@ or a check is first needed. The modules: `maxflow` and `mincost` are the front d
 `cost_scaling`, `primal_dual`, `tier_start` (the pre-pass of cost scaling) and `potentials`
 (Bellman-Ford) hold one algorithm each; `circulation` reduces lower bounds; `residual` builds the
 residual network the kernels share; `checks` holds the certificate checks; `compile` warms the
-kernels up.
+kernels up; `kept` keeps a solved flow to patch and re-solve locally (`KeptFlow`).
 """
 
 from __future__ import annotations
@@ -28,6 +28,7 @@ if TYPE_CHECKING:
     )
     from review_alloc.flow.circulation import feasible_circulation
     from review_alloc.flow.compile import kernels_ready, solver_cache_ready, warm_up
+    from review_alloc.flow.kept import KeptFlow
     from review_alloc.flow.maxflow import METHODS, max_flow
     from review_alloc.flow.mincost import COST_METHODS, WarmStart, min_cost_flow
     from review_alloc.flow.results import (
@@ -48,6 +49,7 @@ _HOMES = {
     "FlowInputError": "results",
     "FlowResult": "results",
     "InfeasibleError": "results",
+    "KeptFlow": "kept",
     "WarmStart": "mincost",
     "check_cost_certificate": "checks",
     "check_cut": "checks",
@@ -71,6 +73,7 @@ __all__ = [
     "FlowInputError",
     "FlowResult",
     "InfeasibleError",
+    "KeptFlow",
     "WarmStart",
     "check_cost_certificate",
     "check_cut",

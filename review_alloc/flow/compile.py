@@ -49,6 +49,7 @@ def _kernels() -> tuple[Any, ...]:
         reachable_kernel,
         reaching_kernel,
     )
+    from review_alloc.flow.kept import kept_route_kernel
     from review_alloc.flow.potentials import exact_potentials
     from review_alloc.flow.primal_dual import primal_dual_kernel
     from review_alloc.flow.residual import _csr_kernel
@@ -60,6 +61,7 @@ def _kernels() -> tuple[Any, ...]:
         reachable_kernel,
         reaching_kernel,
         primal_dual_kernel,
+        kept_route_kernel,
         cost_scaling_kernel,
         exact_potentials,
     )
@@ -122,9 +124,9 @@ _GROUPS = ("max flow", "lower bounds, primal-dual", "cost scaling")
 """Kernel groups that share no callee across groups, so that two processes compiling different
 groups never compile the same function twice. "max flow": the fused kernel and its helpers
 (`dinic.max_flow_kernel`, `residual.scan_edges`, `sort_by_tail_packed`, `index_entering`);
-"lower bounds, primal-dual": the residual CSR, Dinic, both reachability walks and the primal-dual
-kernel with its Dijkstra and heap; "cost scaling": the push-relabel kernel and Bellman-Ford
-(`potentials.py`)."""
+"lower bounds, primal-dual": the residual CSR, Dinic, both reachability walks, the primal-dual
+kernel with its Dijkstra and heap, and the kept flow's re-solve (`kept.kept_route_kernel`);
+"cost scaling": the push-relabel kernel and Bellman-Ford (`potentials.py`)."""
 
 _CHILD_GROUPS = ("cost scaling",)
 """The groups the child process compiles while this process compiles the others."""
@@ -180,6 +182,12 @@ def exercise(group: str) -> None:
     elif group == _GROUPS[1]:
         max_flow(3, tails, heads, capacities, 0, 2, lower=np.array([1, 0, 0], np.int64))
         min_cost_flow(3, *(np.array(a, np.int64) for a in _CIRCULATION), method="primal-dual")
+        from review_alloc.flow.kept import KeptFlow
+
+        kept = KeptFlow.solve(
+            3, *(np.array(a, np.int64) for a in _CIRCULATION), method="primal-dual"
+        )
+        kept.patched([0], capacities=[1]).resolve()
     else:
         # Straight to the kernels: the routing stage before them belongs to the group above.
         optimal_potentials(_two_node_circulation())

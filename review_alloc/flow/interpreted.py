@@ -27,6 +27,7 @@ KERNEL_MODULES = (
     "dinic",
     "potentials",
     "primal_dual",
+    "kept",
     "tier_start",
     "cost_scaling",
     "circulation",
