@@ -22,7 +22,6 @@ from textual.command import DiscoveryHit, Hit, Hits, Provider
 from textual.containers import Horizontal, Vertical
 from textual.message import Message
 from textual.widgets import (
-    Footer,
     Label,
     ProgressBar,
     Static,
@@ -35,6 +34,7 @@ from review_alloc.model import InputError, Session
 from review_alloc.plan import PlanCheckError, PlanOutcome
 from review_alloc.plan.explanation import Explanation
 from review_alloc.plan.whatif import WhatIf
+from review_alloc.tui import heap
 from review_alloc.tui.dialogs import (
     Confirm,
     Field,
@@ -45,6 +45,7 @@ from review_alloc.tui.dialogs import (
     whole_or_default,
 )
 from review_alloc.tui.entity_views import EntityView, GapView, PaperView, ReviewerView
+from review_alloc.tui.footer import KeysFooter
 from review_alloc.tui.gapfix import ExplainView, PaneHint
 from review_alloc.tui.grid import RowTable
 from review_alloc.tui.overview import Overview
@@ -61,6 +62,7 @@ from review_alloc.workspace import (
     prepare_solver,
 )
 from review_alloc.workspace.facts import Facts
+from review_alloc.workspace.offsite import OffsiteClosed, OffsiteExplainer
 
 TABS = ("overview", "papers", "reviewers", "conflicts", "gaps", "history")
 
@@ -171,6 +173,8 @@ class ReviewAllocApp(App[None]):
         self._version = 0
         self._history_mark: tuple[int, int | None] | None = None
         self._explaining: Session | None = None
+        self._offsite = OffsiteExplainer()
+        self._offsite.prepare()
         self.scenarios: list[WhatIf] = []
         """Previews the chair kept to compare side by side (`c`) before accepting one."""
 
@@ -206,7 +210,7 @@ class ReviewAllocApp(App[None]):
                 yield ExplainView(id="explain-view")
             with TabPane("6 History", id="history"):
                 yield HistoryView(id="history-view")
-        yield Footer()
+        yield KeysFooter()
 
     def on_mount(self) -> None:
         """Draw the first screen at once; warm the solver up behind it."""
@@ -214,6 +218,8 @@ class ReviewAllocApp(App[None]):
         self.query_one(ExplainView).display = False
         self._refresh_all()
         self.query_one(Overview).focus()
+        heap.start()
+        self.set_interval(heap.SETTLE_EVERY, heap.settle)
         self._warm_up()
         problems = self.workspace.plan_problems
         if problems:
@@ -225,6 +231,11 @@ class ReviewAllocApp(App[None]):
                 severity="warning",
                 timeout=20,
             )
+
+    def on_unmount(self) -> None:
+        """End the explanation process; give the objects set aside back to the collector."""
+        self._offsite.close()
+        heap.release()
 
     @work(thread=True, group="warm-up", exit_on_error=False)
     def _warm_up(self) -> None:
@@ -509,14 +520,18 @@ class ReviewAllocApp(App[None]):
         view.state = (
             f"explaining… (shortfall groups and fixes of {len(session.papers)} {self.noun}s)"
         )
-        self._explain(session)
+        # Once the tab is drawn: sending the snapshot off takes the interpreter a moment.
+        self.call_after_refresh(self._explain, session)
 
     @work(thread=True, exclusive=True, group="explain", exit_on_error=False)
     def _explain(self, session: Session) -> None:
         """Compute the groups and fixes of a session snapshot and post them back."""
         try:
-            result = self.workspace.explain(session)
-            menu = self.workspace.fixes(session, result)
+            # In a process of its own: a thread would hold the interpreter lock for seconds
+            # and every key pressed meanwhile would wait for it.
+            result, menu = self._offsite.explain(session)
+        except OffsiteClosed:
+            return
         except (InputError, PlanCheckError, OverflowError) as error:
             lines = list(error.lines) if isinstance(error, InputError) else [str(error)]
             self.post_message(self.ExplainReady(session, None, lines))
