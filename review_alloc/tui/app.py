@@ -237,7 +237,9 @@ class ReviewAllocApp(App[None]):
         self._offsite.close()
         heap.release()
 
-    @work(thread=True, group="warm-up", exit_on_error=False)
+    # Every worker names itself: by default Textual writes the repr of the call's arguments into
+    # the worker's description, and the repr of a 1,500-paper session took 0.25 s of the screen.
+    @work(thread=True, group="warm-up", exit_on_error=False, description="prepare the solver")
     def _warm_up(self) -> None:
         """Compile or load the flow kernels so that the first plan starts at full speed."""
         # Only a cold cache compiles (seconds, once per machine); say so, or a first plan
@@ -408,7 +410,13 @@ class ReviewAllocApp(App[None]):
             request = self.workspace.plan_request(fresh)
         self._solve(request, self._generation)
 
-    @work(thread=True, exclusive=True, group="plan", exit_on_error=False)
+    @work(
+        thread=True,
+        exclusive=True,
+        group="plan",
+        exit_on_error=False,
+        description="make the plan",
+    )
     def _solve(self, request: PlanRequest, generation: int) -> None:
         """Run the Workspace's plan request on its snapshot and post the outcome back."""
         try:
@@ -523,7 +531,13 @@ class ReviewAllocApp(App[None]):
         # Once the tab is drawn: sending the snapshot off takes the interpreter a moment.
         self.call_after_refresh(self._explain, session)
 
-    @work(thread=True, exclusive=True, group="explain", exit_on_error=False)
+    @work(
+        thread=True,
+        exclusive=True,
+        group="explain",
+        exit_on_error=False,
+        description="explain the session",
+    )
     def _explain(self, session: Session) -> None:
         """Compute the groups and fixes of a session snapshot and post them back."""
         try:
@@ -587,7 +601,13 @@ class ReviewAllocApp(App[None]):
         )
         self._preview(explanation, view.menu, message.kind, accept)
 
-    @work(thread=True, exclusive=True, group="whatif", exit_on_error=False)
+    @work(
+        thread=True,
+        exclusive=True,
+        group="whatif",
+        exit_on_error=False,
+        description="preview a fix",
+    )
     def _preview(
         self, explanation: Explanation, menu: FixMenu | None, kind: str, accept: bool
     ) -> None:
@@ -708,7 +728,13 @@ class ReviewAllocApp(App[None]):
             )
         )
 
-    @work(thread=True, exclusive=True, group="whatif", exit_on_error=False)
+    @work(
+        thread=True,
+        exclusive=True,
+        group="whatif",
+        exit_on_error=False,
+        description="plan a what-if",
+    )
     def _whatif(self, explanation: Explanation | None, changes: ChangeSet) -> None:
         """Plan the session and a changed copy of it, to keep as a scenario."""
         try:
@@ -1080,7 +1106,13 @@ class ReviewAllocApp(App[None]):
             answered,
         )
 
-    @work(thread=True, exclusive=True, group="plan", exit_on_error=False)
+    @work(
+        thread=True,
+        exclusive=True,
+        group="plan",
+        exit_on_error=False,
+        description="reload and redo",
+    )
     def _reload_and_redo(self) -> None:
         """Read the newer file and redo the unsaved steps on it (plans are made anew)."""
         try:
