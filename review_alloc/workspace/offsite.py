@@ -33,6 +33,9 @@ if TYPE_CHECKING:
 
 _PRELOAD = ["review_alloc.workspace", "review_alloc.plan.explanation", "review_alloc.plan.fixes"]
 """Imported once by the forkserver, so that each worker starts with them loaded."""
+METHOD = "forkserver" if "forkserver" in multiprocessing.get_all_start_methods() else "spawn"
+"""How the worker starts: forked from a forkserver where there is one, else a fresh
+interpreter (Windows)."""
 _SNAPSHOT = "snapshot"
 """The pickled answer's stand-in for the session it explains."""
 POLL = 0.25
@@ -97,8 +100,9 @@ class OffsiteExplainer:
         """Start the forkserver (and multiprocessing's resource tracker) now, while the
         program's standard streams are its own: the tracker is handed the error stream's file
         descriptor, and a full-screen app replaces that stream with one that has none."""
-        multiprocessing.get_context("forkserver").set_forkserver_preload(_PRELOAD)
-        forkserver.ensure_running()
+        if METHOD == "forkserver":
+            multiprocessing.get_context(METHOD).set_forkserver_preload(_PRELOAD)
+            forkserver.ensure_running()
 
     def _worker(self) -> Pool:
         with self._lock:
@@ -106,7 +110,7 @@ class OffsiteExplainer:
                 raise OffsiteClosed("the explanation service was closed")
             if self._pool is None:
                 self.prepare()
-                self._pool = multiprocessing.get_context("forkserver").Pool(1)
+                self._pool = multiprocessing.get_context(METHOD).Pool(1)
             return self._pool
 
     def explain(self, session: Session) -> tuple[Explanation, FixMenu]:
