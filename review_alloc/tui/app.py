@@ -22,7 +22,6 @@ from textual.command import DiscoveryHit, Hit, Hits, Provider
 from textual.containers import Horizontal, Vertical
 from textual.message import Message
 from textual.widgets import (
-    Footer,
     Label,
     ProgressBar,
     Static,
@@ -35,6 +34,7 @@ from review_alloc.model import InputError, Session
 from review_alloc.plan import PlanCheckError, PlanOutcome
 from review_alloc.plan.explanation import Explanation
 from review_alloc.plan.whatif import WhatIf
+from review_alloc.tui import heap
 from review_alloc.tui.dialogs import (
     Confirm,
     Field,
@@ -45,6 +45,7 @@ from review_alloc.tui.dialogs import (
     whole_or_default,
 )
 from review_alloc.tui.entity_views import EntityView, GapView, PaperView, ReviewerView
+from review_alloc.tui.footer import KeysFooter
 from review_alloc.tui.gapfix import ExplainView, PaneHint
 from review_alloc.tui.grid import RowTable
 from review_alloc.tui.overview import Overview
@@ -61,6 +62,7 @@ from review_alloc.workspace import (
     prepare_solver,
 )
 from review_alloc.workspace.facts import Facts
+from review_alloc.workspace.offsite import OffsiteClosed, OffsiteExplainer
 
 TABS = ("overview", "papers", "reviewers", "conflicts", "gaps", "history")
 
@@ -171,6 +173,8 @@ class ReviewAllocApp(App[None]):
         self._version = 0
         self._history_mark: tuple[int, int | None] | None = None
         self._explaining: Session | None = None
+        self._offsite = OffsiteExplainer()
+        self._offsite.prepare()
         self.scenarios: list[WhatIf] = []
         """Previews the chair kept to compare side by side (`c`) before accepting one."""
 
@@ -206,7 +210,7 @@ class ReviewAllocApp(App[None]):
                 yield ExplainView(id="explain-view")
             with TabPane("6 History", id="history"):
                 yield HistoryView(id="history-view")
-        yield Footer()
+        yield KeysFooter()
 
     def on_mount(self) -> None:
         """Draw the first screen at once; warm the solver up behind it."""
@@ -214,6 +218,8 @@ class ReviewAllocApp(App[None]):
         self.query_one(ExplainView).display = False
         self._refresh_all()
         self.query_one(Overview).focus()
+        heap.start()
+        self.set_interval(heap.SETTLE_EVERY, heap.settle)
         self._warm_up()
         problems = self.workspace.plan_problems
         if problems:
@@ -226,7 +232,14 @@ class ReviewAllocApp(App[None]):
                 timeout=20,
             )
 
-    @work(thread=True, group="warm-up", exit_on_error=False)
+    def on_unmount(self) -> None:
+        """End the explanation process; give the objects set aside back to the collector."""
+        self._offsite.close()
+        heap.release()
+
+    # Every worker names itself: by default Textual writes the repr of the call's arguments into
+    # the worker's description, and the repr of a 1,500-paper session took 0.25 s of the screen.
+    @work(thread=True, group="warm-up", exit_on_error=False, description="prepare the solver")
     def _warm_up(self) -> None:
         """Compile or load the flow kernels so that the first plan starts at full speed."""
         # Only a cold cache compiles (seconds, once per machine); say so, or a first plan
@@ -397,7 +410,13 @@ class ReviewAllocApp(App[None]):
             request = self.workspace.plan_request(fresh)
         self._solve(request, self._generation)
 
-    @work(thread=True, exclusive=True, group="plan", exit_on_error=False)
+    @work(
+        thread=True,
+        exclusive=True,
+        group="plan",
+        exit_on_error=False,
+        description="make the plan",
+    )
     def _solve(self, request: PlanRequest, generation: int) -> None:
         """Run the Workspace's plan request on its snapshot and post the outcome back."""
         try:
@@ -509,14 +528,24 @@ class ReviewAllocApp(App[None]):
         view.state = (
             f"explaining… (shortfall groups and fixes of {len(session.papers)} {self.noun}s)"
         )
-        self._explain(session)
+        # Once the tab is drawn: sending the snapshot off takes the interpreter a moment.
+        self.call_after_refresh(self._explain, session)
 
-    @work(thread=True, exclusive=True, group="explain", exit_on_error=False)
+    @work(
+        thread=True,
+        exclusive=True,
+        group="explain",
+        exit_on_error=False,
+        description="explain the session",
+    )
     def _explain(self, session: Session) -> None:
         """Compute the groups and fixes of a session snapshot and post them back."""
         try:
-            result = self.workspace.explain(session)
-            menu = self.workspace.fixes(session, result)
+            # In a process of its own: a thread would hold the interpreter lock for seconds
+            # and every key pressed meanwhile would wait for it.
+            result, menu = self._offsite.explain(session)
+        except OffsiteClosed:
+            return
         except (InputError, PlanCheckError, OverflowError) as error:
             lines = list(error.lines) if isinstance(error, InputError) else [str(error)]
             self.post_message(self.ExplainReady(session, None, lines))
@@ -572,7 +601,13 @@ class ReviewAllocApp(App[None]):
         )
         self._preview(explanation, view.menu, message.kind, accept)
 
-    @work(thread=True, exclusive=True, group="whatif", exit_on_error=False)
+    @work(
+        thread=True,
+        exclusive=True,
+        group="whatif",
+        exit_on_error=False,
+        description="preview a fix",
+    )
     def _preview(
         self, explanation: Explanation, menu: FixMenu | None, kind: str, accept: bool
     ) -> None:
@@ -693,7 +728,13 @@ class ReviewAllocApp(App[None]):
             )
         )
 
-    @work(thread=True, exclusive=True, group="whatif", exit_on_error=False)
+    @work(
+        thread=True,
+        exclusive=True,
+        group="whatif",
+        exit_on_error=False,
+        description="plan a what-if",
+    )
     def _whatif(self, explanation: Explanation | None, changes: ChangeSet) -> None:
         """Plan the session and a changed copy of it, to keep as a scenario."""
         try:
@@ -1065,7 +1106,13 @@ class ReviewAllocApp(App[None]):
             answered,
         )
 
-    @work(thread=True, exclusive=True, group="plan", exit_on_error=False)
+    @work(
+        thread=True,
+        exclusive=True,
+        group="plan",
+        exit_on_error=False,
+        description="reload and redo",
+    )
     def _reload_and_redo(self) -> None:
         """Read the newer file and redo the unsaved steps on it (plans are made anew)."""
         try:

@@ -24,6 +24,10 @@ from review_alloc.tui.grid import FilterInput, RowTable
 from review_alloc.tui.grid import cell_text as _cell_text
 from review_alloc.workspace.facts import Candidate, Facts
 
+ID_WIDTH = 14
+"""The Reviewers table's Id column at its widest: a recruit placeholder's long id would push
+the other columns aside; the detail pane shows the id in full."""
+
 Row = tuple[str, list[object]]
 """A table row: its key (the entity id) and its cells."""
 
@@ -111,6 +115,8 @@ class EntityView(Widget):
 
     kind = "paper"
     columns: tuple[str, ...] = ()
+    column_limits: dict[int, int] = {}
+    """Widest a column may be drawn, by its index (a longer cell is cut with '…')."""
 
     def __init__(self, *, id: str | None = None) -> None:
         super().__init__(id=id)
@@ -194,7 +200,11 @@ class EntityView(Widget):
         self._visible_keys = [key for key, _ in visible]
         at = self._visible_keys.index(keep) if keep in self._visible_keys else 0
         table.fill(
-            self.columns, [cells for _, cells in visible], [c for _, c in self._rows], cursor=at
+            self.columns,
+            [cells for _, cells in visible],
+            [c for _, c in self._rows],
+            cursor=at,
+            limits=self.column_limits,
         )
         self._show_detail()
 
@@ -448,6 +458,7 @@ class ReviewerView(EntityView):
 
     kind = "reviewer"
     columns = ("Id", "Name", "Load", "Cap", "Floor", "State", "Leads", "Mean", "Institution")
+    column_limits = {0: ID_WIDTH}
     BINDINGS = [
         Binding(
             "n",

@@ -8,7 +8,7 @@ rows as given, and renders only the lines in view, so filling and scrolling stay
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 from rich.segment import Segment
@@ -146,14 +146,17 @@ class RowTable(ScrollView, can_focus=True):
         *,
         cursor: int = 0,
         widest: int = WIDEST,
+        limits: Mapping[int, int] | None = None,
     ) -> None:
-        """Show `rows` under `names`; widths fit `measure` (default `rows`), capped at `widest`."""
+        """Show `rows` under `names`; widths fit `measure` (default `rows`), capped at `widest`
+        and, for the columns in `limits`, at their own width."""
         widths = [len(n) for n in names]
+        caps = [min(widest, (limits or {}).get(k, widest)) for k in range(len(names))]
         for cells in rows if measure is None else measure:
             for k, c in enumerate(cells):
                 size = len(cell_text(c))
                 if size > widths[k]:
-                    widths[k] = min(size, widest)
+                    widths[k] = min(size, caps[k])
         self._names, self._widths, self._rows = list(names), widths, list(rows)
         self._lines.clear()
         total = sum(widths) + GAP * len(widths)

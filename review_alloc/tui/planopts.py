@@ -115,9 +115,10 @@ class PlanOptions(ModalScreen[PlanChoice | None]):
     def on_mount(self) -> None:
         """Start on the kinds of plan, with the chosen kind's caution shown."""
         radio = self.query_one(RadioSet)
-        # The keyboard highlight starts on the plan's own kind, not on the first line (the
-        # radio set offers no public way to say so).
-        radio._selected = MODES.index(self.mode)
+        # The keyboard highlight starts on the first line when the set is mounted; its own
+        # navigation action moves it to the plan's own kind, as the down key would.
+        for _ in range(MODES.index(self.mode)):
+            radio.action_next_button()
         radio.focus()
         self._show_caution()
 

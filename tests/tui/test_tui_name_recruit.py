@@ -10,7 +10,8 @@ from textual.widgets import Input, Static
 from review_alloc.model import save_session
 from review_alloc.tui import ReviewAllocApp
 from review_alloc.tui.dialogs import Form
-from review_alloc.tui.entity_views import ReviewerView
+from review_alloc.tui.entity_views import ID_WIDTH, ReviewerView
+from review_alloc.tui.grid import RowTable
 from review_alloc.workspace import ChangeSet
 from tests.plan.test_explain_groups import topic_session
 
@@ -70,3 +71,33 @@ async def test_name_a_recruit(new_app: Factory, tmp_path: Path) -> None:
         )
         assert view.visible_keys()[view.query_one(".main").cursor_row] == "R-BRENN"
         assert "recruit placeholder" not in str(view.query_one(".detail-head", Static).render())
+
+
+async def test_a_long_placeholder_id_keeps_the_id_column_narrow(
+    new_app: Factory, tmp_path: Path
+) -> None:
+    path = tmp_path / "venue.json"
+    topic = "quantum sensing and very long topic names of the field"
+    save_session(topic_session({topic: (8, 3, 4), "soil chemistry": (6, 6, 6)}), path)
+    app = new_app(path)
+    async with app.run_test(size=(80, 24)) as pilot:
+        ws = app.workspace
+        ws.solve()
+        ws.accept(ws.what_if(ChangeSet(fixes=("recruit-min",))))
+        app._refresh_all()
+        placeholder = ws.recruit_placeholders()[0]
+        assert len(placeholder) > ID_WIDTH
+        await pilot.press("3")
+        await pilot.pause()
+        view = app.query_one(ReviewerView)
+        table = view.query_one(".main", RowTable)
+        # The column stays at its cap; the row shows the id cut with an ellipsis.
+        assert table.columns[0] == "Id"
+        assert view.select(placeholder)
+        await pilot.pause()
+        y = table.cursor_row - int(table.scroll_offset.y) + 1
+        line = "".join(s.text for s in table.render_line(y))
+        assert placeholder not in line and placeholder[: ID_WIDTH - 1] + "…" in line
+        # The detail pane has the whole id.
+        head = str(view.query_one(".detail-head", Static).render())
+        assert placeholder in head
