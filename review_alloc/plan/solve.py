@@ -20,12 +20,20 @@ few seniors still gets its best plan, and the papers short of seniors are listed
 
 from __future__ import annotations
 
+import threading
 from dataclasses import dataclass, field, replace
 from datetime import UTC, datetime
 
 import numpy as np
 
-from review_alloc.flow import CostFlowResult, InfeasibleError, WarmStart, min_cost_flow
+from review_alloc.flow import (
+    CostFlowResult,
+    FlowInputError,
+    InfeasibleError,
+    KeptFlow,
+    WarmStart,
+    min_cost_flow,
+)
 from review_alloc.model import Plan, Session
 from review_alloc.plan.assemble import PlanRows, assemble_rows
 from review_alloc.plan.checker import check_plan
@@ -43,6 +51,15 @@ METHOD = "lexicographic min-cost flow (cost scaling; re-plans warm-started by pr
 
 OBJECTIVE_TIERS = ("required", "seniors", "coverage", "floors", "score")
 """Names of the values `tier_values` returns, highest tier first."""
+
+
+class _KeptSlot:
+    """Where an outcome keeps its optimum as a patchable residual state, built on first use."""
+
+    def __init__(self, state: KeptFlow | None = None) -> None:
+        self.state = state
+        self.refused = False
+        self.lock = threading.Lock()
 
 
 @dataclass(frozen=True)
@@ -80,6 +97,30 @@ class PlanOutcome:
     checked_conflicts: ConflictSet | None = None
     """The conflict set the checker derived for `planned`, reused by the next check when the
     changes since leave every conflict input alone."""
+    kept: _KeptSlot = field(default_factory=_KeptSlot, repr=False, compare=False)
+    """The optimum as a `flow.KeptFlow` (see `kept_flow`): a patched re-plan re-solves from it."""
+
+    def kept_flow(self) -> KeptFlow | None:
+        """The optimum on `network` as a patchable residual state (None without a flow).
+
+        Built once, on first use: the workspace builds it in a background thread after a plan,
+        so that the next re-plan finds it ready; a re-plan solved from it keeps its own.
+        """
+        if self.flow is None:
+            return None
+        with self.kept.lock:
+            if self.kept.state is None and not self.kept.refused:
+                net = self.network
+                try:
+                    self.kept.state = KeptFlow.from_solution(
+                        net.n_nodes, net.tails, net.heads, net.capacities, net.costs, net.lower,
+                        self.flow, self.potentials,
+                    )
+                except FlowInputError:
+                    # Potentials that do not certify this flow (an outcome put together from
+                    # other solves): the next re-plan solves cold instead.
+                    self.kept.refused = True
+            return self.kept.state
 
     @property
     def proven_optimal(self) -> bool:
@@ -118,18 +159,30 @@ def _run(session: Session, net: PlanNetwork, warm: PlanOutcome | None = None) ->
     return _solve_network(session, net, start)
 
 
-def _resolve(session: Session, warm: PlanOutcome, patch: NetworkPatch) -> CostFlowResult:
+def _resolve(
+    session: Session, warm: PlanOutcome, patch: NetworkPatch
+) -> tuple[CostFlowResult, KeptFlow | None]:
     """Solve a patched network from the earlier optimum on the same arcs.
 
     The one place a patched network is solved: `patch.arcs` with their new capacities, lower
-    bounds and costs are all that differ from `warm.network`, so the earlier flow (clipped into
-    the new bounds) and potentials are the start, without matching two networks.
+    bounds and costs are all that differ from `warm.network`, so the earlier optimum's kept
+    residual state is patched and re-solved from the deficits the change left (work in
+    proportion to the change). Where that gives up (a change whose repairs spread over the
+    whole network) or finds the bounds unmeetable, the network is solved cold, which also
+    words the cut for the chair. Returns the result and the state to keep (None when cold).
     """
-    assert warm.flow is not None
-    net = patch.network
-    flow = warm.flow.copy()
-    flow[patch.arcs] = np.clip(flow[patch.arcs], patch.lower, patch.capacities)
-    return _solve_network(session, net, WarmStart(flow=flow, potentials=warm.potentials))
+    state = warm.kept_flow()
+    if state is not None:
+        pending = state.patched(
+            patch.arcs, capacities=patch.capacities, lower=patch.lower, costs=patch.costs
+        )
+        try:
+            result = pending.resolve()
+        except InfeasibleError:
+            result = None
+        if result is not None:
+            return result, pending
+    return _solve_network(session, patch.network, None), None
 
 
 def _solve_network(
@@ -444,9 +497,10 @@ def _decode(
 
 def _patched_solve(
     session: Session, keep_from: Plan | None, warm: PlanOutcome | None
-) -> tuple[PlanNetwork, CostFlowResult, NetworkPatch] | None:
+) -> tuple[PlanNetwork, CostFlowResult, NetworkPatch, KeptFlow | None] | None:
     """The solve of the warm outcome's network patched for this session, when a patch can
-    follow the change and the patched optimum keeps the institution rule (else None)."""
+    follow the change and the patched optimum keeps the institution rule (else None), with
+    the kept state of its optimum when it was re-solved from the earlier one's."""
     if (
         warm is None
         or warm.planned is None
@@ -465,12 +519,12 @@ def _patched_solve(
     )
     if patch is None:
         return None
-    result = _resolve(session, warm, patch)
+    result, state = _resolve(session, warm, patch)
     net = patch.network
     if _violated_splits(session, net, result.flow[net.pair_arcs] > 0):
         # Mixed institution groups to share out: the exact path works on built networks.
         return None
-    return net, result, patch
+    return net, result, patch, state
 
 
 def make_plan(
@@ -493,8 +547,9 @@ def make_plan(
     """
     keep_from = None if fresh else (earlier if earlier is not None else session.plan)
     patched = _patched_solve(session, keep_from, warm) if patch else None
+    state: KeptFlow | None = None
     if patched is not None:
-        net, result, _ = patched
+        net, result, _, state = patched
         split: dict[tuple[int, str], int] = {}
         bound: dict[str, float] = {}
         proof: ExactResult | None = None
@@ -508,6 +563,7 @@ def make_plan(
         bottleneck, net, result, split, bound, proof = _bottleneck(
             session, net, base, split, keep_from, proof
         )
+        state = None
     used = result.flow[net.pair_arcs] > 0
     final = tier_values(net, used)
     relaxed = bound if bound != final else {}
@@ -572,4 +628,5 @@ def make_plan(
         rows=rows,
         patched=patched is not None,
         checked_conflicts=checked_conflicts,
+        kept=_KeptSlot(state),
     )

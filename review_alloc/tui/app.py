@@ -60,6 +60,7 @@ from review_alloc.workspace import (
     PlanRequest,
     Workspace,
     prepare_solver,
+    ready_for_replan,
 )
 from review_alloc.workspace.facts import Facts
 from review_alloc.workspace.offsite import OffsiteClosed, OffsiteExplainer
@@ -430,6 +431,8 @@ class ReviewAllocApp(App[None]):
             )
             return
         self.post_message(self.PlanReady(generation, request, outcome))
+        # While the chair reads the plan, ready its state for the next re-plan.
+        ready_for_replan(outcome)
 
     def _end_planning(self) -> None:
         self._planning_since = None

@@ -20,7 +20,13 @@ from review_alloc.workspace.files import (
     session_lock,
 )
 from review_alloc.workspace.history import HistoryEntry
-from review_alloc.workspace.planning import ChangeSet, PlanningMixin, PlanRequest, prepare_solver
+from review_alloc.workspace.planning import (
+    ChangeSet,
+    PlanningMixin,
+    PlanRequest,
+    prepare_solver,
+    ready_for_replan,
+)
 from review_alloc.workspace.recruits import RecruitsMixin
 from review_alloc.workspace.scoring import ScoringMixin
 
@@ -56,6 +62,7 @@ __all__ = [
     "demo_session_path",
     "files_written",
     "prepare_solver",
+    "ready_for_replan",
     "refresh_demo",
     "session_lock",
 ]
