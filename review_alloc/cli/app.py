@@ -19,11 +19,11 @@ def register(sub: argparse._SubParsersAction) -> dict[str, Handler]:
     return {"open": _cmd_open, "app": _cmd_app}
 
 
-def _run(path: Path | None) -> int:
+def _run(path: Path | None, notice: str | None = None) -> int:
     # Textual is imported only here, so the other commands start without it.
     from review_alloc.tui import make_app
 
-    make_app(path).run()
+    make_app(path, notice=notice).run()
     return EXIT_OK
 
 
@@ -38,5 +38,6 @@ def _cmd_app(args: argparse.Namespace) -> int:
 
     _, note = refresh_demo()
     if note:
+        # Also on stderr: the app's notice fades, the terminal's scrollback keeps this.
         print(f"review-alloc: {note}", file=sys.stderr)
-    return _run(None)
+    return _run(None, note or None)

@@ -163,9 +163,16 @@ class ReviewAllocApp(App[None]):
         keep: bool = False
         """Keep the preview as a scenario (a what-if the chair typed in)."""
 
-    def __init__(self, workspace: Workspace, *, clock: Callable[[], datetime] = _utc_now) -> None:
+    def __init__(
+        self,
+        workspace: Workspace,
+        *,
+        clock: Callable[[], datetime] = _utc_now,
+        notice: str | None = None,
+    ) -> None:
         super().__init__()
         self.workspace = workspace
+        self._notice = notice
         self.clock = clock
         self.facts = Facts.of(workspace.session, rules=workspace.rules())
         self._generation = 0
@@ -222,6 +229,8 @@ class ReviewAllocApp(App[None]):
         heap.start()
         self.set_interval(heap.SETTLE_EVERY, heap.settle)
         self._warm_up()
+        if self._notice:
+            self.notify(self._notice, title="The demo session", timeout=15)
         problems = self.workspace.plan_problems
         if problems:
             self.notify(
@@ -1333,14 +1342,18 @@ class ReviewAllocApp(App[None]):
 
 
 def make_app(
-    session_path: Path | str | None = None, *, clock: Callable[[], datetime] | None = None
+    session_path: Path | str | None = None,
+    *,
+    clock: Callable[[], datetime] | None = None,
+    notice: str | None = None,
 ) -> ReviewAllocApp:
     """The app on a session file, or on the user's copy of the demo workshop when None.
 
-    Raises `InputError` (file, field, problem) when the file cannot be read.
+    `notice` is shown once the app is up (what was done to the demo copy). Raises
+    `InputError` (file, field, problem) when the file cannot be read.
     """
     if session_path is None:
         workspace = Workspace.open_demo()
     else:
         workspace = Workspace.open(Path(session_path))
-    return ReviewAllocApp(workspace, clock=clock or _utc_now)
+    return ReviewAllocApp(workspace, clock=clock or _utc_now, notice=notice)

@@ -347,12 +347,17 @@ class ImportForm(Form):
         values = self.values()
         headers: dict[str, list[str]] = {}
         problems: list[str] = []
-        for kind in _FILE_KINDS:
-            if values[kind]:
-                try:
-                    headers[kind] = Workspace.file_header(Path(values[kind]).expanduser(), kind)
-                except InputError as error:
-                    problems += error.lines
+        given = {kind: values[kind] for kind in _FILE_KINDS if values[kind]}
+        if self.options.bids is not None:
+            # The bids file is chosen among the options; its columns map here like the rest.
+            given["bids"] = str(self.options.bids)
+        for kind, path in given.items():
+            try:
+                headers[kind] = Workspace.file_header(
+                    Path(path).expanduser(), kind, sheet=self.options.sheet or None
+                )
+            except InputError as error:
+                problems += error.lines
         if not headers and not problems:
             problems.append("give the files first: their headers are what you map")
         if problems:

@@ -83,17 +83,25 @@ def test_warm_start_from_a_different_session_shape_still_plans() -> None:
 
 
 def _warm_arguments(monkeypatch: pytest.MonkeyPatch) -> list[object]:
-    """Record the `warm` argument of every engine call the planner makes."""
+    """Record the `warm` argument of every engine call the planner makes (a re-solve from an
+    earlier optimum's kept residual state counts as a warm start: the state itself)."""
     import review_alloc.plan.solve as solve
+    from review_alloc.flow import KeptFlow
 
     seen: list[object] = []
     engine = solve.min_cost_flow
+    resolve = KeptFlow.resolve
 
     def recording(*args: object, **kwargs: object) -> object:
         seen.append(kwargs.get("warm"))
         return engine(*args, **kwargs)
 
+    def recording_resolve(self: KeptFlow, *args: object, **kwargs: object) -> object:
+        seen.append(self)
+        return resolve(self, *args, **kwargs)
+
     monkeypatch.setattr(solve, "min_cost_flow", recording)
+    monkeypatch.setattr(KeptFlow, "resolve", recording_resolve)
     return seen
 
 

@@ -89,3 +89,43 @@ async def test_the_chair_maps_columns_in_the_import_dialog(
         again = app.screen
         assert isinstance(again, ImportForm) and again.columns == {"papers": mapping}
         assert "Paper Title" in str(again.query_one("#columns-said", Static).render())
+
+
+async def test_the_bids_file_chosen_among_the_options_maps_its_columns_too(
+    new_app: Factory, tmp_path: Path
+) -> None:
+    # Another system names the bid column "Preference": the Columns form lists the bids file
+    # (chosen in the Options form) beside the others, and the import reads it mapped.
+    bids = tmp_path / "prefs.csv"
+    text = (SAMPLE / "bids.csv").read_text(encoding="utf-8")
+    bids.write_text(text.replace("reviewer_id,paper_id,bid", "reviewer_id,paper_id,Preference", 1))
+    target = tmp_path / "with-bids.json"
+    app = new_app()
+    async with app.run_test(size=(100, 40)) as pilot:
+        await pilot.press("i")
+        await pilot.pause()
+        form = app.screen
+        assert isinstance(form, ImportForm)
+        form.query_one("#field-papers", Input).value = str(SAMPLE / "papers.csv")
+        form.query_one("#field-reviewers", Input).value = str(SAMPLE / "reviewers.csv")
+        form.query_one("#field-target", Input).value = str(target)
+        form.options = type(form.options)(bids=bids)
+        await pilot.press("ctrl+o")
+        await pilot.pause()
+        columns = app.screen
+        assert isinstance(columns, ColumnsForm)
+        assert "bids file" in [str(s.render()) for s in columns.query(Static)]
+        assert columns.query_one("#map-bids-0", Select).value == "reviewer_id"
+        assert not isinstance(columns.query_one("#map-bids-2", Select).value, str)
+        columns.query_one("#map-bids-2", Select).value = "bid"
+        columns.query_one("#ok", Button).press()
+        await pilot.pause()
+        assert app.screen is form
+        assert "bids.bid from 'Preference'" in str(form.query_one("#columns-said", Static).render())
+        form.query_one("#field-target", Input).focus()
+        await pilot.press("enter")
+        await pilot.pause()
+        assert not isinstance(app.screen, ImportForm), str(form.query_one(".problems").render())
+        session = load_session(target)
+        assert session.import_columns == {"bids": {"bid": "Preference"}}
+        assert session.signals is not None and session.signals.bids
