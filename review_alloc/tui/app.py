@@ -440,8 +440,10 @@ class ReviewAllocApp(App[None]):
             )
             return
         self.post_message(self.PlanReady(generation, request, outcome))
-        # While the chair reads the plan, ready its state for the next re-plan.
-        ready_for_replan(outcome)
+        # While the chair reads the plan, ready the start of the next re-plan.
+        successor = ready_for_replan(outcome)
+        if successor is not outcome:
+            self.call_from_thread(self.workspace.adopt_warm, outcome, successor)
 
     def _end_planning(self) -> None:
         self._planning_since = None
