@@ -11,6 +11,8 @@ reduced cost, shows a cheaper flow).
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 import pytest
 
@@ -226,3 +228,42 @@ def test_a_flow_change_where_potentials_stayed_is_rejected() -> None:
                 assert full is not None and quick is not None
                 caught += "optimality certificate" in quick
     assert caught > 0
+
+
+def test_a_bound_or_cost_change_where_flow_and_potentials_stayed_is_rejected() -> None:
+    """A network whose pair arc changed capacity or cost, where the plan's flow and the end
+    potentials did not: the incremental check must look at it because its bounds changed."""
+    checked = 0
+    for seed in range(12):
+        for session, prev, out in _replans(seed):
+            net = out.network
+            block = net.pair_arcs
+            pot = out.potentials
+            still = pot == prev.potentials
+            t, h = net.tails[block], net.heads[block]
+            j, i, _ = assignment_arrays(session, out.plan.assignments)
+            n_p = max(net.n_papers, 1)
+            used = np.isin(net.pair_reviewer * n_p + net.pair_paper, j * n_p + i)
+            stay = still[t] & still[h]
+            idle = np.flatnonzero(stay & ~used & (net.capacities[block] > 0))
+            busy = np.flatnonzero(stay & used & (net.lower[block] == 0))
+            changed = []
+            if len(idle):
+                # A cost that makes the idle arc worth using: reduced cost -1 with room.
+                a = int(idle[0])
+                costs = net.costs.copy()
+                costs[block.start + a] = int(pot[h[a]] - pot[t[a]]) - 1
+                changed.append(replace(net, costs=costs))
+            if len(busy):
+                # A used arc closed: its flow is above its capacity.
+                capacities = net.capacities.copy()
+                capacities[block.start + int(busy[0])] = 0
+                changed.append(replace(net, capacities=capacities))
+            for other in changed:
+                moved = replace(out, network=other)
+                full = _verdict(session, out.plan, pot, moved, None)
+                quick = _verdict(session, out.plan, pot, moved, prev.check_state)
+                assert full is not None and quick is not None
+                assert "optimality certificate" in quick
+                checked += 1
+    assert checked > 0
