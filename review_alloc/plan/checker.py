@@ -414,9 +414,13 @@ def _certificate_problems(
     base: Certified | None = None,
 ) -> tuple[list[str], Certified | None]:
     n_p = max(net.n_papers, 1)
-    if base is not None and base.network.pair_reviewer is net.pair_reviewer and (
-        base.network.pair_paper is net.pair_paper
+    if (
+        base is not None
+        and base.network.pair_reviewer is net.pair_reviewer
+        and base.network.pair_paper is net.pair_paper
+        and base.network.n_papers == net.n_papers
     ):
+        # The same pairs: their sorted keys are the certified check's.
         net_keys, order = base.keys, base.order
     else:
         net_keys = pair_keys(net.pair_reviewer, net.pair_paper, n_p)
