@@ -399,6 +399,7 @@ def _same_arcs(net: PlanNetwork, old: PlanNetwork) -> bool:
 
 
 def _layout(net: PlanNetwork) -> tuple:
+    """Where each block of arcs lies, and the entity counts."""
     return (
         net.floor_arcs, net.rest_arcs, net.pair_arcs, net.required_arcs, net.extra_arcs,
         net.return_arc, net.overload_arcs, net.senior_required_arcs, net.senior_rest_arcs,
@@ -439,7 +440,7 @@ def _certificate_problems(
     pot = np.asarray(potentials)
     try:
         if base is not None and _same_arcs(net, base.network):
-            _check_changes(net, in_plan, used, side, pot, base)
+            _check_changes(net, in_plan, side, pot, base)
         else:
             check_cost_certificate(
                 net.n_nodes,
@@ -474,7 +475,6 @@ def _whole_flow(net: PlanNetwork, pair_flow: np.ndarray, side: np.ndarray) -> np
 def _check_changes(
     net: PlanNetwork,
     in_plan: np.ndarray,
-    used: np.ndarray,
     side: np.ndarray,
     pot: np.ndarray,
     base: Certified,
