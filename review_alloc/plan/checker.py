@@ -4,6 +4,12 @@ It trusts nothing the engine returned except the dual potentials, and those it v
 rebuilds the arc flows from the plan's assignments alone and checks the reduced-cost conditions.
 It reads the chair's rules from the session's rows itself, never through `plan.rules`, so that
 a mistake there cannot pass unseen (the tests compare the two derivations).
+
+A re-plan on a patched network (the same arcs, other bounds and costs) is certified against what
+the previous check established (`CheckState`): an arc whose bounds, cost, flow and end
+potentials are all unchanged met the optimality conditions then and still does, so only the
+other arcs are looked at, found by whole-array comparisons; conservation is checked on the flow
+changes, as the earlier flow was balanced. The result is the full check's, in less work.
 """
 
 from __future__ import annotations
@@ -30,6 +36,34 @@ from review_alloc.plan.seniors import paper_senior_need
 _MAX_LISTED = 20
 
 
+@dataclass(frozen=True)
+class Certified:
+    """What a passed certificate check established on one network: its arcs met the optimality
+    conditions under these potentials with the flow of these pairs."""
+
+    network: PlanNetwork
+    potentials: np.ndarray
+    """A copy of the verified potentials."""
+    used: np.ndarray
+    """Sorted positions, in the pair block, of the pairs carrying flow."""
+    side_flow: np.ndarray
+    """The flow on every arc outside the pair block, in arc order."""
+    keys: np.ndarray
+    """The network's pair keys, sorted (shared by every network of the same pairs)."""
+    order: np.ndarray | None
+    """Pair positions of `keys` when the pairs are not in key order, else None."""
+
+
+@dataclass(frozen=True)
+class CheckState:
+    """What a passed check established, for the next check of a re-plan to build on."""
+
+    conflicts: ConflictSet
+    """The conflict set the check derived (see `check_plan`'s `conflicts`)."""
+    certified: Certified | None = None
+    """The certificate's state, when the check had potentials."""
+
+
 def check_plan(
     session: Session,
     plan: Plan,
@@ -38,25 +72,32 @@ def check_plan(
     network: PlanNetwork | None = None,
     earlier: Plan | None = None,
     conflicts: ConflictSet | None = None,
-) -> ConflictSet:
+    base: CheckState | None = None,
+) -> CheckState:
     """Raise PlanCheckError unless the plan keeps every rule and, given potentials, is optimal.
 
     A re-plan's certificate is checked against the network with `earlier`'s keep tier.
     `conflicts` is the set an earlier check derived for a session whose declared conflicts and
     the attributes conflicts are inferred from are the same (the caller knows: a re-plan on a
-    patched network); the set this check used is returned for the next one.
+    patched network). `base` is the state an earlier passed check returned: where `network` has
+    the same arcs as the one certified there, only what changed is certified again (anything
+    else is checked in full). Returns this check's state for the next one.
     """
     arrays = assignment_arrays(session, plan.assignments)
     if conflicts is None:
         conflicts = conflict_pairs(session)
     problems = _hard_rule_problems(session, plan, *arrays, conflicts=conflicts)
+    certified = None
     if not problems and potentials is not None:
         if network is None:
             network = build_network(session, earlier=earlier)
-        problems = _certificate_problems(arrays[0], arrays[1], potentials, network)
+        earlier_certified = base.certified if base is not None else None
+        problems, certified = _certificate_problems(
+            arrays[0], arrays[1], potentials, network, earlier_certified
+        )
     if problems:
         raise PlanCheckError(problems[:_MAX_LISTED])
-    return conflicts
+    return CheckState(conflicts=conflicts, certified=certified)
 
 
 def _positions(keys: np.ndarray, table: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -343,35 +384,163 @@ def _constraint_problems(
     return problems
 
 
-def _certificate_problems(
-    reviewer: np.ndarray, paper: np.ndarray, potentials: np.ndarray, net: PlanNetwork
-) -> list[str]:
-    n_p = max(net.n_papers, 1)
-    net_keys = pair_keys(net.pair_reviewer, net.pair_paper, n_p)
-    # The builder emits pairs in key order; sort only a network that was built otherwise.
-    increasing = len(net_keys) < 2 or bool(np.all(net_keys[1:] > net_keys[:-1]))
-    order = np.arange(len(net_keys)) if increasing else np.argsort(net_keys)
-    found, pos = _positions(pair_keys(reviewer, paper, n_p), net_keys[order])
-    if not found.all():
-        return ["the plan uses a pair that is not eligible in the session's network"]
+def _same_arcs(net: PlanNetwork, old: PlanNetwork) -> bool:
+    """Whether `net` has `old`'s arcs (the very arrays, as a patch keeps them) and layout."""
+    return (
+        net.tails is old.tails
+        and net.heads is old.heads
+        and net.n_nodes == old.n_nodes
+        and net.pair_reviewer is old.pair_reviewer
+        and net.pair_paper is old.pair_paper
+        and net.pair_senior is old.pair_senior
+        and net.pair_group is old.pair_group
+        and _layout(net) == _layout(old)
+    )
 
-    pair_flow = np.zeros(len(net_keys), dtype=np.int64)
-    pair_flow[order[pos]] = 1
-    flow = arc_flows(net, pair_flow)
+
+def _layout(net: PlanNetwork) -> tuple:
+    """Where each block of arcs lies, and the entity counts."""
+    return (
+        net.floor_arcs, net.rest_arcs, net.pair_arcs, net.required_arcs, net.extra_arcs,
+        net.return_arc, net.overload_arcs, net.senior_required_arcs, net.senior_rest_arcs,
+        net.group_arcs, net.n_reviewers, net.n_papers,
+    )
+
+
+def _certificate_problems(
+    reviewer: np.ndarray,
+    paper: np.ndarray,
+    potentials: np.ndarray,
+    net: PlanNetwork,
+    base: Certified | None = None,
+) -> tuple[list[str], Certified | None]:
+    n_p = max(net.n_papers, 1)
+    if (
+        base is not None
+        and base.network.pair_reviewer is net.pair_reviewer
+        and base.network.pair_paper is net.pair_paper
+        and base.network.n_papers == net.n_papers
+    ):
+        # The same pairs: their sorted keys are the certified check's.
+        net_keys, order = base.keys, base.order
+    else:
+        net_keys = pair_keys(net.pair_reviewer, net.pair_paper, n_p)
+        # The builder emits pairs in key order; sort only a network that was built otherwise.
+        increasing = len(net_keys) < 2 or bool(np.all(net_keys[1:] > net_keys[:-1]))
+        order = None if increasing else np.argsort(net_keys)
+        if order is not None:
+            net_keys = net_keys[order]
+    found, pos = _positions(pair_keys(reviewer, paper, n_p), net_keys)
+    if not found.all():
+        return ["the plan uses a pair that is not eligible in the session's network"], None
+    in_plan = np.zeros(len(net_keys), dtype=bool)
+    in_plan[pos if order is None else order[pos]] = True
+    used = np.flatnonzero(in_plan)
+    side = _side_flows(net, used)
+    pot = np.asarray(potentials)
     try:
-        check_cost_certificate(
-            net.n_nodes,
-            net.tails,
-            net.heads,
-            net.capacities,
-            net.costs,
-            flow,
-            potentials,
-            lower=net.lower,
-        )
+        if base is not None and _same_arcs(net, base.network):
+            _check_changes(net, in_plan, side, pot, base)
+        else:
+            check_cost_certificate(
+                net.n_nodes,
+                net.tails,
+                net.heads,
+                net.capacities,
+                net.costs,
+                _whole_flow(net, in_plan.astype(np.int64), side),
+                potentials,
+                lower=net.lower,
+            )
     except FlowCheckError as error:
-        return [f"optimality certificate rejected: {error}"]
-    return []
+        return [f"optimality certificate rejected: {error}"], None
+    kept = Certified(net, pot.astype(np.int64, copy=True), used, side, net_keys, order)
+    return [], kept
+
+
+def _side_arcs(net: PlanNetwork) -> np.ndarray:
+    """Every arc outside the pair block, in arc order."""
+    block = net.pair_arcs
+    return np.r_[0 : block.start, block.stop : len(net.tails)].astype(np.int64)
+
+
+def _whole_flow(net: PlanNetwork, pair_flow: np.ndarray, side: np.ndarray) -> np.ndarray:
+    flow = np.empty(len(net.tails), dtype=np.int64)
+    flow[net.pair_arcs] = pair_flow
+    flow[: net.pair_arcs.start] = side[: net.pair_arcs.start]
+    flow[net.pair_arcs.stop :] = side[net.pair_arcs.start :]
+    return flow
+
+
+def _check_changes(
+    net: PlanNetwork,
+    in_plan: np.ndarray,
+    side: np.ndarray,
+    pot: np.ndarray,
+    base: Certified,
+) -> None:
+    """The certificate on a network with the certified one's arcs: every arc whose bounds, cost,
+    flow or end potentials changed, and every arc outside the pair block, meets the optimality
+    conditions; the flow changes keep every node balanced (the certified flow was)."""
+    n = net.n_nodes
+    if pot.ndim != 1 or len(pot) != n or (pot.size and pot.dtype.kind not in "iu"):
+        raise FlowCheckError(f"potentials must be a 1-D integer array of {n} entries")
+    pot = pot.astype(np.int64, copy=False)
+    old = base.network
+    block = net.pair_arcs
+    # One boolean pass per cause over the pair block (no sorting): flow, bounds, cost, potentials.
+    look = np.zeros(len(in_plan), dtype=bool)
+    look[base.used] = True
+    look ^= in_plan
+    moved = np.flatnonzero(look)
+    for new_values, old_values in (
+        (net.capacities, old.capacities),
+        (net.lower, old.lower),
+        (net.costs, old.costs),
+    ):
+        if new_values is not old_values:
+            look |= new_values[block] != old_values[block]
+    shifted = pot != base.potentials
+    if shifted.any():
+        look |= shifted[net.tails[block]]
+        look |= shifted[net.heads[block]]
+    pairs = np.flatnonzero(look)
+    sides = _side_arcs(net)
+    arcs = np.concatenate([pairs + block.start, sides])
+    flow = np.concatenate([in_plan[pairs].astype(np.int64), side])
+    t, h = net.tails[arcs].astype(np.int64), net.heads[arcs].astype(np.int64)
+    upper, low = net.capacities[arcs], net.lower[arcs]
+    for what, bad in (("lower", flow < low), ("capacities", flow > upper)):
+        if bad.any():
+            k = int(np.argmax(bad))
+            bound = low[k] if what == "lower" else upper[k]
+            raise FlowCheckError(f"flow[{arcs[k]}] is {flow[k]} but {what}[{arcs[k]}] is {bound}")
+    # Conservation: the certified flow was balanced, so the changes must be.
+    delta_arcs = np.concatenate([moved + block.start, sides])
+    delta = np.concatenate(
+        [np.where(in_plan[moved], 1, -1).astype(np.int64), side - base.side_flow]
+    )
+    balance = np.bincount(net.tails[delta_arcs], weights=delta, minlength=n) - np.bincount(
+        net.heads[delta_arcs], weights=delta, minlength=n
+    )
+    if balance.any():
+        v = int(np.flatnonzero(balance)[0])
+        raise FlowCheckError(f"node {v}: out - in is {int(balance[v])} but its supply is 0")
+    reduced = net.costs[arcs] + pot[t] - pot[h]
+    rise = (flow < upper) & (reduced < 0)
+    if rise.any():
+        k = int(np.argmax(rise))
+        raise FlowCheckError(
+            f"edge {arcs[k]} ({t[k]} -> {h[k]}) has flow {flow[k]} below capacity {upper[k]} "
+            f"but reduced cost {reduced[k]} < 0: more flow there would cost less"
+        )
+    fall = (flow > low) & (reduced > 0)
+    if fall.any():
+        k = int(np.argmax(fall))
+        raise FlowCheckError(
+            f"edge {arcs[k]} ({t[k]} -> {h[k]}) has flow {flow[k]} above lower bound {low[k]} "
+            f"but reduced cost {reduced[k]} > 0: less flow there would cost less"
+        )
 
 
 def _fill_units(
@@ -392,30 +561,43 @@ def _fill_units(
 def arc_flows(net: PlanNetwork, pair_flow: np.ndarray) -> np.ndarray:
     """Every arc's flow implied by the pair arcs' flows alone (each tiered block filled in its
     cost order), so the certificate is checked on a flow the engine did not produce."""
-    flow = np.zeros(len(net.tails), dtype=np.int64)
-    flow[net.pair_arcs] = pair_flow
-    used = pair_flow > 0
+    pair_flow = np.asarray(pair_flow, dtype=np.int64)
+    return _whole_flow(net, pair_flow, _side_flows(net, np.flatnonzero(pair_flow > 0)))
+
+
+def _side_flows(net: PlanNetwork, used: np.ndarray) -> np.ndarray:
+    """The flow on every arc outside the pair block (in arc order) implied by the pairs `used`
+    (pair positions, each carrying one unit)."""
+    block = net.pair_arcs
+    flow = np.zeros(len(net.tails) - (block.stop - block.start), dtype=np.int64)
+
+    def at(arcs: slice | int) -> slice | int:
+        # Arc positions past the pair block move back by its length.
+        if isinstance(arcs, int):
+            return arcs if arcs < block.start else arcs - (block.stop - block.start)
+        shift = 0 if arcs.start < block.start else block.stop - block.start
+        return slice(arcs.start - shift, arcs.stop - shift)
+
     loads = np.bincount(net.pair_reviewer[used], minlength=net.n_reviewers).astype(np.int64)
     counts = np.bincount(net.pair_paper[used], minlength=net.n_papers).astype(np.int64)
     floor_flow, left = _fill_units(net.floor_arc_reviewer, net.capacities[net.floor_arcs], loads)
-    flow[net.floor_arcs] = floor_flow
-    flow[net.rest_arcs], over = _fill_units(
+    flow[at(net.floor_arcs)] = floor_flow
+    flow[at(net.rest_arcs)], over = _fill_units(
         net.rest_arc_reviewer, net.capacities[net.rest_arcs], left
     )
-    flow[net.overload_arcs] = over[net.overload_reviewers]
-    required_cap = net.capacities[net.required_arcs]
-    flow[net.required_arcs] = np.minimum(counts, required_cap)
-    flow[net.extra_arcs] = counts - flow[net.required_arcs]
-    flow[net.return_arc] = int(counts.sum())
-    in_senior = used & (net.pair_senior >= 0)
-    seniors = np.bincount(net.pair_senior[in_senior], minlength=len(net.senior_paper)).astype(
-        np.int64
-    )
-    flow[net.senior_required_arcs] = np.minimum(seniors, net.senior_need)
-    flow[net.senior_rest_arcs] = seniors - flow[net.senior_required_arcs]
-    in_group = used & (net.pair_group >= 0)
-    flow[net.group_arcs] = np.bincount(
-        net.pair_group[in_group], minlength=len(net.group_paper)
+    flow[at(net.overload_arcs)] = over[net.overload_reviewers]
+    required = np.minimum(counts, net.capacities[net.required_arcs])
+    flow[at(net.required_arcs)] = required
+    flow[at(net.extra_arcs)] = counts - required
+    flow[at(net.return_arc)] = int(counts.sum())
+    senior = net.pair_senior[used]
+    seniors = np.bincount(senior[senior >= 0], minlength=len(net.senior_paper)).astype(np.int64)
+    senior_required = np.minimum(seniors, net.senior_need)
+    flow[at(net.senior_required_arcs)] = senior_required
+    flow[at(net.senior_rest_arcs)] = seniors - senior_required
+    group = net.pair_group[used]
+    flow[at(net.group_arcs)] = np.bincount(
+        group[group >= 0], minlength=len(net.group_paper)
     ).astype(np.int64)
     return flow
 

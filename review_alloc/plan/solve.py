@@ -36,7 +36,7 @@ from review_alloc.flow import (
 )
 from review_alloc.model import Plan, Session
 from review_alloc.plan.assemble import PlanRows, assemble_rows
-from review_alloc.plan.checker import check_plan
+from review_alloc.plan.checker import CheckState, check_plan
 from review_alloc.plan.conflicts import ConflictSet, conflict_pairs
 from review_alloc.plan.errors import PlanInputError
 from review_alloc.plan.exact import EXACT_TIERS, ExactResult, exact_tiers, solve_exact
@@ -97,6 +97,9 @@ class PlanOutcome:
     checked_conflicts: ConflictSet | None = None
     """The conflict set the checker derived for `planned`, reused by the next check when the
     changes since leave every conflict input alone."""
+    check_state: CheckState | None = None
+    """What the check of this outcome established, so that the next check of a re-plan on a
+    patched `network` certifies only what changed."""
     kept: _KeptSlot = field(default_factory=_KeptSlot, repr=False, compare=False)
     """The optimum as a `flow.KeptFlow` (see `kept_flow`): a patched re-plan re-solves from it."""
 
@@ -593,8 +596,13 @@ def make_plan(
     reuse_conflicts = None
     if patched is not None and patched[2].change.conflicts_same and warm is not None:
         reuse_conflicts = warm.checked_conflicts
-    checked_conflicts = check_plan(
-        session, plan, result.potentials, network=net, conflicts=reuse_conflicts
+    check_state = check_plan(
+        session,
+        plan,
+        result.potentials,
+        network=net,
+        conflicts=reuse_conflicts,
+        base=warm.check_state if patched is not None and warm is not None else None,
     )
     before = None
     if session.policy.balance > 0:
@@ -627,6 +635,7 @@ def make_plan(
         planned=session,
         rows=rows,
         patched=patched is not None,
-        checked_conflicts=checked_conflicts,
+        checked_conflicts=check_state.conflicts,
+        check_state=check_state,
         kept=_KeptSlot(state),
     )
