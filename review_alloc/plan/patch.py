@@ -273,7 +273,6 @@ def patched_network(
     conflicts: ConflictSet = old.conflicts if change.conflicts_same else conflict_pairs(new)
     rules = PairRules(new, conflicts)
     rules.check_pins()
-    pair_block = np.arange(old.pair_arcs.start, old.pair_arcs.stop, dtype=np.int64)
     look = [_reviewer_arcs(old, gone_r)]
     if len(gone_p):
         look.append(np.flatnonzero(np.isin(old.pair_paper, gone_p, kind="table")))
@@ -315,8 +314,9 @@ def patched_network(
         )
         arc_keys = pair_keys(r, p, n_p)
         pinned = positions_in(arc_keys, pinned_keys)[0] & allowed
-        capacities[pair_block[arcs]] = allowed.astype(np.int64)
-        lower[pair_block[arcs]] = pinned.astype(np.int64)
+        # Pair arc k is network arc pair_arcs.start + k (the pair block is one slice).
+        capacities[old.pair_arcs.start + arcs] = allowed.astype(np.int64)
+        lower[old.pair_arcs.start + arcs] = pinned.astype(np.int64)
         pair_pinned[arcs] = pinned
 
     arrays = _arrays_for(old_session, new, change)
