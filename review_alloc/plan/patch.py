@@ -6,7 +6,10 @@ keeps the earlier network's arc topology: pair arcs that became forbidden get ca
 instead of leaving, changed keep bonuses change pair costs, and changed demands change the
 capacities of the source, paper and senior arcs. Only the arcs of what changed are looked at,
 plus a few vectorised passes, and the earlier flow and potentials stay valid as a start
-without any matching of two networks.
+without any matching of two networks. The per-entity arrays (demands, overload allowances,
+seniors wanted) of the session last patched to are kept, so that the next patch from it reads
+again only the entities that changed (`changed_arrays`); the pair keys of all arcs are worked
+out only where a changed conflict, pin or block or another earlier plan needs them.
 
 Where the change is anything else (new or removed entities, a policy change, another score
 table, an entity's attributes beyond the fields above, a reinstatement, a pair that becomes
@@ -115,6 +118,78 @@ def session_change(old: Session, new: Session) -> SessionChange | None:
     return SessionChange(reviewers, papers, tuple(sorted(pairs)), conflicts_same)
 
 
+@dataclass(frozen=True, eq=False)
+class SessionArrays:
+    """The per-entity arrays a patch reads from a session: `active_demands`, the overload
+    allowances and the seniors wanted per paper."""
+
+    reviews: np.ndarray
+    minimum: np.ndarray
+    cap: np.ndarray
+    floor: np.ndarray
+    allowance: np.ndarray
+    need: np.ndarray
+
+    def __post_init__(self) -> None:
+        # Shared with the next patch through `_LAST_ARRAYS`: nobody may write into them.
+        for array in (
+            self.reviews, self.minimum, self.cap, self.floor, self.allowance, self.need
+        ):
+            array.flags.writeable = False
+
+
+def session_arrays(session: Session) -> SessionArrays:
+    """The arrays of `session`, each by its own vectorised pass over the entities."""
+    reviews, minimum, cap, floor = active_demands(session)
+    return SessionArrays(
+        reviews, minimum, cap, floor, overload_allowances(session), paper_senior_need(session)
+    )
+
+
+def changed_arrays(old: SessionArrays, new: Session, change: SessionChange) -> SessionArrays:
+    """`session_arrays(new)` from `old` (those of the session `change` was taken from): only
+    the entities the change names are read again; the policy is the same, so no other
+    entity's values moved."""
+    policy = new.policy
+    reviews, minimum = old.reviews.copy(), old.minimum.copy()
+    cap, floor = old.cap.copy(), old.floor.copy()
+    allowance, need = old.allowance.copy(), old.need.copy()
+    for j in change.reviewers.tolist():
+        r = new.reviewers[j]
+        if r.withdrawn:
+            cap[j] = floor[j] = allowance[j] = 0
+        else:
+            cap[j], floor[j] = new.reviewer_cap(j), new.reviewer_floor(j)
+            allowance[j] = policy.overload_allowance if r.overload is None else r.overload
+    for i in change.papers.tolist():
+        p = new.papers[i]
+        if p.withdrawn:
+            reviews[i] = minimum[i] = need[i] = 0
+        else:
+            reviews[i], minimum[i] = new.paper_reviews(i), new.paper_min_reviews(i)
+            own = policy.senior_min if p.senior_min is None else p.senior_min
+            need[i] = min(own, reviews[i])
+    return SessionArrays(reviews, minimum, cap, floor, allowance, need)
+
+
+_LAST_ARRAYS: tuple[Session, SessionArrays] | None = None
+"""The arrays of the session the last patch was for: the next re-plan's earlier session is
+usually that one, so its patch reads only what changed since. Replaced whole (one reference
+assignment), so a thread reading it sees one session's arrays or another's, never a mix."""
+
+
+def _arrays_for(old_session: Session, new: Session, change: SessionChange) -> SessionArrays:
+    """`session_arrays(new)`: updated from the earlier session's when they are at hand."""
+    global _LAST_ARRAYS
+    last = _LAST_ARRAYS
+    if last is not None and last[0] is old_session:
+        arrays = changed_arrays(last[1], new, change)
+    else:
+        arrays = session_arrays(new)
+    _LAST_ARRAYS = (new, arrays)
+    return arrays
+
+
 @dataclass(frozen=True)
 class NetworkPatch:
     """A network derived from an earlier one, and the arcs whose bounds or costs changed."""
@@ -198,12 +273,12 @@ def patched_network(
     conflicts: ConflictSet = old.conflicts if change.conflicts_same else conflict_pairs(new)
     rules = PairRules(new, conflicts)
     rules.check_pins()
-    keys = network_pair_keys(old)
-    pair_block = np.arange(old.pair_arcs.start, old.pair_arcs.stop, dtype=np.int64)
     look = [_reviewer_arcs(old, gone_r)]
     if len(gone_p):
         look.append(np.flatnonzero(np.isin(old.pair_paper, gone_p, kind="table")))
+    keys = network_pair_keys(old) if change.pairs else None
     if change.pairs:
+        assert keys is not None
         r_at, p_at = new.reviewer_index(), new.paper_index()
         named = [(r_at[r], p_at[p]) for r, p in change.pairs if r in r_at and p in p_at]
         if named:
@@ -217,10 +292,13 @@ def patched_network(
     arcs = np.unique(np.concatenate(look)) if look else np.zeros(0, np.int64)
 
     capacities = old.capacities.copy()
-    lower = old.lower.copy()
-    costs = old.costs.copy()
-    pair_pinned = old.pair_pinned.copy()
+    # The lower bounds, costs and pin flags are copied only where they may change (the arcs
+    # looked at, the hard senior rule, a keep tier), and compared only when copied.
+    lower, costs, pair_pinned = old.lower, old.costs, old.pair_pinned
+    if len(arcs) or old.senior_hard:
+        lower = lower.copy()
     if len(arcs):
+        pair_pinned = pair_pinned.copy()
         r, p = old.pair_reviewer[arcs], old.pair_paper[arcs]
         allowed = ~rules.forbidden(r, p)
         pin_rows = [(x.reviewer, x.paper) for x in new.pins]
@@ -234,14 +312,17 @@ def patched_network(
                 dtype=np.int64,
             )
         )
-        pinned = positions_in(keys[arcs], pinned_keys)[0] & allowed
-        capacities[pair_block[arcs]] = allowed.astype(np.int64)
-        lower[pair_block[arcs]] = pinned.astype(np.int64)
+        arc_keys = pair_keys(r, p, n_p)
+        pinned = positions_in(arc_keys, pinned_keys)[0] & allowed
+        # Pair arc k is network arc pair_arcs.start + k (the pair block is one slice).
+        capacities[old.pair_arcs.start + arcs] = allowed.astype(np.int64)
+        lower[old.pair_arcs.start + arcs] = pinned.astype(np.int64)
         pair_pinned[arcs] = pinned
 
-    demands = active_demands(new)
+    arrays = _arrays_for(old_session, new, change)
+    demands = arrays.reviews, arrays.minimum, arrays.cap, arrays.floor
     reviews, minimum, cap, floor = demands
-    allowance = overload_allowances(new)
+    allowance = arrays.allowance
     over = np.flatnonzero(allowance > 0)
     if not np.isin(over, old.overload_reviewers).all() or (len(over) > 0) != (
         len(old.overload_reviewers) > 0
@@ -255,7 +336,7 @@ def patched_network(
     capacities[old.return_arc] = total
     capacities[old.overload_arcs] = allowance[old.overload_reviewers]
 
-    need_all = paper_senior_need(new)
+    need_all = arrays.need
     if not np.isin(np.flatnonzero(need_all > 0), old.senior_paper).all():
         return None
     need = need_all[old.senior_paper]
@@ -269,17 +350,23 @@ def patched_network(
         if old_plan is not None and old_flow is not None and _same_rows(earlier, old_plan):
             kept = old_flow[old.pair_arcs] > 0
         else:
-            kept = kept_pairs(new, earlier, keys, n_p)
+            kept = kept_pairs(
+                new, earlier, network_pair_keys(old) if keys is None else keys, n_p
+            )
         kept &= capacities[old.pair_arcs] > 0
         assert old.kept is not None
         gained = kept.astype(np.int64) - old.kept.astype(np.int64)
+        costs = costs.copy()
         costs[old.pair_arcs] -= old.keep_weight * gained
     if not _same_weights(old, new, capacities, cap, total, keep=kept is not None):
         return None
 
-    changed = np.flatnonzero(
-        (capacities != old.capacities) | (lower != old.lower) | (costs != old.costs)
-    )
+    moved = capacities != old.capacities
+    if lower is not old.lower:
+        moved |= lower != old.lower
+    if costs is not old.costs:
+        moved |= costs != old.costs
+    changed = np.flatnonzero(moved)
     net = replace(
         old,
         capacities=capacities,

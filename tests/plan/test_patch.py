@@ -11,6 +11,7 @@ import numpy as np
 import pytest
 from ortools.graph.python import min_cost_flow as ortools_mcf
 
+import review_alloc.plan.patch as patch_module
 from review_alloc.model import Policy, Session
 from review_alloc.plan import check_plan, make_plan
 from review_alloc.plan.errors import PlanCheckError, PlanInputError
@@ -271,3 +272,83 @@ def test_a_warm_start_from_a_patched_outcome_maps_onto_a_built_network() -> None
     assert not third.patched
     assert third.tiers == make_plan(grown, fresh=True).tiers
     assert isinstance(third, PlanOutcome)
+
+
+def _arrays_equal(a: patch_module.SessionArrays, b: patch_module.SessionArrays) -> bool:
+    return all(
+        np.array_equal(getattr(a, name), getattr(b, name))
+        for name in ("reviews", "minimum", "cap", "floor", "allowance", "need")
+    )
+
+
+def test_changed_arrays_read_only_the_changed_entities_and_match_a_full_pass() -> None:
+    session = _rules_session(4)
+    rng = np.random.default_rng(31)
+    for _ in range(200):
+        j = int(rng.integers(len(session.reviewers)))
+        i = int(rng.integers(len(session.papers)))
+        r_update: dict[str, object] = {
+            "cap": int(rng.integers(0, 4)) if rng.random() < 0.5 else None,
+            "floor": int(rng.integers(0, 2)) if rng.random() < 0.5 else None,
+            "overload": int(rng.integers(0, 3)) if rng.random() < 0.5 else None,
+            "withdrawn": bool(rng.random() < 0.3),
+        }
+        p_update: dict[str, object] = {
+            "reviews": int(rng.integers(1, 5)) if rng.random() < 0.5 else None,
+            "min_reviews": 1 if rng.random() < 0.5 else None,
+            "senior_min": int(rng.integers(0, 5)) if rng.random() < 0.5 else None,
+            "withdrawn": bool(rng.random() < 0.3),
+        }
+        reviewers = list(session.reviewers)
+        reviewers[j] = reviewers[j].model_copy(update=r_update)
+        papers = list(session.papers)
+        papers[i] = papers[i].model_copy(update=p_update)
+        after = session.model_copy(update={"reviewers": reviewers, "papers": papers})
+        change = session_change(session, after)
+        assert change is not None
+        updated = patch_module.changed_arrays(patch_module.session_arrays(session), after, change)
+        assert _arrays_equal(updated, patch_module.session_arrays(after))
+        session = after
+
+
+def test_a_chain_of_patched_replans_updates_the_kept_arrays(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    # Each re-plan's earlier session is the one the last patch was for, so its arrays are
+    # updated from the kept ones; they must equal a full pass over the new session.
+    calls: list[int] = []
+    original = patch_module.changed_arrays
+
+    def spy(*args: object) -> patch_module.SessionArrays:
+        calls.append(1)
+        return original(*args)  # type: ignore[arg-type]
+
+    monkeypatch.setattr(patch_module, "changed_arrays", spy)
+    for seed in range(6):
+        rng = np.random.default_rng(400 + seed)
+        ws = Workspace(_rules_session(seed) if seed % 2 else random_session(410 + seed))
+        ws.solve()
+        for _ in range(4):
+            _change(ws, rng)
+            try:
+                outcome = ws.solve()
+            except PlanInputError:
+                break
+            last = patch_module._LAST_ARRAYS
+            if outcome.patched:
+                assert last is not None and last[0] is outcome.planned
+            if last is not None and last[0] is outcome.planned:
+                assert _arrays_equal(last[1], patch_module.session_arrays(outcome.planned))
+    assert calls
+
+
+def test_arrays_kept_for_another_session_are_not_used() -> None:
+    session = random_session(72, unscored="exclude")
+    other = random_session(73, unscored="exclude")
+    after = _withdrawn(session, 2)
+    change = session_change(session, after)
+    assert change is not None
+    patch_module._LAST_ARRAYS = (other, patch_module.session_arrays(other))
+    arrays = patch_module._arrays_for(session, after, change)
+    assert _arrays_equal(arrays, patch_module.session_arrays(after))
+    assert patch_module._LAST_ARRAYS is not None and patch_module._LAST_ARRAYS[0] is after
