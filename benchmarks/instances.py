@@ -21,7 +21,9 @@ run on another machine solves the same instances.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
@@ -243,3 +245,19 @@ def withdrawal(inst: Instance, share: float = 0.01, seed: int = 5) -> np.ndarray
     rng = np.random.default_rng(seed)
     count = max(1, int(round(share * inst.n_reviewers)))
     return np.sort(rng.choice(inst.n_reviewers, count, replace=False))
+
+
+def replan_case(inst: Instance, plan: Callable[[Session], Any], fresh: Any) -> tuple[Any, Session]:
+    """A re-plan as the app makes it: (the earlier re-plan's outcome, the session to re-plan).
+
+    The earlier re-plan followed one withdrawal and kept the pairs of `fresh` (an outcome of
+    `plan` on the whole instance), so the tier keeping earlier pairs is on in both; the session
+    to re-plan has 1 % of the reviewers withdrawn as well and holds the earlier re-plan's plan.
+    """
+    gone = withdrawal(inst)
+    first_gone = np.setdiff1d(np.arange(inst.n_reviewers), gone)[:1]
+    earlier = plan(make_session(inst, withdrawn=first_gone).model_copy(update={"plan": fresh.plan}))
+    after = make_session(inst, withdrawn=np.union1d(first_gone, gone)).model_copy(
+        update={"plan": earlier.plan}
+    )
+    return earlier, after

@@ -30,14 +30,12 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
-import numpy as np
-
 HERE = Path(__file__).resolve().parent
 ROOT = HERE.parent
 sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(HERE))
 
-from instances import make_instance, make_session, withdrawal  # noqa: E402
+from instances import make_instance, make_session, replan_case  # noqa: E402
 
 from review_alloc.flow import warm_up  # noqa: E402
 from review_alloc.plan import make_plan  # noqa: E402
@@ -89,15 +87,7 @@ def breakdown(run: Callable[[], Any]) -> list[str]:
 def family_rows(family: str, size: str, repeats: int) -> list[str]:
     """Cold plan, today's warm re-plan and the patched re-plan after 1 % withdraw."""
     inst = make_instance(family, size)
-    outcome = make_plan(make_session(inst))
-    gone = withdrawal(inst)
-    first_gone = np.setdiff1d(np.arange(inst.n_reviewers), gone)[:1]
-    earlier = make_plan(
-        make_session(inst, withdrawn=first_gone).model_copy(update={"plan": outcome.plan})
-    )
-    after = make_session(inst, withdrawn=np.union1d(first_gone, gone)).model_copy(
-        update={"plan": earlier.plan}
-    )
+    earlier, after = replan_case(inst, make_plan, make_plan(make_session(inst)))
     # The workspace builds the earlier plan's kept residual state in a worker thread once that
     # plan is shown (`workspace.planning.ready_for_replan`); timed apart, it is not part of
     # the re-plan the chair waits for.

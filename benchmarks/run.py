@@ -46,7 +46,7 @@ from instances import (  # noqa: E402
     make_instance,
     make_session,
     max_flow_arrays,
-    withdrawal,
+    replan_case,
 )
 
 from review_alloc.flow import max_flow, min_cost_flow, warm_up  # noqa: E402
@@ -284,7 +284,7 @@ def bench_commands(inst: Instance, repeats: int) -> tuple[float, float]:
              "--scores", str(scores), "--unscored", "exclude", "--reviews", str(REVIEWS),
              "--min-reviews", str(MIN_REVIEWS), "--force", "-o", str(session)],
             [*cli, "plan", str(session)],
-            [*cli, "export", str(session), "--to", str(ours_csv)],
+            [*cli, "export", str(session), "--to", str(ours_csv), "--force"],
         ]
         reference = [sys.executable, "-c", _ORTOOLS_CSV_PIPELINE, str(papers), str(reviewers),
                      str(scores), str(ref_csv), str(REVIEWS), str(MIN_REVIEWS)]
@@ -360,17 +360,9 @@ def bench_instance(family: str, size: str, repeats: int) -> list[dict[str, Any]]
     ours_t, ref_t = bench_commands(inst, repeats)
     row("CSV -> plan -> CSV", ours_t, "OR-Tools script", ref_t)
 
-    # A re-plan as the app makes it: the session holds the plan of an earlier re-plan (so the
-    # tier keeping earlier pairs is on in both), and the outcome of that re-plan is the warm
-    # start. The earlier re-plan followed one withdrawal; the measured one withdraws 1 %.
-    gone = withdrawal(inst)
-    first_gone = np.setdiff1d(np.arange(inst.n_reviewers), gone)[:1]
-    earlier = make_plan(
-        make_session(inst, withdrawn=first_gone).model_copy(update={"plan": outcome.plan})
-    )
-    after = make_session(inst, withdrawn=np.union1d(first_gone, gone)).model_copy(
-        update={"plan": earlier.plan}
-    )
+    # A re-plan as the app makes it (see `replan_case`); the earlier re-plan's outcome is the
+    # warm start.
+    earlier, after = replan_case(inst, make_plan, outcome)
     outcome = earlier
     cold_t, cold = median_time(lambda: make_plan(after), repeats)
     warm_t, warm = median_time(lambda: make_plan(after, warm=outcome), repeats)
