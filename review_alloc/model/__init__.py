@@ -7,8 +7,9 @@ pydantic model and no numpy, so the command line's help and usage errors start f
 
 from __future__ import annotations
 
-import importlib
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
+
+from review_alloc._lazy import lazy_names
 
 if TYPE_CHECKING:
     from review_alloc.model.entities import Conflict, PairRule, Paper, Reviewer
@@ -76,20 +77,7 @@ _WHERE: dict[str, tuple[str, str]] = {
 }
 
 
-def __getattr__(name: str) -> Any:
-    """A public name, from the module that holds it (imported on first use, then kept)."""
-    try:
-        module, attribute = _WHERE[name]
-    except KeyError:
-        raise AttributeError(f"module {__name__!r} has no attribute {name!r}") from None
-    value = getattr(importlib.import_module(f"{__name__}.{module}"), attribute)
-    globals()[name] = value
-    return value
-
-
-def __dir__() -> list[str]:
-    """The public names with the module's own."""
-    return sorted({*globals(), *_WHERE})
+__getattr__, __dir__ = lazy_names(__name__, _WHERE, globals(), _WHERE)
 
 
 __all__ = [

@@ -7,8 +7,9 @@ the solver (numba) or scipy.
 
 from __future__ import annotations
 
-from importlib import import_module
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
+
+from review_alloc._lazy import lazy_names
 
 if TYPE_CHECKING:
     from review_alloc.plan.checker import check_plan
@@ -57,17 +58,6 @@ __all__ = [
 ]
 
 
-def __getattr__(name: str) -> Any:
-    """Load a public name from its module on first access (PEP 562)."""
-    home = _HOMES.get(name)
-    if home is None:
-        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
-    value = getattr(import_module(f"{__name__}.{home}"), name)
-    # Later lookups find the name directly and no longer come through here.
-    globals()[name] = value
-    return value
-
-
-def __dir__() -> list[str]:
-    """The module's names, public ones included before they are first loaded."""
-    return sorted(set(globals()) | set(__all__))
+__getattr__, __dir__ = lazy_names(
+    __name__, {name: (home, name) for name, home in _HOMES.items()}, globals(), __all__
+)
