@@ -38,6 +38,8 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING
 
+from results_md import write_section
+
 if TYPE_CHECKING:
     from textual.app import App
 
@@ -250,17 +252,7 @@ def table(opened: float, steps: list[Step]) -> list[str]:
 
 def write_results(lines: list[str]) -> None:
     """Replace (or add) this benchmark's section of RESULTS.md."""
-    results = HERE / "RESULTS.md"
-    text = results.read_text(encoding="utf-8")
-    body = "\n".join([SECTION, "", *lines, ""])
-    if SECTION in text:
-        head, rest = text.split(SECTION, 1)
-        tail = rest.split("\n## ", 1)
-        text = head + body + ("\n## " + tail[1] if len(tail) > 1 else "")
-    else:
-        text = text.rstrip("\n") + "\n\n" + body
-    results.write_text(text, encoding="utf-8")
-
+    write_section(SECTION, "\n".join(lines))
 
 def main() -> None:
     """Plan a copy of the sample if needed, run the app headless and print the times."""

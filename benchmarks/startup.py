@@ -29,6 +29,8 @@ import time
 from datetime import UTC, datetime
 from pathlib import Path
 
+from results_md import write_section
+
 HERE = Path(__file__).resolve().parent
 ROOT = HERE.parent
 WORKSHOP = ROOT / "sample_sessions" / "workshop.json"
@@ -171,16 +173,6 @@ def section(small: dict[str, tuple[float, float]], plans: list[dict[str, float]]
     return "\n".join(lines) + "\n"
 
 
-def write_section(text: str) -> None:
-    """Put the section into RESULTS.md, replacing an earlier one of this script."""
-    path = HERE / "RESULTS.md"
-    old = path.read_text()
-    if SECTION in old:
-        before, _, rest = old.partition(SECTION)
-        after = rest.find("\n## ")
-        old = before + (rest[after + 1 :] if after >= 0 else "")
-    path.write_text(old.rstrip("\n") + "\n\n" + text)
-
 
 def main() -> None:
     """Time both parts, print them, and write them into RESULTS.md when asked."""
@@ -198,7 +190,7 @@ def main() -> None:
     text = section(small, plans)
     print(text)
     if args.write_results:
-        write_section(text)
+        write_section(SECTION, text.removeprefix(SECTION))
 
 
 if __name__ == "__main__":

@@ -31,6 +31,7 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+from results_md import write_section
 
 HERE = Path(__file__).resolve().parent
 ROOT = HERE.parent
@@ -204,16 +205,6 @@ def section(papers: int, reviewers: int, top: int, results: list[dict[str, Any]]
     return "\n".join(lines) + "\n"
 
 
-def write_section(text: str) -> None:
-    """Put the section into RESULTS.md, replacing an earlier one of this script."""
-    path = HERE / "RESULTS.md"
-    old = path.read_text()
-    if SECTION in old:
-        before, _, rest = old.partition(SECTION)
-        after = rest.find("\n## ")
-        old = before + (rest[after + 1 :] if after >= 0 else "")
-    path.write_text(old.rstrip("\n") + "\n\n" + text)
-
 
 def main() -> None:
     """Run both steps, print the table, and write it into RESULTS.md when asked."""
@@ -233,7 +224,7 @@ def main() -> None:
     text = section(args.papers, args.reviewers, args.top, results)
     print(text)
     if args.write_results:
-        write_section(text)
+        write_section(SECTION, text.removeprefix(SECTION))
 
 
 if __name__ == "__main__":
