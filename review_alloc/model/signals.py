@@ -23,11 +23,12 @@ case), or a number from 0 to 4.
 
 from __future__ import annotations
 
-from typing import Annotated
+from typing import Annotated, Literal
 
 from pydantic import AfterValidator, Field
 
-from review_alloc.model.base import DocumentModel
+from review_alloc.model.base import DocumentModel, Identifier
+from review_alloc.model.limits import MAX_SCORE
 from review_alloc.model.scores import ScoreTable
 from review_alloc.model.text import free_text
 
@@ -98,9 +99,22 @@ class ScoreRecipe(DocumentModel):
         }
 
 
+class SetAsideRow(DocumentModel):
+    """A signal row of a reviewer or paper an undo took out of the lists, kept by id so that a
+    redo gives it back (the tables refer to lists by position, which the undo shortened)."""
+
+    table: Literal["expertise", "bids"]
+    reviewer: Identifier
+    paper: Identifier
+    value: float = Field(ge=0, le=MAX_SCORE, allow_inf_nan=False)
+
+
 class Signals(DocumentModel):
     """The signals a recipe combines that are not stored on papers and reviewers: the scores
     file as given, and the bids (levels 0 to 4)."""
 
     expertise: ScoreTable = Field(default_factory=ScoreTable.empty)
     bids: ScoreTable = Field(default_factory=ScoreTable.empty)
+    set_aside: list[SetAsideRow] = Field(default_factory=list)
+    """Rows of reviewers and papers the last undos took away; a redo that brings them back
+    gives their rows back, and any other change drops them (there is no redo after it)."""

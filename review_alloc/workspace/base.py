@@ -29,6 +29,7 @@ from review_alloc.model import (
     Signals,
 )
 from review_alloc.model.history import SessionData, rebase_root_scores
+from review_alloc.model.signals import SetAsideRow
 from review_alloc.plan.figures import assignment_indices, plan_figures
 from review_alloc.plan.rules import PairRules
 
@@ -195,9 +196,12 @@ class WorkspaceBase:
         self.session = self.session.model_copy(
             update={"events": [*self.session.events, event], "plan": plan, **fields}
         )
-        within = _signals_within_lists(self.session)
-        if within is not None:
-            self.session = self.session.model_copy(update={"signals": within})
+        signals = self.session.signals
+        if action not in ("undo", "redo") and signals is not None and signals.set_aside:
+            # Any other change ends the chance to redo, and with it the rows kept for one.
+            self.session = self.session.model_copy(
+                update={"signals": signals.model_copy(update={"set_aside": []})}
+            )
         self.dirty = True
 
     def _recheck_stored_plan(self) -> None:
@@ -339,23 +343,50 @@ def _given_with_new_rows(before: Session, after: Session) -> Signals | None:
     return signals.model_copy(update={"expertise": expertise})
 
 
-def _signals_within_lists(session: Session) -> Signals | None:
-    """The signals without rows of reviewers or papers the lists no longer hold (an undo past
-    an added reviewer or paper takes it away again); None when every row is within them."""
-    signals = session.signals
+def signals_between(before: Session, after: Session) -> Signals | None:
+    """`after`'s signals when an undo or redo changed the lists from `before`'s: rows of
+    reviewers or papers the lists no longer hold are set aside by id, and rows set aside
+    earlier whose reviewer and paper are back return at their new positions."""
+    signals = before.signals
     if signals is None:
         return None
-    n_reviewers, n_papers = len(session.reviewers), len(session.papers)
-    tables = {"expertise": signals.expertise, "bids": signals.bids}
-    keep = {
-        name: (t.reviewer < n_reviewers) & (t.paper < n_papers) for name, t in tables.items()
-    }
-    if all(k.all() for k in keep.values()):
-        return None
-    return signals.model_copy(
-        update={
-            name: ScoreTable.from_arrays(t.reviewer[keep[name]], t.paper[keep[name]],
-                                         t.value[keep[name]])
-            for name, t in tables.items()
-        }
-    )
+    old_reviewers = [r.id for r in before.reviewers]
+    old_papers = [p.id for p in before.papers]
+    reviewer_at = after.reviewer_index()
+    paper_at = after.paper_index()
+    # Positions of the old lists in the new ones (-1: gone); ids are unique within a list.
+    reviewer_map = np.array([reviewer_at.get(i, -1) for i in old_reviewers] or [0], np.int64)
+    paper_map = np.array([paper_at.get(i, -1) for i in old_papers] or [0], np.int64)
+    set_aside = list(signals.set_aside)
+    tables: dict[str, ScoreTable] = {}
+    for name in ("expertise", "bids"):
+        table: ScoreTable = getattr(signals, name)
+        reviewer = reviewer_map[table.reviewer] if len(table) else table.reviewer
+        paper = paper_map[table.paper] if len(table) else table.paper
+        keep = (reviewer >= 0) & (paper >= 0)
+        for r, p, v in zip(
+            table.reviewer[~keep].tolist(), table.paper[~keep].tolist(),
+            table.value[~keep].tolist(), strict=True,
+        ):
+            set_aside.append(
+                SetAsideRow(table=name, reviewer=old_reviewers[r], paper=old_papers[p], value=v)
+            )
+        kept = set((reviewer[keep].astype(np.int64) << 32 | paper[keep]).tolist())
+        back = [
+            row for row in set_aside
+            if row.table == name and row.reviewer in reviewer_at and row.paper in paper_at
+            # A hand-edited file may set aside a pair the table holds: the table's row wins.
+            and (reviewer_at[row.reviewer] << 32 | paper_at[row.paper]) not in kept
+        ]
+        back_reviewer = np.array([reviewer_at[row.reviewer] for row in back], np.int64)
+        back_paper = np.array([paper_at[row.paper] for row in back], np.int64)
+        back_value = np.array([row.value for row in back], np.float64)
+        tables[name] = ScoreTable.from_arrays(
+            np.concatenate([reviewer[keep].astype(np.int64), back_reviewer]),
+            np.concatenate([paper[keep].astype(np.int64), back_paper]),
+            np.concatenate([table.value[keep], back_value]),
+        )
+    remaining = [
+        row for row in set_aside if row.reviewer not in reviewer_at or row.paper not in paper_at
+    ]
+    return signals.model_copy(update={**tables, "set_aside": remaining})

@@ -9,7 +9,7 @@ from review_alloc.model import Action, Plan
 from review_alloc.model.history import Revision, SessionData, rebase_root_scores, restore_data
 from review_alloc.model.plans import PlanFigures
 from review_alloc.plan.diff import NotifyRow, PlanDiff, diff_plans, notify_rows
-from review_alloc.workspace.base import ChangeRefused, WorkspaceBase, redoable
+from review_alloc.workspace.base import ChangeRefused, WorkspaceBase, redoable, signals_between
 
 
 @dataclass(frozen=True)
@@ -181,12 +181,13 @@ class HistoryMixin(WorkspaceBase):
         """Make revision `target` current with its plan and data, recorded as one event."""
         s = self.session
         data = self.data_of(target)
-        self.session = s.model_copy(
+        moved = s.model_copy(
             update={
                 **data.fields(),
                 "revisions": rebase_root_scores(s.revisions, s.scores, data.scores),
             }
         )
+        self.session = moved.model_copy(update={"signals": signals_between(s, moved)})
         self.plan_problems = []
         self._record(
             action,
@@ -196,6 +197,12 @@ class HistoryMixin(WorkspaceBase):
             plan=self.plan_of(target),
             revision=target,
         )
+        signals = self.session.signals
+        if signals is not None and signals.set_aside and self.redo_target() is None:
+            # An undo that only dropped unplanned changes has no redo to give rows back to.
+            self.session = self.session.model_copy(
+                update={"signals": signals.model_copy(update={"set_aside": []})}
+            )
 
     def diff_from_parent(self, number: int) -> PlanDiff:
         """What revision `number` changed against the revision it was planned from."""
