@@ -464,9 +464,9 @@ def max_flow_kernel(
 
     Takes zeroed `flow` (int64) and `carried` (bool) arrays with one entry per edge, an int32
     scratch `index` of shape (2, edges), an int64 scratch `in_arc` (one entry per edge) and a
-    zeroed int64 scratch `work` of shape (4, edges), all allocated by the caller (`work` is
+    zeroed int64 scratch `work` of shape (2, edges), all allocated by the caller (`work` is
     written only when the edges come in no order, so pages of an `np.zeros` that nothing writes
-    cost nothing; its row 3 is the sorted copy's flow). Returns (status, value, phases, source
+    cost nothing: the sorted copy's heads and capacities). Returns (status, value, phases, source
     side, sink side) and leaves the flow in `flow`, one entry per edge in the caller's order; a
     nonzero status is that of `scan_edges` and nothing was solved.
 
@@ -498,14 +498,24 @@ def max_flow_kernel(
             in_pos,
         )
         return 0, value, phases, source_side, sink_side
-    sort_by_tail_packed(n, tails, heads, caps, out_start, order, work[0], work[1], work[2])
-    solved = work[3]
+    sorted_heads, sorted_caps = work[0], work[1]
+    sort_by_tail_packed(n, tails, heads, caps, out_start, order, sorted_heads, sorted_caps)
+    # The sorted copy's flow goes into `flow` itself (one array less to fault in) ...
     value, phases, source_side, sink_side = _solve_by_tail(
-        n, work[1], work[2], out_start, in_start, source, sink, solved, carried,
+        n, sorted_heads, sorted_caps, out_start, in_start, source, sink, flow, carried,
         in_arc, in_pos,
     )
-    # `flow` is zero: only the few edges that carry flow are written back.
-    for p in range(order.size):
-        if solved[p] != 0:
-            flow[order[p]] = solved[p]
+    # ... and its few nonzero entries then move to the caller's edges, through two arrays the
+    # solve no longer needs.
+    positions, amounts = in_arc, sorted_heads
+    moved = 0
+    for p in range(flow.size):
+        f = flow[p]
+        if f != 0:
+            positions[moved] = p
+            amounts[moved] = f
+            flow[p] = 0
+            moved += 1
+    for i in range(moved):
+        flow[order[positions[i]]] = amounts[i]
     return 0, value, phases, source_side, sink_side
