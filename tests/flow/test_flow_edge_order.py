@@ -1,7 +1,8 @@
 """The same network with its edges listed in different orders gives the same optima.
 
 `max_flow` solves edges listed by tail as they are, edges listed by head as the reversed problem
-and any other order on a copy sorted by tail, mapping the flow back to the caller's edges;
+and any other order on a copy sorted by head, as the reversed problem too, mapping the flow back
+to the caller's edges;
 `min_cost_flow` builds its residual network by tail whatever the order. Every order must give
 the optimal value of the reference solvers, a valid flow in the caller's order (the engine's
 certificate checks, which read the caller's arrays), and the same two minimal cut sides (unique
