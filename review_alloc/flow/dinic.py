@@ -464,17 +464,20 @@ def max_flow_kernel(
 
     Takes zeroed `flow` (int64) and `carried` (bool) arrays with one entry per edge, an int32
     scratch `index` of shape (2, edges), an int64 scratch `in_arc` (one entry per edge) and a
-    zeroed int64 scratch `work` of shape (4, edges), all allocated by the caller (`work` is
+    zeroed int64 scratch `work` of shape (2, edges), all allocated by the caller (`work` is
     written only when the edges come in no order, so pages of an `np.zeros` that nothing writes
-    cost nothing; its row 3 is the sorted copy's flow). Returns (status, value, phases, source
+    cost nothing: the sorted copy's heads and capacities). Returns (status, value, phases, source
     side, sink side) and leaves the flow in `flow`, one entry per edge in the caller's order; a
     nonzero status is that of `scan_edges` and nothing was solved.
 
     The kernels want every node's leaving edges together in memory. Edges listed by tail are
     solved as they are; edges listed by head (a scores file lists pairs paper by paper) are
     solved as they are too, as the reversed problem (sink to source on the reversed edges: the
-    same flow per edge, the two cut sides swapped); any other order is counting-sorted by tail
-    first and the flow mapped back.
+    same flow per edge, the two cut sides swapped); any other order is counting-sorted by head
+    first, solved as the reversed problem too, and the flow mapped back. Sorted by tail instead,
+    the benchmark's shuffled instances solved 10-35 % slower on three of its four families (as
+    their reviewer-major lists do against paper-major ones); on random graphs neither
+    direction was faster.
     """
     in_pos, order = index[0], index[1]
     out_start = np.zeros(n + 1, dtype=np.int64)
@@ -498,14 +501,27 @@ def max_flow_kernel(
             in_pos,
         )
         return 0, value, phases, source_side, sink_side
-    sort_by_tail_packed(n, tails, heads, caps, out_start, order, work[0], work[1], work[2])
-    solved = work[3]
-    value, phases, source_side, sink_side = _solve_by_tail(
-        n, work[1], work[2], out_start, in_start, source, sink, solved, carried,
+    sorted_heads, sorted_caps = work[0], work[1]
+    # The reversed edges sorted by their tail (the caller's heads); their heads, the caller's
+    # tails, go to `sorted_heads`.
+    sort_by_tail_packed(n, heads, tails, caps, in_start, order, sorted_heads, sorted_caps)
+    # The sorted copy's flow goes into `flow` itself (one array less to fault in); in the
+    # reversed residual graph, what the sink reaches is what reaches it here.
+    value, phases, sink_side, source_side = _solve_by_tail(
+        n, sorted_heads, sorted_caps, in_start, out_start, sink, source, flow, carried,
         in_arc, in_pos,
     )
-    # `flow` is zero: only the few edges that carry flow are written back.
-    for p in range(order.size):
-        if solved[p] != 0:
-            flow[order[p]] = solved[p]
+    # The flow's few nonzero entries then move to the caller's edges, through two arrays the
+    # solve no longer needs.
+    positions, amounts = in_arc, sorted_heads
+    moved = 0
+    for p in range(flow.size):
+        f = flow[p]
+        if f != 0:
+            positions[moved] = p
+            amounts[moved] = f
+            flow[p] = 0
+            moved += 1
+    for i in range(moved):
+        flow[order[positions[i]]] = amounts[i]
     return 0, value, phases, source_side, sink_side

@@ -131,7 +131,7 @@ def _solve_without_lower(
         np.empty((2, m), dtype=np.int32),
         np.empty(m, dtype=np.int64),
         # Touched only for edges out of tail order: untouched pages of np.zeros cost nothing.
-        np.zeros((4, m), dtype=np.int64),
+        np.zeros((2, m), dtype=np.int64),
     )
     if status != 0:
         return None

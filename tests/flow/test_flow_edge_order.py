@@ -1,7 +1,8 @@
 """The same network with its edges listed in different orders gives the same optima.
 
 `max_flow` solves edges listed by tail as they are, edges listed by head as the reversed problem
-and any other order on a copy sorted by tail, mapping the flow back to the caller's edges;
+and any other order on a copy sorted by head, as the reversed problem too, mapping the flow back
+to the caller's edges;
 `min_cost_flow` builds its residual network by tail whatever the order. Every order must give
 the optimal value of the reference solvers, a valid flow in the caller's order (the engine's
 certificate checks, which read the caller's arrays), and the same two minimal cut sides (unique
@@ -79,13 +80,15 @@ def test_a_flow_on_a_sorted_copy_lands_on_the_callers_edges() -> None:
 
 @pytest.mark.parametrize("seed", range(12))
 def test_capacities_beyond_32_bits_survive_the_sorted_copy(seed: int) -> None:
-    # The sorted copy packs a capacity below 2**31 with its head into one word; larger ones
-    # take another way back. Mixed sizes, listed in no order (neither by tail nor by head).
+    # The sorted copy packs a capacity with its head and edge index into one word when it fits
+    # in the bits the ids leave (here below about 2**52); larger ones take another way back.
+    # Mixed sizes on both sides of that bound and of 2**31, listed in no order (neither by
+    # tail nor by head).
     rng = np.random.default_rng(4400 + seed)
     n = int(rng.integers(3, 14))
     tails, heads, caps = multigraph(rng, n, int(rng.integers(4, 50)), 9)
     big = rng.random(len(caps)) < 0.5
-    caps[big] = rng.integers(2**31 - 2, 2**45, int(big.sum()))
+    caps[big] = rng.integers(2**31 - 2, 2**55, int(big.sum()))
     order = np.random.default_rng(seed).permutation(len(tails))
     ot, oh, oc = tails[order], heads[order], caps[order]
     s, t = 0, n - 1
