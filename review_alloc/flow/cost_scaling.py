@@ -287,11 +287,12 @@ def cost_scaling_kernel(
                         if excess[u] == 0:
                             break
                         if v == u:
-                            # A loop's reverse arc is u's own: read the bitmap again at a.
-                            word = _word_from(live, a)
+                            # A loop's reverse arc is u's own: read the bitmap again (a's bit
+                            # kept set, for the clearing of the lowest bit below).
+                            word = _word_from(live, a) | (_ONE << np.uint64(a & 63))
                     elif pv - sc > best:
                         best = pv - sc
-                    a, w, word = _next_set(live, w, word & ~(_ONE << np.uint64(a & 63)), end)
+                    a, w, word = _next_set(live, w, word & (word - _ONE), end)
                 current[u] = a
                 if excess[u] > 0:
                     if full:
