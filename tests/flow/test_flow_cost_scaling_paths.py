@@ -268,3 +268,19 @@ def test_infeasible_supplies_are_reported_like_ortools(seed: int) -> None:
         assert check_cost_certificate(
             n, tails, heads, caps, costs, result.flow, result.potentials, supplies=supplies
         ) == reference
+
+
+@pytest.mark.parametrize("top", [2**30 + 5, 2**31 - 9, 2**33])
+def test_capacities_near_the_int32_limit(top: int) -> None:
+    rng = np.random.default_rng(top % 1000)
+    # Twice the largest capacity passes int32 in all three cases, so the pairwise sums decide
+    # whether the kernel's residuals can be int32 (they can in the first two).
+    n, tails, heads, caps, costs = assignment_circulation(rng, 8, 10, 3, 50)
+    caps = np.minimum(caps * (top // 4), top).astype(np.int64)
+    caps[0] = top
+    reference = ortools_cost(n, tails, heads, caps, costs)  # OR-Tools SimpleMinCostFlow
+    result = min_cost_flow(n, tails, heads, caps, costs)
+    assert result.cost == reference
+    assert check_cost_certificate(
+        n, tails, heads, caps, costs, result.flow, result.potentials
+    ) == reference
