@@ -7,9 +7,10 @@ instead of leaving, changed keep bonuses change pair costs, and changed demands 
 capacities of the source, paper and senior arcs. Only the arcs of what changed are looked at,
 plus a few vectorised passes, and the earlier flow and potentials stay valid as a start
 without any matching of two networks. The per-entity arrays (demands, overload allowances,
-seniors wanted) of the session last patched to are kept, so that the next patch from it reads
-again only the entities that changed (`changed_arrays`); the pair keys of all arcs are worked
-out only where a changed conflict, pin or block or another earlier plan needs them.
+seniors wanted) of the session planned on are kept with its outcome (`PlanOutcome.arrays`),
+so that the next patch from it reads again only the entities that changed (`changed_arrays`);
+the pair keys of all arcs are worked out only where a changed conflict, pin or block or
+another earlier plan needs them.
 
 Where the change is anything else (new or removed entities, a policy change, another score
 table, an entity's attributes beyond the fields above, a reinstatement, a pair that becomes
@@ -131,7 +132,7 @@ class SessionArrays:
     need: np.ndarray
 
     def __post_init__(self) -> None:
-        # Shared with the next patch through `_LAST_ARRAYS`: nobody may write into them.
+        # Kept with the outcome and shared with the next patch: nobody may write into them.
         for array in (
             self.reviews, self.minimum, self.cap, self.floor, self.allowance, self.need
         ):
@@ -172,22 +173,14 @@ def changed_arrays(old: SessionArrays, new: Session, change: SessionChange) -> S
     return SessionArrays(reviews, minimum, cap, floor, allowance, need)
 
 
-_LAST_ARRAYS: tuple[Session, SessionArrays] | None = None
-"""The arrays of the session the last patch was for: the next re-plan's earlier session is
-usually that one, so its patch reads only what changed since. Replaced whole (one reference
-assignment), so a thread reading it sees one session's arrays or another's, never a mix."""
-
-
-def _arrays_for(old_session: Session, new: Session, change: SessionChange) -> SessionArrays:
-    """`session_arrays(new)`: updated from the earlier session's when they are at hand."""
-    global _LAST_ARRAYS
-    last = _LAST_ARRAYS
-    if last is not None and last[0] is old_session:
-        arrays = changed_arrays(last[1], new, change)
-    else:
-        arrays = session_arrays(new)
-    _LAST_ARRAYS = (new, arrays)
-    return arrays
+def arrays_for(
+    old_session: Session, new: Session, change: SessionChange, old: SessionArrays | None
+) -> SessionArrays:
+    """`session_arrays(new)`: updated from `old` (the arrays of `old_session`, kept with the
+    outcome planned on it) when at hand, else by a full pass."""
+    if old is None:
+        return session_arrays(new)
+    return changed_arrays(old, new, change)
 
 
 @dataclass(frozen=True)
@@ -202,8 +195,14 @@ class NetworkPatch:
     costs: np.ndarray
     """The new values of `arcs` (also in `network`'s arrays)."""
     change: SessionChange
-    demands: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]
-    """The new session's `active_demands` (reviews, min_reviews, cap, floor)."""
+    arrays: SessionArrays
+    """The new session's per-entity arrays, kept with the outcome for the next patch."""
+
+    @property
+    def demands(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """The new session's `active_demands` (reviews, min_reviews, cap, floor)."""
+        a = self.arrays
+        return a.reviews, a.minimum, a.cap, a.floor
 
 
 def network_pair_keys(net: PlanNetwork) -> np.ndarray:
@@ -244,12 +243,14 @@ def patched_network(
     *,
     old_plan: Plan | None = None,
     old_flow: np.ndarray | None = None,
+    old_arrays: SessionArrays | None = None,
 ) -> NetworkPatch | None:
     """The network of `new` (keeping `earlier`'s pairs when given) derived from `old`, the
     network of `old_session`; None when the change is not one a patch follows.
 
     `old_plan` and `old_flow` (the plan decoded from `old` and its flow) let the keep tier be
-    read off the flow when `earlier` is that plan.
+    read off the flow when `earlier` is that plan; `old_arrays` (`session_arrays(old_session)`,
+    kept with the earlier outcome) let the per-entity arrays be read again only where changed.
     """
     policy = new.policy
     if policy.bottleneck or old.kept is None and earlier is not None:
@@ -319,9 +320,8 @@ def patched_network(
         lower[old.pair_arcs.start + arcs] = pinned.astype(np.int64)
         pair_pinned[arcs] = pinned
 
-    arrays = _arrays_for(old_session, new, change)
-    demands = arrays.reviews, arrays.minimum, arrays.cap, arrays.floor
-    reviews, minimum, cap, floor = demands
+    arrays = arrays_for(old_session, new, change, old_arrays)
+    reviews, minimum, cap, floor = arrays.reviews, arrays.minimum, arrays.cap, arrays.floor
     allowance = arrays.allowance
     over = np.flatnonzero(allowance > 0)
     if not np.isin(over, old.overload_reviewers).all() or (len(over) > 0) != (
@@ -384,7 +384,7 @@ def patched_network(
         lower=lower[changed],
         costs=costs[changed],
         change=change,
-        demands=demands,
+        arrays=arrays,
     )
 
 

@@ -314,8 +314,8 @@ def test_changed_arrays_read_only_the_changed_entities_and_match_a_full_pass() -
 def test_a_chain_of_patched_replans_updates_the_kept_arrays(
     monkeypatch: pytest.MonkeyPatch,
 ) -> None:
-    # Each re-plan's earlier session is the one the last patch was for, so its arrays are
-    # updated from the kept ones; they must equal a full pass over the new session.
+    # Each outcome keeps the arrays of the session it was planned on (a patched one those its
+    # patch derived from the earlier outcome's); they must equal a full pass over that session.
     calls: list[int] = []
     original = patch_module.changed_arrays
 
@@ -327,28 +327,36 @@ def test_a_chain_of_patched_replans_updates_the_kept_arrays(
     for seed in range(6):
         rng = np.random.default_rng(400 + seed)
         ws = Workspace(_rules_session(seed) if seed % 2 else random_session(410 + seed))
-        ws.solve()
+        first = ws.solve()
+        first.kept_flow()
+        assert first.kept.arrays is not None
         for _ in range(4):
             _change(ws, rng)
             try:
                 outcome = ws.solve()
             except PlanInputError:
                 break
-            last = patch_module._LAST_ARRAYS
             if outcome.patched:
-                assert last is not None and last[0] is outcome.planned
-            if last is not None and last[0] is outcome.planned:
-                assert _arrays_equal(last[1], patch_module.session_arrays(outcome.planned))
+                assert outcome.kept.arrays is not None
+            arrays = outcome.entity_arrays()
+            assert arrays is not None and outcome.planned is not None
+            assert _arrays_equal(arrays, patch_module.session_arrays(outcome.planned))
+            assert not arrays.cap.flags.writeable
     assert calls
 
 
-def test_arrays_kept_for_another_session_are_not_used() -> None:
+def test_arrays_are_read_anew_without_the_earlier_sessions() -> None:
     session = random_session(72, unscored="exclude")
-    other = random_session(73, unscored="exclude")
     after = _withdrawn(session, 2)
     change = session_change(session, after)
     assert change is not None
-    patch_module._LAST_ARRAYS = (other, patch_module.session_arrays(other))
-    arrays = patch_module._arrays_for(session, after, change)
+    arrays = patch_module.arrays_for(session, after, change, None)
     assert _arrays_equal(arrays, patch_module.session_arrays(after))
-    assert patch_module._LAST_ARRAYS is not None and patch_module._LAST_ARRAYS[0] is after
+    kept = patch_module.arrays_for(session, after, change, patch_module.session_arrays(session))
+    assert _arrays_equal(kept, arrays)
+    # The patched re-plan's outcome holds its own session's arrays, not the earlier one's.
+    outcome = make_plan(session)
+    outcome.kept_flow()
+    again = make_plan(after, warm=outcome)
+    assert again.patched and again.kept.arrays is not None
+    assert _arrays_equal(again.kept.arrays, patch_module.session_arrays(after))
