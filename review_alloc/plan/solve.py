@@ -612,16 +612,14 @@ def make_plan(
                 )
             }
         )
-    reuse_conflicts = None
-    if patched is not None and patched[2].change.conflicts_same and warm is not None:
-        reuse_conflicts = warm.checked_conflicts
+    # The checker decides on its own what of the earlier check still holds (it compares the
+    # sessions itself); the planner's view of the change is not passed on.
     check_state = check_plan(
         session,
         plan,
         result.potentials,
         network=net,
-        conflicts=reuse_conflicts,
-        base=warm.check_state if patched is not None and warm is not None else None,
+        base=warm.check_state if warm is not None else None,
     )
     before = None
     if session.policy.balance > 0:
