@@ -684,12 +684,13 @@ def _certificate_problems(
     base: Certified | None = None,
 ) -> tuple[list[str], Certified | None]:
     n_p = max(net.n_papers, 1)
-    if (
+    same_pairs = (
         base is not None
         and base.network.pair_reviewer is net.pair_reviewer
         and base.network.pair_paper is net.pair_paper
         and base.network.n_papers == net.n_papers
-    ):
+    )
+    if base is not None and same_pairs:
         # The same pairs: their sorted keys are the certified check's.
         net_keys, order = base.keys, base.order
     else:
@@ -699,25 +700,37 @@ def _certificate_problems(
         order = None if increasing else np.argsort(net_keys)
         if order is not None:
             net_keys = net_keys[order]
-    found, pos = _positions(pair_keys(reviewer, paper, n_p), net_keys)
+    keys = pair_keys(reviewer, paper, n_p)
+    if base is not None and same_pairs and order is None:
+        # Rows the certified plan held are among its used pairs: look them up there (a table
+        # the size of a plan), and only the rest among all the network's pairs.
+        found, at = positions_in(keys, net_keys[base.used])
+        pos = base.used[at] if len(base.used) else at
+        miss = np.flatnonzero(~found)
+        if len(miss):
+            found[miss], pos[miss] = _positions(keys[miss], net_keys)
+    else:
+        found, pos = _positions(keys, net_keys)
     if not found.all():
         return ["the plan uses a pair that is not eligible in the session's network"], None
-    in_plan = np.zeros(len(net_keys), dtype=bool)
-    in_plan[pos if order is None else order[pos]] = True
-    used = np.flatnonzero(in_plan)
+    used = np.sort(pos if order is None else order[pos])
+    if len(used) > 1 and bool(np.any(used[1:] == used[:-1])):
+        return ["the plan uses a pair twice"], None
     side = _side_flows(net, used)
     pot = np.asarray(potentials)
     try:
         if base is not None and _same_arcs(net, base.network):
-            _check_changes(net, in_plan, side, pot, base)
+            _check_changes(net, used, side, pot, base)
         else:
+            pair_flow = np.zeros(len(net_keys), dtype=np.int64)
+            pair_flow[used] = 1
             check_cost_certificate(
                 net.n_nodes,
                 net.tails,
                 net.heads,
                 net.capacities,
                 net.costs,
-                _whole_flow(net, in_plan.astype(np.int64), side),
+                _whole_flow(net, pair_flow, side),
                 potentials,
                 lower=net.lower,
             )
@@ -743,25 +756,25 @@ def _whole_flow(net: PlanNetwork, pair_flow: np.ndarray, side: np.ndarray) -> np
 
 def _check_changes(
     net: PlanNetwork,
-    in_plan: np.ndarray,
+    used: np.ndarray,
     side: np.ndarray,
     pot: np.ndarray,
     base: Certified,
 ) -> None:
     """The certificate on a network with the certified one's arcs: every arc whose bounds, cost,
     flow or end potentials changed, and every arc outside the pair block, meets the optimality
-    conditions; the flow changes keep every node balanced (the certified flow was)."""
+    conditions; the flow changes keep every node balanced (the certified flow was). `used`:
+    the sorted pair positions carrying flow."""
     n = net.n_nodes
     if pot.ndim != 1 or len(pot) != n or (pot.size and pot.dtype.kind not in "iu"):
         raise FlowCheckError(f"potentials must be a 1-D integer array of {n} entries")
     pot = pot.astype(np.int64, copy=False)
     old = base.network
     block = net.pair_arcs
-    # One boolean pass per cause over the pair block (no sorting): flow, bounds, cost, potentials.
-    look = np.zeros(len(in_plan), dtype=bool)
-    look[base.used] = True
-    look ^= in_plan
-    moved = np.flatnonzero(look)
+    # Pairs whose flow changed, from the two sorted lists of used pairs (no pass over all).
+    moved = np.setxor1d(base.used, used, assume_unique=True)
+    # One boolean pass per cause over the pair block (no sorting): bounds, cost, potentials.
+    look = np.zeros(block.stop - block.start, dtype=bool)
     for new_values, old_values in (
         (net.capacities, old.capacities),
         (net.lower, old.lower),
@@ -773,10 +786,11 @@ def _check_changes(
     if shifted.any():
         look |= shifted[net.tails[block]]
         look |= shifted[net.heads[block]]
+    look[moved] = True
     pairs = np.flatnonzero(look)
     sides = _side_arcs(net)
     arcs = np.concatenate([pairs + block.start, sides])
-    flow = np.concatenate([in_plan[pairs].astype(np.int64), side])
+    flow = np.concatenate([positions_in(pairs, used)[0].astype(np.int64), side])
     t, h = net.tails[arcs].astype(np.int64), net.heads[arcs].astype(np.int64)
     upper, low = net.capacities[arcs], net.lower[arcs]
     for what, bad in (("lower", flow < low), ("capacities", flow > upper)):
@@ -787,7 +801,7 @@ def _check_changes(
     # Conservation: the certified flow was balanced, so the changes must be.
     delta_arcs = np.concatenate([moved + block.start, sides])
     delta = np.concatenate(
-        [np.where(in_plan[moved], 1, -1).astype(np.int64), side - base.side_flow]
+        [np.where(positions_in(moved, used)[0], 1, -1).astype(np.int64), side - base.side_flow]
     )
     balance = np.bincount(net.tails[delta_arcs], weights=delta, minlength=n) - np.bincount(
         net.heads[delta_arcs], weights=delta, minlength=n
