@@ -320,14 +320,70 @@ def _leads_by_flow(
     lead and each is routed by a search of its own, 28 M work units (60 times the lead network),
     where the primal-dual warm start routes them together in a few phases.
     """
+    n_papers = max(n_papers, int(paper.max(initial=-1)) + 1)
+    is_senior = np.zeros(n_reviewers, dtype=bool)
+    is_senior[reviewer[senior]] = True
+    keys = reviewer.astype(np.int64) * n_papers + paper
+    if warm is not None and _fits(warm, is_senior, n_papers):
+        found = positions_in(keys, sorted_keys(warm.pair_keys))[0]
+        if np.count_nonzero(~found) <= WARM_NEW_SHARE * len(keys):
+            start = _warm_leads(warm, keys, reviewer, paper, is_senior)
+            return _solve_leads(
+                reviewer, paper, senior, score_int, limit, is_senior, n_papers, start
+            )
+    # A cold solve on the reviewers and papers of these pairs only: the settled leads leave a
+    # core of a few thousand papers, and nodes without arcs still cost cost scaling work in
+    # every phase (a third of the solve on the loose L benchmark). The state is laid out on
+    # every reviewer and paper again, so that the next choice can restart from it.
+    people, r_at = np.unique(reviewer, return_inverse=True)
+    papers, p_at = np.unique(paper, return_inverse=True)
+    own_limit = limit if np.ndim(limit) == 0 else np.asarray(limit)[people]
+    chosen, small = _solve_leads(
+        r_at, p_at, senior, score_int, own_limit, is_senior[people], len(papers), None
+    )
+    n_r, n_small = len(people), len(papers)
+    pot = np.zeros(4 + n_reviewers + n_papers, dtype=np.int64)
+    pot[:3] = small.potentials[:3]
+    # Reviewers and papers without pairs sit level with their hub and the sink (a warm start
+    # from this state moves them there anyway).
+    pot[3 : 3 + n_reviewers] = np.where(is_senior, pot[1], pot[2])
+    pot[3 + people] = small.potentials[3 : 3 + n_r]
+    pot[3 + n_reviewers : 3 + n_reviewers + n_papers] = small.potentials[-1]
+    pot[3 + n_reviewers + papers] = small.potentials[3 + n_r : 3 + n_r + n_small]
+    pot[-1] = small.potentials[-1]
+    slots = np.zeros(n_reviewers, dtype=np.int64)
+    slots[people] = small.slots
+    state = LeadState(
+        pair_keys=keys,
+        lead=small.lead,
+        pair_costs=small.pair_costs,
+        potentials=pot,
+        senior=is_senior,
+        slots=slots,
+        n_papers=n_papers,
+    )
+    return chosen, state
+
+
+def _solve_leads(
+    reviewer: np.ndarray,
+    paper: np.ndarray,
+    senior: np.ndarray,
+    score_int: np.ndarray,
+    limit: int | np.ndarray,
+    is_senior: np.ndarray,
+    n_papers: int,
+    start: WarmStart | None,
+) -> tuple[np.ndarray, LeadState]:
+    """The three tiers' solves of `_leads_by_flow` on the network of these reviewers
+    (`is_senior` has one entry each) and `n_papers` papers, the last from `start`."""
     from review_alloc.flow import max_flow, min_cost_flow
 
-    n_papers = max(n_papers, int(paper.max(initial=-1)) + 1)
+    n_reviewers = len(is_senior)
     first_paper = 3 + n_reviewers
     sink = first_paper + n_papers
     n = sink + 1
-    is_senior = np.zeros(n_reviewers, dtype=bool)
-    is_senior[reviewer[senior]] = True
+
     tails, heads = _lead_arcs(reviewer, paper, is_senior, n_papers)
     # A reviewer can lead at most the papers they review: capping their arc there changes no
     # choice, and a reviewer who lost reviews then hands the leads they lost back to the hub at
@@ -357,11 +413,6 @@ def _leads_by_flow(
     costs[0] = 0
     costs[pairs] = -score_int
     keys = reviewer.astype(np.int64) * n_papers + paper
-    start = None
-    if warm is not None and _fits(warm, is_senior, n_papers):
-        found = positions_in(keys, sorted_keys(warm.pair_keys))[0]
-        if np.count_nonzero(~found) <= WARM_NEW_SHARE * len(keys):
-            start = _warm_leads(warm, keys, reviewer, paper, is_senior)
     result = min_cost_flow(n, tails, heads, upper, costs, lower=lower, warm=start)
     chosen = result.flow[pairs] > 0
     state = LeadState(

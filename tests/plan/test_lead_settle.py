@@ -135,3 +135,27 @@ def test_warm_choices_over_random_replans_match_a_cold_choice(
         assert cold[2] == pytest.approx(dense[2], abs=1e-9)
         check_plan(session, with_leads(plan, leads.LeadChoice(lead_of, (), ())), None)
     assert warm_used
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_a_cold_choice_on_the_core_alone_keeps_a_state_on_every_node(
+    seed: int, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # The cold flow runs on the reviewers and papers of the open pairs only; its state is laid
+    # out on every reviewer and paper, and a restart from it on the same pairs keeps every tier.
+    session, plan = _mixed_load_case(seed)
+    monkeypatch.setattr(leads, "DENSE_LIMIT", 0)
+    reviewer, paper, score = assignment_indices(session, plan.assignments)
+    mask, state = leads.lead_mask_warm(session, reviewer, paper, score)
+    assert state is not None
+    assert len(state.potentials) == 4 + len(session.reviewers) + len(session.papers)
+    assert len(state.senior) == len(state.slots) == len(session.reviewers)
+    again, _ = leads.lead_mask_warm(session, reviewer, paper, score, state)
+    first = value(session, plan, leads.lead_choice(session, reviewer, paper, mask).lead_of)
+    second = value(session, plan, leads.lead_choice(session, reviewer, paper, again).lead_of)
+    monkeypatch.setattr(leads, "DENSE_LIMIT", 4_000_000)
+    # Reference: scipy's linear_sum_assignment on the dense slot matrix.
+    dense = value(session, plan, pick_leads(session, plan).lead_of)
+    assert first[:2] == second[:2] == dense[:2]
+    assert first[2] == pytest.approx(dense[2], abs=1e-9)
+    assert second[2] == pytest.approx(dense[2], abs=1e-9)
