@@ -355,9 +355,11 @@ def patched_network(
             )
         kept &= capacities[old.pair_arcs] > 0
         assert old.kept is not None
-        gained = kept.astype(np.int64) - old.kept.astype(np.int64)
+        # Only the pairs whose keep flag flipped change cost (a few, not all 3 M).
+        flipped = np.flatnonzero(kept != old.kept)
+        gained = kept[flipped].astype(np.int64) - old.kept[flipped].astype(np.int64)
         costs = costs.copy()
-        costs[old.pair_arcs] -= old.keep_weight * gained
+        costs[old.pair_arcs.start + flipped] -= old.keep_weight * gained
     if not _same_weights(old, new, capacities, cap, total, keep=kept is not None):
         return None
 
@@ -435,8 +437,14 @@ def _same_weights(
     """Whether a fresh build would weigh the tiers as `old` does: the same top score among the
     pairs still open, and the same weights under the new demands."""
     n_sen, n_grp = len(old.senior_paper), len(old.group_paper)
-    open_pairs = capacities[old.pair_arcs] > 0
-    top = float(old.pair_score[open_pairs].max()) if open_pairs.any() else 0.0
+    pair_caps = capacities[old.pair_arcs]
+    best = int(np.argmax(old.pair_score)) if len(pair_caps) else -1
+    if best >= 0 and pair_caps[best] > 0:
+        # The best-scored pair is still open: it is the top (no masked pass over all pairs).
+        top = float(old.pair_score[best])
+    else:
+        open_pairs = pair_caps > 0
+        top = float(old.pair_score[open_pairs].max()) if open_pairs.any() else 0.0
     resolution, tiers = fitting_weights(
         top,
         new.policy.balance,
