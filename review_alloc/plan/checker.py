@@ -772,7 +772,12 @@ def _check_changes(
     old = base.network
     block = net.pair_arcs
     # Pairs whose flow changed, from the two sorted lists of used pairs (no pass over all).
-    moved = np.setxor1d(base.used, used, assume_unique=True)
+    moved = np.sort(
+        np.concatenate([
+            used[~positions_in(used, base.used)[0]],
+            base.used[~positions_in(base.used, used)[0]],
+        ])
+    )
     # One boolean pass per cause over the pair block (no sorting): bounds, cost, potentials.
     look = np.zeros(block.stop - block.start, dtype=bool)
     for new_values, old_values in (
