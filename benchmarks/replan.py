@@ -59,14 +59,22 @@ BREAKDOWN = (
 )
 
 
-def median_time(run: Callable[[], Any], repeats: int) -> tuple[float, Any]:
-    """Run once to warm up, then `repeats` times; the median seconds and the last result."""
+THREAD_CPU: dict[str, float] = {}
+"""Median thread CPU seconds of the last `median_time` run of each label: on a shared machine
+the wall times wander with the other processes' load, this thread's own work much less."""
+
+
+def median_time(run: Callable[[], Any], repeats: int, label: str = "") -> tuple[float, Any]:
+    """Run once to warm up, then `repeats` times; the median seconds and the last result (the
+    median thread CPU seconds go to `THREAD_CPU[label]`)."""
     result = run()
-    times = []
+    times, cpu = [], []
     for _ in range(max(repeats, 1)):
-        began = time.perf_counter()
+        began, began_cpu = time.perf_counter(), time.thread_time()
         result = run()
         times.append(time.perf_counter() - began)
+        cpu.append(time.thread_time() - began_cpu)
+    THREAD_CPU[label] = statistics.median(cpu)
     return statistics.median(times), result
 
 
@@ -119,9 +127,11 @@ def family_rows(family: str, size: str, repeats: int) -> list[str]:
     started = time.perf_counter()
     earlier.kept_flow()
     kept_t = time.perf_counter() - started
-    cold_t, cold = median_time(lambda: make_plan(after), repeats)
-    today_t, today = median_time(lambda: make_plan(after, warm=earlier, patch=False), repeats)
-    patched_t, patched = median_time(lambda: make_plan(after, warm=earlier), repeats)
+    cold_t, cold = median_time(lambda: make_plan(after), repeats, "cold")
+    today_t, today = median_time(
+        lambda: make_plan(after, warm=earlier, patch=False), repeats, "today"
+    )
+    patched_t, patched = median_time(lambda: make_plan(after, warm=earlier), repeats, "patched")
     for other in (today, patched):
         for tier in ("required", "seniors", "coverage", "floors"):
             assert other.tiers[tier] == cold.tiers[tier], (tier, other.tiers, cold.tiers)
@@ -134,6 +144,9 @@ def family_rows(family: str, size: str, repeats: int) -> list[str]:
         f"  {name:9s} cold plan {cold_t:.3f}s | warm re-plan, network built anew {today_t:.3f}s "
         f"({today_t / cold_t:.2f}x) | patched re-plan {patched_t:.3f}s "
         f"({patched_t / cold_t:.2f}x cold, {patched_t / today_t:.2f}x built anew)",
+        f"  {'':9s} thread CPU: cold {THREAD_CPU['cold']:.3f}s | built anew "
+        f"{THREAD_CPU['today']:.3f}s | patched {THREAD_CPU['patched']:.3f}s "
+        f"({THREAD_CPU['patched'] / THREAD_CPU['cold']:.2f}x cold)",
         f"  {'':9s} kept state of the earlier plan, built after it was shown: {kept_t:.3f}s",
     ]
     lines += breakdown(lambda: make_plan(after, warm=earlier))
