@@ -258,17 +258,23 @@ def lead_choice(
     """The LeadChoice of the pairs marked in `mask`, with the papers left without (senior) lead."""
     paper_ids = [p.id for p in session.papers]
     reviewer_ids = [r.id for r in session.reviewers]
-    lead_of = {
-        paper_ids[i]: reviewer_ids[j]
-        for i, j in zip(paper[mask].tolist(), reviewer[mask].tolist(), strict=True)
-    }
-    papers_with = np.unique(paper)
-    led = np.zeros(len(session.papers), dtype=bool)
+    # Item getters over whole lists and per-paper counts: no Python loop over the rows and no
+    # sort (a large venue has tens of thousands of papers).
+    lead_of = dict(
+        zip(
+            map(paper_ids.__getitem__, paper[mask].tolist()),
+            map(reviewer_ids.__getitem__, reviewer[mask].tolist()),
+            strict=True,
+        )
+    )
+    n_p = len(session.papers)
+    has = np.bincount(paper, minlength=n_p) > 0
+    led = np.zeros(n_p, dtype=bool)
     led[paper[mask]] = True
-    senior_led = np.zeros(len(session.papers), dtype=bool)
+    senior_led = np.zeros(n_p, dtype=bool)
     senior_led[paper[mask & session.reviewer_senior_array()[reviewer]]] = True
-    no_lead = tuple(paper_ids[i] for i in papers_with[~led[papers_with]].tolist())
-    no_senior = tuple(paper_ids[i] for i in papers_with[~senior_led[papers_with]].tolist())
+    no_lead = tuple(map(paper_ids.__getitem__, np.flatnonzero(has & ~led).tolist()))
+    no_senior = tuple(map(paper_ids.__getitem__, np.flatnonzero(has & ~senior_led).tolist()))
     return LeadChoice(lead_of=lead_of, no_lead=no_lead, no_senior_lead=no_senior)
 
 

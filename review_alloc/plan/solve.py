@@ -502,10 +502,12 @@ def _decode(
     warm_leads: LeadState | None = None,
     reuse: PlanRows | None = None,
     demands: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray] | None = None,
+    used: np.ndarray | None = None,
 ) -> tuple[Plan, LeadChoice | None, LeadState | None, PlanRows]:
     """The plan of an optimal flow (pair arcs with flow > 0 only), its leads chosen when the
-    policy asks for them; `reuse` holds an earlier plan's rows of the same entities."""
-    chosen = np.flatnonzero(result.flow[net.pair_arcs] > 0)
+    policy asks for them; `reuse` holds an earlier plan's rows of the same entities, `used`
+    the pair arcs' flow > 0 when already worked out."""
+    chosen = np.flatnonzero(result.flow[net.pair_arcs] > 0 if used is None else used)
     reviewer = net.pair_reviewer[chosen]
     paper = net.pair_paper[chosen]
     score = net.pair_score[chosen]
@@ -543,7 +545,12 @@ def _patched_solve(
         return None
     result, state = _resolve(session, warm, patch)
     net = patch.network
-    if _violated_splits(session, net, result.flow[net.pair_arcs] > 0):
+    # (`_violated_splits` is empty without the rule or relaxed groups: skip the pass over pairs.)
+    if (
+        session.policy.max_per_institution is not None
+        and net.relaxed_groups
+        and _violated_splits(session, net, result.flow[net.pair_arcs] > 0)
+    ):
         # Mixed institution groups to share out: the exact path works on built networks.
         return None
     return net, result, patch, state
@@ -597,6 +604,7 @@ def make_plan(
         warm.lead_state if warm else None,
         warm.rows if patched is not None and warm is not None else None,
         patched[2].demands if patched is not None else None,
+        used,
     )
     if proof is not None:
         plan = plan.model_copy(update={"method": plan.method + _proof_note(proof)})
