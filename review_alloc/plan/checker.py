@@ -25,6 +25,7 @@ equal and no changed entity changed a field the conflict inference may read.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from operator import attrgetter
 
 import numpy as np
 
@@ -639,7 +640,7 @@ def _constraint_problems(
                 f"paper {session.papers[i].id} has {have[i]} senior reviewers, the hard rule "
                 f"needs {need[i]}"
             )
-    leads = np.fromiter((a.lead for a in plan.assignments), dtype=bool, count=len(paper))
+    leads = np.fromiter(map(attrgetter("lead"), plan.assignments), dtype=bool, count=len(paper))
     if leads.any():
         per_lead = np.bincount(reviewer[leads], minlength=len(session.reviewers))
         for j in np.flatnonzero(per_lead > policy.max_leads):
