@@ -19,7 +19,9 @@ is taken from the previous check, and only where its inputs are the same: the pe
 of reviewers and papers equal to the previous session's (value equality, not the planner's word),
 a row's score-table lookup and shared topic where the row, its reviewer and its paper are
 unchanged and the score table is equal, the conflict set where the declared conflicts are
-equal and no changed entity changed a field the conflict inference may read.
+equal and no changed entity changed a field the conflict inference may read. An entity that is
+the very object of the previous session counts as equal without reading it: sessions are never
+changed in place (a change copies what it changes, as `plan.patch` relies on too).
 """
 
 from __future__ import annotations
