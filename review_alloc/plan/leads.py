@@ -118,7 +118,7 @@ def settled_leads(
     fixed = np.zeros(n, dtype=bool)
     left = np.full(n_reviewers, limit, dtype=np.int64)
     # Each paper's pairs together, best first; ties keep the rows' order.
-    order = np.lexsort((-score_int, ~senior, paper))
+    order = _best_first(paper, senior, score_int)
     while len(order):
         loads = np.bincount(reviewer[order], minlength=n_reviewers)
         free = loads <= left
@@ -141,6 +141,23 @@ def settled_leads(
         closed[paper[pick]] = True
         order = order[~closed[p]]
     return np.flatnonzero(fixed), np.sort(order), left
+
+
+def _best_first(paper: np.ndarray, senior: np.ndarray, score_int: np.ndarray) -> np.ndarray:
+    """Row order by paper, then seniors first, then higher score steps; ties keep the rows'
+    order (`np.lexsort((-score_int, ~senior, paper))`).
+
+    Where the three fit one int64 key, one stable sort of it: a plan's rows already go by
+    paper, which a stable sort of one key finds in a fraction of the lexsort's time.
+    """
+    if not len(paper):
+        return np.zeros(0, dtype=np.int64)
+    low, high = int(score_int.min()), int(score_int.max())
+    steps = high - low + 1
+    if (int(paper.max()) + 1) * 2 * steps >= 2**62:
+        return np.lexsort((-score_int, ~senior, paper))
+    key = (paper.astype(np.int64) * 2 + ~senior) * steps + (high - score_int)
+    return np.argsort(key, kind="stable")
 
 
 @dataclass(frozen=True, eq=False)

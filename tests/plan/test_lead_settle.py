@@ -159,3 +159,21 @@ def test_a_cold_choice_on_the_core_alone_keeps_a_state_on_every_node(
     assert first[:2] == second[:2] == dense[:2]
     assert first[2] == pytest.approx(dense[2], abs=1e-9)
     assert second[2] == pytest.approx(dense[2], abs=1e-9)
+
+
+def test_the_best_first_order_is_lexsorts_order() -> None:
+    # One stable sort of a combined key, or numpy's lexsort where the key would not fit int64.
+    rng = np.random.default_rng(12)
+    for top in (3, 10_000, 2**60):
+        for _ in range(20):
+            n = int(rng.integers(0, 200))
+            paper = np.sort(rng.integers(0, 30, n))
+            senior = rng.random(n) < 0.4
+            score = rng.integers(0, top, n, dtype=np.int64)
+            expected = np.lexsort((-score, ~senior, paper))
+            assert np.array_equal(leads._best_first(paper, senior, score), expected)
+            shuffled = rng.permutation(n)
+            assert np.array_equal(
+                leads._best_first(paper[shuffled], senior[shuffled], score[shuffled]),
+                np.lexsort((-score[shuffled], ~senior[shuffled], paper[shuffled])),
+            )
