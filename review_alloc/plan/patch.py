@@ -272,7 +272,7 @@ def patched_network(
     gone_p = change.papers[now_p & ~was_p]
 
     conflicts: ConflictSet = old.conflicts if change.conflicts_same else conflict_pairs(new)
-    rules = PairRules(new, conflicts)
+    rules = PairRules.following(new, old.rules, conflicts)
     rules.check_pins()
     look = [_reviewer_arcs(old, gone_r)]
     if len(gone_p):
@@ -375,6 +375,7 @@ def patched_network(
         lower=lower,
         costs=costs,
         conflicts=conflicts,
+        rules=rules,
         pair_pinned=pair_pinned,
         senior_need=need,
         kept=kept,

@@ -177,6 +177,24 @@ class PairRules:
                 rules.__dict__[name] = previous.__dict__[name]
         return rules
 
+    @classmethod
+    def following(
+        cls, session: Session, previous: PairRules | None, conflicts: ConflictSet
+    ) -> PairRules:
+        """Rules of `session` with `conflicts`, keeping `previous`'s sorted score table when it
+        was read from this very table with the same paper count (a patched re-plan: comparing
+        whole entity lists, as `renewed` does, would cost more than it saves)."""
+        rules = cls(session, conflicts)
+        if (
+            previous is not None
+            and previous.session.scores is session.scores
+            and previous._n == rules._n
+            and "_scores" in previous.__dict__
+        ):
+            # The sorted keys are `reviewer * n + paper` of the table's own rows: nothing else.
+            rules.__dict__["_scores"] = previous.__dict__["_scores"]
+        return rules
+
     @property
     def noun(self) -> str:
         """'proposal' for a grant panel, 'paper' otherwise."""
