@@ -119,28 +119,44 @@ def settled_leads(
     left = np.full(n_reviewers, limit, dtype=np.int64)
     # Each paper's pairs together, best first; ties keep the rows' order.
     order = _best_first(paper, senior, score_int)
-    while len(order):
-        loads = np.bincount(reviewer[order], minlength=n_reviewers)
+    if not len(order):
+        return np.flatnonzero(fixed), order, left
+    # A paper's pairs stay together until it closes, so its best pairs, its group and the
+    # reviewers' open loads are worked out once and then only updated: the later rounds settle
+    # a few papers each, and a pass over every open pair per round cost most of the time.
+    p = paper[order]
+    first = np.ones(len(order), dtype=bool)
+    first[1:] = p[1:] != p[:-1]
+    starts = np.flatnonzero(first)
+    sizes = np.diff(np.append(starts, len(order)))
+    group = np.cumsum(first) - 1
+    head = order[starts][group]
+    best = np.flatnonzero(
+        (senior[order] == senior[head]) & (score_int[order] == score_int[head])
+    )
+    loads = np.bincount(reviewer, minlength=n_reviewers)
+    open_group = np.ones(len(starts), dtype=bool)
+    while len(best):
         free = loads <= left
-        p = paper[order]
-        first = np.ones(len(order), dtype=bool)
-        first[1:] = p[1:] != p[:-1]
-        group = np.cumsum(first) - 1
-        head = order[first][group]
-        best = (senior[order] == senior[head]) & (score_int[order] == score_int[head])
-        candidate = np.flatnonzero(best & free[reviewer[order]])
+        candidate = best[free[reviewer[order[best]]]]
         if not len(candidate):
             break
         # One pair per paper: the first free one among its best.
+        g = group[candidate]
         once = np.ones(len(candidate), dtype=bool)
-        once[1:] = group[candidate[1:]] != group[candidate[:-1]]
+        once[1:] = g[1:] != g[:-1]
         pick = order[candidate[once]]
+        closing = g[once]
         fixed[pick] = True
         np.subtract.at(left, reviewer[pick], 1)
-        closed = np.zeros(int(paper.max()) + 1, dtype=bool)
-        closed[paper[pick]] = True
-        order = order[~closed[p]]
-    return np.flatnonzero(fixed), np.sort(order), left
+        # The closed papers' pairs leave the open loads.
+        size = sizes[closing]
+        offsets = np.arange(int(size.sum())) - np.repeat(np.cumsum(size) - size, size)
+        rows = order[np.repeat(starts[closing], size) + offsets]
+        loads -= np.bincount(reviewer[rows], minlength=n_reviewers)
+        open_group[closing] = False
+        best = best[open_group[group[best]]]
+    return np.flatnonzero(fixed), np.sort(order[open_group[group]]), left
 
 
 def _best_first(paper: np.ndarray, senior: np.ndarray, score_int: np.ndarray) -> np.ndarray:
