@@ -228,8 +228,8 @@ def lead_mask_warm(
     mask = np.zeros(len(paper), dtype=bool)
     if limit == 0 or len(paper) == 0:
         return mask, None
-    papers_with = np.unique(paper)
-    n_led = len(papers_with)
+    # The papers with reviews, counted without a sort (the dense path below lists them).
+    n_led = int(np.count_nonzero(np.bincount(paper, minlength=len(session.papers))))
     senior = session.reviewer_senior_array()[reviewer]
     loads = np.bincount(reviewer, minlength=len(session.reviewers))
     slots = np.minimum(loads, limit)
@@ -261,6 +261,7 @@ def lead_mask_warm(
     score_int = np.rint(score * SCORE_RESOLUTION).astype(np.int64)
     per_lead, per_senior = lead_costs(score_int, n_led)
     gain = per_lead + per_senior * senior.astype(np.int64) + score_int
+    papers_with = np.unique(paper)
     people = np.flatnonzero(slots > 0)
     first_slot = np.zeros(len(session.reviewers), dtype=np.int64)
     first_slot[people] = np.cumsum(slots[people]) - slots[people]
@@ -374,8 +375,8 @@ def _leads_by_flow(
     # core of a few thousand papers, and nodes without arcs still cost cost scaling work in
     # every phase (a third of the solve on the loose L benchmark). The state is laid out on
     # every reviewer and paper again, so that the next choice can restart from it.
-    people, r_at = np.unique(reviewer, return_inverse=True)
-    papers, p_at = np.unique(paper, return_inverse=True)
+    people, r_at = _dense_ranks(reviewer, n_reviewers)
+    papers, p_at = _dense_ranks(paper, n_papers)
     own_limit = limit if np.ndim(limit) == 0 else np.asarray(limit)[people]
     chosen, small = _solve_leads(
         r_at, p_at, senior, score_int, own_limit, is_senior[people], len(papers), None
@@ -402,6 +403,13 @@ def _leads_by_flow(
         n_papers=n_papers,
     )
     return chosen, state
+
+
+def _dense_ranks(index: np.ndarray, size: int) -> tuple[np.ndarray, np.ndarray]:
+    """`np.unique(index, return_inverse=True)` for indices below `size`, by counting (no sort)."""
+    present = np.bincount(index, minlength=size) > 0
+    rank = np.cumsum(present) - 1
+    return np.flatnonzero(present), rank[index]
 
 
 def _solve_leads(

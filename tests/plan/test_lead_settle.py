@@ -177,3 +177,14 @@ def test_the_best_first_order_is_lexsorts_order() -> None:
                 leads._best_first(paper[shuffled], senior[shuffled], score[shuffled]),
                 np.lexsort((-score[shuffled], ~senior[shuffled], paper[shuffled])),
             )
+
+
+def test_dense_ranks_are_numpys_unique_with_inverse() -> None:
+    rng = np.random.default_rng(5)
+    for size in (1, 7, 300):
+        index = rng.integers(0, size, int(rng.integers(1, 200)))
+        # Reference: numpy's own np.unique(return_inverse=True).
+        values, inverse = np.unique(index, return_inverse=True)
+        got_values, got_inverse = leads._dense_ranks(index, size + 3)
+        assert np.array_equal(got_values, values)
+        assert np.array_equal(got_inverse, inverse)
