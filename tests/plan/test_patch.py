@@ -360,3 +360,50 @@ def test_arrays_are_read_anew_without_the_earlier_sessions() -> None:
     again = make_plan(after, warm=outcome)
     assert again.patched and again.kept.arrays is not None
     assert _arrays_equal(again.kept.arrays, patch_module.session_arrays(after))
+
+
+@pytest.mark.parametrize("rules", [False, True])
+def test_the_patch_lists_exactly_the_arcs_whose_values_changed(
+    rules: bool, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """The patch compares only the arcs it may have written; a comparison of every arc of the
+    two networks finds the same ones (the kept flow is patched at those arcs alone)."""
+    import review_alloc.plan.solve as solve_module
+
+    seen: list[tuple[PlanNetwork, object]] = []
+
+    def recorded(old: PlanNetwork, *args: object, **kwargs: object) -> object:
+        patch = patch_module.patched_network(old, *args, **kwargs)  # type: ignore[arg-type]
+        seen.append((old, patch))
+        return patch
+
+    monkeypatch.setattr(solve_module, "patched_network", recorded)
+    for seed in range(12):
+        rng = np.random.default_rng(9300 + seed)
+        session = _rules_session(seed) if rules else random_session(9400 + seed, unscored="exclude")
+        ws = Workspace(session)
+        ws.solve()
+        ws.solve()  # the keep tier on, so that keep flags flip too
+        for _ in range(3):
+            if _change(ws, rng) != "refused":
+                ws.solve()
+    checked = 0
+    for old, patch in seen:
+        if patch is None:
+            continue
+        net = patch.network  # type: ignore[attr-defined]
+        every = np.flatnonzero(
+            (net.capacities != old.capacities) | (net.lower != old.lower) | (net.costs != old.costs)
+        )
+        assert np.array_equal(patch.arcs, every)  # type: ignore[attr-defined]
+        checked += int(len(every) > 0 and net.kept is not None)
+    assert checked > 0
+
+
+def test_sorted_unique_is_numpys_unique() -> None:
+    rng = np.random.default_rng(12)
+    for size in (0, 1, 2, 50, 4000):
+        values = rng.integers(0, max(size // 2, 1), size)
+        values[: size // 2] = np.sort(values[: size // 2])  # partly sorted, as the arcs come
+        # Reference: numpy's np.unique.
+        assert np.array_equal(patch_module._sorted_unique(values), np.unique(values))
