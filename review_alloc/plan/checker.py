@@ -65,6 +65,11 @@ class Certified:
     """The network's pair keys, sorted (shared by every network of the same pairs)."""
     order: np.ndarray | None
     """Pair positions of `keys` when the pairs are not in key order, else None."""
+    row_keys: np.ndarray | None = None
+    """Paper-major keys `paper * n_reviewers + reviewer` of the plan's rows when they came in
+    increasing order (a plan's rows go by paper, then reviewer), else None."""
+    row_pairs: np.ndarray | None = None
+    """Pair position of each of `row_keys`."""
 
 
 @dataclass(frozen=True, eq=False)
@@ -704,11 +709,20 @@ def _certificate_problems(
         if order is not None:
             net_keys = net_keys[order]
     keys = pair_keys(reviewer, paper, n_p)
+    by_paper = paper.astype(np.int64) * max(net.n_reviewers, 1) + reviewer
+    rising = len(by_paper) < 2 or bool(np.all(by_paper[1:] > by_paper[:-1]))
     if base is not None and same_pairs and order is None:
         # Rows the certified plan held are among its used pairs: look them up there (a table
         # the size of a plan), and only the rest among all the network's pairs.
-        found, at = positions_in(keys, net_keys[base.used])
-        pos = base.used[at] if len(base.used) else at
+        if rising and base.row_keys is not None and base.row_pairs is not None and len(net_keys):
+            # Both row lists in paper order: a search of sorted keys in sorted keys, several
+            # times faster than unsorted ones; each pair found is confirmed by its own key.
+            found, at = positions_in(by_paper, base.row_keys)
+            pos = base.row_pairs[at] if len(base.row_pairs) else at
+            found &= net_keys[pos] == keys
+        else:
+            found, at = positions_in(keys, net_keys[base.used])
+            pos = base.used[at] if len(base.used) else at
         miss = np.flatnonzero(~found)
         if len(miss):
             found[miss], pos[miss] = _positions(keys[miss], net_keys)
@@ -739,7 +753,8 @@ def _certificate_problems(
             )
     except FlowCheckError as error:
         return [f"optimality certificate rejected: {error}"], None
-    kept = Certified(net, pot.astype(np.int64, copy=True), used, side, net_keys, order)
+    rows = (by_paper, pos if order is None else order[pos]) if rising else (None, None)
+    kept = Certified(net, pot.astype(np.int64, copy=True), used, side, net_keys, order, *rows)
     return [], kept
 
 

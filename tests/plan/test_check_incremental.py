@@ -445,3 +445,23 @@ def test_the_checked_rows_are_read_only() -> None:
         assert not array.flags.writeable
     with pytest.raises(ValueError):
         rows.entities.cap[0] = 99
+
+
+def test_rows_looked_up_in_the_earlier_rows_are_confirmed_by_their_own_pair() -> None:
+    """The certificate finds a plan's rows among the certified plan's rows (both in paper
+    order); each pair so found is confirmed against the network's own key, so a state whose
+    row positions are wrong costs only the search of all pairs, never a wrong verdict."""
+    checked = 0
+    for seed in range(10):
+        for session, prev, out in _replans(seed):
+            certified = prev.check_state.certified
+            if certified is None or certified.row_pairs is None or len(certified.row_pairs) < 2:
+                continue
+            # Every row's pair position moved to its neighbour's.
+            shifted = replace(certified, row_pairs=np.roll(certified.row_pairs, 1))
+            base = replace(prev.check_state, certified=shifted)
+            # Reference: the full check (base=None), which reads the network's pairs anew.
+            full = _verdict(session, out.plan, out.potentials, out, None)
+            assert _verdict(session, out.plan, out.potentials, out, base) == full
+            checked += 1
+    assert checked > 0
