@@ -905,8 +905,12 @@ class KeptFlow:
                 self._pot -= self._pot.min()
             self._pending = np.zeros(0, dtype=np.int64)
             flow = self._flow()
-            if self._total_upper * self._max_cost < 2**63:
-                # Every |flow| * |cost| sum stays within int64: one exact integer dot product.
+            # Flows lie within [lower, upper] with lower >= 0, so every partial sum of the dot
+            # product is at most max|cost| * sum(flow) (the flows' sum is below TOTAL_LIMIT):
+            # where that fits int64, one exact integer dot product, without the float pass.
+            if self._total_upper * self._max_cost < 2**63 or (
+                int(flow.sum()) * self._max_cost < 2**63
+            ):
                 total = int(flow @ self._edge_costs)
             else:
                 total = _total_cost(flow, self._edge_costs)

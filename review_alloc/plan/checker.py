@@ -10,11 +10,24 @@ the previous check established (`CheckState`): an arc whose bounds, cost, flow a
 potentials are all unchanged met the optimality conditions then and still does, so only the
 other arcs are looked at, found by whole-array comparisons; conservation is checked on the flow
 changes, as the earlier flow was balanced. The result is the full check's, in less work.
+
+The hard rules are checked the same way (`CheckedRows`): every row of the plan is read each
+time, and the rules that are one vectorised pass given the session's sorted rule tables
+(conflicts, withdrawals, blocks, pins, caps, reviews, institutions, seniors, leads, figures) are
+checked on every row. Only what costs a pass over the session's entities or its score table
+is taken from the previous check, and only where its inputs are the same: the per-entity values
+of reviewers and papers equal to the previous session's (value equality, not the planner's word),
+a row's score-table lookup and shared topic where the row, its reviewer and its paper are
+unchanged and the score table is equal, the conflict set where the declared conflicts are
+equal and no changed entity changed a field the conflict inference may read. An entity that is
+the very object of the previous session counts as equal without reading it: sessions are never
+changed in place (a change copies what it changes, as `plan.patch` relies on too).
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from operator import attrgetter
 
 import numpy as np
 
@@ -52,6 +65,64 @@ class Certified:
     """The network's pair keys, sorted (shared by every network of the same pairs)."""
     order: np.ndarray | None
     """Pair positions of `keys` when the pairs are not in key order, else None."""
+    row_keys: np.ndarray | None = None
+    """Paper-major keys `paper * n_reviewers + reviewer` of the plan's rows when they came in
+    increasing order (a plan's rows go by paper, then reviewer), else None."""
+    row_pairs: np.ndarray | None = None
+    """Pair position of each of `row_keys`."""
+
+
+@dataclass(frozen=True, eq=False)
+class EntityValues:
+    """Per-entity values the hard rules read, by position, as the checker derived them."""
+
+    reviews: np.ndarray
+    minimum: np.ndarray
+    cap: np.ndarray
+    floor: np.ndarray
+    allowance: np.ndarray
+    """Papers above cap each reviewer may take (0 if withdrawn)."""
+    need: np.ndarray | None
+    """Seniors wanted per paper, when the hard senior rule is on."""
+
+    def __post_init__(self) -> None:
+        # Kept in a check state and copied by the next check: nobody may write into them.
+        for array in (self.reviews, self.minimum, self.cap, self.floor, self.allowance):
+            array.flags.writeable = False
+        if self.need is not None:
+            self.need.flags.writeable = False
+
+
+@dataclass(frozen=True, eq=False)
+class CheckedRows:
+    """What a passed check read per row and per entity, for the next check of a session with
+    the same entities to read again only what changed."""
+
+    session: Session
+    """The session checked: the next check compares its entities and tables with these."""
+    keys: np.ndarray
+    """Paper-major keys `paper * n_reviewers + reviewer` of the plan's rows, sorted."""
+    score: np.ndarray
+    """Per key: the row's score, which the session's score table confirmed."""
+    has_score: np.ndarray
+    """Per key: the score table holds the pair."""
+    topic: np.ndarray | None
+    """Per key: the pair shares a topic (when the policy requires one)."""
+    score_keys: np.ndarray
+    score_values: np.ndarray
+    """The session's score table by sorted pair key `reviewer * n_papers + paper`."""
+    conflict_keys: np.ndarray
+    """The conflict set's sorted pair keys."""
+    entities: EntityValues
+
+    def __post_init__(self) -> None:
+        for array in (
+            self.keys, self.score, self.has_score, self.conflict_keys, self.score_keys,
+            self.score_values,
+        ):
+            array.flags.writeable = False
+        if self.topic is not None:
+            self.topic.flags.writeable = False
 
 
 @dataclass(frozen=True)
@@ -62,6 +133,78 @@ class CheckState:
     """The conflict set the check derived (see `check_plan`'s `conflicts`)."""
     certified: Certified | None = None
     """The certificate's state, when the check had potentials."""
+    rows: CheckedRows | None = None
+    """The hard rules' per-row and per-entity state."""
+
+
+CONFLICT_FREE_REVIEWER_FIELDS = frozenset({"cap", "floor", "overload", "withdrawn", "senior"})
+"""Reviewer fields the conflict inference never reads: a change to them alone keeps the set."""
+
+CONFLICT_FREE_PAPER_FIELDS = frozenset({"reviews", "min_reviews", "senior_min", "withdrawn"})
+"""Paper fields the conflict inference never reads."""
+
+
+@dataclass(frozen=True)
+class _Prior:
+    """An earlier check's state and what changed since, for a session of the same entities."""
+
+    rows: CheckedRows
+    reviewers: np.ndarray
+    """Positions of reviewers not equal to the earlier session's."""
+    papers: np.ndarray
+    """Positions of papers not equal to the earlier session's."""
+    same_scores: bool
+    same_conflicts: bool
+
+
+def _changed_entities(old: list, new: list) -> np.ndarray | None:
+    """Positions whose entity differs in value; None when the lists differ in length or ids."""
+    if len(old) != len(new):
+        return None
+    changed = [
+        k for k, (a, b) in enumerate(zip(old, new, strict=True))
+        if a is not b and a.__dict__ != b.__dict__
+    ]
+    if any(old[k].id != new[k].id for k in changed):
+        return None
+    return np.asarray(changed, dtype=np.int64)
+
+
+def _only_in(old: object, new: object, fields: frozenset[str]) -> bool:
+    """Whether two entities differ only in `fields`."""
+    a, b = old.__dict__, new.__dict__
+    return a.keys() == b.keys() and all(a[k] == b[k] for k in a if k not in fields)
+
+
+def _prior(session: Session, rows: CheckedRows | None) -> _Prior | None:
+    """What changed since the check that left `rows`, when its state can be built on."""
+    if rows is None:
+        return None
+    old = rows.session
+    if not (old.policy is session.policy or old.policy == session.policy):
+        return None
+    reviewers = _changed_entities(old.reviewers, session.reviewers)
+    papers = _changed_entities(old.papers, session.papers)
+    if reviewers is None or papers is None:
+        return None
+    a, b = old.scores, session.scores
+    same_scores = a is b or (
+        np.array_equal(a.reviewer, b.reviewer)
+        and np.array_equal(a.paper, b.paper)
+        and np.array_equal(a.value, b.value)
+    )
+    same_conflicts = (
+        (old.conflicts is session.conflicts or old.conflicts == session.conflicts)
+        and all(
+            _only_in(old.reviewers[j], session.reviewers[j], CONFLICT_FREE_REVIEWER_FIELDS)
+            for j in reviewers.tolist()
+        )
+        and all(
+            _only_in(old.papers[i], session.papers[i], CONFLICT_FREE_PAPER_FIELDS)
+            for i in papers.tolist()
+        )
+    )
+    return _Prior(rows, reviewers, papers, same_scores, same_conflicts)
 
 
 def check_plan(
@@ -77,16 +220,22 @@ def check_plan(
     """Raise PlanCheckError unless the plan keeps every rule and, given potentials, is optimal.
 
     A re-plan's certificate is checked against the network with `earlier`'s keep tier.
-    `conflicts` is the set an earlier check derived for a session whose declared conflicts and
-    the attributes conflicts are inferred from are the same (the caller knows: a re-plan on a
-    patched network). `base` is the state an earlier passed check returned: where `network` has
-    the same arcs as the one certified there, only what changed is certified again (anything
-    else is checked in full). Returns this check's state for the next one.
+    `conflicts` is the session's conflict set when the caller already derived it. `base` is
+    the state an earlier passed check returned: the rules read again only what changed since
+    (see the module's notes), and where `network` has the same arcs as the one certified
+    there, only what changed is certified again (anything else is checked in full). Returns
+    this check's state for the next one.
     """
     arrays = assignment_arrays(session, plan.assignments)
+    prior = _prior(session, base.rows if base is not None else None)
+    conflict_keys = None
+    if conflicts is None and prior is not None and prior.same_conflicts and base is not None:
+        conflicts, conflict_keys = base.conflicts, prior.rows.conflict_keys
     if conflicts is None:
         conflicts = conflict_pairs(session)
-    problems = _hard_rule_problems(session, plan, *arrays, conflicts=conflicts)
+    problems, rows = _hard_rule_problems(
+        session, plan, *arrays, conflicts=conflicts, prior=prior, conflict_keys=conflict_keys
+    )
     certified = None
     if not problems and potentials is not None:
         if network is None:
@@ -97,7 +246,7 @@ def check_plan(
         )
     if problems:
         raise PlanCheckError(problems[:_MAX_LISTED])
-    return CheckState(conflicts=conflicts, certified=certified)
+    return CheckState(conflicts=conflicts, certified=certified, rows=rows)
 
 
 def _positions(keys: np.ndarray, table: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -169,6 +318,31 @@ def pair_flags(
 ) -> PairFlags:
     """The pair rules each (reviewer, paper, score) breaks, derived by the checker alone
     (`conflicts`: the session's conflict set when already derived)."""
+    return _flag_pairs(session, reviewer, paper, score, conflicts)[0]
+
+
+@dataclass(frozen=True)
+class _Lookups:
+    """What `_flag_pairs` looked up per row, and the sorted tables it looked them up in."""
+
+    has_score: np.ndarray
+    topic: np.ndarray | None
+    score_keys: np.ndarray
+    score_values: np.ndarray
+    conflict_keys: np.ndarray
+
+
+def _flag_pairs(
+    session: Session,
+    reviewer: np.ndarray,
+    paper: np.ndarray,
+    score: np.ndarray,
+    conflicts: ConflictSet | None = None,
+    prior: _Prior | None = None,
+    conflict_keys: np.ndarray | None = None,
+) -> tuple[PairFlags, _Lookups]:
+    """`pair_flags`, with the score-table lookups and shared topics of rows the `prior` check
+    saw unchanged (same pair and score, reviewer and paper equal, same table) taken from it."""
     reviewer = np.asarray(reviewer, dtype=np.int64)
     paper = np.asarray(paper, dtype=np.int64)
     score = np.asarray(score, dtype=np.float64)
@@ -176,22 +350,52 @@ def pair_flags(
     keys = pair_keys(reviewer, paper, n_p)
     if conflicts is None:
         conflicts = conflict_pairs(session)
+    if conflict_keys is None:
+        conflict_keys = conflicts.keys(n_p)
     gone_r = np.array([r.withdrawn for r in session.reviewers], dtype=bool)
     gone_p = np.array([p.withdrawn for p in session.papers], dtype=bool)
-    table = session.scores
-    s_keys, s_values = key_order(pair_keys(table.reviewer, table.paper, n_p), table.value)
-    has_score, pos = _positions(keys, s_keys)
-    expected = np.where(has_score, s_values[pos] if len(s_keys) else 0.0, 0.0)
-    pinned = contains(keys, _rule_keys(session, session.pins, n_p))
     policy = session.policy
+    known = np.zeros(len(keys), dtype=bool)
+    at = np.zeros(len(keys), dtype=np.int64)
+    if prior is not None and len(prior.rows.keys):
+        rows = prior.rows
+        found, at = positions_in(_row_keys(session, reviewer, paper), rows.keys)
+        moved_r = np.zeros(len(session.reviewers), dtype=bool)
+        moved_r[prior.reviewers] = True
+        moved_p = np.zeros(len(session.papers), dtype=bool)
+        moved_p[prior.papers] = True
+        known = found & (rows.score[at] == score) & ~moved_r[reviewer] & ~moved_p[paper]
+    if prior is not None and prior.same_scores:
+        s_keys, s_values = prior.rows.score_keys, prior.rows.score_values
+        scored = known
+    else:
+        table = session.scores
+        s_keys, s_values = key_order(pair_keys(table.reviewer, table.paper, n_p), table.value)
+        scored = np.zeros(len(keys), dtype=bool)
+    has_score = np.zeros(len(keys), dtype=bool)
+    expected = score.copy()
+    look = np.flatnonzero(~scored)
+    if prior is not None:
+        # The earlier check confirmed these rows' scores against the same table.
+        has_score[scored] = prior.rows.has_score[at[scored]]
+    found_score, pos = _positions(keys[look], s_keys)
+    has_score[look] = found_score
+    expected[look] = np.where(found_score, s_values[pos] if len(s_keys) else 0.0, 0.0)
+    pinned = contains(keys, _rule_keys(session, session.pins, n_p))
     low = np.zeros(len(keys), dtype=bool)
     if policy.min_score is not None:
         low = score < policy.min_score - 1e-12
+    topic = None
     no_topic = np.zeros(len(keys), dtype=bool)
     if policy.require_shared_topic:
-        no_topic = ~_shares_topic(session, reviewer, paper)
-    return PairFlags(
-        conflicted=contains(keys, conflicts.keys(n_p)),
+        topic = np.zeros(len(keys), dtype=bool)
+        if prior is not None and prior.rows.topic is not None:
+            topic[known] = prior.rows.topic[at[known]]
+        fresh = np.flatnonzero(~known) if prior is not None else np.arange(len(keys))
+        topic[fresh] = _shares_topic(session, reviewer[fresh], paper[fresh])
+        no_topic = ~topic
+    flags = PairFlags(
+        conflicted=contains(keys, conflict_keys),
         gone_reviewer=gone_r[reviewer],
         gone_paper=gone_p[paper],
         blocked=contains(keys, _rule_keys(session, session.blocks, n_p)),
@@ -202,6 +406,48 @@ def pair_flags(
         expected_score=expected,
         conflicts=conflicts,
     )
+    return flags, _Lookups(has_score, topic, s_keys, s_values, conflict_keys)
+
+
+def _row_keys(session: Session, reviewer: np.ndarray, paper: np.ndarray) -> np.ndarray:
+    """Paper-major pair keys: a plan's rows go by paper, then reviewer, so these increase."""
+    return paper.astype(np.int64) * max(len(session.reviewers), 1) + reviewer
+
+
+def _entity_values(session: Session, prior: _Prior | None) -> EntityValues:
+    """The per-entity values of `session`: those of the prior check's session, read again for
+    the entities that differ from it, or a full pass without one."""
+    policy = session.policy
+    if prior is None:
+        reviews, minimum, cap, floor = active_demands(session)
+        need = paper_senior_need(session) if policy.senior_hard else None
+        return EntityValues(reviews, minimum, cap, floor, overload_allowances(session), need)
+    old = prior.rows.entities
+    if not len(prior.reviewers) and not len(prior.papers):
+        return old
+    reviews, minimum, cap, floor = (
+        old.reviews.copy(), old.minimum.copy(), old.cap.copy(), old.floor.copy()
+    )
+    allowance = old.allowance.copy()
+    need = None if old.need is None else old.need.copy()
+    for j in prior.reviewers.tolist():
+        r = session.reviewers[j]
+        if r.withdrawn:
+            cap[j] = floor[j] = allowance[j] = 0
+        else:
+            cap[j], floor[j] = session.reviewer_cap(j), session.reviewer_floor(j)
+            allowance[j] = policy.overload_allowance if r.overload is None else r.overload
+    for i in prior.papers.tolist():
+        p = session.papers[i]
+        wanted = session.paper_reviews(i)
+        if need is not None:
+            own = policy.senior_min if p.senior_min is None else p.senior_min
+            need[i] = 0 if p.withdrawn else min(own, wanted)
+        if p.withdrawn:
+            reviews[i] = minimum[i] = 0
+        else:
+            reviews[i], minimum[i] = wanted, session.paper_min_reviews(i)
+    return EntityValues(reviews, minimum, cap, floor, allowance, need)
 
 
 def _shares_topic(session: Session, reviewer: np.ndarray, paper: np.ndarray) -> np.ndarray:
@@ -242,7 +488,10 @@ def _hard_rule_problems(
     score: np.ndarray,
     *,
     conflicts: ConflictSet | None = None,
-) -> list[str]:
+    prior: _Prior | None = None,
+    conflict_keys: np.ndarray | None = None,
+) -> tuple[list[str], CheckedRows | None]:
+    """Every hard rule's breaks (empty when none), and the state of a passed check."""
     problems: list[str] = []
     # Every test below is on whole arrays: a large plan has tens of thousands of assignments.
     for k in np.flatnonzero((paper < 0) | (reviewer < 0)).tolist():
@@ -252,17 +501,23 @@ def _hard_rule_problems(
         if reviewer[k] < 0:
             problems.append(f"assignment {k}: unknown reviewer {a.reviewer!r}")
     if problems:
-        return problems
+        return problems, None
 
     n_p = max(len(session.papers), 1)
     keys = pair_keys(reviewer, paper, n_p)
-    unique, seen = np.unique(keys, return_counts=True)
-    for key in unique[seen > 1]:
-        problems.append(
-            f"pair ({_rid(session, key, n_p)}, {_pid(session, key, n_p)}) is assigned twice"
-        )
+    rows_keys = _row_keys(session, reviewer, paper)
+    # A plan's rows go by (paper, reviewer): strictly increasing keys hold no pair twice.
+    ordered = len(rows_keys) < 2 or bool(np.all(rows_keys[1:] > rows_keys[:-1]))
+    if not ordered:
+        unique, seen = np.unique(keys, return_counts=True)
+        for key in unique[seen > 1]:
+            problems.append(
+                f"pair ({_rid(session, key, n_p)}, {_pid(session, key, n_p)}) is assigned twice"
+            )
 
-    flags = pair_flags(session, reviewer, paper, score, conflicts)
+    flags, lookups = _flag_pairs(
+        session, reviewer, paper, score, conflicts, prior, conflict_keys
+    )
     if (flags.conflicted | flags.gone_reviewer | flags.gone_paper).any():
         reasons = flags.conflicts.reason_of()
         for k in np.flatnonzero(
@@ -307,9 +562,10 @@ def _hard_rule_problems(
         problems.append(f"unscored pair ({a.reviewer}, {a.paper}) is assigned")
 
     loads, counts = loads_and_counts(session, reviewer, paper)
-    demands = active_demands(session)
+    entities = _entity_values(session, prior)
+    demands = entities.reviews, entities.minimum, entities.cap, entities.floor
     reviews, _, cap, _ = demands
-    allowed = cap + overload_allowances(session)
+    allowed = cap + entities.allowance
     for j in np.flatnonzero(loads > allowed):
         problems.append(
             f"reviewer {session.reviewers[j].id} has load {loads[j]} above cap {cap[j]}"
@@ -318,11 +574,29 @@ def _hard_rule_problems(
     for i in np.flatnonzero(counts > reviews):
         problems.append(f"paper {session.papers[i].id} has {counts[i]} reviews, above {reviews[i]}")
 
-    problems += _constraint_problems(session, plan, reviewer, paper, flags)
+    problems += _constraint_problems(session, plan, reviewer, paper, flags, entities.need)
     figures = plan_figures(session, reviewer, paper, score, demands=demands)
     if figures != plan.figures:
         problems.append(f"plan figures {plan.figures} differ from recomputed {figures}")
-    return problems
+    if problems:
+        return problems, None
+    order = None if ordered else np.argsort(rows_keys, kind="stable")
+
+    def by_key(values: np.ndarray) -> np.ndarray:
+        return values.copy() if order is None else values[order]
+
+    rows = CheckedRows(
+        session=session,
+        keys=by_key(rows_keys),
+        score=by_key(np.asarray(score, dtype=np.float64)),
+        has_score=by_key(lookups.has_score),
+        topic=None if lookups.topic is None else by_key(lookups.topic),
+        score_keys=lookups.score_keys,
+        score_values=lookups.score_values,
+        conflict_keys=lookups.conflict_keys,
+        entities=entities,
+    )
+    return [], rows
 
 
 def _constraint_problems(
@@ -331,8 +605,10 @@ def _constraint_problems(
     reviewer: np.ndarray,
     paper: np.ndarray,
     flags: PairFlags,
+    need: np.ndarray | None = None,
 ) -> list[str]:
-    """The policy's optional rules, read from the session's rows, not from the network."""
+    """The policy's optional rules, read from the session's rows, not from the network
+    (`need`: the seniors wanted per paper, when already derived)."""
     policy = session.policy
     problems: list[str] = []
     for k in np.flatnonzero(flags.below_min_score):
@@ -362,7 +638,8 @@ def _constraint_problems(
                     f"above max_per_institution {policy.max_per_institution}"
                 )
     if policy.senior_hard:
-        need = paper_senior_need(session)
+        if need is None:
+            need = paper_senior_need(session)
         senior = session.reviewer_senior_array()
         have = np.bincount(paper[senior[reviewer]], minlength=len(session.papers))
         for i in np.flatnonzero(have < need):
@@ -370,7 +647,7 @@ def _constraint_problems(
                 f"paper {session.papers[i].id} has {have[i]} senior reviewers, the hard rule "
                 f"needs {need[i]}"
             )
-    leads = np.fromiter((a.lead for a in plan.assignments), dtype=bool, count=len(paper))
+    leads = np.fromiter(map(attrgetter("lead"), plan.assignments), dtype=bool, count=len(paper))
     if leads.any():
         per_lead = np.bincount(reviewer[leads], minlength=len(session.reviewers))
         for j in np.flatnonzero(per_lead > policy.max_leads):
@@ -415,12 +692,13 @@ def _certificate_problems(
     base: Certified | None = None,
 ) -> tuple[list[str], Certified | None]:
     n_p = max(net.n_papers, 1)
-    if (
+    same_pairs = (
         base is not None
         and base.network.pair_reviewer is net.pair_reviewer
         and base.network.pair_paper is net.pair_paper
         and base.network.n_papers == net.n_papers
-    ):
+    )
+    if base is not None and same_pairs:
         # The same pairs: their sorted keys are the certified check's.
         net_keys, order = base.keys, base.order
     else:
@@ -430,31 +708,53 @@ def _certificate_problems(
         order = None if increasing else np.argsort(net_keys)
         if order is not None:
             net_keys = net_keys[order]
-    found, pos = _positions(pair_keys(reviewer, paper, n_p), net_keys)
+    keys = pair_keys(reviewer, paper, n_p)
+    by_paper = paper.astype(np.int64) * max(net.n_reviewers, 1) + reviewer
+    rising = len(by_paper) < 2 or bool(np.all(by_paper[1:] > by_paper[:-1]))
+    if base is not None and same_pairs and order is None:
+        # Rows the certified plan held are among its used pairs: look them up there (a table
+        # the size of a plan), and only the rest among all the network's pairs.
+        if rising and base.row_keys is not None and base.row_pairs is not None and len(net_keys):
+            # Both row lists in paper order: a search of sorted keys in sorted keys, several
+            # times faster than unsorted ones; each pair found is confirmed by its own key.
+            found, at = positions_in(by_paper, base.row_keys)
+            pos = base.row_pairs[at] if len(base.row_pairs) else at
+            found &= net_keys[pos] == keys
+        else:
+            found, at = positions_in(keys, net_keys[base.used])
+            pos = base.used[at] if len(base.used) else at
+        miss = np.flatnonzero(~found)
+        if len(miss):
+            found[miss], pos[miss] = _positions(keys[miss], net_keys)
+    else:
+        found, pos = _positions(keys, net_keys)
     if not found.all():
         return ["the plan uses a pair that is not eligible in the session's network"], None
-    in_plan = np.zeros(len(net_keys), dtype=bool)
-    in_plan[pos if order is None else order[pos]] = True
-    used = np.flatnonzero(in_plan)
+    used = np.sort(pos if order is None else order[pos])
+    if len(used) > 1 and bool(np.any(used[1:] == used[:-1])):
+        return ["the plan uses a pair twice"], None
     side = _side_flows(net, used)
     pot = np.asarray(potentials)
     try:
         if base is not None and _same_arcs(net, base.network):
-            _check_changes(net, in_plan, side, pot, base)
+            _check_changes(net, used, side, pot, base)
         else:
+            pair_flow = np.zeros(len(net_keys), dtype=np.int64)
+            pair_flow[used] = 1
             check_cost_certificate(
                 net.n_nodes,
                 net.tails,
                 net.heads,
                 net.capacities,
                 net.costs,
-                _whole_flow(net, in_plan.astype(np.int64), side),
+                _whole_flow(net, pair_flow, side),
                 potentials,
                 lower=net.lower,
             )
     except FlowCheckError as error:
         return [f"optimality certificate rejected: {error}"], None
-    kept = Certified(net, pot.astype(np.int64, copy=True), used, side, net_keys, order)
+    rows = (by_paper, pos if order is None else order[pos]) if rising else (None, None)
+    kept = Certified(net, pot.astype(np.int64, copy=True), used, side, net_keys, order, *rows)
     return [], kept
 
 
@@ -474,25 +774,30 @@ def _whole_flow(net: PlanNetwork, pair_flow: np.ndarray, side: np.ndarray) -> np
 
 def _check_changes(
     net: PlanNetwork,
-    in_plan: np.ndarray,
+    used: np.ndarray,
     side: np.ndarray,
     pot: np.ndarray,
     base: Certified,
 ) -> None:
     """The certificate on a network with the certified one's arcs: every arc whose bounds, cost,
     flow or end potentials changed, and every arc outside the pair block, meets the optimality
-    conditions; the flow changes keep every node balanced (the certified flow was)."""
+    conditions; the flow changes keep every node balanced (the certified flow was). `used`:
+    the sorted pair positions carrying flow."""
     n = net.n_nodes
     if pot.ndim != 1 or len(pot) != n or (pot.size and pot.dtype.kind not in "iu"):
         raise FlowCheckError(f"potentials must be a 1-D integer array of {n} entries")
     pot = pot.astype(np.int64, copy=False)
     old = base.network
     block = net.pair_arcs
-    # One boolean pass per cause over the pair block (no sorting): flow, bounds, cost, potentials.
-    look = np.zeros(len(in_plan), dtype=bool)
-    look[base.used] = True
-    look ^= in_plan
-    moved = np.flatnonzero(look)
+    # Pairs whose flow changed, from the two sorted lists of used pairs (no pass over all).
+    moved = np.sort(
+        np.concatenate([
+            used[~positions_in(used, base.used)[0]],
+            base.used[~positions_in(base.used, used)[0]],
+        ])
+    )
+    # One boolean pass per cause over the pair block (no sorting): bounds, cost, potentials.
+    look = np.zeros(block.stop - block.start, dtype=bool)
     for new_values, old_values in (
         (net.capacities, old.capacities),
         (net.lower, old.lower),
@@ -504,10 +809,11 @@ def _check_changes(
     if shifted.any():
         look |= shifted[net.tails[block]]
         look |= shifted[net.heads[block]]
+    look[moved] = True
     pairs = np.flatnonzero(look)
     sides = _side_arcs(net)
     arcs = np.concatenate([pairs + block.start, sides])
-    flow = np.concatenate([in_plan[pairs].astype(np.int64), side])
+    flow = np.concatenate([positions_in(pairs, used)[0].astype(np.int64), side])
     t, h = net.tails[arcs].astype(np.int64), net.heads[arcs].astype(np.int64)
     upper, low = net.capacities[arcs], net.lower[arcs]
     for what, bad in (("lower", flow < low), ("capacities", flow > upper)):
@@ -518,7 +824,7 @@ def _check_changes(
     # Conservation: the certified flow was balanced, so the changes must be.
     delta_arcs = np.concatenate([moved + block.start, sides])
     delta = np.concatenate(
-        [np.where(in_plan[moved], 1, -1).astype(np.int64), side - base.side_flow]
+        [np.where(positions_in(moved, used)[0], 1, -1).astype(np.int64), side - base.side_flow]
     )
     balance = np.bincount(net.tails[delta_arcs], weights=delta, minlength=n) - np.bincount(
         net.heads[delta_arcs], weights=delta, minlength=n

@@ -118,29 +118,62 @@ def settled_leads(
     fixed = np.zeros(n, dtype=bool)
     left = np.full(n_reviewers, limit, dtype=np.int64)
     # Each paper's pairs together, best first; ties keep the rows' order.
-    order = np.lexsort((-score_int, ~senior, paper))
-    while len(order):
-        loads = np.bincount(reviewer[order], minlength=n_reviewers)
+    order = _best_first(paper, senior, score_int)
+    if not len(order):
+        return np.flatnonzero(fixed), order, left
+    # A paper's pairs stay together until it closes, so its best pairs, its group and the
+    # reviewers' open loads are worked out once and then only updated: the later rounds settle
+    # a few papers each, and a pass over every open pair per round cost most of the time.
+    p = paper[order]
+    first = np.ones(len(order), dtype=bool)
+    first[1:] = p[1:] != p[:-1]
+    starts = np.flatnonzero(first)
+    sizes = np.diff(np.append(starts, len(order)))
+    group = np.cumsum(first) - 1
+    head = order[starts][group]
+    best = np.flatnonzero(
+        (senior[order] == senior[head]) & (score_int[order] == score_int[head])
+    )
+    loads = np.bincount(reviewer, minlength=n_reviewers)
+    open_group = np.ones(len(starts), dtype=bool)
+    while len(best):
         free = loads <= left
-        p = paper[order]
-        first = np.ones(len(order), dtype=bool)
-        first[1:] = p[1:] != p[:-1]
-        group = np.cumsum(first) - 1
-        head = order[first][group]
-        best = (senior[order] == senior[head]) & (score_int[order] == score_int[head])
-        candidate = np.flatnonzero(best & free[reviewer[order]])
+        candidate = best[free[reviewer[order[best]]]]
         if not len(candidate):
             break
         # One pair per paper: the first free one among its best.
+        g = group[candidate]
         once = np.ones(len(candidate), dtype=bool)
-        once[1:] = group[candidate[1:]] != group[candidate[:-1]]
+        once[1:] = g[1:] != g[:-1]
         pick = order[candidate[once]]
+        closing = g[once]
         fixed[pick] = True
         np.subtract.at(left, reviewer[pick], 1)
-        closed = np.zeros(int(paper.max()) + 1, dtype=bool)
-        closed[paper[pick]] = True
-        order = order[~closed[p]]
-    return np.flatnonzero(fixed), np.sort(order), left
+        # The closed papers' pairs leave the open loads.
+        size = sizes[closing]
+        offsets = np.arange(int(size.sum())) - np.repeat(np.cumsum(size) - size, size)
+        rows = order[np.repeat(starts[closing], size) + offsets]
+        loads -= np.bincount(reviewer[rows], minlength=n_reviewers)
+        open_group[closing] = False
+        best = best[open_group[group[best]]]
+    return np.flatnonzero(fixed), np.sort(order[open_group[group]]), left
+
+
+def _best_first(paper: np.ndarray, senior: np.ndarray, score_int: np.ndarray) -> np.ndarray:
+    """Row order by paper, then seniors first, then higher score steps; ties keep the rows'
+    order (`np.lexsort((-score_int, ~senior, paper))`).
+
+    Where the three fit one int64 key, one stable sort of it: a plan's rows already go by
+    paper, which a stable sort of one key finds in a fraction of the lexsort's time.
+    """
+    if not len(paper):
+        return np.zeros(0, dtype=np.int64)
+    low, high = int(score_int.min()), int(score_int.max())
+    steps = high - low + 1
+    if (int(paper.max()) + 1) * 2 * steps >= 2**62:
+        return np.lexsort((-score_int, ~senior, paper))
+    key = (paper.astype(np.int64) * 2 + ~senior) * steps + (high - score_int)
+    return np.argsort(key, kind="stable")
 
 
 @dataclass(frozen=True, eq=False)
@@ -195,8 +228,8 @@ def lead_mask_warm(
     mask = np.zeros(len(paper), dtype=bool)
     if limit == 0 or len(paper) == 0:
         return mask, None
-    papers_with = np.unique(paper)
-    n_led = len(papers_with)
+    # The papers with reviews, counted without a sort (the dense path below lists them).
+    n_led = int(np.count_nonzero(np.bincount(paper, minlength=len(session.papers))))
     senior = session.reviewer_senior_array()[reviewer]
     loads = np.bincount(reviewer, minlength=len(session.reviewers))
     slots = np.minimum(loads, limit)
@@ -228,6 +261,7 @@ def lead_mask_warm(
     score_int = np.rint(score * SCORE_RESOLUTION).astype(np.int64)
     per_lead, per_senior = lead_costs(score_int, n_led)
     gain = per_lead + per_senior * senior.astype(np.int64) + score_int
+    papers_with = np.unique(paper)
     people = np.flatnonzero(slots > 0)
     first_slot = np.zeros(len(session.reviewers), dtype=np.int64)
     first_slot[people] = np.cumsum(slots[people]) - slots[people]
@@ -258,17 +292,23 @@ def lead_choice(
     """The LeadChoice of the pairs marked in `mask`, with the papers left without (senior) lead."""
     paper_ids = [p.id for p in session.papers]
     reviewer_ids = [r.id for r in session.reviewers]
-    lead_of = {
-        paper_ids[i]: reviewer_ids[j]
-        for i, j in zip(paper[mask].tolist(), reviewer[mask].tolist(), strict=True)
-    }
-    papers_with = np.unique(paper)
-    led = np.zeros(len(session.papers), dtype=bool)
+    # Item getters over whole lists and per-paper counts: no Python loop over the rows and no
+    # sort (a large venue has tens of thousands of papers).
+    lead_of = dict(
+        zip(
+            map(paper_ids.__getitem__, paper[mask].tolist()),
+            map(reviewer_ids.__getitem__, reviewer[mask].tolist()),
+            strict=True,
+        )
+    )
+    n_p = len(session.papers)
+    has = np.bincount(paper, minlength=n_p) > 0
+    led = np.zeros(n_p, dtype=bool)
     led[paper[mask]] = True
-    senior_led = np.zeros(len(session.papers), dtype=bool)
+    senior_led = np.zeros(n_p, dtype=bool)
     senior_led[paper[mask & session.reviewer_senior_array()[reviewer]]] = True
-    no_lead = tuple(paper_ids[i] for i in papers_with[~led[papers_with]].tolist())
-    no_senior = tuple(paper_ids[i] for i in papers_with[~senior_led[papers_with]].tolist())
+    no_lead = tuple(map(paper_ids.__getitem__, np.flatnonzero(has & ~led).tolist()))
+    no_senior = tuple(map(paper_ids.__getitem__, np.flatnonzero(has & ~senior_led).tolist()))
     return LeadChoice(lead_of=lead_of, no_lead=no_lead, no_senior_lead=no_senior)
 
 
@@ -320,14 +360,77 @@ def _leads_by_flow(
     lead and each is routed by a search of its own, 28 M work units (60 times the lead network),
     where the primal-dual warm start routes them together in a few phases.
     """
+    n_papers = max(n_papers, int(paper.max(initial=-1)) + 1)
+    is_senior = np.zeros(n_reviewers, dtype=bool)
+    is_senior[reviewer[senior]] = True
+    keys = reviewer.astype(np.int64) * n_papers + paper
+    if warm is not None and _fits(warm, is_senior, n_papers):
+        found = positions_in(keys, sorted_keys(warm.pair_keys))[0]
+        if np.count_nonzero(~found) <= WARM_NEW_SHARE * len(keys):
+            start = _warm_leads(warm, keys, reviewer, paper, is_senior)
+            return _solve_leads(
+                reviewer, paper, senior, score_int, limit, is_senior, n_papers, start
+            )
+    # A cold solve on the reviewers and papers of these pairs only: the settled leads leave a
+    # core of a few thousand papers, and nodes without arcs still cost cost scaling work in
+    # every phase (a third of the solve on the loose L benchmark). The state is laid out on
+    # every reviewer and paper again, so that the next choice can restart from it.
+    people, r_at = _dense_ranks(reviewer, n_reviewers)
+    papers, p_at = _dense_ranks(paper, n_papers)
+    own_limit = limit if np.ndim(limit) == 0 else np.asarray(limit)[people]
+    chosen, small = _solve_leads(
+        r_at, p_at, senior, score_int, own_limit, is_senior[people], len(papers), None
+    )
+    n_r, n_small = len(people), len(papers)
+    pot = np.zeros(4 + n_reviewers + n_papers, dtype=np.int64)
+    pot[:3] = small.potentials[:3]
+    # Reviewers and papers without pairs sit level with their hub and the sink (a warm start
+    # from this state moves them there anyway).
+    pot[3 : 3 + n_reviewers] = np.where(is_senior, pot[1], pot[2])
+    pot[3 + people] = small.potentials[3 : 3 + n_r]
+    pot[3 + n_reviewers : 3 + n_reviewers + n_papers] = small.potentials[-1]
+    pot[3 + n_reviewers + papers] = small.potentials[3 + n_r : 3 + n_r + n_small]
+    pot[-1] = small.potentials[-1]
+    slots = np.zeros(n_reviewers, dtype=np.int64)
+    slots[people] = small.slots
+    state = LeadState(
+        pair_keys=keys,
+        lead=small.lead,
+        pair_costs=small.pair_costs,
+        potentials=pot,
+        senior=is_senior,
+        slots=slots,
+        n_papers=n_papers,
+    )
+    return chosen, state
+
+
+def _dense_ranks(index: np.ndarray, size: int) -> tuple[np.ndarray, np.ndarray]:
+    """`np.unique(index, return_inverse=True)` for indices below `size`, by counting (no sort)."""
+    present = np.bincount(index, minlength=size) > 0
+    rank = np.cumsum(present) - 1
+    return np.flatnonzero(present), rank[index]
+
+
+def _solve_leads(
+    reviewer: np.ndarray,
+    paper: np.ndarray,
+    senior: np.ndarray,
+    score_int: np.ndarray,
+    limit: int | np.ndarray,
+    is_senior: np.ndarray,
+    n_papers: int,
+    start: WarmStart | None,
+) -> tuple[np.ndarray, LeadState]:
+    """The three tiers' solves of `_leads_by_flow` on the network of these reviewers
+    (`is_senior` has one entry each) and `n_papers` papers, the last from `start`."""
     from review_alloc.flow import max_flow, min_cost_flow
 
-    n_papers = max(n_papers, int(paper.max(initial=-1)) + 1)
+    n_reviewers = len(is_senior)
     first_paper = 3 + n_reviewers
     sink = first_paper + n_papers
     n = sink + 1
-    is_senior = np.zeros(n_reviewers, dtype=bool)
-    is_senior[reviewer[senior]] = True
+
     tails, heads = _lead_arcs(reviewer, paper, is_senior, n_papers)
     # A reviewer can lead at most the papers they review: capping their arc there changes no
     # choice, and a reviewer who lost reviews then hands the leads they lost back to the hub at
@@ -357,11 +460,6 @@ def _leads_by_flow(
     costs[0] = 0
     costs[pairs] = -score_int
     keys = reviewer.astype(np.int64) * n_papers + paper
-    start = None
-    if warm is not None and _fits(warm, is_senior, n_papers):
-        found = positions_in(keys, sorted_keys(warm.pair_keys))[0]
-        if np.count_nonzero(~found) <= WARM_NEW_SHARE * len(keys):
-            start = _warm_leads(warm, keys, reviewer, paper, is_senior)
     result = min_cost_flow(n, tails, heads, upper, costs, lower=lower, warm=start)
     chosen = result.flow[pairs] > 0
     state = LeadState(

@@ -94,6 +94,9 @@ class PlanNetwork:
     keep_weight: int = 0
     resolution: int = SCORE_RESOLUTION
     """Score steps per unit actually used (coarser only when the tier weights need the room)."""
+    rules: PairRules | None = field(default=None, compare=False, repr=False)
+    """The rules the network was built or patched with (the next patch keeps what they read
+    from unchanged tables; see `PairRules.following`)."""
 
     def paper_node(self, i: np.ndarray | int) -> np.ndarray | int:
         """Node id of paper index i (reviewer j is node 1 + j)."""
@@ -314,6 +317,7 @@ def build_network(
         weights=(tiers.required, tiers.coverage, tiers.floors),
         max_score=max_score,
         conflicts=conflicts,
+        rules=rules,
         n_reviewers=n_r,
         n_papers=n_p,
         overload_arcs=overload_arcs,

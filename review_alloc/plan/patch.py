@@ -7,9 +7,10 @@ instead of leaving, changed keep bonuses change pair costs, and changed demands 
 capacities of the source, paper and senior arcs. Only the arcs of what changed are looked at,
 plus a few vectorised passes, and the earlier flow and potentials stay valid as a start
 without any matching of two networks. The per-entity arrays (demands, overload allowances,
-seniors wanted) of the session last patched to are kept, so that the next patch from it reads
-again only the entities that changed (`changed_arrays`); the pair keys of all arcs are worked
-out only where a changed conflict, pin or block or another earlier plan needs them.
+seniors wanted) of the session planned on are kept with its outcome (`PlanOutcome.arrays`),
+so that the next patch from it reads again only the entities that changed (`changed_arrays`);
+the pair keys of all arcs are worked out only where a changed conflict, pin or block or
+another earlier plan needs them.
 
 Where the change is anything else (new or removed entities, a policy change, another score
 table, an entity's attributes beyond the fields above, a reinstatement, a pair that becomes
@@ -131,7 +132,7 @@ class SessionArrays:
     need: np.ndarray
 
     def __post_init__(self) -> None:
-        # Shared with the next patch through `_LAST_ARRAYS`: nobody may write into them.
+        # Kept with the outcome and shared with the next patch: nobody may write into them.
         for array in (
             self.reviews, self.minimum, self.cap, self.floor, self.allowance, self.need
         ):
@@ -172,22 +173,14 @@ def changed_arrays(old: SessionArrays, new: Session, change: SessionChange) -> S
     return SessionArrays(reviews, minimum, cap, floor, allowance, need)
 
 
-_LAST_ARRAYS: tuple[Session, SessionArrays] | None = None
-"""The arrays of the session the last patch was for: the next re-plan's earlier session is
-usually that one, so its patch reads only what changed since. Replaced whole (one reference
-assignment), so a thread reading it sees one session's arrays or another's, never a mix."""
-
-
-def _arrays_for(old_session: Session, new: Session, change: SessionChange) -> SessionArrays:
-    """`session_arrays(new)`: updated from the earlier session's when they are at hand."""
-    global _LAST_ARRAYS
-    last = _LAST_ARRAYS
-    if last is not None and last[0] is old_session:
-        arrays = changed_arrays(last[1], new, change)
-    else:
-        arrays = session_arrays(new)
-    _LAST_ARRAYS = (new, arrays)
-    return arrays
+def arrays_for(
+    old_session: Session, new: Session, change: SessionChange, old: SessionArrays | None
+) -> SessionArrays:
+    """`session_arrays(new)`: updated from `old` (the arrays of `old_session`, kept with the
+    outcome planned on it) when at hand, else by a full pass."""
+    if old is None:
+        return session_arrays(new)
+    return changed_arrays(old, new, change)
 
 
 @dataclass(frozen=True)
@@ -202,8 +195,14 @@ class NetworkPatch:
     costs: np.ndarray
     """The new values of `arcs` (also in `network`'s arrays)."""
     change: SessionChange
-    demands: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]
-    """The new session's `active_demands` (reviews, min_reviews, cap, floor)."""
+    arrays: SessionArrays
+    """The new session's per-entity arrays, kept with the outcome for the next patch."""
+
+    @property
+    def demands(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """The new session's `active_demands` (reviews, min_reviews, cap, floor)."""
+        a = self.arrays
+        return a.reviews, a.minimum, a.cap, a.floor
 
 
 def network_pair_keys(net: PlanNetwork) -> np.ndarray:
@@ -244,12 +243,14 @@ def patched_network(
     *,
     old_plan: Plan | None = None,
     old_flow: np.ndarray | None = None,
+    old_arrays: SessionArrays | None = None,
 ) -> NetworkPatch | None:
     """The network of `new` (keeping `earlier`'s pairs when given) derived from `old`, the
     network of `old_session`; None when the change is not one a patch follows.
 
     `old_plan` and `old_flow` (the plan decoded from `old` and its flow) let the keep tier be
-    read off the flow when `earlier` is that plan.
+    read off the flow when `earlier` is that plan; `old_arrays` (`session_arrays(old_session)`,
+    kept with the earlier outcome) let the per-entity arrays be read again only where changed.
     """
     policy = new.policy
     if policy.bottleneck or old.kept is None and earlier is not None:
@@ -271,7 +272,7 @@ def patched_network(
     gone_p = change.papers[now_p & ~was_p]
 
     conflicts: ConflictSet = old.conflicts if change.conflicts_same else conflict_pairs(new)
-    rules = PairRules(new, conflicts)
+    rules = PairRules.following(new, old.rules, conflicts)
     rules.check_pins()
     look = [_reviewer_arcs(old, gone_r)]
     if len(gone_p):
@@ -289,7 +290,7 @@ def patched_network(
                 # A pair now allowed that has no arc (a lifted conflict or block, a new pin).
                 return None
             look.append(at[found])
-    arcs = np.unique(np.concatenate(look)) if look else np.zeros(0, np.int64)
+    arcs = _sorted_unique(np.concatenate(look)) if look else np.zeros(0, np.int64)
 
     capacities = old.capacities.copy()
     # The lower bounds, costs and pin flags are copied only where they may change (the arcs
@@ -319,9 +320,8 @@ def patched_network(
         lower[old.pair_arcs.start + arcs] = pinned.astype(np.int64)
         pair_pinned[arcs] = pinned
 
-    arrays = _arrays_for(old_session, new, change)
-    demands = arrays.reviews, arrays.minimum, arrays.cap, arrays.floor
-    reviews, minimum, cap, floor = demands
+    arrays = arrays_for(old_session, new, change, old_arrays)
+    reviews, minimum, cap, floor = arrays.reviews, arrays.minimum, arrays.cap, arrays.floor
     allowance = arrays.allowance
     over = np.flatnonzero(allowance > 0)
     if not np.isin(over, old.overload_reviewers).all() or (len(over) > 0) != (
@@ -355,24 +355,24 @@ def patched_network(
             )
         kept &= capacities[old.pair_arcs] > 0
         assert old.kept is not None
-        gained = kept.astype(np.int64) - old.kept.astype(np.int64)
+        # Only the pairs whose keep flag flipped change cost (a few, not all 3 M).
+        flipped = np.flatnonzero(kept != old.kept)
+        gained = kept[flipped].astype(np.int64) - old.kept[flipped].astype(np.int64)
         costs = costs.copy()
-        costs[old.pair_arcs] -= old.keep_weight * gained
+        costs[old.pair_arcs.start + flipped] -= old.keep_weight * gained
+    else:
+        flipped = np.zeros(0, dtype=np.int64)
     if not _same_weights(old, new, capacities, cap, total, keep=kept is not None):
         return None
 
-    moved = capacities != old.capacities
-    if lower is not old.lower:
-        moved |= lower != old.lower
-    if costs is not old.costs:
-        moved |= costs != old.costs
-    changed = np.flatnonzero(moved)
+    changed = _changed_arcs(old, capacities, lower, costs, arcs, flipped)
     net = replace(
         old,
         capacities=capacities,
         lower=lower,
         costs=costs,
         conflicts=conflicts,
+        rules=rules,
         pair_pinned=pair_pinned,
         senior_need=need,
         kept=kept,
@@ -384,8 +384,44 @@ def patched_network(
         lower=lower[changed],
         costs=costs[changed],
         change=change,
-        demands=demands,
+        arrays=arrays,
     )
+
+
+def _sorted_unique(values: np.ndarray) -> np.ndarray:
+    """`np.unique` of a few thousand positions that mostly come sorted already (a reviewer's
+    arcs are one run): numpy's hashing pass cost more than the sort of nearly sorted values."""
+    values = np.sort(values)
+    if len(values) < 2:
+        return values
+    return values[np.concatenate(([True], values[1:] != values[:-1]))]
+
+
+def _changed_arcs(
+    old: PlanNetwork,
+    capacities: np.ndarray,
+    lower: np.ndarray,
+    costs: np.ndarray,
+    arcs: np.ndarray,
+    flipped: np.ndarray,
+) -> np.ndarray:
+    """The arcs whose capacity, lower bound or cost differ from `old`'s, sorted.
+
+    Within the pair block a patch writes only the pairs it looked at (`arcs`) and those whose
+    keep flag flipped (`flipped`, both pair positions), so only those are compared there (a
+    few thousand, not 3 M); every arc outside the block is compared. The checker compares
+    every arc of the networks on its own, so a pair missed here would fail the certificate.
+    """
+    block = old.pair_arcs
+    m = len(capacities)
+    pairs = _sorted_unique(np.concatenate([arcs, flipped]).astype(np.int64)) + block.start
+    where = np.concatenate([np.arange(block.start), pairs, np.arange(block.stop, m)])
+    moved = capacities[where] != old.capacities[where]
+    if lower is not old.lower:
+        moved |= lower[where] != old.lower[where]
+    if costs is not old.costs:
+        moved |= costs[where] != old.costs[where]
+    return where[moved]
 
 
 def _same_rows(a: Plan, b: Plan) -> bool:
@@ -435,8 +471,14 @@ def _same_weights(
     """Whether a fresh build would weigh the tiers as `old` does: the same top score among the
     pairs still open, and the same weights under the new demands."""
     n_sen, n_grp = len(old.senior_paper), len(old.group_paper)
-    open_pairs = capacities[old.pair_arcs] > 0
-    top = float(old.pair_score[open_pairs].max()) if open_pairs.any() else 0.0
+    pair_caps = capacities[old.pair_arcs]
+    best = int(np.argmax(old.pair_score)) if len(pair_caps) else -1
+    if best >= 0 and pair_caps[best] > 0:
+        # The best-scored pair is still open: it is the top (no masked pass over all pairs).
+        top = float(old.pair_score[best])
+    else:
+        open_pairs = pair_caps > 0
+        top = float(old.pair_score[open_pairs].max()) if open_pairs.any() else 0.0
     resolution, tiers = fitting_weights(
         top,
         new.policy.balance,

@@ -43,7 +43,7 @@ from review_alloc.plan.exact import EXACT_TIERS, ExactResult, exact_tiers, solve
 from review_alloc.plan.fairness import coverage_flows, highest_threshold, score_thresholds
 from review_alloc.plan.leads import LeadChoice, LeadState
 from review_alloc.plan.network import PlanNetwork, build_network
-from review_alloc.plan.patch import NetworkPatch, patched_network
+from review_alloc.plan.patch import NetworkPatch, SessionArrays, patched_network, session_arrays
 from review_alloc.plan.warmstart import same_cost_scale, warm_start_for
 from review_alloc.plan.weights import SCORE_RESOLUTION
 
@@ -54,11 +54,15 @@ OBJECTIVE_TIERS = ("required", "seniors", "coverage", "floors", "score")
 
 
 class _KeptSlot:
-    """Where an outcome keeps its optimum as a patchable residual state, built on first use."""
+    """Where an outcome keeps what the next patched re-plan starts from, built on first use:
+    its optimum as a patchable residual state and its session's per-entity arrays."""
 
-    def __init__(self, state: KeptFlow | None = None) -> None:
+    def __init__(
+        self, state: KeptFlow | None = None, arrays: SessionArrays | None = None
+    ) -> None:
         self.state = state
         self.refused = False
+        self.arrays = arrays
         self.lock = threading.Lock()
 
 
@@ -107,10 +111,12 @@ class PlanOutcome:
         """The optimum on `network` as a patchable residual state (None without a flow).
 
         Built once, on first use: the workspace builds it in a background thread after a plan,
-        so that the next re-plan finds it ready; a re-plan solved from it keeps its own.
+        so that the next re-plan finds it ready; a re-plan solved from it keeps its own. The
+        session's per-entity arrays (`entity_arrays`) are readied with it.
         """
         if self.flow is None:
             return None
+        self.entity_arrays()
         with self.kept.lock:
             if self.kept.state is None and not self.kept.refused:
                 net = self.network
@@ -124,6 +130,16 @@ class PlanOutcome:
                     # other solves): the next re-plan solves cold instead.
                     self.kept.refused = True
             return self.kept.state
+
+    def entity_arrays(self) -> SessionArrays | None:
+        """`plan.patch.session_arrays` of `planned` (None without it), built on first use; a
+        patched re-plan keeps those its patch derived."""
+        if self.planned is None:
+            return None
+        with self.kept.lock:
+            if self.kept.arrays is None:
+                self.kept.arrays = session_arrays(self.planned)
+            return self.kept.arrays
 
     @property
     def proven_optimal(self) -> bool:
@@ -486,10 +502,12 @@ def _decode(
     warm_leads: LeadState | None = None,
     reuse: PlanRows | None = None,
     demands: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray] | None = None,
+    used: np.ndarray | None = None,
 ) -> tuple[Plan, LeadChoice | None, LeadState | None, PlanRows]:
     """The plan of an optimal flow (pair arcs with flow > 0 only), its leads chosen when the
-    policy asks for them; `reuse` holds an earlier plan's rows of the same entities."""
-    chosen = np.flatnonzero(result.flow[net.pair_arcs] > 0)
+    policy asks for them; `reuse` holds an earlier plan's rows of the same entities, `used`
+    the pair arcs' flow > 0 when already worked out."""
+    chosen = np.flatnonzero(result.flow[net.pair_arcs] > 0 if used is None else used)
     reviewer = net.pair_reviewer[chosen]
     paper = net.pair_paper[chosen]
     score = net.pair_score[chosen]
@@ -519,12 +537,20 @@ def _patched_solve(
         keep_from,
         old_plan=warm.plan,
         old_flow=warm.flow,
+        # Only when readied (built with the kept state, or by the patch that made `warm`):
+        # building them here would cost the full pass they save.
+        old_arrays=warm.kept.arrays,
     )
     if patch is None:
         return None
     result, state = _resolve(session, warm, patch)
     net = patch.network
-    if _violated_splits(session, net, result.flow[net.pair_arcs] > 0):
+    # (`_violated_splits` is empty without the rule or relaxed groups: skip the pass over pairs.)
+    if (
+        session.policy.max_per_institution is not None
+        and net.relaxed_groups
+        and _violated_splits(session, net, result.flow[net.pair_arcs] > 0)
+    ):
         # Mixed institution groups to share out: the exact path works on built networks.
         return None
     return net, result, patch, state
@@ -578,6 +604,7 @@ def make_plan(
         warm.lead_state if warm else None,
         warm.rows if patched is not None and warm is not None else None,
         patched[2].demands if patched is not None else None,
+        used,
     )
     if proof is not None:
         plan = plan.model_copy(update={"method": plan.method + _proof_note(proof)})
@@ -593,16 +620,14 @@ def make_plan(
                 )
             }
         )
-    reuse_conflicts = None
-    if patched is not None and patched[2].change.conflicts_same and warm is not None:
-        reuse_conflicts = warm.checked_conflicts
+    # The checker decides on its own what of the earlier check still holds (it compares the
+    # sessions itself); the planner's view of the change is not passed on.
     check_state = check_plan(
         session,
         plan,
         result.potentials,
         network=net,
-        conflicts=reuse_conflicts,
-        base=warm.check_state if patched is not None and warm is not None else None,
+        base=warm.check_state if warm is not None else None,
     )
     before = None
     if session.policy.balance > 0:
@@ -637,5 +662,5 @@ def make_plan(
         patched=patched is not None,
         checked_conflicts=check_state.conflicts,
         check_state=check_state,
-        kept=_KeptSlot(state),
+        kept=_KeptSlot(state, patched[2].arrays if patched is not None else None),
     )

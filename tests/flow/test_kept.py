@@ -406,3 +406,24 @@ def test_the_planners_own_network_after_a_withdrawal_a_pin_and_new_costs(family:
         # OR-Tools SimpleMinCostFlow is the reference optimum.
         reference = ortools_cost(net.n, net.tails, net.heads, net.caps, net.costs, None, net.lower)
         check_result(net, result, reference)
+
+
+def test_the_cost_is_exact_where_capacities_times_costs_pass_int64() -> None:
+    # Huge capacities on idle arcs and costs near 2**40: the capacities times the largest cost
+    # pass int64, the flow's own products do not, and the integer dot product must be exact.
+    # Reference: the cost summed in Python integers, and OR-Tools' SimpleMinCostFlow optimum.
+    n = 4
+    tails = np.array([0, 0, 1, 2, 0], dtype=np.int64)
+    heads = np.array([1, 2, 3, 3, 3], dtype=np.int64)
+    caps = np.array([5, 5, 5, 5, 2**40], dtype=np.int64)
+    costs = np.array([2**40, 3, -(2**40) + 7, 1, 2**40], dtype=np.int64)
+    supplies = np.array([4, 0, 0, -4], dtype=np.int64)
+    state = KeptFlow.solve(n, tails, heads, caps, costs, supplies=supplies)
+    child = state.patched([3], capacities=[1])
+    result = child.resolve()
+    assert result is not None
+    caps2 = caps.copy()
+    caps2[3] = 1
+    exact = sum(int(f) * int(c) for f, c in zip(result.flow.tolist(), costs.tolist(), strict=True))
+    assert result.cost == exact
+    assert result.cost == ortools_cost(n, tails, heads, caps2, costs, supplies)

@@ -267,3 +267,201 @@ def test_a_bound_or_cost_change_where_flow_and_potentials_stayed_is_rejected() -
                 assert "optimality certificate" in quick
                 checked += 1
     assert checked > 0
+
+
+# --- The hard rules on the incremental path -------------------------------------------------
+# Reference: the full check (`base=None`), which reads every rule input anew; each check below
+# must give exactly its messages on a plan whose rows stayed while a rule input changed.
+
+
+def _messages(session: Session, plan: Plan, base: CheckState | None) -> list[str] | None:
+    """None when the rules pass (no certificate), else the check's messages."""
+    try:
+        check_plan(session, plan, None, base=base)
+    except PlanCheckError as error:
+        return list(error.problems)
+    return None
+
+
+def _inferring(session: Session) -> Session:
+    """The session with every conflict rule inferred, e-mails and institutions to infer from."""
+    rules = session.policy.conflict_rules.model_copy(
+        update={"author_email": True, "institution": True, "email_domain": True}
+    )
+    reviewers = [
+        r.model_copy(update={"email": f"{r.id}@lab{k % 3}.example.org"})
+        for k, r in enumerate(session.reviewers)
+    ]
+    papers = [
+        p.model_copy(update={"authors": [f"author{k}@press{k % 4}.example.net"],
+                             "institutions": [f"Press {k % 4}"]})
+        for k, p in enumerate(session.papers)
+    ]
+    policy = session.policy.model_copy(update={"conflict_rules": rules})
+    return session.model_copy(update={"reviewers": reviewers, "papers": papers, "policy": policy})
+
+
+def _with_reviewer(session: Session, j: int, **update: object) -> Session:
+    reviewers = list(session.reviewers)
+    reviewers[j] = reviewers[j].model_copy(update=update)
+    return session.model_copy(update={"reviewers": reviewers})
+
+
+def _with_paper(session: Session, i: int, **update: object) -> Session:
+    papers = list(session.papers)
+    papers[i] = papers[i].model_copy(update=update)
+    return session.model_copy(update={"papers": papers})
+
+
+def _rule_changes(session: Session, plan: Plan, rng: np.random.Generator) -> list[Session]:
+    """Sessions that each differ from `session` in one rule input of a pair `plan` uses."""
+    from review_alloc.model import PairRule, ScoreTable
+
+    a = plan.assignments[int(rng.integers(len(plan.assignments)))]
+    j, i = session.reviewer_index()[a.reviewer], session.paper_index()[a.paper]
+    r, p = session.reviewers[j], session.papers[i]
+    table = session.scores
+    values = np.asarray(table.value, dtype=np.float64).copy()
+    at = np.flatnonzero((table.reviewer == j) & (table.paper == i))
+    rescored = None
+    if len(at):
+        values[at] = np.round(1.0 - values[at], 2) if values[at[0]] != 0.5 else 0.25
+        rescored = session.model_copy(update={"scores": ScoreTable.from_arrays(
+            np.asarray(table.reviewer), np.asarray(table.paper), values)})
+    unscored = None
+    if len(at):
+        keep = np.ones(len(table.value), dtype=bool)
+        keep[at] = False
+        unscored = session.model_copy(update={"scores": ScoreTable.from_arrays(
+            np.asarray(table.reviewer)[keep], np.asarray(table.paper)[keep],
+            np.asarray(table.value)[keep])})
+    changes = [
+        _with_reviewer(session, j, withdrawn=True),
+        _with_reviewer(session, j, cap=0, floor=0, overload=0),
+        _with_reviewer(session, j, senior=not r.senior),
+        _with_reviewer(session, j, topics=[]),
+        _with_reviewer(session, j, institution=(p.institutions or ["Nowhere Lab"])[0]),
+        _with_reviewer(session, j, email=(p.authors or ["x@y.example.com"])[0]),
+        _with_reviewer(session, j, email="someone@" + (p.authors or ["x@y.example.com"])[0]
+                       .rpartition("@")[2]),
+        _with_paper(session, i, withdrawn=True),
+        _with_paper(session, i, reviews=1, min_reviews=1),
+        _with_paper(session, i, senior_min=3),
+        _with_paper(session, i, topics=["nothing shared"]),
+        _with_paper(session, i, institutions=[r.institution or "Nowhere Lab"]),
+        _with_paper(session, i, authors=[r.email or "x@y.example.com"]),
+        session.model_copy(update={"conflicts": [
+            *session.conflicts, Conflict(reviewer=a.reviewer, paper=a.paper, reason="late")]}),
+        session.model_copy(update={"blocks": [
+            *session.blocks, PairRule(reviewer=a.reviewer, paper=a.paper)]}),
+        session.model_copy(update={"pins": []}),
+        session.model_copy(update={"policy": session.policy.model_copy(
+            update={"min_score": 0.5})}),
+        session.model_copy(update={"policy": session.policy.model_copy(
+            update={"require_shared_topic": not session.policy.require_shared_topic})}),
+        session.model_copy(update={"policy": session.policy.model_copy(
+            update={"senior_hard": not session.policy.senior_hard})}),
+    ]
+    changes += [s for s in (rescored, unscored) if s is not None]
+    return changes
+
+
+def _rule_sessions(seed: int) -> list[Session]:
+    """A few sessions with every rule the checker reads: seniors, institutions, topics, pins."""
+    policies: list[dict[str, object]] = [
+        {"senior_min": 1, "max_per_institution": 1, "senior_hard": False},
+        {"senior_min": 1, "senior_hard": True, "require_shared_topic": True},
+        {"max_per_institution": 2, "min_score": 0.1, "unscored": "exclude"},
+        {"unscored": "zero", "overload_allowance": 1},
+    ]
+    from tests.plan.test_constraints_reference import rules_session
+
+    base = rules_session(9100 + seed, **policies[seed % len(policies)])
+    return [base, _inferring(base)]
+
+
+@pytest.mark.parametrize("seed", range(16))
+def test_a_rule_input_changed_under_unchanged_rows_is_checked_again(seed: int) -> None:
+    rng = np.random.default_rng(9300 + seed)
+    rejected = 0
+    for session in _rule_sessions(seed):
+        try:
+            outcome = make_plan(session)
+        except PlanInputError:
+            continue
+        if not outcome.plan.assignments:
+            continue
+        # The check of the plan on its own session passed, and left its state.
+        base = check_plan(session, outcome.plan, None)
+        assert base.rows is not None
+        for changed in _rule_changes(session, outcome.plan, rng):
+            full = _messages(changed, outcome.plan, None)
+            quick = _messages(changed, outcome.plan, base)
+            assert quick == full, (full, quick)
+            rejected += full is not None
+        # Unchanged, the plan passes both ways.
+        assert _messages(session, outcome.plan, base) is None
+    if seed < 4:
+        assert rejected > 0
+
+
+@pytest.mark.parametrize("seed", range(20))
+def test_replans_checked_in_a_chain_agree_with_the_full_check(seed: int) -> None:
+    # A chain of workspace changes (withdrawals, caps, conflicts, blocks, pins) re-planned warm:
+    # each plan's check on the earlier check's state gives the full check's messages, and the
+    # plan itself, and the earlier plan under the new rules, get the same verdict both ways.
+    rng = np.random.default_rng(9500 + seed)
+    session = _rule_sessions(seed)[seed % 2]
+    ws = Workspace(session)
+    try:
+        prev = ws.solve()
+    except PlanInputError:
+        return
+    for _ in range(5):
+        before = prev.plan
+        _change(ws, rng)
+        try:
+            out = ws.solve()
+        except PlanInputError:
+            return
+        assert out.check_state is not None and out.check_state.rows is not None
+        assert prev.check_state is not None
+        base = prev.check_state
+        for plan in (out.plan, before):
+            full = _messages(ws.session, plan, None)
+            quick = _messages(ws.session, plan, base)
+            assert quick == full, (full, quick)
+        prev = out
+
+
+def test_the_checked_rows_are_read_only() -> None:
+    session = _rule_sessions(1)[0]
+    outcome = make_plan(session)
+    state = outcome.check_state
+    assert state is not None and state.rows is not None
+    rows = state.rows
+    for array in (rows.keys, rows.score, rows.has_score, rows.score_keys, rows.conflict_keys,
+                  rows.entities.cap, rows.entities.reviews, rows.entities.allowance):
+        assert not array.flags.writeable
+    with pytest.raises(ValueError):
+        rows.entities.cap[0] = 99
+
+
+def test_rows_looked_up_in_the_earlier_rows_are_confirmed_by_their_own_pair() -> None:
+    """The certificate finds a plan's rows among the certified plan's rows (both in paper
+    order); each pair so found is confirmed against the network's own key, so a state whose
+    row positions are wrong costs only the search of all pairs, never a wrong verdict."""
+    checked = 0
+    for seed in range(10):
+        for session, prev, out in _replans(seed):
+            certified = prev.check_state.certified
+            if certified is None or certified.row_pairs is None or len(certified.row_pairs) < 2:
+                continue
+            # Every row's pair position moved to its neighbour's.
+            shifted = replace(certified, row_pairs=np.roll(certified.row_pairs, 1))
+            base = replace(prev.check_state, certified=shifted)
+            # Reference: the full check (base=None), which reads the network's pairs anew.
+            full = _verdict(session, out.plan, out.potentials, out, None)
+            assert _verdict(session, out.plan, out.potentials, out, base) == full
+            checked += 1
+    assert checked > 0

@@ -135,3 +135,56 @@ def test_warm_choices_over_random_replans_match_a_cold_choice(
         assert cold[2] == pytest.approx(dense[2], abs=1e-9)
         check_plan(session, with_leads(plan, leads.LeadChoice(lead_of, (), ())), None)
     assert warm_used
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_a_cold_choice_on_the_core_alone_keeps_a_state_on_every_node(
+    seed: int, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # The cold flow runs on the reviewers and papers of the open pairs only; its state is laid
+    # out on every reviewer and paper, and a restart from it on the same pairs keeps every tier.
+    session, plan = _mixed_load_case(seed)
+    monkeypatch.setattr(leads, "DENSE_LIMIT", 0)
+    reviewer, paper, score = assignment_indices(session, plan.assignments)
+    mask, state = leads.lead_mask_warm(session, reviewer, paper, score)
+    assert state is not None
+    assert len(state.potentials) == 4 + len(session.reviewers) + len(session.papers)
+    assert len(state.senior) == len(state.slots) == len(session.reviewers)
+    again, _ = leads.lead_mask_warm(session, reviewer, paper, score, state)
+    first = value(session, plan, leads.lead_choice(session, reviewer, paper, mask).lead_of)
+    second = value(session, plan, leads.lead_choice(session, reviewer, paper, again).lead_of)
+    monkeypatch.setattr(leads, "DENSE_LIMIT", 4_000_000)
+    # Reference: scipy's linear_sum_assignment on the dense slot matrix.
+    dense = value(session, plan, pick_leads(session, plan).lead_of)
+    assert first[:2] == second[:2] == dense[:2]
+    assert first[2] == pytest.approx(dense[2], abs=1e-9)
+    assert second[2] == pytest.approx(dense[2], abs=1e-9)
+
+
+def test_the_best_first_order_is_lexsorts_order() -> None:
+    # One stable sort of a combined key, or numpy's lexsort where the key would not fit int64.
+    rng = np.random.default_rng(12)
+    for top in (3, 10_000, 2**60):
+        for _ in range(20):
+            n = int(rng.integers(0, 200))
+            paper = np.sort(rng.integers(0, 30, n))
+            senior = rng.random(n) < 0.4
+            score = rng.integers(0, top, n, dtype=np.int64)
+            expected = np.lexsort((-score, ~senior, paper))
+            assert np.array_equal(leads._best_first(paper, senior, score), expected)
+            shuffled = rng.permutation(n)
+            assert np.array_equal(
+                leads._best_first(paper[shuffled], senior[shuffled], score[shuffled]),
+                np.lexsort((-score[shuffled], ~senior[shuffled], paper[shuffled])),
+            )
+
+
+def test_dense_ranks_are_numpys_unique_with_inverse() -> None:
+    rng = np.random.default_rng(5)
+    for size in (1, 7, 300):
+        index = rng.integers(0, size, int(rng.integers(1, 200)))
+        # Reference: numpy's own np.unique(return_inverse=True).
+        values, inverse = np.unique(index, return_inverse=True)
+        got_values, got_inverse = leads._dense_ranks(index, size + 3)
+        assert np.array_equal(got_values, values)
+        assert np.array_equal(got_inverse, inverse)

@@ -314,8 +314,8 @@ def test_changed_arrays_read_only_the_changed_entities_and_match_a_full_pass() -
 def test_a_chain_of_patched_replans_updates_the_kept_arrays(
     monkeypatch: pytest.MonkeyPatch,
 ) -> None:
-    # Each re-plan's earlier session is the one the last patch was for, so its arrays are
-    # updated from the kept ones; they must equal a full pass over the new session.
+    # Each outcome keeps the arrays of the session it was planned on (a patched one those its
+    # patch derived from the earlier outcome's); they must equal a full pass over that session.
     calls: list[int] = []
     original = patch_module.changed_arrays
 
@@ -327,28 +327,83 @@ def test_a_chain_of_patched_replans_updates_the_kept_arrays(
     for seed in range(6):
         rng = np.random.default_rng(400 + seed)
         ws = Workspace(_rules_session(seed) if seed % 2 else random_session(410 + seed))
-        ws.solve()
+        first = ws.solve()
+        first.kept_flow()
+        assert first.kept.arrays is not None
         for _ in range(4):
             _change(ws, rng)
             try:
                 outcome = ws.solve()
             except PlanInputError:
                 break
-            last = patch_module._LAST_ARRAYS
             if outcome.patched:
-                assert last is not None and last[0] is outcome.planned
-            if last is not None and last[0] is outcome.planned:
-                assert _arrays_equal(last[1], patch_module.session_arrays(outcome.planned))
+                assert outcome.kept.arrays is not None
+            arrays = outcome.entity_arrays()
+            assert arrays is not None and outcome.planned is not None
+            assert _arrays_equal(arrays, patch_module.session_arrays(outcome.planned))
+            assert not arrays.cap.flags.writeable
     assert calls
 
 
-def test_arrays_kept_for_another_session_are_not_used() -> None:
+def test_arrays_are_read_anew_without_the_earlier_sessions() -> None:
     session = random_session(72, unscored="exclude")
-    other = random_session(73, unscored="exclude")
     after = _withdrawn(session, 2)
     change = session_change(session, after)
     assert change is not None
-    patch_module._LAST_ARRAYS = (other, patch_module.session_arrays(other))
-    arrays = patch_module._arrays_for(session, after, change)
+    arrays = patch_module.arrays_for(session, after, change, None)
     assert _arrays_equal(arrays, patch_module.session_arrays(after))
-    assert patch_module._LAST_ARRAYS is not None and patch_module._LAST_ARRAYS[0] is after
+    kept = patch_module.arrays_for(session, after, change, patch_module.session_arrays(session))
+    assert _arrays_equal(kept, arrays)
+    # The patched re-plan's outcome holds its own session's arrays, not the earlier one's.
+    outcome = make_plan(session)
+    outcome.kept_flow()
+    again = make_plan(after, warm=outcome)
+    assert again.patched and again.kept.arrays is not None
+    assert _arrays_equal(again.kept.arrays, patch_module.session_arrays(after))
+
+
+@pytest.mark.parametrize("rules", [False, True])
+def test_the_patch_lists_exactly_the_arcs_whose_values_changed(
+    rules: bool, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """The patch compares only the arcs it may have written; a comparison of every arc of the
+    two networks finds the same ones (the kept flow is patched at those arcs alone)."""
+    import review_alloc.plan.solve as solve_module
+
+    seen: list[tuple[PlanNetwork, object]] = []
+
+    def recorded(old: PlanNetwork, *args: object, **kwargs: object) -> object:
+        patch = patch_module.patched_network(old, *args, **kwargs)  # type: ignore[arg-type]
+        seen.append((old, patch))
+        return patch
+
+    monkeypatch.setattr(solve_module, "patched_network", recorded)
+    for seed in range(12):
+        rng = np.random.default_rng(9300 + seed)
+        session = _rules_session(seed) if rules else random_session(9400 + seed, unscored="exclude")
+        ws = Workspace(session)
+        ws.solve()
+        ws.solve()  # the keep tier on, so that keep flags flip too
+        for _ in range(3):
+            if _change(ws, rng) != "refused":
+                ws.solve()
+    checked = 0
+    for old, patch in seen:
+        if patch is None:
+            continue
+        net = patch.network  # type: ignore[attr-defined]
+        every = np.flatnonzero(
+            (net.capacities != old.capacities) | (net.lower != old.lower) | (net.costs != old.costs)
+        )
+        assert np.array_equal(patch.arcs, every)  # type: ignore[attr-defined]
+        checked += int(len(every) > 0 and net.kept is not None)
+    assert checked > 0
+
+
+def test_sorted_unique_is_numpys_unique() -> None:
+    rng = np.random.default_rng(12)
+    for size in (0, 1, 2, 50, 4000):
+        values = rng.integers(0, max(size // 2, 1), size)
+        values[: size // 2] = np.sort(values[: size // 2])  # partly sorted, as the arcs come
+        # Reference: numpy's np.unique.
+        assert np.array_equal(patch_module._sorted_unique(values), np.unique(values))

@@ -288,7 +288,7 @@ def test_plan_keep_leaves_a_plan_the_checker_accepts(seed: int) -> None:
     # and seniors a shorter plan lacks, are gaps and pin refusals, not forbidden pairs.
     problems = [
         x
-        for x in _hard_rule_problems(strict, kept, r, p, s)
+        for x in _hard_rule_problems(strict, kept, r, p, s)[0]
         if "is missing" not in x and "senior reviewers" not in x
     ]
     assert problems == []
@@ -485,3 +485,30 @@ def test_renewed_rules_keep_conflicts_for_equal_lists_and_only_for_them() -> Non
     renewed = PairRules.renewed(changed, rules)
     assert "conflicts" not in renewed.__dict__
     assert renewed.conflicts.reason_of() == PairRules(changed).conflicts.reason_of()
+
+
+def test_following_rules_keep_the_sorted_scores_only_for_the_very_same_table() -> None:
+    s = every_rule_session(11)
+    first = PairRules(s, PairRules(s).conflicts)
+    reviewer, paper = every_pair(s)
+    first.forbidden(reviewer, paper)
+    # A withdrawal leaves the table object alone: its sorted keys are kept, and the rules still
+    # say what rules built from nothing say.
+    gone = [s.reviewers[0].model_copy(update={"withdrawn": True}), *s.reviewers[1:]]
+    withdrawn = s.model_copy(update={"reviewers": gone})
+    kept = PairRules.following(withdrawn, first, first.conflicts)
+    assert kept.__dict__["_scores"] is first.__dict__["_scores"]
+    assert np.array_equal(
+        kept.forbidden(reviewer, paper), PairRules(withdrawn).forbidden(reviewer, paper)
+    )
+    # A new table (every score raised above the minimum) is read again: with the earlier sorted
+    # scores, the pairs the earlier table scored low would still be refused.
+    t = s.scores
+    higher = s.model_copy(
+        update={"scores": ScoreTable.from_arrays(t.reviewer, t.paper, np.maximum(t.value, 0.9))}
+    )
+    renewed = PairRules.following(higher, first, first.conflicts)
+    assert "_scores" not in renewed.__dict__
+    expected = PairRules(higher).forbidden(reviewer, paper)
+    assert np.array_equal(renewed.forbidden(reviewer, paper), expected)
+    assert not np.array_equal(expected, first.forbidden(reviewer, paper))
