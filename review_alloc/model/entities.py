@@ -1,12 +1,14 @@
 """Papers, reviewers, declared conflicts, and the pair rules used for pins and blocks.
 
 Lists of papers and reviewers are append-only in practice: the score table refers to them by
-position, so an entity that leaves the process is flagged `withdrawn`, never deleted.
+position, so an entity that leaves the process is flagged `withdrawn`, never deleted. Each
+entity is frozen (assigning a field raises): a change makes a new object with `model_copy`, so
+code that finds the very same object in two sessions may take it as unchanged.
 """
 
 from __future__ import annotations
 
-from pydantic import Field
+from pydantic import ConfigDict, Field
 
 from review_alloc.model.base import (
     DocumentModel,
@@ -23,6 +25,8 @@ from review_alloc.model.signals import LongText
 
 class Paper(DocumentModel):
     """A submission (a "proposal" in a panel) with its own review targets and author details."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True)
 
     id: Identifier
     title: Text = ""
@@ -45,6 +49,8 @@ class Paper(DocumentModel):
 
 class Reviewer(DocumentModel):
     """A person who reviews, with an optional load cap and floor of their own."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True)
 
     id: Identifier
     name: Text = ""
@@ -70,6 +76,8 @@ class Reviewer(DocumentModel):
 class Conflict(DocumentModel):
     """A declared conflict of interest; inferred ones are computed from the policy's rules."""
 
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
     reviewer: Identifier
     paper: Identifier
     reason: Text = "declared"
@@ -77,6 +85,8 @@ class Conflict(DocumentModel):
 
 class PairRule(DocumentModel):
     """A (reviewer, paper) pair a chair fixed: a pin (must be assigned) or a block (must not)."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True)
 
     reviewer: Identifier
     paper: Identifier

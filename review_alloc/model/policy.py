@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Annotated, Literal, Self
 
-from pydantic import AfterValidator, Field, model_validator
+from pydantic import AfterValidator, ConfigDict, Field, model_validator
 
 from review_alloc.model.base import DocumentModel
 from review_alloc.model.limits import MAX_COUNT, MAX_SCORE
@@ -53,6 +53,8 @@ def _domains(values: list[str]) -> list[str]:
 class ConflictRules(DocumentModel):
     """Which conflicts of interest are inferred on top of the declared ones."""
 
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
     author_email: bool = True
     """The reviewer's e-mail address is among the paper's authors."""
     institution: bool = True
@@ -66,6 +68,9 @@ class ConflictRules(DocumentModel):
 
 class Policy(DocumentModel):
     """Session-wide defaults; papers and reviewers may override reviews, min_reviews, cap, floor."""
+
+    # Frozen like the entities: a changed policy is a new object (see `model.entities`).
+    model_config = ConfigDict(extra="forbid", frozen=True)
 
     reviews: int = Field(default=3, ge=1, le=MAX_COUNT)
     """Reviews wanted per paper (three is the usual target, common practice)."""

@@ -4,7 +4,9 @@ Papers and reviewers are append-only in practice: the score table and saved plan
 them (by position and by id), so an entity that leaves is flagged `withdrawn`, never removed.
 Treat a session as a value and change it with `model_copy(update=...)`; the id maps are
 cached per list object, so replacing a list (or appending to it) is seen, but replacing an
-element in place is not (call `forget_indexes()` after doing that).
+element in place is not (call `forget_indexes()` after doing that). Papers, reviewers,
+conflicts and pair rules are frozen: a changed one is a new object (`model_copy`), which is
+what lets the planner's patch and the checker treat the very same object as unchanged.
 """
 
 from __future__ import annotations

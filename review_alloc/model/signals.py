@@ -25,7 +25,7 @@ from __future__ import annotations
 
 from typing import Annotated, Literal
 
-from pydantic import AfterValidator, Field
+from pydantic import AfterValidator, ConfigDict, Field
 
 from review_alloc.model.base import DocumentModel, Identifier
 from review_alloc.model.limits import MAX_SCORE
@@ -76,6 +76,9 @@ LongText = Annotated[str, AfterValidator(_long_text)]
 
 class ScoreRecipe(DocumentModel):
     """The weights of the score parts and how many text-and-topic candidates a paper keeps."""
+
+    # Frozen with the policy that holds it (see `model.entities`).
+    model_config = ConfigDict(extra="forbid", frozen=True)
 
     expertise: float = Field(default=1.0, ge=0, le=MAX_WEIGHT, allow_inf_nan=False)
     """Weight of the given expertise score (the scores file)."""

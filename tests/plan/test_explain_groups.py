@@ -151,8 +151,8 @@ def test_blocks_are_counted() -> None:
 def test_caps_exhausted_by_the_group_itself() -> None:
     # One generous reviewer can give each paper only one review; the two others are full.
     session = topic_session({"tidal energy": (2, 3, 1), "soil chemistry": (3, 3, 6)})
-    session.reviewers[0].cap = 10
-    session.forget_indexes()
+    reviewers = [session.reviewers[0].model_copy(update={"cap": 10}), *session.reviewers[1:]]
+    session = session.model_copy(update={"reviewers": reviewers})
     g = shortfall_groups(coverage_network(session, "reviews"))[0]
     # needed 6; TID-R1 gives one review to each paper (2), TID-R2 and TID-R3 one each (2).
     assert (g.needed, g.available, g.shortfall) == (6, 4, 2)

@@ -53,9 +53,12 @@ def test_overload_is_never_used_for_score_alone() -> None:
 
 def test_per_reviewer_overload_overrides_the_policy() -> None:
     session = with_allowance(topic_session({"quantum sensing": (8, 3, 4)}), 2)
-    session.reviewers[0].overload = 0
-    session.reviewers[1].overload = 5
-    session.forget_indexes()
+    reviewers = [
+        session.reviewers[0].model_copy(update={"overload": 0}),
+        session.reviewers[1].model_copy(update={"overload": 5}),
+        *session.reviewers[2:],
+    ]
+    session = session.model_copy(update={"reviewers": reviewers})
     assert overload_allowances(session).tolist() == [0, 5, 2]
     plan = make_plan(session).plan
     over, _ = load_issues(session, plan)

@@ -37,17 +37,17 @@ def random_session(seed: int, *, unscored: str = "zero", pins: bool = False) -> 
     policy = Policy(
         reviews=3, min_reviews=2, cap=3, floor=0, unscored=unscored, conflict_rules=NO_INFERENCE
     )
-    for r in reviewers:  # keep floor <= cap valid
+    for j, r in enumerate(reviewers):  # keep floor <= cap valid
         cap = r.cap if r.cap is not None else policy.cap
         if r.floor is not None and r.floor > cap:
-            r.floor = cap
+            reviewers[j] = r.model_copy(update={"floor": cap})
     papers = [
         Paper(id=f"p{i}", reviews=int(rng.integers(1, 5)) if rng.random() < 0.3 else None)
         for i in range(n_p)
     ]
-    for p in papers:
+    for i, p in enumerate(papers):
         if p.reviews is not None and rng.random() < 0.5:
-            p.min_reviews = int(rng.integers(0, p.reviews + 1))
+            papers[i] = p.model_copy(update={"min_reviews": int(rng.integers(0, p.reviews + 1))})
     all_pairs = [(j, i) for j in range(n_r) for i in range(n_p)]
     rng.shuffle(all_pairs)
     k = len(all_pairs)
