@@ -922,7 +922,13 @@ class ReviewAllocApp(App[None]):
             j = s.reviewer_index()[ident]
             r = s.reviewers[j]
             fields = [
-                Field("cap", f"cap (most {self.noun}s; now {s.reviewer_cap(j)})", str(r.cap or "")),
+                # Optional like the floor: the hint says an empty line keeps the current value.
+                Field(
+                    "cap",
+                    f"cap (most {self.noun}s; now {s.reviewer_cap(j)})",
+                    str(r.cap or ""),
+                    optional=True,
+                ),
                 Field(
                     "floor",
                     f"floor (fewest; now {s.reviewer_floor(j)})",
@@ -936,7 +942,10 @@ class ReviewAllocApp(App[None]):
             p = s.papers[i]
             fields = [
                 Field(
-                    "reviews", f"reviews wanted (now {s.paper_reviews(i)})", str(p.reviews or "")
+                    "reviews",
+                    f"reviews wanted (now {s.paper_reviews(i)})",
+                    str(p.reviews or ""),
+                    optional=True,
                 ),
                 Field(
                     "min_reviews",

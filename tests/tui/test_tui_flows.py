@@ -333,6 +333,16 @@ async def test_change_a_cap_through_the_form(new_app: Factory) -> None:
         await pilot.pause()
         assert not isinstance(app.screen, Form)
         assert app.workspace.session.reviewers[0].cap == 2
+        # The form's hint: an empty line keeps the current value (the floor changes alone).
+        await pilot.press("e")
+        await pilot.pause()
+        app.screen.query_one("#field-cap", Input).value = ""
+        app.screen.query_one("#field-floor", Input).value = "1"
+        await pilot.press("enter")
+        await pilot.pause()
+        assert not isinstance(app.screen, Form)
+        assert app.workspace.session.reviewers[0].cap == 2
+        assert app.workspace.session.reviewers[0].floor == 1
 
 
 async def test_declare_a_conflict(new_app: Factory) -> None:
