@@ -220,21 +220,21 @@ def reaching(net: ResidualNetwork, sink: int) -> np.ndarray:
 @njit(**HELPER_OPTIONS)
 def _edge_bfs(
     out_start: np.ndarray,
-    in_start: np.ndarray,
-    in_arc: np.ndarray,
-    carried: np.ndarray,
     heads: np.ndarray,
     caps: np.ndarray,
     flow: np.ndarray,
+    first: np.ndarray,
+    pool: np.ndarray,
     source: int,
     sink: int,
     level: np.ndarray,
     queue: np.ndarray,
-) -> bool:
-    """`bfs_levels` on the edge index: forward arcs (caps - flow) first, then reverse arcs.
+) -> int:
+    """`bfs_levels` on edges listed by tail: forward arcs (caps - flow) first, then the reverse
+    arcs of the node's list of carrying edges (see `_edge_blocking_flow`).
 
-    `carried[p]` tells whether the edge of `in_arc[p]` (see `index_entering`) carries flow, so
-    reverse arcs are tested in memory order and their tails read from the same index.
+    Returns the number of nodes labelled, negated when the search stopped at the sink (then
+    the labels are partial); a full search labels exactly the nodes reachable from source.
     """
     level[:] = -1
     level[source] = 0
@@ -249,32 +249,34 @@ def _edge_bfs(
             if level[v] < 0 and caps[e] > flow[e]:
                 level[v] = next_level
                 if v == sink:
-                    return True
+                    return -(q_tail + 1)
                 queue[q_tail] = v
                 q_tail += 1
-        for p in range(in_start[u], in_start[u + 1]):
-            # Few edges carry flow: test the flag first and read the tail only for those.
-            if carried[p]:
-                v = in_arc[p] & TAIL_MASK
-                if level[v] < 0:
-                    level[v] = next_level
-                    if v == sink:
-                        return True
-                    queue[q_tail] = v
-                    q_tail += 1
-    return False
+        k = first[u]
+        while k >= 0:
+            word = pool[2 * k]
+            v = word & TAIL_MASK
+            # The label first: it is in a small array, the flow in a large one.
+            if level[v] < 0 and flow[word >> 32] > 0:
+                level[v] = next_level
+                if v == sink:
+                    return -(q_tail + 1)
+                queue[q_tail] = v
+                q_tail += 1
+            k = pool[2 * k + 1]
+    return q_tail
 
 
 @njit(**HELPER_OPTIONS)
 def _edge_blocking_flow(
     out_start: np.ndarray,
-    in_start: np.ndarray,
-    in_arc: np.ndarray,
-    in_pos: np.ndarray,
-    carried: np.ndarray,
     heads: np.ndarray,
     caps: np.ndarray,
     flow: np.ndarray,
+    first: np.ndarray,
+    pool: np.ndarray,
+    pooled: np.ndarray,
+    pool_size: int,
     source: int,
     sink: int,
     level: np.ndarray,
@@ -282,12 +284,19 @@ def _edge_blocking_flow(
     it_in: np.ndarray,
     stack: np.ndarray,
     nodes: np.ndarray,
-) -> int:
-    """`blocking_flow` on the edge index, trying arcs in the same order; returns its value.
+) -> tuple[int, int]:
+    """`blocking_flow` on edges listed by tail; returns (its value, the new pool size).
 
-    A stack entry is an edge e pushed forward, or ~p for the reverse arc of `in_arc[p]`'s edge;
-    `nodes` holds the tail of each stack entry, so a retreat needs no lookup. `carried` follows
-    every change of `flow`.
+    The reverse arcs are those of edges that carry flow, so instead of an index of every
+    edge by head each node keeps a list of the edges into it that ever carried flow: entry k
+    of `pool` is the word `edge << 32 | tail` at `2k` and the next entry of the same head at
+    `2k + 1` (-1 ends a list, which starts at `first[head]`); `pooled[e]` says whether edge e
+    has an entry. An edge enters the list of its head the first time it carries flow and stays
+    (the flow is read at each use). A new entry goes first in its list, behind the node's
+    current arc: its reverse arc leads one level down, so it is of no use this phase.
+
+    A stack entry is an edge e pushed forward, or ~k for the reverse arc of pool entry k;
+    `nodes` holds the tail of each stack entry, so a retreat needs no lookup.
     """
     total = 0
     depth = 0
@@ -297,21 +306,26 @@ def _edge_blocking_flow(
             push = _INF
             for i in range(depth):
                 a = stack[i]
-                residual = caps[a] - flow[a] if a >= 0 else flow[in_arc[~a] >> 32]
+                residual = caps[a] - flow[a] if a >= 0 else flow[pool[2 * ~a] >> 32]
                 if residual < push:
                     push = residual
             first_full = -1
             for i in range(depth):
                 a = stack[i]
                 if a >= 0:
+                    if flow[a] == 0 and not pooled[a]:
+                        pooled[a] = True
+                        v = heads[a]
+                        pool[2 * pool_size] = (a << 32) | nodes[i]
+                        pool[2 * pool_size + 1] = first[v]
+                        first[v] = pool_size
+                        pool_size += 1
                     flow[a] += push
-                    carried[in_pos[a]] = True
                     residual = caps[a] - flow[a]
                 else:
-                    e = in_arc[~a] >> 32
+                    e = pool[2 * ~a] >> 32
                     flow[e] -= push
                     residual = flow[e]
-                    carried[~a] = residual > 0
                 if first_full < 0 and residual == 0:
                     first_full = i
             total += push
@@ -331,15 +345,16 @@ def _edge_blocking_flow(
                 break
             it_out[u] = e + 1
         if not advanced:
-            end = in_start[u + 1]
-            while it_in[u] < end:
-                p = it_in[u]
-                v = in_arc[p] & TAIL_MASK if carried[p] else -1
-                if v >= 0 and level[v] == next_level:
-                    stack[depth] = ~p
+            k = it_in[u]
+            while k >= 0:
+                word = pool[2 * k]
+                v = word & TAIL_MASK
+                if level[v] == next_level and flow[word >> 32] > 0:
+                    stack[depth] = ~k
                     advanced = True
                     break
-                it_in[u] = p + 1
+                k = pool[2 * k + 1]
+                it_in[u] = k
         if advanced:
             nodes[depth] = u
             depth += 1
@@ -347,13 +362,84 @@ def _edge_blocking_flow(
             continue
         level[u] = -1
         if depth == 0:
-            return total
+            return total, pool_size
         depth -= 1
         u = nodes[depth]
-        if stack[depth] >= 0:
+        a = stack[depth]
+        if a >= 0:
             it_out[u] += 1
         else:
-            it_in[u] += 1
+            it_in[u] = pool[2 * ~a + 1]
+
+
+@njit(**HELPER_OPTIONS)
+def _reaching_by_sweeps(
+    n: int,
+    out_start: np.ndarray,
+    heads: np.ndarray,
+    caps: np.ndarray,
+    flow: np.ndarray,
+    first: np.ndarray,
+    pool: np.ndarray,
+    sink: int,
+    level: np.ndarray,
+    seen: np.ndarray,
+    pending: np.ndarray,
+    budget: int,
+) -> bool:
+    """Mark in `seen` the nodes that can reach sink in the residual graph, by sweeps over the
+    nodes' own arcs; False (and `seen` incomplete) when that took more than `budget` arc reads.
+
+    A node reaches the sink when one of its residual arcs (an edge below capacity, or the
+    reverse arc of an edge into it that carries flow) leads to a node that does. Each sweep
+    tests the nodes not yet marked, marks in place (so one sweep often reaches far) and stops
+    at a node's first such arc; the sweeps end when one marks nothing. Only nodes outside the
+    source's side (`level < 0` after the last, complete search) can reach the sink, so when
+    all of them are marked nothing is left to test: on networks where every node is on one
+    side or the other, that ends the walk long before it has read every arc. The walk needs
+    no index of the arcs by head, which a search from the sink would.
+    """
+    seen[sink] = True
+    count = 0
+    for v in range(n):
+        if level[v] < 0 and v != sink:
+            pending[count] = v
+            count += 1
+    reads = 0
+    changed = True
+    while changed and count > 0:
+        changed = False
+        kept = 0
+        for i in range(count):
+            u = pending[i]
+            found = False
+            begin = out_start[u]
+            end = out_start[u + 1]
+            for e in range(begin, end):
+                v = heads[e]
+                if seen[v] and caps[e] > flow[e]:
+                    found = True
+                    reads += e - begin
+                    break
+            if not found:
+                reads += end - begin
+                k = first[u]
+                while k >= 0:
+                    word = pool[2 * k]
+                    if seen[word & TAIL_MASK] and flow[word >> 32] > 0:
+                        found = True
+                        break
+                    k = pool[2 * k + 1]
+            if found:
+                seen[u] = True
+                changed = True
+            else:
+                pending[kept] = u
+                kept += 1
+        count = kept
+        if changed and count > 0 and reads > budget:
+            return False
+    return True
 
 
 @njit(**HELPER_OPTIONS)
@@ -368,7 +454,8 @@ def _edge_reaching(
     seen: np.ndarray,
     queue: np.ndarray,
 ) -> None:
-    """Mark in `seen` the nodes that can reach sink in the residual graph of `flow`.
+    """Mark in `seen` the nodes that can reach sink in the residual graph of `flow`, by a
+    search from the sink against the arcs over an index of the edges by head.
 
     The residual arcs into v are its entering edges below capacity and the reverse arcs of its
     leaving edges that carry flow (no lower bounds on this path).
@@ -407,42 +494,54 @@ def _solve_by_tail(
     source: int,
     sink: int,
     flow: np.ndarray,
-    carried: np.ndarray,
-    in_arc: np.ndarray,
-    in_pos: np.ndarray,
-) -> tuple[int, int, np.ndarray, np.ndarray]:
+    pooled: np.ndarray,
+    pool: np.ndarray,
+) -> tuple[int, int, np.ndarray, np.ndarray, int]:
     """Dinic on edges listed by tail (the edges leaving v are `out_start[v]:out_start[v + 1]`).
 
-    Returns (value, phases, source side, sink side) and leaves the flow in `flow`. The source
+    Returns (value, phases, source side, sink side, pool size) and leaves the flow in `flow`;
+    every edge that carries flow has an entry in `pool` (see `_edge_blocking_flow`). The source
     side comes from the last BFS, which could not reach the sink and so labelled every node
     reachable in the final residual; the sink side (the nodes that can still reach the sink)
-    from a walk against the residual arcs.
+    from sweeps over the nodes outside it, or, should those take more than about two reads of
+    every arc, from a search against the arcs over an index of the edges by head (`in_start`
+    holds its offsets).
     """
-    index_entering(n, out_start, heads, in_start, in_arc, in_pos)
+    m = heads.size
     level = np.empty(n, dtype=np.int32)
     queue = np.empty(n, dtype=np.int32)
+    first = np.full(n, -1, dtype=np.int64)
     it_out = np.empty(n, dtype=np.int64)
     it_in = np.empty(n, dtype=np.int64)
     stack = np.empty(n, dtype=np.int64)
     nodes = np.empty(n, dtype=np.int64)
     value = 0
     phases = 0
-    while _edge_bfs(
-        out_start, in_start, in_arc, carried, heads, caps, flow, source, sink, level, queue,
-    ):
+    # Typed, not a literal 0: a literal would compile a second copy of the blocking flow.
+    pool_size = np.int64(0)
+    while _edge_bfs(out_start, heads, caps, flow, first, pool, source, sink, level, queue) < 0:
         for v in range(n):
             it_out[v] = out_start[v]
-            it_in[v] = in_start[v]
-        value += _edge_blocking_flow(
-            out_start, in_start, in_arc, in_pos, carried, heads, caps, flow, source, sink,
+            it_in[v] = first[v]
+        pushed, pool_size = _edge_blocking_flow(
+            out_start, heads, caps, flow, first, pool, pooled, pool_size, source, sink,
             level, it_out, it_in, stack, nodes,
         )
+        value += pushed
         phases += 1
     sink_side = np.zeros(n, dtype=np.bool_)
-    _edge_reaching(
-        out_start, in_start, in_arc, heads, caps, flow, sink, sink_side, queue,
-    )
-    return value, phases, level >= 0, sink_side
+    if not _reaching_by_sweeps(
+        n, out_start, heads, caps, flow, first, pool, sink, level, sink_side, stack,
+        2 * m + n,
+    ):
+        in_arc = np.empty(m, dtype=np.int64)
+        in_pos = np.empty(m, dtype=np.int32)
+        index_entering(n, out_start, heads, in_start, in_arc, in_pos)
+        sink_side[:] = False
+        _edge_reaching(
+            out_start, in_start, in_arc, heads, caps, flow, sink, sink_side, queue,
+        )
+    return value, phases, level >= 0, sink_side, pool_size
 
 
 @njit(**KERNEL_OPTIONS)
@@ -455,20 +554,21 @@ def max_flow_kernel(
     sink: int,
     total_checked: bool,
     flow: np.ndarray,
-    carried: np.ndarray,
-    index: np.ndarray,
-    in_arc: np.ndarray,
+    pooled: np.ndarray,
+    pool: np.ndarray,
+    order: np.ndarray,
     work: np.ndarray,
 ) -> tuple[int, int, int, np.ndarray, np.ndarray]:
     """Check, index and solve a max flow without lower bounds in one call.
 
-    Takes zeroed `flow` (int64) and `carried` (bool) arrays with one entry per edge, an int32
-    scratch `index` of shape (2, edges), an int64 scratch `in_arc` (one entry per edge) and a
-    zeroed int64 scratch `work` of shape (2, edges), all allocated by the caller (`work` is
-    written only when the edges come in no order, so pages of an `np.zeros` that nothing writes
-    cost nothing: the sorted copy's heads and capacities). Returns (status, value, phases, source
-    side, sink side) and leaves the flow in `flow`, one entry per edge in the caller's order; a
-    nonzero status is that of `scan_edges` and nothing was solved.
+    Takes zeroed `flow` (int64) and `pooled` (bool) arrays with one entry per edge, an int64
+    scratch `pool` of two entries per edge (`_edge_blocking_flow` uses the front of it, the rest
+    is never touched), an int32 scratch `order` (one entry per edge) and a zeroed int64 scratch
+    `work` of shape (2, edges), all allocated by the caller (`order` and `work` are written
+    only when the edges come in no order, so pages of an `np.empty` or `np.zeros` that nothing
+    writes cost nothing: the sorted copy's heads and capacities). Returns (status, value,
+    phases, source side, sink side) and leaves the flow in `flow`, one entry per edge in the
+    caller's order; a nonzero status is that of `scan_edges` and nothing was solved.
 
     The kernels want every node's leaving edges together in memory. Edges listed by tail are
     solved as they are; edges listed by head (a scores file lists pairs paper by paper) are
@@ -479,7 +579,6 @@ def max_flow_kernel(
     their reviewer-major lists do against paper-major ones); on random graphs neither
     direction was faster.
     """
-    in_pos, order = index[0], index[1]
     out_start = np.zeros(n + 1, dtype=np.int64)
     in_start = np.zeros(n + 1, dtype=np.int64)
     status, by_tail, by_head = scan_edges(
@@ -489,16 +588,14 @@ def max_flow_kernel(
         nothing = np.zeros(n, dtype=np.bool_)
         return status, 0, 0, nothing, nothing
     if by_tail:
-        value, phases, source_side, sink_side = _solve_by_tail(
-            n, heads, caps, out_start, in_start, source, sink, flow, carried, in_arc,
-            in_pos,
+        value, phases, source_side, sink_side, _ = _solve_by_tail(
+            n, heads, caps, out_start, in_start, source, sink, flow, pooled, pool,
         )
         return 0, value, phases, source_side, sink_side
     if by_head:
         # In the reversed residual graph, what the sink reaches is what reaches it here.
-        value, phases, sink_side, source_side = _solve_by_tail(
-            n, tails, caps, in_start, out_start, sink, source, flow, carried, in_arc,
-            in_pos,
+        value, phases, sink_side, source_side, _ = _solve_by_tail(
+            n, tails, caps, in_start, out_start, sink, source, flow, pooled, pool,
         )
         return 0, value, phases, source_side, sink_side
     sorted_heads, sorted_caps = work[0], work[1]
@@ -507,21 +604,15 @@ def max_flow_kernel(
     sort_by_tail_packed(n, heads, tails, caps, in_start, order, sorted_heads, sorted_caps)
     # The sorted copy's flow goes into `flow` itself (one array less to fault in); in the
     # reversed residual graph, what the sink reaches is what reaches it here.
-    value, phases, sink_side, source_side = _solve_by_tail(
-        n, sorted_heads, sorted_caps, in_start, out_start, sink, source, flow, carried,
-        in_arc, in_pos,
+    value, phases, sink_side, source_side, pool_size = _solve_by_tail(
+        n, sorted_heads, sorted_caps, in_start, out_start, sink, source, flow, pooled, pool,
     )
-    # The flow's few nonzero entries then move to the caller's edges, through two arrays the
-    # solve no longer needs.
-    positions, amounts = in_arc, sorted_heads
-    moved = 0
-    for p in range(flow.size):
-        f = flow[p]
-        if f != 0:
-            positions[moved] = p
-            amounts[moved] = f
-            flow[p] = 0
-            moved += 1
-    for i in range(moved):
-        flow[order[positions[i]]] = amounts[i]
+    # Only pooled edges can carry flow: their amounts move to the caller's edges, through the
+    # pool's list links, which the solve no longer needs.
+    for k in range(pool_size):
+        p = pool[2 * k] >> 32
+        pool[2 * k + 1] = flow[p]
+        flow[p] = 0
+    for k in range(pool_size):
+        flow[order[pool[2 * k] >> 32]] = pool[2 * k + 1]
     return 0, value, phases, source_side, sink_side

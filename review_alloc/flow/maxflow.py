@@ -128,9 +128,11 @@ def _solve_without_lower(
         checked,
         flow,
         np.zeros(m, dtype=np.bool_),
-        np.empty((2, m), dtype=np.int32),
-        np.empty(m, dtype=np.int64),
-        # Touched only for edges out of tail order: untouched pages of np.zeros cost nothing.
+        # The solve fills the front of the pool, as far as edges carry flow; the rest of its
+        # pages (and of the next two arrays, touched only for edges out of tail and head
+        # order) are never written and so cost nothing.
+        np.empty(2 * m, dtype=np.int64),
+        np.empty(m, dtype=np.int32),
         np.zeros((2, m), dtype=np.int64),
     )
     if status != 0:

@@ -295,7 +295,8 @@ def sort_by_tail_packed(
 
 
 TAIL_MASK = 0xFFFFFFFF
-"""`index_entering`'s word for an entering edge e with tail v is `e << 32 | v`."""
+"""The word `e << 32 | v` for an edge e with tail v: in `index_entering`'s index and in the
+carrying lists of `dinic._edge_blocking_flow`."""
 
 
 @njit(**HELPER_OPTIONS)
