@@ -18,7 +18,7 @@ from test_flow_cut_sides import check_sides, residual_sides
 from test_flow_edge_order import ORDER_NAMES, reorder
 
 from review_alloc.flow import check_cut, check_flow, max_flow
-from review_alloc.flow.dinic import _reaching_by_sweeps
+from review_alloc.flow.dinic import _in_id_order, _reaching_by_sweeps
 
 
 @njit
@@ -34,6 +34,26 @@ def _sweeps(
     return _reaching_by_sweeps(
         n, out_start, heads, caps, flow, first, pool, sink, level, seen, pending, budget
     )
+
+
+@njit
+def _reorder(queue: np.ndarray, low: int, high: int, bits: np.ndarray) -> None:
+    _in_id_order(queue, low, high, bits)
+
+
+@pytest.mark.parametrize("seed", range(8))
+def test_a_large_level_is_put_in_id_order(seed: int) -> None:
+    # The search reorders a large level of its queue by node id; the rest of the queue stays.
+    rng = np.random.default_rng(8800 + seed)
+    n = int(rng.integers(1, 3000))
+    queue = rng.permutation(n).astype(np.int32)
+    low, high = sorted(int(x) for x in rng.integers(0, n + 1, 2))
+    bits = np.zeros((n >> 5) + 1, np.int64)
+    expected = queue.copy()
+    expected[low:high] = np.sort(queue[low:high])  # reference: numpy's sort
+    _reorder(queue, np.int64(low), np.int64(high), bits)
+    assert queue.tolist() == expected.tolist()
+    assert not bits.any()
 
 
 def chain_into_sink(k: int, rising: bool) -> tuple[int, np.ndarray, np.ndarray, np.ndarray]:
