@@ -592,18 +592,18 @@ def kept_swap_kernel(
     edges: np.ndarray,
     cap_f: np.ndarray,
     cap_b: np.ndarray,
+    cost_edges: np.ndarray,
     costs: np.ndarray,
+    lower_edges: np.ndarray,
     lowers: np.ndarray,
 ) -> None:
-    """Swap a change's values with the shared arrays' at its edges (each edge listed once).
+    """Swap a change's values with the shared arrays' (each edge at most once per list).
 
     The arrays take the residual capacities `cap_f` (forward arc) and `cap_b` (reverse arc) of
-    each edge, and its cost and lower bound where `costs` and `lowers` are not empty; the
+    each of `edges`, the costs of `cost_edges` and the lower bounds of `lower_edges`; the
     change's arrays take the values they replace, so swapping again undoes it. The bitmap
     follows the capacities (bit f says `cap[b] > 0`, bit b says `cap[f] > 0`).
     """
-    with_costs = costs.size > 0
-    with_lower = lowers.size > 0
     for k in range(edges.size):
         e = edges[k]
         f = forward[e]
@@ -622,16 +622,18 @@ def kept_swap_kernel(
             bits[b >> 6] |= _ONE << np.uint64(b & 63)
         else:
             bits[b >> 6] &= ~(_ONE << np.uint64(b & 63))
-        if with_costs:
-            c = costs[k]
-            costs[k] = edge_costs[e]
-            edge_costs[e] = c
-            cost[f] = c
-            cost[b] = -c
-        if with_lower:
-            x = lower[e]
-            lower[e] = lowers[k]
-            lowers[k] = x
+    for k in range(cost_edges.size):
+        e = cost_edges[k]
+        c = costs[k]
+        costs[k] = edge_costs[e]
+        edge_costs[e] = c
+        cost[forward[e]] = c
+        cost[backward[e]] = -c
+    for k in range(lower_edges.size):
+        e = lower_edges[k]
+        x = lower[e]
+        lower[e] = lowers[k]
+        lowers[k] = x
 
 
 def _readonly(array: np.ndarray) -> np.ndarray:
@@ -675,24 +677,29 @@ _NONE = np.zeros(0, dtype=np.int64)
 
 
 class _Change:
-    """The values of some edges in one state (see `kept_swap_kernel`): residual capacities of
-    the forward and reverse arcs, and costs and lower bounds where listed (else empty)."""
+    """The values of some edges in one state (see `kept_swap_kernel`): the residual capacities
+    of the forward and reverse arcs of `edges`, the costs of `cost_edges` and the lower bounds
+    of `lower_edges` (each list only the edges whose values differ, or may)."""
 
-    __slots__ = ("cap_b", "cap_f", "costs", "edges", "lowers")
+    __slots__ = ("cap_b", "cap_f", "cost_edges", "costs", "edges", "lower_edges", "lowers")
 
     def __init__(
         self,
         edges: np.ndarray,
         cap_f: np.ndarray,
         cap_b: np.ndarray,
+        cost_edges: np.ndarray = _NONE,
         costs: np.ndarray = _NONE,
+        lower_edges: np.ndarray = _NONE,
         lowers: np.ndarray = _NONE,
     ) -> None:
         """Own copies of the values: a swap writes into them."""
         self.edges = np.array(edges, dtype=np.int64)
         self.cap_f = np.array(cap_f, dtype=np.int64)
         self.cap_b = np.array(cap_b, dtype=np.int64)
+        self.cost_edges = np.array(cost_edges, dtype=np.int64)
         self.costs = np.array(costs, dtype=np.int64)
+        self.lower_edges = np.array(lower_edges, dtype=np.int64)
         self.lowers = np.array(lowers, dtype=np.int64)
 
 
@@ -748,8 +755,8 @@ class _Shared:
         """Swap `change` with the arrays' values at its edges (see `kept_swap_kernel`)."""
         kept_swap_kernel(
             self.cap, self.bits, self.cost, self.edge_costs, self.lower, self.forward,
-            self.backward, change.edges, change.cap_f, change.cap_b, change.costs,
-            change.lowers,
+            self.backward, change.edges, change.cap_f, change.cap_b, change.cost_edges,
+            change.costs, change.lower_edges, change.lowers,
         )
 
     def hold(self, version: _Version) -> None:
@@ -1050,8 +1057,11 @@ class KeptFlow:
         if len(edges) and (int(edges.min()) < 0 or int(edges.max()) >= m):
             bad = int(np.argmax((edges < 0) | (edges >= m)))
             raise FlowInputError(f"arcs[{bad}] is {edges[bad]}; edges are 0..{m - 1}")
-        if len(edges) > 1 and not np.diff(np.sort(edges)).all():
-            raise FlowInputError("arcs lists an edge more than once")
+        if len(edges) > 1:
+            steps = np.diff(edges)
+            # Patches list their edges in order: sort only when they come otherwise.
+            if not (steps > 0).all() and not np.diff(np.sort(edges)).all():
+                raise FlowInputError("arcs lists an edge more than once")
         k = len(edges)
 
         def given(name: str, values: Any) -> np.ndarray | None:
@@ -1098,12 +1108,11 @@ class KeptFlow:
                 reduced < 0, up, np.where(reduced > 0, lo, np.clip(old_flow, lo, up))
             )
             # Costs and lower bounds go into the change only where a value really changes.
+            recost = (c != old_costs).nonzero()[0]
+            relower = (lo != old_lower).nonzero()[0]
             change = _Change(
-                edges,
-                up - new_flow,
-                new_flow - lo,
-                c if new_costs is not None and (new_costs != old_costs).any() else _NONE,
-                lo if new_lower is not None and (new_lower != old_lower).any() else _NONE,
+                edges, up - new_flow, new_flow - lo, edges[recost], c[recost], edges[relower],
+                lo[relower],
             )
             shared.swap(change)
             child_version = shared.moved_on(self._version, change)
