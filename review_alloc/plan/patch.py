@@ -403,7 +403,8 @@ def patched_network(
 def _sorted_unique(values: np.ndarray) -> np.ndarray:
     """`np.unique` of a few thousand positions that mostly come sorted already (a reviewer's
     arcs are one run): numpy's hashing pass cost more than the sort of nearly sorted values."""
-    values = np.sort(values)
+    # Stable sort: timsort merges the sorted runs the arcs come in, in linear time.
+    values = np.sort(values, kind="stable")
     if len(values) < 2:
         return values
     return values[np.concatenate(([True], values[1:] != values[:-1]))]

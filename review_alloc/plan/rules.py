@@ -482,7 +482,18 @@ class PairRules:
         self, reviewer: np.ndarray, paper: np.ndarray, score: np.ndarray | None = None
     ) -> np.ndarray:
         """Per pair of index arrays: does a pair rule keep it out of every plan?"""
-        return self.codes(reviewer, paper, score) > 0
+        reviewer = np.asarray(reviewer, dtype=np.int64)
+        paper = np.asarray(paper, dtype=np.int64)
+        gone_r, gone_p = self._withdrawn
+        # A withdrawn reviewer or paper is forbidden whatever else holds: the score lookups
+        # and topic checks run only on the other pairs (a withdrawal's patch asks about the
+        # tens of thousands of pairs of the reviewers who left).
+        out = gone_r[reviewer] | gone_p[paper]
+        rest = np.flatnonzero(~out)
+        if len(rest):
+            part = None if score is None else np.asarray(score, dtype=np.float64)[rest]
+            out[rest] = self.codes(reviewer[rest], paper[rest], part) > 0
+        return out
 
     def pair_verdict(self, reviewer: int, paper: int) -> Verdict:
         """The first pair rule a pair breaks, in the chair's words (`ELIGIBLE` when none)."""
