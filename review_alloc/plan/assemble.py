@@ -78,6 +78,30 @@ def _assignments(
     return out
 
 
+def paper_major_order(reviewer: np.ndarray, paper: np.ndarray) -> np.ndarray:
+    """`np.lexsort((reviewer, paper))`: the rows by paper, then reviewer.
+
+    The decoded flow lists its pairs by reviewer already (the network's pair order): a stable
+    sort by paper alone then gives the same order, and numpy sorts 16-bit keys stably by radix
+    in linear time (a tenth of the lexsort's time on 60 k rows). Larger keys take two radix
+    passes, low half first; rows in any other order take the lexsort.
+    """
+    reviewer = np.asarray(reviewer)
+    paper = np.asarray(paper, dtype=np.int64)
+    if len(paper) < 2 or not bool(np.all(reviewer[1:] >= reviewer[:-1])):
+        return np.lexsort((reviewer, paper))
+    if int(paper.min()) < 0:
+        return np.lexsort((reviewer, paper))
+    top = int(paper.max())
+    if top < 1 << 16:
+        return np.argsort(paper.astype(np.uint16), kind="stable")
+    if top < 1 << 32:
+        low = np.argsort((paper & 0xFFFF).astype(np.uint16), kind="stable")
+        high = np.argsort((paper[low] >> 16).astype(np.uint16), kind="stable")
+        return low[high]
+    return np.lexsort((reviewer, paper))
+
+
 def assemble_rows(
     session: Session,
     reviewer: np.ndarray,
@@ -92,7 +116,7 @@ def assemble_rows(
     """`assemble_plan`, also returning the plan's rows; `reuse` (rows of a plan of a session
     with the same reviewers and papers, in the same order) supplies unchanged assignments, and
     `demands` the session's `active_demands` when already computed."""
-    order = np.lexsort((reviewer, paper))
+    order = paper_major_order(reviewer, paper)
     reviewer, paper, score = reviewer[order], paper[order], score[order]
     lead = np.zeros(len(paper), dtype=bool)
     leads = None

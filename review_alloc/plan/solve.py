@@ -148,9 +148,12 @@ class PlanOutcome:
 
 
 def tier_values(net: PlanNetwork, used: np.ndarray) -> dict[str, float]:
-    """The objective's tier values of the pairs `used` (boolean per pair arc) in `net`."""
-    # One pass over the pair mask; the rest works on the few chosen pairs.
-    chosen = np.flatnonzero(used)
+    """The objective's tier values of the pairs `used` (boolean per pair arc, or the sorted
+    positions in the pair block of the pairs used) in `net`."""
+    # One pass over the pair mask (none when given the positions); the rest works on the few
+    # chosen pairs.
+    used = np.asarray(used)
+    chosen = np.flatnonzero(used) if used.dtype == bool else used
     loads = np.bincount(net.pair_reviewer[chosen], minlength=net.n_reviewers)
     counts = np.bincount(net.pair_paper[chosen], minlength=net.n_papers)
     minimum = net.capacities[net.required_arcs]
@@ -506,8 +509,8 @@ def _decode(
 ) -> tuple[Plan, LeadChoice | None, LeadState | None, PlanRows]:
     """The plan of an optimal flow (pair arcs with flow > 0 only), its leads chosen when the
     policy asks for them; `reuse` holds an earlier plan's rows of the same entities, `used`
-    the pair arcs' flow > 0 when already worked out."""
-    chosen = np.flatnonzero(result.flow[net.pair_arcs] > 0 if used is None else used)
+    the sorted positions of the pair arcs with flow > 0 when already worked out."""
+    chosen = np.flatnonzero(result.flow[net.pair_arcs] > 0) if used is None else used
     reviewer = net.pair_reviewer[chosen]
     paper = net.pair_paper[chosen]
     score = net.pair_score[chosen]
@@ -593,7 +596,8 @@ def make_plan(
             session, net, base, split, keep_from, proof
         )
         state = None
-    used = result.flow[net.pair_arcs] > 0
+    # The pairs carrying flow, found once for the tier values and the decoding.
+    used = np.flatnonzero(result.flow[net.pair_arcs] > 0)
     final = tier_values(net, used)
     relaxed = bound if bound != final else {}
     plan, leads, lead_state, rows = _decode(
