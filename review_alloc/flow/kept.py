@@ -823,6 +823,7 @@ class KeptFlow:
         "_head",
         "_lock",
         "_max_cost",
+        "_moved",
         "_pending",
         "_pot",
         "_result",
@@ -874,6 +875,8 @@ class KeptFlow:
         self._total_upper = total_upper
         self._max_cost = max_cost
         self._total = total
+        # The edges whose flow may differ from the state this one was patched from.
+        self._moved: list[np.ndarray] = []
         self._result: CostFlowResult | None = None
         self._error: InfeasibleError | None = None
         self._spent = False
@@ -1130,10 +1133,23 @@ class KeptFlow:
         max_cost = max(self._max_cost, int(np.abs(c).max(initial=0)))
         # The cost of the new flow, from this one's and the changed edges' (exact integers).
         total = self._total + _exact_dot(new_flow, c) - _exact_dot(old_flow, old_costs)
-        return KeptFlow(
+        child = KeptFlow(
             self.n, m, topology, shared, child_version, edge_flow, self._pot.copy(), ex,
             pending, total_upper, max_cost, total, True,
         )
+        # A pending parent's own changes are the child's too (a chain of patches, one resolve).
+        child._moved = [*self._moved, change.edges] if self.pending else [change.edges]
+        return child
+
+    def changed_edges(self) -> np.ndarray:
+        """The edges whose flow may differ from that of the state this one was patched from
+        (its patches' edges and those its resolve routed on), sorted; none for a state made
+        by `from_solution` or `solve`. Every other edge carries the parent's flow."""
+        with self._lock:
+            edges = np.sort(np.concatenate([_NONE, *self._moved]), kind="stable")
+            if len(edges) < 2:
+                return edges
+            return edges[np.concatenate(([True], edges[1:] != edges[:-1]))]
 
     def default_budget(self) -> int:
         """The work `resolve()` allows by default: `KEPT_WORK_LIMIT` times arcs plus nodes."""
@@ -1176,6 +1192,7 @@ class KeptFlow:
                     triples = log[: 3 * int(logged)].reshape(-1, 3)
                     change = _Change(triples[:, 0], triples[:, 1], triples[:, 2])
                     self._version = shared.moved_on(self._version, change)
+                    self._moved.append(change.edges)
                     # The cost moves by the routed edges' flow changes times their costs.
                     before = shared.lower[change.edges] + change.cap_b
                     self._total += _exact_dot(

@@ -247,13 +247,15 @@ def patched_network(
     old_plan: Plan | None = None,
     old_flow: np.ndarray | None = None,
     old_arrays: SessionArrays | None = None,
+    old_used: np.ndarray | None = None,
 ) -> NetworkPatch | None:
     """The network of `new` (keeping `earlier`'s pairs when given) derived from `old`, the
     network of `old_session`; None when the change is not one a patch follows.
 
     `old_plan` and `old_flow` (the plan decoded from `old` and its flow) let the keep tier be
     read off the flow when `earlier` is that plan; `old_arrays` (`session_arrays(old_session)`,
-    kept with the earlier outcome) let the per-entity arrays be read again only where changed.
+    kept with the earlier outcome) let the per-entity arrays be read again only where changed;
+    `old_used` (the sorted pair positions carrying `old_flow`) spares reading the whole flow.
     """
     policy = new.policy
     if policy.bottleneck or old.kept is None and earlier is not None:
@@ -358,7 +360,11 @@ def patched_network(
     kept = None
     if earlier is not None:
         if old_plan is not None and old_flow is not None and _same_rows(earlier, old_plan):
-            kept = old_flow[old.pair_arcs] > 0
+            if old_used is not None:
+                kept = np.zeros(len(old.pair_score), dtype=bool)
+                kept[old_used] = True
+            else:
+                kept = old_flow[old.pair_arcs] > 0
             # Pairs carrying flow had capacity, and pair capacities changed only at `arcs`.
             kept[arcs] &= capacities[old.pair_arcs.start + arcs] > 0
         else:

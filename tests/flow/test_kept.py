@@ -203,6 +203,11 @@ def run_sequence(rng: np.random.Generator, net: Network, planner: bool, steps: i
         result = nxt.resolve(budget=10**12)
         assert result is not None
         check_result(trial, result, reference)
+        # Every edge whose flow moved is among the child's changed edges (numpy's comparison
+        # of the two flows as reference).
+        moved = nxt.changed_edges()
+        assert np.isin(np.flatnonzero(result.flow != before.flow), moved).all()
+        assert np.isin(edges, moved).all() and np.array_equal(moved, np.unique(moved))
         assert np.array_equal(state._cap, cap_before)
         # The bitmap of arcs with residual partners and the flow per edge stay in step with
         # the residual capacities.

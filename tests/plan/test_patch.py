@@ -135,6 +135,11 @@ def test_a_patched_replan_has_the_optimum_of_a_network_built_anew(seed: int) -> 
                 make_plan(ws.session, earlier=earlier, patch=False)
             return
         assert outcome.plan.checked
+        # The pairs carrying flow, however they were found (from the earlier pairs and the
+        # edges the re-solve changed, or by a pass): numpy's pass over the flow as reference.
+        assert outcome.pairs_used is not None and np.array_equal(
+            outcome.pairs_used, np.flatnonzero(outcome.flow[outcome.network.pair_arcs] > 0)
+        )
         fresh_net = build_network(ws.session, earlier=earlier)
         if outcome.patched:
             _assert_same_optimum(outcome.network, fresh_net)
