@@ -562,3 +562,20 @@ def test_threads_patch_one_parent_at_once() -> None:
         else:
             check_result(trial, outcomes[k], reference)
     check_state_arrays(state, net, state.resolve())
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_exact_costs_match_python_integers(seed: int) -> None:
+    # Tier-weight-sized costs times small flows pass int64 in sum, not per product; huge
+    # flows take the Python loop. Reference: the sum in Python's unbounded integers.
+    from review_alloc.flow.kept import _exact_dot
+    from review_alloc.flow.mincost import _total_cost
+
+    rng = np.random.default_rng(500 + seed)
+    for size, top_flow, top_cost in ((0, 1, 1), (7, 3, 2**62), (60_000, 3, 2**61),
+                                     (5_000, 2**20, 2**50), (40, 2**40, 2**62), (300, 9, 99)):
+        flow = rng.integers(-top_flow, top_flow + 1, size).astype(np.int64)
+        costs = rng.integers(-top_cost, top_cost, size).astype(np.int64)
+        exact = sum(int(f) * int(c) for f, c in zip(flow.tolist(), costs.tolist(), strict=True))
+        assert _total_cost(flow, costs) == exact
+        assert _exact_dot(flow, costs) == exact
