@@ -34,9 +34,10 @@ import numpy as np
 from numba import njit
 
 from review_alloc.flow._jit import HELPER_OPTIONS, KERNEL_OPTIONS, trailing_zeros
-from review_alloc.flow.mincost import _total_cost, min_cost_flow
+from review_alloc.flow.mincost import min_cost_flow
 from review_alloc.flow.residual import build_residual, net_outflow
 from review_alloc.flow.results import CostFlowResult, FlowError, FlowInputError, InfeasibleError
+from review_alloc.flow.sums import exact_dot
 from review_alloc.flow.validate import (
     TOTAL_LIMIT,
     as_int_array,
@@ -652,27 +653,6 @@ def _in_bits(cap: np.ndarray, rev: np.ndarray) -> np.ndarray:
     return raw.view("<u8").astype(np.uint64)
 
 
-def _exact_dot(flow: np.ndarray, costs: np.ndarray, reach: int | None = None) -> int:
-    """`flow @ costs` as an exact Python int (int64 arrays); `reach`: the sum of |flow| if known.
-
-    Every partial sum of the products is at most the sum of |flow| times max |cost|: where that
-    fits int64, one integer dot product. Otherwise, while the flows sum to less than 2**30, the
-    costs are split into their bits above and below bit 31, two dot products that both fit
-    (the changes a patch or a resolve makes, priced at a planner's tier weights, are such).
-    """
-    if not len(flow):
-        return 0
-    if reach is None:
-        # In float64, with room for its rounding in the bounds below.
-        reach = int(np.abs(flow).sum(dtype=np.float64)) + 1
-    top = int(np.abs(costs).max())
-    if reach * top < 2**62:
-        return int(flow @ costs)
-    if reach < 2**30:
-        return int(flow @ (costs >> 31)) * 2**31 + int(flow @ (costs & (2**31 - 1)))
-    return _total_cost(flow, costs)
-
-
 _NONE = np.zeros(0, dtype=np.int64)
 
 
@@ -947,7 +927,7 @@ class KeptFlow:
         max_cost = int(np.abs(costs_in).max(initial=0))
         # Flows lie within [lower, upper] with lower >= 0: the sum of |flow| is the flows' sum
         # (at most `total_upper`, below TOTAL_LIMIT).
-        total = _exact_dot(x, costs_in, int(x.sum()))
+        total = exact_dot(x, costs_in, int(x.sum()))
         return cls(
             n, m, topology, shared, shared.current, x.copy(), pot.copy(),
             np.zeros(n, dtype=np.int64), np.zeros(0, dtype=np.int64), total_upper, max_cost,
@@ -1132,7 +1112,7 @@ class KeptFlow:
         edge_flow[edges] = new_flow
         max_cost = max(self._max_cost, int(np.abs(c).max(initial=0)))
         # The cost of the new flow, from this one's and the changed edges' (exact integers).
-        total = self._total + _exact_dot(new_flow, c) - _exact_dot(old_flow, old_costs)
+        total = self._total + exact_dot(new_flow, c) - exact_dot(old_flow, old_costs)
         child = KeptFlow(
             self.n, m, topology, shared, child_version, edge_flow, self._pot.copy(), ex,
             pending, total_upper, max_cost, total, True,
@@ -1195,7 +1175,7 @@ class KeptFlow:
                     self._moved.append(change.edges)
                     # The cost moves by the routed edges' flow changes times their costs.
                     before = shared.lower[change.edges] + change.cap_b
-                    self._total += _exact_dot(
+                    self._total += exact_dot(
                         self._edge_flow[change.edges] - before, shared.edge_costs[change.edges]
                     )
             self.last_work = int(work)

@@ -19,6 +19,7 @@ from review_alloc.flow.cost_scaling import solve_cost_scaling
 from review_alloc.flow.primal_dual import solve_primal_dual as _primal_dual
 from review_alloc.flow.primal_dual import solve_warm_primal_dual
 from review_alloc.flow.results import CostFlowResult, FlowInputError
+from review_alloc.flow.sums import exact_dot
 from review_alloc.flow.validate import as_int_array, check_edges, check_n, check_supplies
 
 COST_METHODS = ("auto", "cost-scaling", "primal-dual")
@@ -28,26 +29,8 @@ primal-dual method first."""
 
 
 def _total_cost(flow: np.ndarray, costs: np.ndarray) -> int:
-    """Exact total cost as a Python int (int64 products could overflow on extreme inputs).
-
-    Where the products' magnitudes could pass int64 but the flows sum to less than 2**30 (a
-    planner's network, priced at its tier weights), the costs are split at bit 31 into two
-    int64 dot products that cannot overflow; only beyond that are the products summed in
-    Python integers (a loop over the nonzero flows, ~12 ms on 60 k of them).
-    """
-    magnitude = float(np.abs(flow.astype(np.float64)) @ np.abs(costs.astype(np.float64)))
-    if magnitude < 2.0**62:
-        return int(flow @ costs)
-    flow = np.asarray(flow, dtype=np.int64)
-    costs = np.asarray(costs, dtype=np.int64)
-    if float(np.abs(flow).sum(dtype=np.float64)) < 2.0**30:
-        # |costs >> 31| <= 2**32 and 0 <= costs & (2**31 - 1) < 2**31: no partial sum of
-        # either product reaches 2**62.
-        return int(flow @ (costs >> 31)) * 2**31 + int(flow @ (costs & (2**31 - 1)))
-    used = np.flatnonzero(flow)
-    return sum(
-        int(f) * int(c) for f, c in zip(flow[used].tolist(), costs[used].tolist(), strict=True)
-    )
+    """Exact total cost as a Python int (int64 products could overflow on extreme inputs)."""
+    return exact_dot(flow, costs)
 
 
 @dataclass(frozen=True, eq=False)

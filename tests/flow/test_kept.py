@@ -568,8 +568,8 @@ def test_threads_patch_one_parent_at_once() -> None:
 def test_exact_costs_match_python_integers(seed: int) -> None:
     # Tier-weight-sized costs times small flows pass int64 in sum, not per product; huge
     # flows take the Python loop. Reference: the sum in Python's unbounded integers.
-    from review_alloc.flow.kept import _exact_dot
     from review_alloc.flow.mincost import _total_cost
+    from review_alloc.flow.sums import exact_dot
 
     rng = np.random.default_rng(500 + seed)
     for size, top_flow, top_cost in ((0, 1, 1), (7, 3, 2**62), (60_000, 3, 2**61),
@@ -578,4 +578,5 @@ def test_exact_costs_match_python_integers(seed: int) -> None:
         costs = rng.integers(-top_cost, top_cost, size).astype(np.int64)
         exact = sum(int(f) * int(c) for f, c in zip(flow.tolist(), costs.tolist(), strict=True))
         assert _total_cost(flow, costs) == exact
-        assert _exact_dot(flow, costs) == exact
+        assert exact_dot(flow, costs) == exact
+        assert exact_dot(flow, costs, int(np.abs(flow).sum())) == exact
