@@ -707,7 +707,8 @@ class _Shared:
     """
 
     __slots__ = (
-        "backward", "bits", "cap", "cost", "current", "edge_costs", "forward", "lock", "lower",
+        "backward", "bits", "cap", "cost", "current", "edge_costs", "forward", "lock", "log",
+        "lower", "touched",
     )
 
     def __init__(
@@ -728,6 +729,10 @@ class _Shared:
         self.forward = forward
         self.backward = backward
         self.current = _Version()
+        # A resolve's log and its one byte per edge (all zero between resolves), made on the
+        # first resolve and kept: resolves of a family run one at a time under `lock`.
+        self.touched = np.zeros(0, dtype=np.uint8)
+        self.log = np.zeros(0, dtype=np.int64)
         # Re-entrant: a state's resolve holds it while the state's own steps hold it again.
         self.lock = threading.RLock()
 
@@ -1154,12 +1159,14 @@ class KeptFlow:
                 return self._result
             side = np.zeros(self.n, dtype=np.bool_)
             m = self.n_edges
-            # One byte per edge and a log of three values per edge: numpy's large
-            # allocations are mapped lazily, so only the pages a resolve touches cost.
-            touched = np.zeros(m, dtype=np.uint8)
-            log = np.empty(3 * m, dtype=np.int64)
             shared = self._shared
             with shared.lock:
+                if len(shared.touched) != m:
+                    # One byte per edge and a log of three values per edge: numpy's large
+                    # allocations are mapped lazily, so only the pages resolves touch cost.
+                    shared.touched = np.zeros(m, dtype=np.uint8)
+                    shared.log = np.empty(3 * m, dtype=np.int64)
+                touched, log = shared.touched, shared.log
                 shared.hold(self._version)
                 status, work, _, logged = kept_route_kernel(
                     self._start, self._head, shared.cap, self._rev, shared.cost, self._pot,
@@ -1171,6 +1178,7 @@ class KeptFlow:
                     # versions that led to its old ones lead there through the log.
                     triples = log[: 3 * int(logged)].reshape(-1, 3)
                     change = _Change(triples[:, 0], triples[:, 1], triples[:, 2])
+                    touched[change.edges] = 0
                     self._version = shared.moved_on(self._version, change)
                     self._moved.append(change.edges)
                     # The cost moves by the routed edges' flow changes times their costs.
