@@ -23,6 +23,13 @@ change, on the very same arrays, without terminal arcs and without rebuilding an
 After a small change the deficits are few and local (the papers that lost a reviewer), while
 the excess may sit at a hub (the source); searching from the deficits keeps each search small.
 The supplies a kept flow meets are those of the flow it was made from (its out - in per node).
+
+A parent must stay usable after its children (an undo patches it again, a what-if preview and
+the re-plan are siblings), yet copying the 2m residual capacities and costs for each child was
+most of a patch's time. So the states of one family share those arrays (`_Shared`): a patch
+swaps its edges' values in and keeps the old ones, a resolve logs each edge it routes on before
+its first change (`_note`), and a state used again swaps its values back along the chain of
+such changes (`_Shared.hold`), in work proportional to what differs between the two states.
 """
 
 from __future__ import annotations
