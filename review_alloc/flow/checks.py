@@ -12,6 +12,7 @@ from typing import Any
 import numpy as np
 
 from review_alloc.flow.results import FlowCheckError
+from review_alloc.flow.sums import exact_dot
 
 
 def _int_array(name: str, values: Any, length: int) -> np.ndarray:
@@ -168,10 +169,7 @@ def check_cost_certificate(
             f"edge {e} ({t[e]} -> {h[e]}) has flow {x[e]} above lower bound {low[e]} "
             f"but reduced cost {reduced[e]} > 0: less flow there would cost less"
         )
-    if float(np.abs(x.astype(np.float64)) @ np.abs(c.astype(np.float64))) < 2.0**62:
-        return int(x @ c)
-    used = x != 0
-    return sum(int(a) * int(b) for a, b in zip(x[used].tolist(), c[used].tolist(), strict=True))
+    return exact_dot(x, c)
 
 
 def check_violated_cut(

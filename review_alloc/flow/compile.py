@@ -49,7 +49,7 @@ def _kernels() -> tuple[Any, ...]:
         reachable_kernel,
         reaching_kernel,
     )
-    from review_alloc.flow.kept import kept_route_kernel
+    from review_alloc.flow.kept import kept_route_kernel, kept_swap_kernel
     from review_alloc.flow.potentials import exact_potentials
     from review_alloc.flow.primal_dual import primal_dual_kernel
     from review_alloc.flow.residual import _csr_kernel
@@ -62,6 +62,7 @@ def _kernels() -> tuple[Any, ...]:
         reaching_kernel,
         primal_dual_kernel,
         kept_route_kernel,
+        kept_swap_kernel,
         cost_scaling_kernel,
         exact_potentials,
     )
@@ -125,7 +126,8 @@ _GROUPS = ("max flow", "lower bounds, primal-dual", "cost scaling")
 groups never compile the same function twice. "max flow": the fused kernel and its helpers
 (`dinic.max_flow_kernel`, `residual.scan_edges`, `sort_by_tail_packed`, `index_entering`);
 "lower bounds, primal-dual": the residual CSR, Dinic, both reachability walks, the primal-dual
-kernel with its Dijkstra and heap, and the kept flow's re-solve (`kept.kept_route_kernel`);
+kernel with its Dijkstra and heap, and the kept flow's re-solve and shared-array swaps
+(`kept.kept_route_kernel`, `kept.kept_swap_kernel`);
 "cost scaling": the push-relabel kernel and Bellman-Ford (`potentials.py`)."""
 
 _CHILD_GROUPS = ("cost scaling",)

@@ -19,6 +19,7 @@ from review_alloc.flow.cost_scaling import solve_cost_scaling
 from review_alloc.flow.primal_dual import solve_primal_dual as _primal_dual
 from review_alloc.flow.primal_dual import solve_warm_primal_dual
 from review_alloc.flow.results import CostFlowResult, FlowInputError
+from review_alloc.flow.sums import exact_dot
 from review_alloc.flow.validate import as_int_array, check_edges, check_n, check_supplies
 
 COST_METHODS = ("auto", "cost-scaling", "primal-dual")
@@ -29,13 +30,7 @@ primal-dual method first."""
 
 def _total_cost(flow: np.ndarray, costs: np.ndarray) -> int:
     """Exact total cost as a Python int (int64 products could overflow on extreme inputs)."""
-    magnitude = float(np.abs(flow.astype(np.float64)) @ np.abs(costs.astype(np.float64)))
-    if magnitude < 2.0**62:
-        return int(flow @ costs)
-    used = np.flatnonzero(flow)
-    return sum(
-        int(f) * int(c) for f, c in zip(flow[used].tolist(), costs[used].tolist(), strict=True)
-    )
+    return exact_dot(flow, costs)
 
 
 @dataclass(frozen=True, eq=False)

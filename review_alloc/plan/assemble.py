@@ -63,9 +63,8 @@ def _assignments(
         & (reuse.lead[at] == lead)
         & (reuse.score[at] == score)
     )
-    # An item getter over the whole list: half the time of a comprehension on 60 k rows.
-    out = list(map(reuse.assignments.__getitem__, at.tolist()))
     new = np.flatnonzero(~same)
+    made: list[Assignment] = []
     if len(new):
         made = trusted_assignments(
             [session.papers[i].id for i in paper[new].tolist()],
@@ -73,9 +72,50 @@ def _assignments(
             score[new].tolist(),
             lead[new].tolist(),
         )
-        for k, a in zip(new.tolist(), made, strict=True):
-            out[k] = a
+    # The rows come in runs of earlier rows at consecutive places, broken only where a row
+    # is new or an earlier one left: each run is one slice of the earlier list (a few
+    # thousand slices, not 60 k item lookups).
+    breaks = np.flatnonzero(
+        np.concatenate(([True], ~same[1:] | ~same[:-1] | (at[1:] != at[:-1] + 1)))
+    )
+    ends = np.append(breaks[1:], len(at)).tolist()
+    earlier = reuse.assignments
+    out: list[Assignment] = []
+    k_new = 0
+    for first, end, fresh, where in zip(
+        breaks.tolist(), ends, (~same[breaks]).tolist(), at[breaks].tolist(), strict=True
+    ):
+        if fresh:
+            # A new row is a run of its own.
+            out.append(made[k_new])
+            k_new += 1
+        else:
+            out.extend(earlier[where : where + end - first])
     return out
+
+
+def paper_major_order(reviewer: np.ndarray, paper: np.ndarray) -> np.ndarray:
+    """`np.lexsort((reviewer, paper))`: the rows by paper, then reviewer.
+
+    The decoded flow lists its pairs by reviewer already (the network's pair order): a stable
+    sort by paper alone then gives the same order, and numpy sorts 16-bit keys stably by radix
+    in linear time (a tenth of the lexsort's time on 60 k rows). Larger keys take two radix
+    passes, low half first; rows in any other order take the lexsort.
+    """
+    reviewer = np.asarray(reviewer)
+    paper = np.asarray(paper, dtype=np.int64)
+    if len(paper) < 2 or not bool(np.all(reviewer[1:] >= reviewer[:-1])):
+        return np.lexsort((reviewer, paper))
+    if int(paper.min()) < 0:
+        return np.lexsort((reviewer, paper))
+    top = int(paper.max())
+    if top < 1 << 16:
+        return np.argsort(paper.astype(np.uint16), kind="stable")
+    if top < 1 << 32:
+        low = np.argsort((paper & 0xFFFF).astype(np.uint16), kind="stable")
+        high = np.argsort((paper[low] >> 16).astype(np.uint16), kind="stable")
+        return low[high]
+    return np.lexsort((reviewer, paper))
 
 
 def assemble_rows(
@@ -92,7 +132,7 @@ def assemble_rows(
     """`assemble_plan`, also returning the plan's rows; `reuse` (rows of a plan of a session
     with the same reviewers and papers, in the same order) supplies unchanged assignments, and
     `demands` the session's `active_demands` when already computed."""
-    order = np.lexsort((reviewer, paper))
+    order = paper_major_order(reviewer, paper)
     reviewer, paper, score = reviewer[order], paper[order], score[order]
     lead = np.zeros(len(paper), dtype=bool)
     leads = None

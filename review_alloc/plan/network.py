@@ -94,6 +94,9 @@ class PlanNetwork:
     keep_weight: int = 0
     resolution: int = SCORE_RESOLUTION
     """Score steps per unit actually used (coarser only when the tier weights need the room)."""
+    top_pair: int = -1
+    """Position in the pair block of the first best-scored pair (-1: no pairs, or not worked
+    out): a patch keeps the pairs and their scores, so it keeps this too (`plan.patch`)."""
     rules: PairRules | None = field(default=None, compare=False, repr=False)
     """The rules the network was built or patched with (the next patch keeps what they read
     from unchanged tables; see `PairRules.following`)."""
@@ -211,7 +214,8 @@ def build_network(
     allowance = overload_allowances(session)
     total = int(reviews.sum())
     max_cap = int(cap.max()) if len(cap) else 0
-    top = float(score.max()) if len(score) else 0.0
+    top_pair = int(np.argmax(score)) if len(score) else -1
+    top = float(score[top_pair]) if len(score) else 0.0
     resolution, tiers = fitting_weights(
         top,
         session.policy.balance,
@@ -346,6 +350,7 @@ def build_network(
         kept=kept,
         keep_weight=tiers.keep,
         resolution=resolution,
+        top_pair=top_pair,
     )
 
 

@@ -32,6 +32,8 @@ is exactly a fresh one plus zero-capacity arcs, with the same cost and dual cert
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
+from itertools import compress, count
+from operator import is_not
 
 import numpy as np
 
@@ -72,9 +74,10 @@ def _entity_changes(old: list, new: list, patchable: frozenset[str]) -> np.ndarr
     if len(old) != len(new):
         return None
     changed: list[int] = []
-    for k, (a, b) in enumerate(zip(old, new, strict=True)):
-        if a is b:
-            continue
+    # The workspace copies only the entities a change touches: the identity scan runs in C
+    # (map, compress) and Python looks only at the few that are not the same object.
+    for k in compress(count(), map(is_not, old, new)):
+        a, b = old[k], new[k]
         da, db = a.__dict__, b.__dict__
         if da == db:
             continue
@@ -244,13 +247,15 @@ def patched_network(
     old_plan: Plan | None = None,
     old_flow: np.ndarray | None = None,
     old_arrays: SessionArrays | None = None,
+    old_used: np.ndarray | None = None,
 ) -> NetworkPatch | None:
     """The network of `new` (keeping `earlier`'s pairs when given) derived from `old`, the
     network of `old_session`; None when the change is not one a patch follows.
 
     `old_plan` and `old_flow` (the plan decoded from `old` and its flow) let the keep tier be
     read off the flow when `earlier` is that plan; `old_arrays` (`session_arrays(old_session)`,
-    kept with the earlier outcome) let the per-entity arrays be read again only where changed.
+    kept with the earlier outcome) let the per-entity arrays be read again only where changed;
+    `old_used` (the sorted pair positions carrying `old_flow`) spares reading the whole flow.
     """
     policy = new.policy
     if policy.bottleneck or old.kept is None and earlier is not None:
@@ -272,7 +277,10 @@ def patched_network(
     gone_p = change.papers[now_p & ~was_p]
 
     conflicts: ConflictSet = old.conflicts if change.conflicts_same else conflict_pairs(new)
-    rules = PairRules.following(new, old.rules, conflicts)
+    same_base = old.rules is not None and old.rules.session is old_session
+    rules = PairRules.following(
+        new, old.rules, conflicts, (change.reviewers, change.papers) if same_base else None
+    )
     rules.check_pins()
     look = [_reviewer_arcs(old, gone_r)]
     if len(gone_p):
@@ -293,13 +301,13 @@ def patched_network(
     arcs = _sorted_unique(np.concatenate(look)) if look else np.zeros(0, np.int64)
 
     capacities = old.capacities.copy()
-    # The lower bounds, costs and pin flags are copied only where they may change (the arcs
-    # looked at, the hard senior rule, a keep tier), and compared only when copied.
+    # The lower bounds, costs and pin flags are copied only where a value changes (a pin set
+    # or lifted among the arcs looked at, the hard senior rule, a keep tier), and compared
+    # only when copied.
     lower, costs, pair_pinned = old.lower, old.costs, old.pair_pinned
-    if len(arcs) or old.senior_hard:
+    if old.senior_hard:
         lower = lower.copy()
     if len(arcs):
-        pair_pinned = pair_pinned.copy()
         r, p = old.pair_reviewer[arcs], old.pair_paper[arcs]
         allowed = ~rules.forbidden(r, p)
         pin_rows = [(x.reviewer, x.paper) for x in new.pins]
@@ -317,8 +325,12 @@ def patched_network(
         pinned = positions_in(arc_keys, pinned_keys)[0] & allowed
         # Pair arc k is network arc pair_arcs.start + k (the pair block is one slice).
         capacities[old.pair_arcs.start + arcs] = allowed.astype(np.int64)
-        lower[old.pair_arcs.start + arcs] = pinned.astype(np.int64)
-        pair_pinned[arcs] = pinned
+        if (pinned != old.pair_pinned[arcs]).any():
+            pair_pinned = pair_pinned.copy()
+            pair_pinned[arcs] = pinned
+        if (lower[old.pair_arcs.start + arcs] != pinned).any():
+            lower = lower.copy() if lower is old.lower else lower
+            lower[old.pair_arcs.start + arcs] = pinned.astype(np.int64)
 
     arrays = arrays_for(old_session, new, change, old_arrays)
     reviews, minimum, cap, floor = arrays.reviews, arrays.minimum, arrays.cap, arrays.floor
@@ -348,15 +360,21 @@ def patched_network(
     kept = None
     if earlier is not None:
         if old_plan is not None and old_flow is not None and _same_rows(earlier, old_plan):
-            kept = old_flow[old.pair_arcs] > 0
+            if old_used is not None:
+                kept = np.zeros(len(old.pair_score), dtype=bool)
+                kept[old_used] = True
+            else:
+                kept = old_flow[old.pair_arcs] > 0
+            # Pairs carrying flow had capacity, and pair capacities changed only at `arcs`.
+            kept[arcs] &= capacities[old.pair_arcs.start + arcs] > 0
         else:
             kept = kept_pairs(
                 new, earlier, network_pair_keys(old) if keys is None else keys, n_p
             )
-        kept &= capacities[old.pair_arcs] > 0
+            kept &= capacities[old.pair_arcs] > 0
         assert old.kept is not None
         # Only the pairs whose keep flag flipped change cost (a few, not all 3 M).
-        flipped = np.flatnonzero(kept != old.kept)
+        flipped = np.flatnonzero(kept ^ old.kept)
         gained = kept[flipped].astype(np.int64) - old.kept[flipped].astype(np.int64)
         costs = costs.copy()
         costs[old.pair_arcs.start + flipped] -= old.keep_weight * gained
@@ -391,7 +409,8 @@ def patched_network(
 def _sorted_unique(values: np.ndarray) -> np.ndarray:
     """`np.unique` of a few thousand positions that mostly come sorted already (a reviewer's
     arcs are one run): numpy's hashing pass cost more than the sort of nearly sorted values."""
-    values = np.sort(values)
+    # Stable sort: timsort merges the sorted runs the arcs come in, in linear time.
+    values = np.sort(values, kind="stable")
     if len(values) < 2:
         return values
     return values[np.concatenate(([True], values[1:] != values[:-1]))]
@@ -413,15 +432,18 @@ def _changed_arcs(
     every arc of the networks on its own, so a pair missed here would fail the certificate.
     """
     block = old.pair_arcs
-    m = len(capacities)
     pairs = _sorted_unique(np.concatenate([arcs, flipped]).astype(np.int64)) + block.start
-    where = np.concatenate([np.arange(block.start), pairs, np.arange(block.stop, m)])
-    moved = capacities[where] != old.capacities[where]
-    if lower is not old.lower:
-        moved |= lower[where] != old.lower[where]
-    if costs is not old.costs:
-        moved |= costs[where] != old.costs[where]
-    return where[moved]
+    parts = []
+    # The arcs before and after the pair block are compared as slices (no gathers).
+    for where in (slice(0, block.start), pairs, slice(block.stop, len(capacities))):
+        moved = capacities[where] != old.capacities[where]
+        if lower is not old.lower:
+            moved |= lower[where] != old.lower[where]
+        if costs is not old.costs:
+            moved |= costs[where] != old.costs[where]
+        at = np.flatnonzero(moved)
+        parts.append(pairs[at] if where is pairs else at + where.start)
+    return np.concatenate(parts)
 
 
 def _same_rows(a: Plan, b: Plan) -> bool:
@@ -472,7 +494,9 @@ def _same_weights(
     pairs still open, and the same weights under the new demands."""
     n_sen, n_grp = len(old.senior_paper), len(old.group_paper)
     pair_caps = capacities[old.pair_arcs]
-    best = int(np.argmax(old.pair_score)) if len(pair_caps) else -1
+    best = old.top_pair
+    if best < 0 and len(pair_caps):
+        best = int(np.argmax(old.pair_score))
     if best >= 0 and pair_caps[best] > 0:
         # The best-scored pair is still open: it is the top (no masked pass over all pairs).
         top = float(old.pair_score[best])

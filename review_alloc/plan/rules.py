@@ -180,12 +180,36 @@ class PairRules:
 
     @classmethod
     def following(
-        cls, session: Session, previous: PairRules | None, conflicts: ConflictSet
+        cls,
+        session: Session,
+        previous: PairRules | None,
+        conflicts: ConflictSet,
+        changed: tuple[np.ndarray, np.ndarray] | None = None,
     ) -> PairRules:
         """Rules of `session` with `conflicts`, keeping `previous`'s sorted score table when it
         was read from this very table with the same paper count (a patched re-plan: comparing
-        whole entity lists, as `renewed` does, would cost more than it saves)."""
+        whole entity lists, as `renewed` does, would cost more than it saves).
+
+        `changed` (positions of the reviewers and papers whose fields may differ; every other
+        entity of `session` equals the one at its place in `previous.session`, as
+        `plan.patch.session_change` finds) lets the withdrawn flags be read again only there.
+        """
         rules = cls(session, conflicts)
+        old = previous.session if previous is not None else None
+        if (
+            changed is not None
+            and previous is not None
+            and old is not None
+            and "_withdrawn" in previous.__dict__
+            and len(old.reviewers) == len(session.reviewers)
+            and len(old.papers) == len(session.papers)
+        ):
+            gone_r, gone_p = (flags.copy() for flags in previous.__dict__["_withdrawn"])
+            for j in changed[0].tolist():
+                gone_r[j] = session.reviewers[j].withdrawn
+            for i in changed[1].tolist():
+                gone_p[i] = session.papers[i].withdrawn
+            rules.__dict__["_withdrawn"] = (gone_r, gone_p)
         if (
             previous is not None
             and previous.session.scores is session.scores
@@ -458,7 +482,18 @@ class PairRules:
         self, reviewer: np.ndarray, paper: np.ndarray, score: np.ndarray | None = None
     ) -> np.ndarray:
         """Per pair of index arrays: does a pair rule keep it out of every plan?"""
-        return self.codes(reviewer, paper, score) > 0
+        reviewer = np.asarray(reviewer, dtype=np.int64)
+        paper = np.asarray(paper, dtype=np.int64)
+        gone_r, gone_p = self._withdrawn
+        # A withdrawn reviewer or paper is forbidden whatever else holds: the score lookups
+        # and topic checks run only on the other pairs (a withdrawal's patch asks about the
+        # tens of thousands of pairs of the reviewers who left).
+        out = gone_r[reviewer] | gone_p[paper]
+        rest = np.flatnonzero(~out)
+        if len(rest):
+            part = None if score is None else np.asarray(score, dtype=np.float64)[rest]
+            out[rest] = self.codes(reviewer[rest], paper[rest], part) > 0
+        return out
 
     def pair_verdict(self, reviewer: int, paper: int) -> Verdict:
         """The first pair rule a pair breaks, in the chair's words (`ELIGIBLE` when none)."""

@@ -43,6 +43,7 @@ from review_alloc.plan.exact import EXACT_TIERS, ExactResult, exact_tiers, solve
 from review_alloc.plan.fairness import coverage_flows, highest_threshold, score_thresholds
 from review_alloc.plan.leads import LeadChoice, LeadState
 from review_alloc.plan.network import PlanNetwork, build_network
+from review_alloc.plan.pairkeys import contains
 from review_alloc.plan.patch import NetworkPatch, SessionArrays, patched_network, session_arrays
 from review_alloc.plan.warmstart import same_cost_scale, warm_start_for
 from review_alloc.plan.weights import SCORE_RESOLUTION
@@ -104,6 +105,9 @@ class PlanOutcome:
     check_state: CheckState | None = None
     """What the check of this outcome established, so that the next check of a re-plan on a
     patched `network` certifies only what changed."""
+    pairs_used: np.ndarray | None = field(default=None, repr=False, compare=False)
+    """Sorted positions in `network`'s pair block of the pairs carrying `flow` (the plan's
+    pairs), so that the next patch and decoding need not read the whole flow again."""
     kept: _KeptSlot = field(default_factory=_KeptSlot, repr=False, compare=False)
     """The optimum as a `flow.KeptFlow` (see `kept_flow`): a patched re-plan re-solves from it."""
 
@@ -148,9 +152,12 @@ class PlanOutcome:
 
 
 def tier_values(net: PlanNetwork, used: np.ndarray) -> dict[str, float]:
-    """The objective's tier values of the pairs `used` (boolean per pair arc) in `net`."""
-    # One pass over the pair mask; the rest works on the few chosen pairs.
-    chosen = np.flatnonzero(used)
+    """The objective's tier values of the pairs `used` (boolean per pair arc, or the sorted
+    positions in the pair block of the pairs used) in `net`."""
+    # One pass over the pair mask (none when given the positions); the rest works on the few
+    # chosen pairs.
+    used = np.asarray(used)
+    chosen = np.flatnonzero(used) if used.dtype == bool else used
     loads = np.bincount(net.pair_reviewer[chosen], minlength=net.n_reviewers)
     counts = np.bincount(net.pair_paper[chosen], minlength=net.n_papers)
     minimum = net.capacities[net.required_arcs]
@@ -168,6 +175,19 @@ def tier_values(net: PlanNetwork, used: np.ndarray) -> dict[str, float]:
         "floors": float(np.minimum(loads, floor).sum()),
         "score": round(float(net.pair_score[chosen].sum()) - penalty, 6),
     }
+
+
+def moved_pairs(
+    net: PlanNetwork, used: np.ndarray, changed: np.ndarray, flow: np.ndarray
+) -> np.ndarray:
+    """The sorted pair positions carrying `flow`, from `used` (those carrying the earlier flow
+    on the same arcs) and `changed` (sorted arcs where the two flows may differ)."""
+    block = net.pair_arcs
+    inside = changed[(changed >= block.start) & (changed < block.stop)] - block.start
+    stay = used[~contains(used, inside)]
+    now = inside[flow[block.start + inside] > 0]
+    # Two sorted runs, disjoint: the stable sort merges them.
+    return np.sort(np.concatenate([stay, now]), kind="stable")
 
 
 def _run(session: Session, net: PlanNetwork, warm: PlanOutcome | None = None) -> CostFlowResult:
@@ -506,8 +526,8 @@ def _decode(
 ) -> tuple[Plan, LeadChoice | None, LeadState | None, PlanRows]:
     """The plan of an optimal flow (pair arcs with flow > 0 only), its leads chosen when the
     policy asks for them; `reuse` holds an earlier plan's rows of the same entities, `used`
-    the pair arcs' flow > 0 when already worked out."""
-    chosen = np.flatnonzero(result.flow[net.pair_arcs] > 0 if used is None else used)
+    the sorted positions of the pair arcs with flow > 0 when already worked out."""
+    chosen = np.flatnonzero(result.flow[net.pair_arcs] > 0) if used is None else used
     reviewer = net.pair_reviewer[chosen]
     paper = net.pair_paper[chosen]
     score = net.pair_score[chosen]
@@ -540,6 +560,7 @@ def _patched_solve(
         # Only when readied (built with the kept state, or by the patch that made `warm`):
         # building them here would cost the full pass they save.
         old_arrays=warm.kept.arrays,
+        old_used=warm.pairs_used,
     )
     if patch is None:
         return None
@@ -593,7 +614,14 @@ def make_plan(
             session, net, base, split, keep_from, proof
         )
         state = None
-    used = result.flow[net.pair_arcs] > 0
+    # The pairs carrying flow, found once for the tier values and the decoding: after a
+    # re-solve from the kept state, from the earlier pairs and the few edges it changed.
+    if patched is not None and state is not None and warm is not None and (
+        warm.pairs_used is not None
+    ):
+        used = moved_pairs(net, warm.pairs_used, state.changed_edges(), result.flow)
+    else:
+        used = np.flatnonzero(result.flow[net.pair_arcs] > 0)
     final = tier_values(net, used)
     relaxed = bound if bound != final else {}
     plan, leads, lead_state, rows = _decode(
@@ -662,5 +690,6 @@ def make_plan(
         patched=patched is not None,
         checked_conflicts=check_state.conflicts,
         check_state=check_state,
+        pairs_used=used,
         kept=_KeptSlot(state, patched[2].arrays if patched is not None else None),
     )

@@ -203,6 +203,11 @@ def run_sequence(rng: np.random.Generator, net: Network, planner: bool, steps: i
         result = nxt.resolve(budget=10**12)
         assert result is not None
         check_result(trial, result, reference)
+        # Every edge whose flow moved is among the child's changed edges (numpy's comparison
+        # of the two flows as reference).
+        moved = nxt.changed_edges()
+        assert np.isin(np.flatnonzero(result.flow != before.flow), moved).all()
+        assert np.isin(edges, moved).all() and np.array_equal(moved, np.unique(moved))
         assert np.array_equal(state._cap, cap_before)
         # The bitmap of arcs with residual partners and the flow per edge stay in step with
         # the residual capacities.
@@ -350,15 +355,20 @@ def test_the_uncompiled_twin_routes_like_the_kernel() -> None:
     twin = twins[id(kept.kept_route_kernel)]
     rng = np.random.default_rng(8)
     net = planner_network(rng)
-    state = KeptFlow.solve(net.n, net.tails, net.heads, net.caps, net.costs)
+    # Two families (states patched from one parent share their arrays).
+    a, b = (KeptFlow.solve(net.n, net.tails, net.heads, net.caps, net.costs) for _ in range(2))
     edges, values = random_patch(rng, net, planner=True)
-    a, b = state.patched(edges, **values), state.patched(edges, **values)
+    a, b = a.patched(edges, **values), b.patched(edges, **values)
+    m = a.n_edges
+    logs = [(np.zeros(m, np.uint8), np.empty(3 * m, np.int64)) for _ in range(2)]
     args = [(s._start, s._head, s._cap, s._rev, s._cost, s._pot, s._ex, s._inbits, s._arc_edge,
-             s._edge_flow, s._pending, np.int64(10**12), np.zeros(s.n, np.bool_))
-            for s in (a, b)]
-    assert kept.kept_route_kernel(*args[0]) == twin(*args[1])
+             s._edge_flow, s._pending, np.int64(10**12), np.zeros(s.n, np.bool_), *log)
+            for s, log in zip((a, b), logs, strict=True)]
+    out = kept.kept_route_kernel(*args[0])
+    assert out == twin(*args[1])
     assert np.array_equal(a._cap, b._cap) and np.array_equal(a._pot, b._pot)
     assert np.array_equal(a._inbits, b._inbits) and np.array_equal(a._edge_flow, b._edge_flow)
+    assert np.array_equal(logs[0][1][: 3 * out[3]], logs[1][1][: 3 * out[3]])
 
 
 @pytest.mark.parametrize("family", ["loose", "tight", "scarce"])
@@ -427,3 +437,148 @@ def test_the_cost_is_exact_where_capacities_times_costs_pass_int64() -> None:
     exact = sum(int(f) * int(c) for f, c in zip(result.flow.tolist(), costs.tolist(), strict=True))
     assert result.cost == exact
     assert result.cost == ortools_cost(n, tails, heads, caps2, costs, supplies)
+
+
+def reference_cost(net: Network) -> int | None:
+    """OR-Tools SimpleMinCostFlow's optimal cost of `net` (None when infeasible)."""
+    return ortools_cost(net.n, net.tails, net.heads, net.caps, net.costs, net.supplies, net.lower)
+
+
+def check_state_arrays(state: KeptFlow, net: Network, result) -> None:
+    """The family's shared arrays, holding `state`, equal those of a state built from scratch
+    from its optimum (its values survived every other state's patches and resolves)."""
+    fresh = KeptFlow.from_solution(net.n, net.tails, net.heads, net.caps, net.costs, net.lower,
+                                   result.flow, result.potentials)
+    for name in ("_cap", "_inbits", "_cost", "_edge_costs", "_lower"):
+        assert np.array_equal(getattr(state, name), getattr(fresh, name)), name
+
+
+@pytest.mark.parametrize("seed", range(8))
+def test_a_family_of_states_shares_its_arrays_and_each_keeps_its_values(seed: int) -> None:
+    # Undo and previews patch a parent again after its children: states patched from any
+    # state of the family, resolved in any order, each must still re-solve to the optimum of
+    # its own network (OR-Tools SimpleMinCostFlow as reference) and hold exactly its values.
+    rng = np.random.default_rng(4000 + seed)
+    planner = seed % 2 == 0
+    net = planner_network(rng) if planner else general_network(rng)
+    if not planner and reference_cost(net) is None:
+        net.supplies[:] = 0
+    root = KeptFlow.solve(net.n, net.tails, net.heads, net.caps, net.costs,
+                          supplies=net.supplies, lower=net.lower)
+    family: list[tuple[KeptFlow, Network]] = [(root, net)]
+    shared_cap = root._cap
+    for _ in range(14):
+        parent, parent_net = family[int(rng.integers(len(family)))]
+        if parent.spent:
+            continue
+        trial = parent_net.copy()
+        edges, values = random_patch(rng, trial, planner)
+        child = parent.patched(edges, **values)
+        # Shared, not copied: the child works in the very arrays of the root.
+        assert child._cap is shared_cap
+        family.append((child, trial))
+        state, state_net = family[int(rng.integers(len(family)))]
+        if state.spent:
+            continue
+        reference = reference_cost(state_net)
+        if reference is None:
+            with pytest.raises(InfeasibleError):
+                state.resolve(budget=10**12)
+            continue
+        check_result(state_net, state.resolve(budget=10**12), reference)
+    # Every state, whenever it was made and resolved, re-solves to its own optimum and holds
+    # its own values, in the shuffled order of a chair's undos and previews.
+    checked = 0
+    for k in rng.permutation(len(family)).tolist():
+        state, state_net = family[k]
+        if state.spent:
+            continue
+        reference = reference_cost(state_net)
+        if reference is None:
+            with pytest.raises(InfeasibleError):
+                state.resolve(budget=10**12)
+            continue
+        result = state.resolve(budget=10**12)
+        check_result(state_net, result, reference)
+        check_state_arrays(state, state_net, result)
+        checked += 1
+        # A parent patched again after all of it (an undo, then a re-plan): still exact.
+        trial = state_net.copy()
+        edges, values = random_patch(rng, trial, planner)
+        again = reference_cost(trial)
+        if again is not None:
+            check_result(trial, state.patched(edges, **values).resolve(budget=10**12), again)
+    assert checked >= 3
+    # The resolves' shared scratch is left clean for the next one.
+    assert not root._shared.touched.any()
+
+
+def test_a_spent_child_leaves_the_parent_whole() -> None:
+    # A resolve that gives up has routed part of the change in the shared arrays: the parent
+    # gets its own values back and re-solves the same patch to OR-Tools' optimum.
+    rng = np.random.default_rng(12)
+    net = planner_network(rng)
+    state = KeptFlow.solve(net.n, net.tails, net.heads, net.caps, net.costs)
+    first = state.resolve()
+    used = np.flatnonzero(first.flow[: len(net.tails) - 1] > 0)
+    pairs = used[(net.tails[used] >= 1) & (net.heads[used] < net.n - 1)]
+    child = state.patched(pairs, capacities=np.zeros(len(pairs), np.int64))
+    assert child.resolve(budget=40) is None and child.spent
+    check_state_arrays(state, net, first)
+    net.caps[pairs] = 0
+    result = state.patched(pairs, capacities=np.zeros(len(pairs), np.int64)).resolve()
+    check_result(net, result, reference_cost(net))
+
+
+def test_threads_patch_one_parent_at_once() -> None:
+    # Previews and a re-plan in worker threads, all from the same kept optimum (OR-Tools
+    # SimpleMinCostFlow as reference for each).
+    import threading
+
+    rng = np.random.default_rng(31)
+    net = planner_network(rng)
+    state = KeptFlow.solve(net.n, net.tails, net.heads, net.caps, net.costs, lower=net.lower)
+    jobs = []
+    for _ in range(8):
+        trial = net.copy()
+        jobs.append((trial, *random_patch(rng, trial, planner=True)))
+    outcomes: dict[int, object] = {}
+
+    def work(k: int) -> None:
+        trial, edges, values = jobs[k]
+        for _ in range(3):
+            try:
+                outcomes[k] = state.patched(edges, **values).resolve(budget=10**12)
+            except InfeasibleError as error:
+                outcomes[k] = error
+
+    threads = [threading.Thread(target=work, args=(k,)) for k in range(len(jobs))]
+    for thread in threads:
+        thread.start()
+    for thread in threads:
+        thread.join()
+    for k, (trial, _, _) in enumerate(jobs):
+        reference = reference_cost(trial)
+        if reference is None:
+            assert isinstance(outcomes[k], InfeasibleError)
+        else:
+            check_result(trial, outcomes[k], reference)
+    check_state_arrays(state, net, state.resolve())
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_exact_costs_match_python_integers(seed: int) -> None:
+    # Tier-weight-sized costs times small flows pass int64 in sum, not per product; huge
+    # flows take the Python loop. Reference: the sum in Python's unbounded integers.
+    from review_alloc.flow.mincost import _total_cost
+    from review_alloc.flow.sums import exact_dot
+
+    rng = np.random.default_rng(500 + seed)
+    for size, top_flow, top_cost in ((0, 1, 1), (7, 3, 2**62), (60_000, 3, 2**61),
+                                     (5_000, 2**20, 2**50), (40, 2**40, 2**62), (300, 9, 99)):
+        flow = rng.integers(-top_flow, top_flow + 1, size).astype(np.int64)
+        costs = rng.integers(-top_cost, top_cost, size).astype(np.int64)
+        exact = sum(int(f) * int(c) for f, c in zip(flow.tolist(), costs.tolist(), strict=True))
+        assert _total_cost(flow, costs) == exact
+        assert exact_dot(flow, costs) == exact
+        assert exact_dot(flow, costs, int(np.abs(flow).sum())) == exact

@@ -135,6 +135,11 @@ def test_a_patched_replan_has_the_optimum_of_a_network_built_anew(seed: int) -> 
                 make_plan(ws.session, earlier=earlier, patch=False)
             return
         assert outcome.plan.checked
+        # The pairs carrying flow, however they were found (from the earlier pairs and the
+        # edges the re-solve changed, or by a pass): numpy's pass over the flow as reference.
+        assert outcome.pairs_used is not None and np.array_equal(
+            outcome.pairs_used, np.flatnonzero(outcome.flow[outcome.network.pair_arcs] > 0)
+        )
         fresh_net = build_network(ws.session, earlier=earlier)
         if outcome.patched:
             _assert_same_optimum(outcome.network, fresh_net)
@@ -407,3 +412,51 @@ def test_sorted_unique_is_numpys_unique() -> None:
         values[: size // 2] = np.sort(values[: size // 2])  # partly sorted, as the arcs come
         # Reference: numpy's np.unique.
         assert np.array_equal(patch_module._sorted_unique(values), np.unique(values))
+
+
+def test_a_patched_networks_rules_and_pin_arrays_match_a_fresh_derivation() -> None:
+    """The withdrawn flags the patch's rules carry over from the earlier rules, the pin flags
+    and lower bounds it copies only when a pin changes, and the best-scored pair it keeps all
+    equal what a fresh derivation gives (numpy's argmax; a fresh `PairRules`)."""
+    from review_alloc.plan.rules import PairRules
+
+    for seed in range(6):
+        rng = np.random.default_rng(9500 + seed)
+        session = random_session(9600 + seed, unscored="exclude")
+        ws = Workspace(session)
+        ws.solve()
+        ws.solve()
+        for step in range(4):
+            before = ws.last_outcome
+            assert before is not None
+            kind = _change(ws, rng) if step else "0"
+            if step == 0:
+                active = [r.id for r in ws.session.reviewers if not r.withdrawn]
+                ws.withdraw_reviewer(active[int(rng.integers(len(active)))], "illness")
+            outcome = ws.solve()
+            if not outcome.patched:
+                continue
+            net, old = outcome.network, before.network
+            rules = net.rules
+            planned = outcome.planned
+            assert rules is not None and planned is not None and rules.session is planned
+            fresh = PairRules(planned)
+            for mine, theirs in zip(rules._withdrawn, fresh._withdrawn, strict=True):
+                assert np.array_equal(mine, theirs)
+            r, p = net.pair_reviewer, net.pair_paper
+            assert np.array_equal(rules.forbidden(r, p), fresh.forbidden(r, p))
+            assert net.top_pair == int(np.argmax(net.pair_score))
+            # Pins and lower bounds: as a fresh build marks them (pair arcs of pinned pairs).
+            built = build_network(planned, earlier=before.plan)
+            pinned = {(int(a), int(b)) for a, b in zip(
+                built.pair_reviewer[built.pair_pinned], built.pair_paper[built.pair_pinned],
+                strict=True)}
+            mine_pinned = {(int(a), int(b)) for a, b in zip(
+                r[net.pair_pinned], p[net.pair_pinned], strict=True)}
+            assert mine_pinned == pinned
+            assert np.array_equal(net.lower[net.pair_arcs], net.pair_pinned.astype(np.int64))
+            if kind in ("6", "7"):
+                continue
+            # No pin set or lifted: the pin flags and lower bounds are the earlier arrays.
+            assert net.pair_pinned is old.pair_pinned
+            assert net.lower is old.lower or old.senior_hard

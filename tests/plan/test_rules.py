@@ -152,6 +152,8 @@ def test_forbidden_pairs_are_exactly_those_the_checker_flags(seed: int) -> None:
     flags = pair_flags(session, reviewer, paper, score)
     forbidden = rules.forbidden(reviewer, paper)
     assert np.array_equal(forbidden, flags.any())
+    # With the scores given (only the pairs of active entities are looked up): the same.
+    assert np.array_equal(rules.forbidden(reviewer, paper, score), flags.any())
     # Rule by rule: the first rule broken is one the checker flags.
     per_rule = {
         Rule.CONFLICT: flags.conflicted,
