@@ -780,9 +780,10 @@ def _check_fused(net: PlanNetwork, used: np.ndarray, side: np.ndarray, pot: np.n
     block = net.pair_arcs
     mask = np.zeros(block.stop - block.start, dtype=np.bool_)
     mask[used] = True
+    # int64 throughout (no copy where they are already): the kernel compiles one signature.
+    arrays = (net.tails, net.heads, net.capacities, net.lower, net.costs)
     first = pair_block_faults(
-        net.tails, net.heads, net.capacities, net.lower, net.costs, pot,
-        np.int64(block.start), mask,
+        *(a.astype(np.int64, copy=False) for a in arrays), pot, np.int64(block.start), mask
     )
     sides = _side_arcs(net)
     t, h = net.tails[sides].astype(np.int64), net.heads[sides].astype(np.int64)

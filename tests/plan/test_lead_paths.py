@@ -188,3 +188,29 @@ def test_the_kernel_matches_ortools_min_cost_flow(seed: int) -> None:
     got = (len(chosen), int(senior[chosen].sum()), int(steps[chosen].sum()))
     # Reference: OR-Tools' SimpleMinCostFlow on the network with lexicographic weights.
     assert got == _ortools_leads(reviewer, paper, senior, steps, slots, n_p)
+
+
+def test_each_plan_kernel_compiles_one_signature(monkeypatch: pytest.MonkeyPatch) -> None:
+    """The lead kernel and the checker's fused pass are called with the same dtypes from every
+    call site (a second signature would compile again, seconds on a cold cache)."""
+    import review_alloc.plan.checker as checker
+    from review_alloc.plan import make_plan
+    from review_alloc.plan.check_pass import pair_block_faults
+    from tests.plan.test_planner import random_session
+
+    if not hasattr(lead_paths_kernel, "signatures"):
+        pytest.skip("numba's JIT is disabled")
+    monkeypatch.setattr(leads, "DENSE_LIMIT", 0)
+    monkeypatch.setattr(checker, "FUSED_PAIRS", 0)
+    for seed in range(3):
+        session, plan = _mixed_load_case(seed)
+        pick_leads(session, plan)
+        session = random_session(4500 + seed)
+        session = session.model_copy(
+            update={"policy": session.policy.model_copy(update={"max_leads": 2})}
+        )
+        first = make_plan(session)
+        again = make_plan(session.model_copy(update={"plan": first.plan}), warm=first)
+        assert again.check_state is not None
+    assert len(lead_paths_kernel.signatures) == 1
+    assert len(pair_block_faults.signatures) == 1
