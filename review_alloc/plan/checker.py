@@ -81,10 +81,17 @@ class EntityValues:
     """Papers above cap each reviewer may take (0 if withdrawn)."""
     need: np.ndarray | None
     """Seniors wanted per paper, when the hard senior rule is on."""
+    gone_reviewer: np.ndarray
+    """Per reviewer: withdrawn."""
+    gone_paper: np.ndarray
+    """Per paper: withdrawn."""
 
     def __post_init__(self) -> None:
         # Kept in a check state and copied by the next check: nobody may write into them.
-        for array in (self.reviews, self.minimum, self.cap, self.floor, self.allowance):
+        for array in (
+            self.reviews, self.minimum, self.cap, self.floor, self.allowance,
+            self.gone_reviewer, self.gone_paper,
+        ):
             array.flags.writeable = False
         if self.need is not None:
             self.need.flags.writeable = False
@@ -339,6 +346,7 @@ def _flag_pairs(
     conflicts: ConflictSet | None = None,
     prior: _Prior | None = None,
     conflict_keys: np.ndarray | None = None,
+    gone: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> tuple[PairFlags, _Lookups]:
     """`pair_flags`, with the score-table lookups and shared topics of rows the `prior` check
     saw unchanged (same pair and score, reviewer and paper equal, same table) taken from it."""
@@ -351,10 +359,7 @@ def _flag_pairs(
         conflicts = conflict_pairs(session)
     if conflict_keys is None:
         conflict_keys = conflicts.keys(n_p)
-    withdrawn = attrgetter("withdrawn")
-    n_r = len(session.reviewers)
-    gone_r = np.fromiter(map(withdrawn, session.reviewers), dtype=bool, count=n_r)
-    gone_p = np.fromiter(map(withdrawn, session.papers), dtype=bool, count=len(session.papers))
+    gone_r, gone_p = _withdrawn(session) if gone is None else gone
     policy = session.policy
     known = np.zeros(len(keys), dtype=bool)
     at = np.zeros(len(keys), dtype=np.int64)
@@ -415,6 +420,16 @@ def _row_keys(session: Session, reviewer: np.ndarray, paper: np.ndarray) -> np.n
     return paper.astype(np.int64) * max(len(session.reviewers), 1) + reviewer
 
 
+def _withdrawn(session: Session) -> tuple[np.ndarray, np.ndarray]:
+    """Per reviewer and per paper: withdrawn."""
+    withdrawn = attrgetter("withdrawn")
+    n_r, n_p = len(session.reviewers), len(session.papers)
+    return (
+        np.fromiter(map(withdrawn, session.reviewers), dtype=bool, count=n_r),
+        np.fromiter(map(withdrawn, session.papers), dtype=bool, count=n_p),
+    )
+
+
 def _entity_values(session: Session, prior: _Prior | None) -> EntityValues:
     """The per-entity values of `session`: those of the prior check's session, read again for
     the entities that differ from it, or a full pass without one."""
@@ -422,7 +437,9 @@ def _entity_values(session: Session, prior: _Prior | None) -> EntityValues:
     if prior is None:
         reviews, minimum, cap, floor = active_demands(session)
         need = paper_senior_need(session) if policy.senior_hard else None
-        return EntityValues(reviews, minimum, cap, floor, overload_allowances(session), need)
+        return EntityValues(
+            reviews, minimum, cap, floor, overload_allowances(session), need, *_withdrawn(session)
+        )
     old = prior.rows.entities
     if not len(prior.reviewers) and not len(prior.papers):
         return old
@@ -431,8 +448,10 @@ def _entity_values(session: Session, prior: _Prior | None) -> EntityValues:
     )
     allowance = old.allowance.copy()
     need = None if old.need is None else old.need.copy()
+    gone_r, gone_p = old.gone_reviewer.copy(), old.gone_paper.copy()
     for j in prior.reviewers.tolist():
         r = session.reviewers[j]
+        gone_r[j] = r.withdrawn
         if r.withdrawn:
             cap[j] = floor[j] = allowance[j] = 0
         else:
@@ -440,6 +459,7 @@ def _entity_values(session: Session, prior: _Prior | None) -> EntityValues:
             allowance[j] = policy.overload_allowance if r.overload is None else r.overload
     for i in prior.papers.tolist():
         p = session.papers[i]
+        gone_p[i] = p.withdrawn
         wanted = session.paper_reviews(i)
         if need is not None:
             own = policy.senior_min if p.senior_min is None else p.senior_min
@@ -448,7 +468,7 @@ def _entity_values(session: Session, prior: _Prior | None) -> EntityValues:
             reviews[i] = minimum[i] = 0
         else:
             reviews[i], minimum[i] = wanted, session.paper_min_reviews(i)
-    return EntityValues(reviews, minimum, cap, floor, allowance, need)
+    return EntityValues(reviews, minimum, cap, floor, allowance, need, gone_r, gone_p)
 
 
 def _shares_topic(session: Session, reviewer: np.ndarray, paper: np.ndarray) -> np.ndarray:
@@ -516,8 +536,12 @@ def _hard_rule_problems(
                 f"pair ({_rid(session, key, n_p)}, {_pid(session, key, n_p)}) is assigned twice"
             )
 
+    # The per-entity values first: the withdrawal flags come from them (read again only for
+    # the entities that changed since the prior check).
+    entities = _entity_values(session, prior)
     flags, lookups = _flag_pairs(
-        session, reviewer, paper, score, conflicts, prior, conflict_keys
+        session, reviewer, paper, score, conflicts, prior, conflict_keys,
+        (entities.gone_reviewer, entities.gone_paper),
     )
     if (flags.conflicted | flags.gone_reviewer | flags.gone_paper).any():
         reasons = flags.conflicts.reason_of()
@@ -563,7 +587,6 @@ def _hard_rule_problems(
         problems.append(f"unscored pair ({a.reviewer}, {a.paper}) is assigned")
 
     loads, counts = loads_and_counts(session, reviewer, paper)
-    entities = _entity_values(session, prior)
     demands = entities.reviews, entities.minimum, entities.cap, entities.floor
     reviews, _, cap, _ = demands
     allowed = cap + entities.allowance
