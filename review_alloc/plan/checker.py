@@ -57,7 +57,7 @@ class Certified:
 
     network: PlanNetwork
     used: np.ndarray
-    """Sorted positions, in the pair block, of the pairs carrying flow."""
+    """Positions, in the pair block, of the pairs carrying flow (in the plan's row order)."""
     keys: np.ndarray
     """The network's pair keys, sorted (shared by every network of the same pairs)."""
     order: np.ndarray | None
@@ -728,8 +728,9 @@ def _certificate_problems(
             pos = base.row_pairs[at] if len(base.row_pairs) else at
             found &= net_keys[pos] == keys
         else:
-            found, at = positions_in(keys, net_keys[base.used])
-            pos = base.used[at] if len(base.used) else at
+            certified_used = np.sort(base.used)
+            found, at = positions_in(keys, net_keys[certified_used])
+            pos = certified_used[at] if len(certified_used) else at
         miss = np.flatnonzero(~found)
         if len(miss):
             found[miss], pos[miss] = _positions(keys[miss], net_keys)
@@ -737,9 +738,14 @@ def _certificate_problems(
         found, pos = _positions(keys, net_keys)
     if not found.all():
         return ["the plan uses a pair that is not eligible in the session's network"], None
-    used = np.sort(pos if order is None else order[pos])
-    if len(used) > 1 and bool(np.any(used[1:] == used[:-1])):
-        return ["the plan uses a pair twice"], None
+    used = pos if order is None else order[pos]
+    # Rows in strictly rising paper-major order are distinct pairs, each found at its own
+    # position (a pair's position holds its key): only rows in another order are sorted (a
+    # few milliseconds on a large plan) to look for a pair used twice.
+    if not rising:
+        ranked = np.sort(used)
+        if len(ranked) > 1 and bool(np.any(ranked[1:] == ranked[:-1])):
+            return ["the plan uses a pair twice"], None
     side = _side_flows(net, used)
     pot = np.asarray(potentials)
     try:
@@ -784,7 +790,7 @@ def _check_fused(net: PlanNetwork, used: np.ndarray, side: np.ndarray, pot: np.n
     """The certificate of `check_cost_certificate` on the whole network, its pair block in one
     fused pass (`plan.check_pass`): node ids, bounds, conservation and both reduced-cost
     conditions on every arc, faults reported as that check reports them (the first arc of the
-    first kind in its order). `used`: the sorted pair positions carrying one unit each; `side`:
+    first kind in its order). `used`: the distinct pair positions carrying one unit each; `side`:
     the flow on every other arc, in arc order."""
     from review_alloc.plan.check_pass import (
         ABOVE_CAPACITY,
