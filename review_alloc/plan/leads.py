@@ -18,6 +18,7 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass
+from operator import attrgetter
 
 import numpy as np
 
@@ -148,8 +149,8 @@ def lead_choice(
     session: Session, reviewer: np.ndarray, paper: np.ndarray, mask: np.ndarray
 ) -> LeadChoice:
     """The LeadChoice of the pairs marked in `mask`, with the papers left without (senior) lead."""
-    paper_ids = [p.id for p in session.papers]
-    reviewer_ids = [r.id for r in session.reviewers]
+    paper_ids = list(map(attrgetter("id"), session.papers))
+    reviewer_ids = list(map(attrgetter("id"), session.reviewers))
     # Item getters over whole lists and per-paper counts: no Python loop over the rows and no
     # sort (a large venue has tens of thousands of papers).
     lead_of = dict(
