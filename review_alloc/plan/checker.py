@@ -809,10 +809,13 @@ def _check_fused(net: PlanNetwork, used: np.ndarray, side: np.ndarray, pot: np.n
     block = net.pair_arcs
     mask = np.zeros(block.stop - block.start, dtype=np.bool_)
     mask[used] = True
-    # int64 throughout (no copy where they are already): the kernel compiles one signature.
-    arrays = (net.tails, net.heads, net.capacities, net.lower, net.costs)
+    # int64 and read-only throughout (views; a copy only where the type differs): numba types
+    # a read-only array apart from a writable one, and the kernel must compile one signature.
+    arrays = (net.tails, net.heads, net.capacities, net.lower, net.costs, pot)
     first = pair_block_faults(
-        *(a.astype(np.int64, copy=False) for a in arrays), pot, np.int64(block.start), mask
+        *(_read_only(a.astype(np.int64, copy=False)) for a in arrays),
+        np.int64(block.start),
+        _read_only(mask),
     )
     sides = _side_arcs(net)
     t, h = net.tails[sides].astype(np.int64), net.heads[sides].astype(np.int64)
@@ -871,6 +874,13 @@ def _check_fused(net: PlanNetwork, used: np.ndarray, side: np.ndarray, pot: np.n
             f"lower bound {net.lower[arc]} but reduced cost {_reduced(net, pot, arc)} > 0: "
             "less flow there would cost less"
         )
+
+
+def _read_only(array: np.ndarray) -> np.ndarray:
+    """A read-only view of `array`."""
+    view = array.view()
+    view.flags.writeable = False
+    return view
 
 
 def _reduced(net: PlanNetwork, pot: np.ndarray, arc: int) -> int:
