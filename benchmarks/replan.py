@@ -49,7 +49,7 @@ BREAKDOWN = (
     ("  residual CSR build", "residual.py", "build_with_terminals"),
     ("institution split test", "solve.py", "_violated_splits"),
     ("decode + assemble", "solve.py", "_decode"),
-    ("  leads", "leads.py", "lead_mask_warm"),
+    ("  leads", "leads.py", "lead_mask"),
     ("  new assignments", "plans.py", "trusted_assignments"),
     ("  figures", "figures.py", "plan_figures"),
     ("checker", "checker.py", "check_plan"),

@@ -16,7 +16,7 @@ import numpy as np
 from review_alloc.model import Assignment, Plan, Session
 from review_alloc.model.plans import trusted_assignments, trusted_plan
 from review_alloc.plan.figures import plan_figures
-from review_alloc.plan.leads import LeadChoice, LeadState, lead_choice, lead_mask_warm
+from review_alloc.plan.leads import LeadChoice, lead_choice, lead_mask
 
 
 @dataclass(frozen=True)
@@ -125,10 +125,9 @@ def assemble_rows(
     score: np.ndarray,
     now: datetime,
     method: str,
-    warm_leads: LeadState | None = None,
     reuse: PlanRows | None = None,
     demands: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray] | None = None,
-) -> tuple[Plan, LeadChoice | None, LeadState | None, PlanRows]:
+) -> tuple[Plan, LeadChoice | None, PlanRows]:
     """`assemble_plan`, also returning the plan's rows; `reuse` (rows of a plan of a session
     with the same reviewers and papers, in the same order) supplies unchanged assignments, and
     `demands` the session's `active_demands` when already computed."""
@@ -136,15 +135,14 @@ def assemble_rows(
     reviewer, paper, score = reviewer[order], paper[order], score[order]
     lead = np.zeros(len(paper), dtype=bool)
     leads = None
-    state = None
     if session.policy.max_leads > 0:
-        lead, state = lead_mask_warm(session, reviewer, paper, score, warm_leads)
+        lead = lead_mask(session, reviewer, paper, score)
         leads = lead_choice(session, reviewer, paper, lead)
     lead = np.asarray(lead, dtype=bool)
     assignments = _assignments(session, reviewer, paper, score, lead, reuse)
     figures = plan_figures(session, reviewer, paper, score, demands=demands)
     rows = PlanRows(reviewer, paper, score, lead, assignments)
-    return trusted_plan(assignments, figures, now, method), leads, state, rows
+    return trusted_plan(assignments, figures, now, method), leads, rows
 
 
 def assemble_plan(
@@ -154,11 +152,7 @@ def assemble_plan(
     score: np.ndarray,
     now: datetime,
     method: str,
-    warm_leads: LeadState | None = None,
-) -> tuple[Plan, LeadChoice | None, LeadState | None]:
-    """The unchecked plan of the given pairs (session positions), leads chosen when asked for
-    (warm-started from `warm_leads`), and the lead state a later plan can start from."""
-    plan, leads, state, _ = assemble_rows(
-        session, reviewer, paper, score, now, method, warm_leads
-    )
-    return plan, leads, state
+) -> tuple[Plan, LeadChoice | None]:
+    """The unchecked plan of the given pairs (session positions), leads chosen when asked for."""
+    plan, leads, _ = assemble_rows(session, reviewer, paper, score, now, method)
+    return plan, leads

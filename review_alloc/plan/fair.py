@@ -468,7 +468,7 @@ def _checked(
     session: Session, net: PlanNetwork, used: np.ndarray, now: datetime, method: str
 ) -> tuple[Plan | None, object]:
     """The assembled plan of `used` when the independent checker passes it, else (None, None)."""
-    plan, leads, _ = assemble_plan(
+    plan, leads = assemble_plan(
         session,
         net.pair_reviewer[used],
         net.pair_paper[used],

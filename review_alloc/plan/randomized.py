@@ -382,7 +382,7 @@ def random_plan(
         + (", institution split of the plain plan fixed" if frac.split_fixed else "")
     )
     score = net.pair_score[positive][chosen]
-    plan, leads, _ = assemble_plan(session, reviewer[chosen], paper[chosen], score, now, method)
+    plan, leads = assemble_plan(session, reviewer[chosen], paper[chosen], score, now, method)
     # The checker verifies the hard rules of the drawn plan; it is not optimal, so no
     # certificate is checked for it (the fractional plan's was checked above).
     check_plan(session, plan, None)

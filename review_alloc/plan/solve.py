@@ -41,7 +41,7 @@ from review_alloc.plan.conflicts import ConflictSet, conflict_pairs
 from review_alloc.plan.errors import PlanInputError
 from review_alloc.plan.exact import EXACT_TIERS, ExactResult, exact_tiers, solve_exact
 from review_alloc.plan.fairness import coverage_flows, highest_threshold, score_thresholds
-from review_alloc.plan.leads import LeadChoice, LeadState
+from review_alloc.plan.leads import LeadChoice
 from review_alloc.plan.network import PlanNetwork, build_network
 from review_alloc.plan.pairkeys import contains
 from review_alloc.plan.patch import NetworkPatch, SessionArrays, patched_network, session_arrays
@@ -86,8 +86,6 @@ class PlanOutcome:
     """Per-reviewer loads of the same session planned with balance off (only when balancing)."""
     tiers: dict[str, float] = field(default_factory=dict)
     """The plan's tier values (see `tier_values`)."""
-    lead_state: LeadState | None = None
-    """The lead choice's solved state on a large venue, so that the next plan's starts warm."""
     proof: ExactResult | None = None
     """The exact program's proof where the institution and senior rules cross (None where the
     flow network alone is exact and its dual certificate is the proof)."""
@@ -519,11 +517,10 @@ def _decode(
     net: PlanNetwork,
     result: CostFlowResult,
     now: datetime,
-    warm_leads: LeadState | None = None,
     reuse: PlanRows | None = None,
     demands: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray] | None = None,
     used: np.ndarray | None = None,
-) -> tuple[Plan, LeadChoice | None, LeadState | None, PlanRows]:
+) -> tuple[Plan, LeadChoice | None, PlanRows]:
     """The plan of an optimal flow (pair arcs with flow > 0 only), its leads chosen when the
     policy asks for them; `reuse` holds an earlier plan's rows of the same entities, `used`
     the sorted positions of the pair arcs with flow > 0 when already worked out."""
@@ -531,9 +528,7 @@ def _decode(
     reviewer = net.pair_reviewer[chosen]
     paper = net.pair_paper[chosen]
     score = net.pair_score[chosen]
-    return assemble_rows(
-        session, reviewer, paper, score, now, METHOD, warm_leads, reuse, demands
-    )
+    return assemble_rows(session, reviewer, paper, score, now, METHOD, reuse, demands)
 
 
 def _patched_solve(
@@ -624,12 +619,11 @@ def make_plan(
         used = np.flatnonzero(result.flow[net.pair_arcs] > 0)
     final = tier_values(net, used)
     relaxed = bound if bound != final else {}
-    plan, leads, lead_state, rows = _decode(
+    plan, leads, rows = _decode(
         session,
         net,
         result,
         now or datetime.now(UTC),
-        warm.lead_state if warm else None,
         warm.rows if patched is not None and warm is not None else None,
         patched[2].demands if patched is not None else None,
         used,
@@ -683,7 +677,6 @@ def make_plan(
         relaxed_bound=relaxed,
         loads_before_balance=before,
         tiers=final,
-        lead_state=lead_state,
         proof=proof,
         planned=session,
         rows=rows,

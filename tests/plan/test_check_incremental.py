@@ -1,12 +1,15 @@
-"""The checker's incremental path (a re-plan's check built on the previous check's state) must
-reach the full check's verdict on every plan: accept what it accepts, reject what it rejects.
+"""The checker's re-plan path (a check built on the previous check's state) must reach the
+full check's verdict on every plan, with the same messages: accept what it accepts, reject what
+it rejects.
 
 The full check itself is compared with OR-Tools and HiGHS in tests/plan/test_patch.py and
-tests/plan/test_replan_random.py; here each incremental verdict is compared with the full one
-on the same inputs, on real re-plans and on re-plans corrupted on purpose. The certificate
-conditions broken on purpose are the reduced-cost optimality conditions of min-cost flow
-(an arc with room and negative reduced cost, or flow above its lower bound and positive
-reduced cost, shows a cheaper flow).
+tests/plan/test_replan_random.py; here each re-plan check is compared with the full one on the
+same inputs, on real re-plans and on re-plans corrupted on purpose. A re-plan's certificate on
+a large network goes through the fused pass (`plan.check_pass`); `FUSED_PAIRS` is lowered to 0
+here so that it runs on these small networks, against `check_cost_certificate` on the full
+path. The certificate conditions broken on purpose are the reduced-cost optimality conditions
+of min-cost flow (an arc with room and negative reduced cost, or flow above its lower bound and
+positive reduced cost, shows a cheaper flow).
 """
 
 from __future__ import annotations
@@ -16,15 +19,22 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
+import review_alloc.plan.checker as checker
 from review_alloc.model import Conflict, Plan, Session
 from review_alloc.plan import make_plan
-from review_alloc.plan.checker import CheckState, _same_arcs, check_plan, pair_flags
+from review_alloc.plan.checker import CheckState, check_plan, pair_flags
 from review_alloc.plan.errors import PlanCheckError, PlanInputError
 from review_alloc.plan.figures import active_demands, assignment_arrays, plan_figures
 from review_alloc.plan.solve import PlanOutcome
 from review_alloc.workspace import Workspace
 from tests.plan.test_patch import _change, _rules_session
 from tests.plan.test_planner import random_session
+
+
+@pytest.fixture(autouse=True)
+def _fused_everywhere(monkeypatch: pytest.MonkeyPatch) -> None:
+    """Every re-plan check takes the fused pass, however small its network."""
+    monkeypatch.setattr(checker, "FUSED_PAIRS", 0)
 
 
 def _with_rows(session: Session, plan: Plan, rows: list) -> Plan:
@@ -52,10 +62,10 @@ def _verdict(
 def _agree(
     session: Session, plan: Plan, potentials: np.ndarray, out: PlanOutcome, base: CheckState
 ) -> bool:
-    """Assert both paths reach the same verdict; True when they reject."""
+    """Assert both paths reach the same verdict and message; True when they reject."""
     full = _verdict(session, plan, potentials, out, None)
     quick = _verdict(session, plan, potentials, out, base)
-    assert (full is None) == (quick is None), (full, quick)
+    assert full == quick
     return full is not None
 
 
@@ -87,7 +97,6 @@ def test_the_incremental_check_agrees_with_the_full_check(seed: int) -> None:
     for session, prev, out in _replans(seed):
         base = prev.check_state
         assert base is not None and base.certified is not None
-        assert _same_arcs(out.network, base.certified.network)
         # The re-plan itself: both accept.
         assert not _agree(session, out.plan, out.potentials, out, base)
         # Potentials moved on one node, by one step or by many.
@@ -119,10 +128,18 @@ def _moved(session: Session, row, rng: np.random.Generator):  # noqa: ANN001, AN
     )
 
 
-def test_the_incremental_path_runs_on_most_patched_replans() -> None:
-    """The state is not a path that never runs: every patched re-plan above has the same arcs."""
+def test_the_fused_pass_runs_on_patched_replans(monkeypatch: pytest.MonkeyPatch) -> None:
+    """The fused pass is not a path that never runs: every patched re-plan's check takes it."""
+    calls = []
+    original = checker._check_fused
+
+    def spy(*args: object) -> None:
+        calls.append(True)
+        original(*args)  # type: ignore[arg-type]
+
+    monkeypatch.setattr(checker, "_check_fused", spy)
     count = sum(len(_replans(seed)) for seed in range(10))
-    assert count >= 10
+    assert count >= 10 and len(calls) >= count
 
 
 def _one_patched(seed: int = 3) -> tuple[Session, PlanOutcome, PlanOutcome]:
@@ -191,7 +208,7 @@ def test_wrong_potentials_on_one_node_are_rejected_on_the_incremental_path() -> 
                 pot[v] += 10**6
                 full = _verdict(session, out.plan, pot, out, None)
                 quick = _verdict(session, out.plan, pot, out, prev.check_state)
-                assert (full is None) == (quick is None)
+                assert full == quick
                 if full is not None:
                     rejected += 1
                     assert "optimality certificate" in quick
@@ -225,7 +242,7 @@ def test_a_flow_change_where_potentials_stayed_is_rejected() -> None:
                 plan = _with_rows(session, out.plan, rows)
                 full = _verdict(session, plan, pot, out, None)
                 quick = _verdict(session, plan, pot, out, prev.check_state)
-                assert full is not None and quick is not None
+                assert full is not None and quick == full
                 caught += "optimality certificate" in quick
     assert caught > 0
 
@@ -263,7 +280,7 @@ def test_a_bound_or_cost_change_where_flow_and_potentials_stayed_is_rejected() -
                 moved = replace(out, network=other)
                 full = _verdict(session, out.plan, pot, moved, None)
                 quick = _verdict(session, out.plan, pot, moved, prev.check_state)
-                assert full is not None and quick is not None
+                assert full is not None and quick == full
                 assert "optimality certificate" in quick
                 checked += 1
     assert checked > 0
@@ -465,3 +482,33 @@ def test_rows_looked_up_in_the_earlier_rows_are_confirmed_by_their_own_pair() ->
             assert _verdict(session, out.plan, out.potentials, out, base) == full
             checked += 1
     assert checked > 0
+
+
+def test_a_corrupted_network_gets_the_full_checks_message() -> None:
+    """Arcs moved on purpose, on the pair block and beside it: an end outside the nodes, and an
+    end moved to another node, which leaves the plan's flow unbalanced there (conservation is
+    checked as the full check checks it, not assumed from how the flow was built)."""
+    checked = unbalanced = 0
+    for seed in range(6):
+        for session, prev, out in _replans(seed):
+            net = out.network
+            block = net.pair_arcs
+            if block.stop == block.start:
+                continue
+            n = net.n_nodes
+            changes = []
+            for arc in (block.start, block.stop - 1, net.return_arc, 0):
+                for field in ("tails", "heads"):
+                    for node in (n, -1, (int(getattr(net, field)[arc]) + 1) % n):
+                        ends = getattr(net, field).copy()
+                        ends[arc] = node
+                        changes.append(replace(net, **{field: ends}))
+            for other in changes:
+                moved = replace(out, network=other)
+                full = _verdict(session, out.plan, out.potentials, moved, None)
+                quick = _verdict(session, out.plan, out.potentials, moved, prev.check_state)
+                # Reference: the full check (`check_cost_certificate` on every arc).
+                assert quick == full
+                checked += full is not None
+                unbalanced += full is not None and "out - in" in full
+    assert checked > 0 and unbalanced > 0

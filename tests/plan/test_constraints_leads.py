@@ -182,8 +182,8 @@ def test_checker_rejects_too_many_leads() -> None:
 
 
 @pytest.mark.parametrize("seed", range(40))
-def test_sparse_flow_path_matches_brute_force(seed: int, monkeypatch: pytest.MonkeyPatch) -> None:
-    # Large venues take the sparse min-cost-flow path; force it on the small cases.
+def test_sparse_path_matches_brute_force(seed: int, monkeypatch: pytest.MonkeyPatch) -> None:
+    # Large venues take the sparse shortest-path choice; force it on the small cases.
     monkeypatch.setattr(leads, "DENSE_LIMIT", 0)
     session, plan = lead_case(seed)
     choice = pick_leads(session, plan)
@@ -214,31 +214,11 @@ def _larger_lead_case(seed: int) -> tuple[Session, Plan]:
     return session, plan_of(session, pairs)
 
 
-@pytest.mark.parametrize("seed", range(5))
-def test_sparse_flow_path_needs_no_slow_fallback(
-    seed: int, monkeypatch: pytest.MonkeyPatch
-) -> None:
-    # The tier-by-tier solves have tiny costs and fixed arcs (the return arc, the senior hub);
-    # cost scaling must solve them itself rather than hand them to the primal-dual method,
-    # which took seconds on a large venue.
-    import review_alloc.flow.mincost as mincost
-
-    session, plan = _larger_lead_case(seed)
-    monkeypatch.setattr(leads, "DENSE_LIMIT", 0)
-    monkeypatch.setattr(mincost, "_primal_dual", None)
-    sparse = value(session, plan, pick_leads(session, plan).lead_of)
-    monkeypatch.undo()
-    # Reference: the same choice through scipy's linear_sum_assignment on the dense slot matrix.
-    dense = value(session, plan, pick_leads(session, plan).lead_of)
-    assert sparse[:2] == dense[:2]
-    assert sparse[2] == pytest.approx(dense[2], abs=1e-9)
-
-
 @pytest.mark.parametrize(("seed", "senior"), [(0, True), (1, False), (2, True), (3, False)])
-def test_sparse_flow_path_with_all_or_no_seniors(
+def test_sparse_path_with_all_or_no_seniors(
     seed: int, senior: bool, monkeypatch: pytest.MonkeyPatch
 ) -> None:
-    # With every reviewer senior, or none, the sparse path skips its senior-count solve.
+    # With every reviewer senior, or none, the senior part of every gain is the same.
     session, plan = _larger_lead_case(seed)
     session = session.model_copy(
         update={"reviewers": [r.model_copy(update={"senior": senior}) for r in session.reviewers]}
@@ -252,23 +232,13 @@ def test_sparse_flow_path_with_all_or_no_seniors(
     assert sparse[2] == pytest.approx(dense[2], abs=1e-9)
 
 
-def _choice(session: Session, plan: Plan, warm: leads.LeadState | None) -> tuple:
-    """(lead_of, state) of the sparse choice restarted from `warm`."""
-    reviewer, paper, score = assignment_indices(session, plan.assignments)
-    mask, state = leads.lead_mask_warm(session, reviewer, paper, score, warm)
-    return leads.lead_choice(session, reviewer, paper, mask).lead_of, state
-
-
 @pytest.mark.parametrize("seed", range(6))
-def test_warm_lead_choice_after_moved_reviews_matches_dense(
+def test_sparse_choices_after_moved_reviews_match_dense(
     seed: int, monkeypatch: pytest.MonkeyPatch
 ) -> None:
-    # A re-plan moves a few reviews; the sparse choice then restarts from the earlier one.
+    # A re-plan moves a few reviews; the sparse choice is made again on the new pairs.
     rng = np.random.default_rng(seed)
     session, plan = _larger_lead_case(seed)
-    monkeypatch.setattr(leads, "DENSE_LIMIT", 0)
-    _, state = _choice(session, plan, None)
-    assert state is not None
     for _ in range(3):
         rows = [(a.reviewer, a.paper, a.score) for a in plan.assignments]
         drop = set(rng.choice(len(rows), size=8, replace=False).tolist())
@@ -283,15 +253,14 @@ def test_warm_lead_choice_after_moved_reviews_matches_dense(
         session = with_scores(session, rows)
         plan = plan_of(session, rows)
         monkeypatch.setattr(leads, "DENSE_LIMIT", 0)
-        lead_of, state = _choice(session, plan, state)
-        warm = value(session, plan, lead_of)
+        choice = pick_leads(session, plan)
+        sparse = value(session, plan, choice.lead_of)
         monkeypatch.undo()
         # Reference: scipy's linear_sum_assignment on the dense slot matrix, from scratch.
         dense = value(session, plan, pick_leads(session, plan).lead_of)
-        assert warm[:2] == dense[:2]
-        assert warm[2] == pytest.approx(dense[2], abs=1e-9)
-        check_plan(session, with_leads(plan, leads.LeadChoice(lead_of, (), ())), None)
-
+        assert sparse[:2] == dense[:2]
+        assert sparse[2] == pytest.approx(dense[2], abs=1e-9)
+        check_plan(session, with_leads(plan, choice), None)
 
 
 def _milp_leads(session: Session, plan: Plan) -> tuple[int, int, float]:
@@ -376,9 +345,11 @@ def test_score_steps_stay_fine_where_they_fit_and_coarsen_where_not() -> None:
 def test_the_dense_choice_is_kept_where_its_costs_are_exact() -> None:
     # Scores in 0..1 on a few thousand papers: the dense costs stay below 2**53 at full steps.
     assert leads._dense_fits(10_000, 3_000)
-    # Near 1e13 per score they do not, and the sparse flow (tier by tier) chooses instead.
+    # Near 1e13 per score they do not, and the sparse choice (two-part costs) takes over.
     assert not leads._dense_fits(10**17, 40)
-    assert leads._flow_fits(10**13, 40, 60)
+    assert leads._paths_fit(10**13, 40, 60)
+    # Its sums must stay inside int64: beyond, the score steps coarsen.
+    assert not leads._paths_fit(2**60, 40, 60)
 
 
 def test_a_plan_with_the_largest_scores_gets_its_leads() -> None:

@@ -138,7 +138,7 @@ def _draw_statistics(session: Session, q: float, draws: int) -> None:
         assert np.all(counts <= np.ceil(count_frac - 1e-9))
         assert np.all(loads >= np.floor(load_frac + 1e-9))
         assert np.all(loads <= np.ceil(load_frac - 1e-9))
-        plan, _, _ = assemble_plan(
+        plan, _ = assemble_plan(
             session, reviewer[chosen], paper[chosen], net.pair_score[positive][chosen], NOW, "d"
         )
         check_plan(session, plan, None)
@@ -224,7 +224,7 @@ def test_every_draw_keeps_the_hard_rules(seed: int) -> None:
     reviewer, paper = net.pair_reviewer[positive], net.pair_paper[positive]
     for draw_seed in range(60):
         chosen = draw_pairs(session, reviewer, paper, frac.pair_flow[positive], 1000, draw_seed)
-        plan, _, _ = assemble_plan(
+        plan, _ = assemble_plan(
             session, reviewer[chosen], paper[chosen], net.pair_score[positive][chosen], NOW, "d"
         )
         # The independent checker (its own derivation of every rule) passes each draw.
