@@ -45,7 +45,7 @@ def test_reused_rows_are_the_earlier_objects_and_new_rows_are_built(seed: int) -
     keys = np.unique(rng.integers(0, n_r * n_p, 40))
     reviewer, paper = keys // n_p, keys % n_p
     score = rng.random(len(keys))
-    _, _, _, rows = assemble_rows(session, reviewer, paper, score, datetime.now(UTC), "test")
+    _, _, rows = assemble_rows(session, reviewer, paper, score, datetime.now(UTC), "test")
     # A later plan: some rows gone, some new, some with another score or lead.
     keep = rng.random(len(keys)) < 0.7
     extra = np.setdiff1d(np.unique(rng.integers(0, n_r * n_p, 10)), keys)
