@@ -104,24 +104,15 @@ def starting_prices(
 ) -> tuple[np.ndarray, int]:
     """Scaled prices and a tolerance cost scaling may start from; (zeros, 0) if none found.
 
-    Shortest-path distances under any arc lengths of at most `cost + scale` are such prices:
-    times `factor`, every residual arc's scaled reduced cost is then at least -`scale` *
-    `factor`. The lengths are `cost + scale` only on arcs cheaper than -`scale` (the tiers) and
-    `max(cost, 0)` elsewhere. Lengthening every arc by `scale` instead (shortest paths exist
-    exactly when no residual cycle averages below -`scale` per arc) stacks `scale` on every hop
-    of a path from a tier arc: on the scarce L benchmark (unfilled required arcs) reviewers
-    started 8 and papers 16 first-phase epsilons above the source, the first phase lowered all
-    35,000 of them by about 32 epsilons (0.6-0.75 s), and cost scaling took 1.6 M relabels
-    instead of 2.2 M with these lengths. A cycle of these lengths is negative only where the
-    tiers' own costs on it add up to less than zero (every other arc has a length >= 0), as
-    where the tiers interact; the pass then finds no start, as it would with `scale` added.
-    Prices must stay within `price_limit` in absolute value (the cost-scaling kernel's range).
+    Shortest paths with every arc lengthened by `scale` exist exactly when no residual cycle
+    averages below -`scale` per arc; their distances, times `factor`, are then prices at which
+    every residual arc's scaled reduced cost is at least -`scale` * `factor`. Prices must stay
+    within `price_limit` in absolute value (the cost-scaling kernel's range).
     """
     zeros = np.zeros(net.n, dtype=np.int64)
     if scale <= 0 or net.cost.size == 0:
         return zeros, 0
     lengths = net.cost + scale
-    np.minimum(lengths, np.maximum(net.cost, 0), out=lengths)
     # Distances below this floor would make prices outside the kernel's range (and keep a walk
     # around a negative cycle from overflowing): the pass then reports no start.
     floor = np.int64(-(price_limit // factor))

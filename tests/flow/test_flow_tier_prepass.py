@@ -123,36 +123,6 @@ def test_pre_pass_keeps_a_feasible_flow_and_finds_a_close_start(supply: float) -
     assert (reduced[net.cap > 0] >= -eps).all()
 
 
-@pytest.mark.parametrize("supply", [0.4, 0.8])
-def test_starting_prices_add_no_slack_on_arcs_of_nonnegative_cost(supply: float) -> None:
-    # Below full supply some tier arcs keep residual capacity at a cost far below -scale, and
-    # every shortest path runs through them. Lengthening every arc by `scale` would stack one
-    # `scale` per hop from them (each layer of the network a tolerance's worth off, which the
-    # first phase then spends its relabels undoing); only the tier arcs get it, so an arc of
-    # nonnegative cost is never violated at the start and a negative one by its own cost only.
-    rng = np.random.default_rng(11)
-    n, tails, heads, caps, costs, lower = tiered_circulation(
-        rng, 60, 30, 5, [4_000_000, 2_000_000], supply
-    )
-    net = routed_network(n, tails, heads, caps, costs, lower)
-    scale = int(costs.max())
-    saturate_tiers(net, n, len(tails), scale)
-    factor = net.n + 1
-    prices, eps = starting_prices(net, net.cap, scale, factor, PRICE_LIMIT)
-    assert eps == scale * factor
-    assert (prices % factor == 0).all()
-    tier = net.cost < -scale
-    assert (net.cap[tier] > 0).any()
-    reduced = net.cost + (prices[net.head[net.rev]] - prices[net.head]) // factor
-    residual = net.cap > 0
-    assert (reduced[residual & (net.cost >= 0)] >= 0).all()
-    assert (reduced[residual & ~tier] >= np.minimum(net.cost[residual & ~tier], 0)).all()
-    assert (reduced[residual] >= -scale).all()
-    # And cost scaling from there reaches OR-Tools SimpleMinCostFlow's optimum.
-    result = min_cost_flow(n, tails, heads, caps, costs, lower=lower)
-    assert result.cost == ortools_cost(n, tails, heads, caps, costs, lower=lower)
-
-
 def test_too_many_tiers_skip_the_pre_pass_and_still_solve() -> None:
     rng = np.random.default_rng(3)
     # Tier weights far apart from each other: each is a tier of its own.
