@@ -135,7 +135,33 @@ _CHILD_GROUPS = ("cost scaling",)
 
 _CHILD = "import sys; from review_alloc.flow.compile import exercise; exercise(sys.argv[1])"
 
-_BACKGROUND = "from review_alloc.flow.compile import compile_claimed; compile_claimed()"
+_BACKGROUND = (
+    "import sys; from review_alloc.flow.compile import compile_claimed; compile_claimed(sys.argv[1:])"
+)
+
+_ALSO: list[str] = []
+"""Warm-ups of kernels owned by the layers above the engine, as "module:function" names
+(`also_warm`): the engine may not import them, yet a cold machine should compile them with its own
+kernels instead of at a large plan's first use."""
+
+
+def also_warm(target: str) -> None:
+    """Have a cold warm-up (here or in the background compile) also run `target`, a
+    "module:function" that compiles kernels of a layer above the engine."""
+    module, _, function = target.partition(":")
+    if not module or not function:
+        raise ValueError(f"a warm-up target is 'module:function', not {target!r}")
+    if target not in _ALSO:
+        _ALSO.append(target)
+
+
+def _run_also() -> None:
+    """Run the registered warm-ups of the layers above (imported by name: see `also_warm`)."""
+    import importlib
+
+    for target in tuple(_ALSO):
+        module, _, function = target.partition(":")
+        getattr(importlib.import_module(module), function)()
 
 _CLAIM_AGE = 900.0
 """Seconds after which a background compile's claim file counts as left over by a dead run."""
@@ -249,7 +275,10 @@ def warm_up(parallel: bool = True) -> None:
         return
     with _lock:
         children: list[subprocess.Popen[bytes]] = []
-        if parallel and not kernels_ready() and not solver_cache_ready():
+        # On a warm cache the layers' own kernels load at their first use (milliseconds); only
+        # a cold one is worth compiling them ahead.
+        cold = not solver_cache_ready()
+        if parallel and not kernels_ready() and cold:
             children = _start_children(_CHILD_GROUPS)
         for group in _GROUPS:
             if group not in _CHILD_GROUPS:
@@ -258,6 +287,8 @@ def warm_up(parallel: bool = True) -> None:
         _wait(children)
         for group in _CHILD_GROUPS:
             exercise(group)
+        if cold:
+            _run_also()
         if kernels_ready() and not solver_cache_ready():
             try:
                 _marker().touch()
@@ -303,7 +334,8 @@ def _start_background() -> bool:
         return True
     try:
         _background.append(subprocess.Popen(
-            [sys.executable, "-c", _BACKGROUND], env=_child_env(), start_new_session=True,
+            [sys.executable, "-c", _BACKGROUND, *_ALSO], env=_child_env(),
+            start_new_session=True,
             stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
         ))
     except OSError:
@@ -311,8 +343,11 @@ def _start_background() -> bool:
     return True
 
 
-def compile_claimed() -> None:
-    """Compile every kernel into the cache, then drop the claim (the background process's job)."""
+def compile_claimed(also: list[str] | None = None) -> None:
+    """Compile every kernel into the cache, with the `also_warm` targets named in `also`, then
+    drop the claim (the background process's job)."""
+    for target in also or ():
+        also_warm(target)
     if hasattr(os, "nice"):
         # The plan that started this one runs meanwhile on the same cores; it goes first.
         os.nice(19)

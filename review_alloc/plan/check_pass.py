@@ -63,3 +63,19 @@ def pair_block_faults(
         if x > low and reduced > 0 and first[CAN_FALL] < 0:
             first[CAN_FALL] = k
     return first
+
+
+def exercise() -> None:
+    """Compile (or load) the kernel on a one-arc case, with the dtypes the checker passes
+    (int64 arrays and a bool mask, all read-only views: see `plan.checker`)."""
+
+    def read_only(array: np.ndarray) -> np.ndarray:
+        view = array.view()
+        view.flags.writeable = False
+        return view
+
+    arc = read_only(np.zeros(1, np.int64))
+    pair_block_faults(
+        arc, read_only(np.ones(1, np.int64)), arc, arc, arc, read_only(np.zeros(2, np.int64)),
+        np.int64(0), read_only(np.zeros(1, np.bool_)),
+    )

@@ -236,3 +236,11 @@ def lead_paths_kernel(
             done[v] = False
             pred[v] = -1
     return lead
+
+
+def exercise() -> None:
+    """Compile (or load) the kernel on a two-pair case, with the dtypes every call passes."""
+    one = np.ones(2, np.int64)
+    lead_paths_kernel(
+        np.array([0, 1], np.int64), np.array([0, 0], np.int64), one, one, one, np.int64(1)
+    )

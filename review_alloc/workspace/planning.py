@@ -37,7 +37,12 @@ def prepare_solver(say: Callable[[str], None] | None = None) -> None:
     process compiles them for the next run, and a large plan waits for that compile; `say`
     hears about it once.
     """
-    from review_alloc.flow.compile import prepare
+    from review_alloc.flow.compile import also_warm, prepare
+
+    # The planner's own kernels (the lead choice, the re-plan's certificate pass) compile with
+    # the engine's on a cold machine, not at a large venue's first plan or re-plan.
+    also_warm("review_alloc.plan.lead_paths:exercise")
+    also_warm("review_alloc.plan.check_pass:exercise")
 
     def announce(in_background: bool) -> None:
         if say is None:

@@ -245,3 +245,57 @@ def test_an_unknown_kernel_group_is_refused() -> None:
 
     with pytest.raises(ValueError, match="no such group"):
         exercise("no such group")
+
+
+_CALLS: list[str] = []
+
+
+def record_warm_up() -> None:
+    """A warm-up target of a layer above the engine, for the test below."""
+    _CALLS.append("warmed")
+
+
+def test_layers_above_compile_their_kernels_in_a_cold_warm_up_only(
+    monkeypatch: pytest.MonkeyPatch, tmp_path: Path
+) -> None:
+    import review_alloc.flow.compile as compile_module
+
+    target = f"{__name__}:record_warm_up"
+    monkeypatch.setattr(compile_module, "_ALSO", [])
+    monkeypatch.setattr(compile_module, "_marker", lambda: tmp_path / "ready")
+    compile_module.also_warm(target)
+    compile_module.also_warm(target)  # registered once
+    _CALLS.clear()
+    compile_module.warm_up(parallel=False)  # the marker is missing: a cold cache
+    assert _CALLS == ["warmed"] and (tmp_path / "ready").is_file()
+    compile_module.warm_up(parallel=False)  # warm: their kernels load at first use instead
+    assert _CALLS == ["warmed"]
+    with pytest.raises(ValueError, match="module:function"):
+        compile_module.also_warm("no_function_named")
+    # The detached background compile is told the same targets.
+    started: list[list[str]] = []
+
+    class _Popen:
+        def __init__(self, args: list[str], **_: object) -> None:
+            started.append(args)
+
+    monkeypatch.setattr(compile_module, "_claim", lambda: True)
+    monkeypatch.setattr(compile_module.subprocess, "Popen", _Popen)
+    monkeypatch.setattr(compile_module, "_background", [])
+    assert compile_module._start_background()
+    assert started and started[0][-1] == target
+    _CALLS.clear()
+    monkeypatch.setattr(compile_module, "_claim_file", lambda: tmp_path / "claim")
+    (tmp_path / "ready").unlink()
+    compile_module.compile_claimed([target])
+    assert _CALLS == ["warmed"]
+
+
+def test_the_workspace_registers_the_planner_kernels() -> None:
+    import review_alloc.flow.compile as compile_module
+    from review_alloc.workspace import prepare_solver
+
+    prepare_solver()
+    assert {
+        "review_alloc.plan.lead_paths:exercise", "review_alloc.plan.check_pass:exercise"
+    } <= set(compile_module._ALSO)

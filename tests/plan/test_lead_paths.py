@@ -202,6 +202,11 @@ def test_each_plan_kernel_compiles_one_signature(monkeypatch: pytest.MonkeyPatch
         pytest.skip("numba's JIT is disabled")
     monkeypatch.setattr(leads, "DENSE_LIMIT", 0)
     monkeypatch.setattr(checker, "FUSED_PAIRS", 0)
+    # The cold warm-up's own calls (`flow.compile.also_warm`) must compile that very signature.
+    from review_alloc.plan import check_pass, lead_paths
+
+    lead_paths.exercise()
+    check_pass.exercise()
     for seed in range(3):
         session, plan = _mixed_load_case(seed)
         pick_leads(session, plan)
