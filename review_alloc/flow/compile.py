@@ -136,7 +136,8 @@ _CHILD_GROUPS = ("cost scaling",)
 _CHILD = "import sys; from review_alloc.flow.compile import exercise; exercise(sys.argv[1])"
 
 _BACKGROUND = (
-    "import sys; from review_alloc.flow.compile import compile_claimed; compile_claimed(sys.argv[1:])"
+    "import sys; from review_alloc.flow.compile import compile_claimed; "
+    "compile_claimed(sys.argv[1:])"
 )
 
 _ALSO: list[str] = []
