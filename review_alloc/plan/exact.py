@@ -40,6 +40,7 @@ from scipy.optimize import Bounds, LinearConstraint, linprog, milp
 from scipy.sparse import coo_matrix, csr_matrix, vstack
 
 from review_alloc.flow import FlowCheckError, check_cost_certificate
+from review_alloc.flow.sums import exact_dot
 from review_alloc.plan.network import PlanNetwork
 
 TIME_LIMIT = 30.0
@@ -186,7 +187,7 @@ def free_arcs(
     n = len(net.tails)
     every = np.ones(n, dtype=bool)
     weight = tier_weights(net)
-    cost = int(np.dot(net.costs, flow))
+    cost = exact_dot(flow, net.costs)
     if cost != -sum(weight[k] * int(upper[k]) for k in EXACT_TIERS):
         return every
     try:

@@ -185,7 +185,7 @@ def _leads_by_paths(
     Each pair's gain is (`n_led + 1` plus 1 for a senior, score steps), compared
     lexicographically: the first part counts a lead above any difference in senior leads, so
     the least-cost flow leads most papers, then most with seniors, then the best score, in one
-    exact solve. A dozen milliseconds on the loose L benchmark's 60,000 pairs (the cost-scaling
+    exact solve. 5-7 ms on the loose L benchmark's 60,000 pairs (the cost-scaling
     flow it replaced took three tier solves and 40 ms on the 20,000 pairs it left unsettled).
     """
     # Imported here: the kernel module imports numba, which commands that never choose leads
