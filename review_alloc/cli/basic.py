@@ -251,8 +251,8 @@ def rule_overrides(args: argparse.Namespace) -> dict[str, object]:
     return out
 
 
-def rule_lines(summary: dict[str, object]) -> list[str]:
-    """Plain-text lines on the chair rules of a plan summary."""
+def rule_lines(summary: dict[str, object], noun: str = "paper") -> list[str]:
+    """Plain-text lines on the chair rules of a plan summary (`noun`: "paper" or "proposal")."""
     lines: list[str] = []
     seniors = summary["seniors"]
     rules = summary["rules"]
@@ -260,19 +260,19 @@ def rule_lines(summary: dict[str, object]) -> list[str]:
     if rules["senior_min"] or seniors["wanted"]:
         lines.append(
             f"  seniors          {seniors['met']} / {seniors['wanted']}"
-            + (f", {len(seniors['short'])} papers short" if seniors["short"] else "")
+            + (f", {len(seniors['short'])} {noun}s short" if seniors["short"] else "")
         )
     if rules["max_per_institution"] is not None:
         inst = summary["institutions"]
         lines.append(
-            f"  institutions     at most {inst['most_on_one_paper']} per paper "
+            f"  institutions     at most {inst['most_on_one_paper']} per {noun} "
             f"(limit {rules['max_per_institution']})"
         )
     leads = summary["leads"]
     if rules["max_leads"]:
         lines.append(
             f"  leads            {leads['picked']} picked, {leads['senior_leads']} senior, "
-            f"{len(leads['no_senior_lead'])} papers without a senior lead"
+            f"{len(leads['no_senior_lead'])} {noun}s without a senior lead"
         )
     if "before" in load:
         b = load["before"]
@@ -429,7 +429,7 @@ def _plan_report(ws: Workspace, args: argparse.Namespace) -> int:
             )
         if "claim" in summary["optimality"] and summary["checked"]:
             lines[0] = f"{session.name}: plan checked; {summary['optimality']['claim']}"
-        extra = [*rule_lines(summary), *random_lines(summary), *fair_lines(summary)]
+        extra = [*rule_lines(summary, session.noun), *random_lines(summary), *fair_lines(summary)]
         print("\n".join([*lines[:-1], *extra, lines[-1]]))
     return EXIT_OK
 

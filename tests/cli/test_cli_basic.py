@@ -78,6 +78,8 @@ def test_plain_plan_output_carries_the_caution(
     out = capsys.readouterr().out
     assert "proposals 60" in out
     assert "conflict-of-interest policy" in out
+    # A grant panel's rule lines speak of proposals too, as its other lines do.
+    assert "proposals without a senior lead" in out and "papers without" not in out
 
 
 def test_conference_sample_shows_its_scarce_topic_gaps(
